@@ -1,0 +1,1 @@
+"""One module per ``cavitas`` subcommand; each defines ``register(subparsers, **kwargs)``."""
