@@ -1,0 +1,173 @@
+"""A small column table with units: what segmentation and measurement return.
+
+Columns are numpy arrays of equal length. CSV headers carry the unit in brackets
+(``volume [µm³]``) so that a spreadsheet shows it; JSON keeps units in a separate map.
+"""
+
+from __future__ import annotations
+
+import csv
+import json
+import math
+import os
+from collections.abc import Iterator, Mapping
+from typing import Any
+
+import numpy as np
+
+from ._errors import InputFileError, ParameterError
+from .io._atomic import atomic_path
+
+__all__ = ["Table"]
+
+
+class Table:
+    """Named columns of equal length, each with an optional unit.
+
+    Parameters
+    ----------
+    columns : mapping of str to array_like
+        Column name to values (one value per row). Order is kept.
+    units : mapping of str to str, optional
+        Unit per column name (omit or ``""`` for unitless columns).
+    meta : mapping, optional
+        Table-wide facts written to JSON (e.g. global figures, the caution).
+
+    Examples
+    --------
+    >>> t = Table({"label": [1, 2], "volume": [3.5, 4.0]}, units={"volume": "µm³"})
+    >>> len(t), t["volume"].tolist(), t.header()
+    (2, [3.5, 4.0], ['label', 'volume [µm³]'])
+    >>> t.row(1)
+    {'label': 2, 'volume': 4.0}
+    """
+
+    def __init__(self, columns: Mapping[str, Any], units: Mapping[str, str] | None = None,
+                 meta: Mapping[str, Any] | None = None) -> None:
+        self._columns: dict[str, np.ndarray] = {}
+        length = None
+        for name, values in columns.items():
+            arr = np.asarray(values)
+            if arr.ndim == 0:
+                raise ParameterError(f"Column {name!r} must be one-dimensional; got a scalar.")
+            if length is None:
+                length = len(arr)
+            elif len(arr) != length:
+                raise ParameterError(
+                    f"Column {name!r} has {len(arr)} values; the other columns have {length}."
+                )
+            self._columns[str(name)] = arr
+        self.units = {k: v for k, v in dict(units or {}).items() if v and k in self._columns}
+        self.meta = dict(meta or {})
+
+    @property
+    def names(self) -> list[str]:
+        """Column names in order."""
+        return list(self._columns)
+
+    def __len__(self) -> int:
+        return len(next(iter(self._columns.values()))) if self._columns else 0
+
+    def __contains__(self, name: object) -> bool:
+        return name in self._columns
+
+    def __getitem__(self, name: str) -> np.ndarray:
+        try:
+            return self._columns[name]
+        except KeyError:
+            raise KeyError(f"No column {name!r}; columns are {self.names}.") from None
+
+    def __iter__(self) -> Iterator[dict[str, Any]]:
+        for i in range(len(self)):
+            yield self.row(i)
+
+    def row(self, i: int) -> dict[str, Any]:
+        """Row ``i`` as a dict of Python scalars."""
+        return {k: _scalar(v[i]) for k, v in self._columns.items()}
+
+    def select(self, rows: Any) -> Table:
+        """A new table with the rows picked by a boolean mask or index array."""
+        return Table({k: v[rows] for k, v in self._columns.items()}, self.units, self.meta)
+
+    def with_columns(self, columns: Mapping[str, Any],
+                     units: Mapping[str, str] | None = None) -> Table:
+        """A new table with columns added (or replaced)."""
+        merged = dict(self._columns)
+        merged.update(columns)
+        return Table(merged, {**self.units, **dict(units or {})}, self.meta)
+
+    def header(self) -> list[str]:
+        """CSV header: column names with ``[unit]`` where a unit is known."""
+        return [f"{k} [{self.units[k]}]" if k in self.units else k for k in self._columns]
+
+    def to_csv(self, path: str | os.PathLike, *, force: bool = False) -> None:
+        """Write the table as UTF-8 CSV (atomically); floats keep full precision."""
+        with atomic_path(path, force=force) as tmp, open(tmp, "w", newline="",
+                                                         encoding="utf-8") as fh:
+            writer = csv.writer(fh)
+            writer.writerow(self.header())
+            for row in self:
+                writer.writerow([_csv_cell(v) for v in row.values()])
+
+    def to_dict(self) -> dict[str, Any]:
+        """A JSON-ready dict: ``columns`` (lists), ``units`` and ``meta``."""
+        return {
+            "columns": {k: [_json_value(_scalar(x)) for x in v] for k, v in self._columns.items()},
+            "units": self.units,
+            "meta": self.meta,
+        }
+
+    def to_json(self, path: str | os.PathLike, *, force: bool = False) -> None:
+        """Write :meth:`to_dict` as JSON (atomically). Non-finite numbers become null."""
+        with atomic_path(path, force=force) as tmp:
+            tmp.write_text(json.dumps(self.to_dict(), indent=1, ensure_ascii=False),
+                           encoding="utf-8")
+
+    @classmethod
+    def from_csv(cls, path: str | os.PathLike) -> Table:
+        """Read a CSV written by :meth:`to_csv` (numbers become int or float columns)."""
+        try:
+            with open(path, newline="", encoding="utf-8") as fh:
+                rows = list(csv.reader(fh))
+        except (OSError, UnicodeDecodeError) as exc:
+            raise InputFileError(f"Cannot read table '{path}': {exc}.") from exc
+        if not rows:
+            raise InputFileError(f"Table '{path}' is empty (no header line).")
+        names, units = [], {}
+        for head in rows[0]:
+            name, _, unit = head.partition(" [")
+            names.append(name)
+            if unit.endswith("]"):
+                units[name] = unit[:-1]
+        body = rows[1:]
+        columns = {n: _parse_column([r[i] for r in body]) for i, n in enumerate(names)}
+        return cls(columns, units)
+
+
+def _scalar(value: Any) -> Any:
+    return value.item() if isinstance(value, np.generic) else value
+
+
+def _csv_cell(value: Any) -> str:
+    if isinstance(value, float):
+        return "" if math.isnan(value) else repr(value)
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    return str(value)
+
+
+def _json_value(value: Any) -> Any:
+    if isinstance(value, float) and not math.isfinite(value):
+        return None
+    return value
+
+
+def _parse_column(cells: list[str]) -> np.ndarray:
+    if cells and all(c in ("true", "false") for c in cells):
+        return np.array([c == "true" for c in cells])
+    for kind in (int, float):
+        try:
+            return np.array([kind(c) if c != "" else np.nan for c in cells])
+        except ValueError:
+            continue
+    return np.array(cells, dtype=object)

@@ -1,0 +1,81 @@
+"""Atomic output: write to a temporary file beside the target, then rename it into place."""
+
+from __future__ import annotations
+
+import contextlib
+import os
+import tempfile
+from collections.abc import Iterator
+from pathlib import Path
+
+from .._errors import OutputError
+
+__all__ = ["atomic_path", "check_writable"]
+
+
+def check_writable(path: str | os.PathLike, *, force: bool = False,
+                   inputs: tuple[str | os.PathLike, ...] = ()) -> Path:
+    """Check that ``path`` may be written: not an input, and not existing unless ``force``.
+
+    Raises
+    ------
+    OutputError
+        If ``path`` is one of ``inputs``, exists without ``force``, is a folder, or its
+        folder cannot be created.
+    """
+    path = Path(path)
+    for source in inputs:
+        with contextlib.suppress(OSError):
+            if Path(source).exists() and path.exists() and path.samefile(source):
+                raise OutputError(f"Refusing to overwrite the input file '{path}'.")
+    if path.is_dir():
+        raise OutputError(f"Output '{path}' is a folder, expected a file path.")
+    if path.exists() and not force:
+        raise OutputError(
+            f"Output '{path}' already exists; use force=True (--force) to replace it."
+        )
+    try:
+        path.parent.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise OutputError(f"Cannot create the folder of '{path}': {exc.strerror or exc}.") from exc
+    return path
+
+
+@contextlib.contextmanager
+def atomic_path(path: str | os.PathLike, *, force: bool = False,
+                inputs: tuple[str | os.PathLike, ...] = ()) -> Iterator[Path]:
+    """Yield a temporary path to write; on success it replaces ``path`` in one rename.
+
+    On any error (or Ctrl-C) the temporary file is removed and ``path`` is left as it was,
+    so an output is either complete or absent. The temporary name keeps the target's
+    suffixes (``.nii.gz``), so libraries that pick a format by extension still work.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> target = pathlib.Path(tempfile.mkdtemp()) / "table.csv"
+    >>> with atomic_path(target) as tmp:
+    ...     _ = tmp.write_text("a,b\\n1,2\\n")
+    >>> target.read_text()
+    'a,b\\n1,2\\n'
+    """
+    path = check_writable(path, force=force, inputs=inputs)
+    suffix = "".join(path.suffixes[-2:]) if path.suffixes else ""
+    fd, tmp_name = tempfile.mkstemp(prefix=f".{path.name}.", suffix=f".part{suffix}",
+                                    dir=path.parent)
+    os.close(fd)
+    tmp = Path(tmp_name)
+    try:
+        yield tmp
+        if not tmp.exists():
+            raise OutputError(f"Writing '{path}' produced no file.")
+        if path.exists() and not force:  # appeared while we were writing
+            raise OutputError(
+                f"Output '{path}' appeared while it was being written; not replaced."
+            )
+        os.replace(tmp, path)
+    except OSError as exc:
+        raise OutputError(f"Cannot write '{path}': {exc.strerror or exc}.") from exc
+    finally:
+        with contextlib.suppress(FileNotFoundError):
+            tmp.unlink()
