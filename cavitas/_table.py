@@ -149,6 +149,8 @@ def _scalar(value: Any) -> Any:
 
 
 def _csv_cell(value: Any) -> str:
+    if value is None:
+        return ""
     if isinstance(value, float):
         return "" if math.isnan(value) else repr(value)
     if isinstance(value, bool):

@@ -17,7 +17,7 @@ from ._errors import EXIT_INTERNAL, EXIT_INTERRUPTED, EXIT_PARAMETER, CavitasErr
 from ._version import __version__
 
 #: Subcommands in the order ``--help`` lists them.
-COMMANDS: tuple[str, ...] = ("info",)
+COMMANDS: tuple[str, ...] = ("info", "diagram", "segment", "batch", "compare", "demo")
 
 DESCRIPTION = f"""\
 Find, segment and measure enclosed regions (cells, vesicles, capsules, pores, bubbles)

@@ -2,7 +2,9 @@
 
 from __future__ import annotations
 
+import os
 from collections.abc import Iterable, Mapping
+from typing import Any
 
 import numpy as np
 
@@ -116,6 +118,26 @@ class Diagram:
     def essential(self, dim: int) -> np.ndarray:
         """Boolean mask of the essential (never dying) classes of ``dim``."""
         return ~np.isfinite(self._pairs[self._check_dim(dim)]["death"])
+
+    def save(self, path: str | os.PathLike, *, force: bool = False,
+             extra: Mapping[str, Mapping[int, Any]] | None = None) -> None:
+        """Write the diagram to ``.npz`` or ``.csv``; see :func:`~cavitas.cubical.save_diagram`."""
+        from ._diagram_io import save_diagram
+
+        save_diagram(self, path, force=force, extra=extra)
+
+    @classmethod
+    def load(cls, path: str | os.PathLike) -> Diagram:
+        """Read a diagram file; see :func:`~cavitas.cubical.load_diagram`."""
+        from ._diagram_io import load_diagram
+
+        return load_diagram(path)
+
+    def summary(self) -> dict[str, Any]:
+        """Counts and persistence quantiles; see :func:`~cavitas.cubical.diagram_summary`."""
+        from ._summary import diagram_summary
+
+        return diagram_summary(self)
 
     def __len__(self) -> int:
         return sum(len(v) for v in self._pairs.values())

@@ -41,6 +41,16 @@ def check_writable(path: str | os.PathLike, *, force: bool = False,
     return path
 
 
+def _read_umask() -> int:
+    umask = os.umask(0)
+    os.umask(umask)
+    return umask
+
+
+#: Permission bits of a newly created ordinary file (read once: os.umask is process-wide).
+_FILE_MODE = 0o666 & ~_read_umask()
+
+
 @contextlib.contextmanager
 def atomic_path(path: str | os.PathLike, *, force: bool = False,
                 inputs: tuple[str | os.PathLike, ...] = ()) -> Iterator[Path]:
@@ -73,6 +83,7 @@ def atomic_path(path: str | os.PathLike, *, force: bool = False,
             raise OutputError(
                 f"Output '{path}' appeared while it was being written; not replaced."
             )
+        os.chmod(tmp, _FILE_MODE)  # mkstemp makes 0600 files; outputs are ordinary files
         os.replace(tmp, path)
     except OSError as exc:
         raise OutputError(f"Cannot write '{path}': {exc.strerror or exc}.") from exc

@@ -1,0 +1,189 @@
+"""``cavitas info``: what a file holds, and what a segmentation of it would need."""
+
+from __future__ import annotations
+
+import argparse
+import json
+import logging
+import sys
+from typing import Any
+
+from .._errors import CavitasError
+from ..io import Volume, estimate_memory_bytes, read, summarize
+
+__all__ = ["describe", "register", "run"]
+
+DESCRIPTION = """\
+Show what each file holds: shape, data type, voxel spacing and unit, value range and
+percentiles (1, 50, 99), NaN/Inf count, the memory a segmentation would need, and any
+problem found in the metadata. Large files are read in chunks.
+
+Memory estimate = voxels x (bytes per input voxel + 12 for the engine + 4 for the labels).
+"""
+
+EPILOG = """\
+examples:
+  cavitas info scan.tif
+  cavitas info hyperstack.tif --channel 1 --time 0
+  cavitas info brain.nii.gz cells.npy --json          one JSON object per line
+  cavitas info "stack/slice_*.png"                     a glob of 2D slices (quote it)
+  cavitas info block.raw --shape 64,256,256 --dtype uint16 --byte-order big --offset 512
+
+Several files: one block each; a file that cannot be read is reported on stderr and the
+others go on. Exit code 0 if all were read, else that of the worst failure (3 for an
+unreadable file, 2 for a bad option).
+"""
+
+
+def _numbers(kind: type, count: str) -> Any:
+    def parse(text: str) -> tuple[Any, ...]:
+        try:
+            values = tuple(kind(part) for part in text.replace("x", ",").split(",") if part)
+        except ValueError as exc:
+            raise argparse.ArgumentTypeError(
+                f"expected {count} comma-separated numbers, got {text!r}"
+            ) from exc
+        if len(values) not in (2, 3):
+            raise argparse.ArgumentTypeError(f"expected {count} numbers, got {text!r}")
+        return values
+
+    return parse
+
+
+def register(subparsers: Any, *, parents: list[argparse.ArgumentParser],
+             formatter_class: type[argparse.HelpFormatter]) -> argparse.ArgumentParser:
+    """Add the ``info`` subcommand to ``subparsers``."""
+    parser = subparsers.add_parser(
+        "info", parents=parents, formatter_class=formatter_class, description=DESCRIPTION,
+        epilog=EPILOG, help="what a file holds, and what a segmentation of it would need",
+    )
+    parser.add_argument("files", nargs="+", metavar="FILE",
+                        help="image or volume files, folders of 2D slices or glob patterns")
+    parser.add_argument("--json", action="store_true",
+                        help="print one JSON object per file (keys: source, shape, dtype, "
+                             "spacing, unit, min, max, percentiles, nonfinite, memory_bytes, "
+                             "warnings ...)")
+    choice = parser.add_argument_group("choosing in multi-channel / time-lapse files")
+    choice.add_argument("--channel", type=int, metavar="C",
+                        help="channel to read, counted from 0 (needed when there are several)")
+    choice.add_argument("--time", type=int, metavar="T",
+                        help="time point to read, counted from 0 (needed when there are several)")
+    choice.add_argument("--key", help="array to read from a .npz file holding several")
+    geometry = parser.add_argument_group("geometry (replaces what the file states)")
+    geometry.add_argument("--spacing", type=_numbers(float, "2 or 3"), metavar="Z,Y,X",
+                          help="voxel size in (z, y, x) order, e.g. 2,0.5,0.5")
+    geometry.add_argument("--unit", help="unit of the spacing, e.g. um, nm, mm")
+    raw = parser.add_argument_group("raw binary files (.raw, .bin, .img without .hdr)")
+    raw.add_argument("--shape", type=_numbers(int, "2 or 3 whole"), metavar="Z,Y,X",
+                     help="array shape in (z, y, x) order, e.g. 64,256,256")
+    raw.add_argument("--dtype", help="voxel type as a NumPy name, e.g. uint8, uint16, float32")
+    raw.add_argument("--byte-order", choices=["little", "big", "native"],
+                     help="byte order of multi-byte voxels (default: native)")
+    raw.add_argument("--offset", type=int, default=0, metavar="BYTES",
+                     help="header bytes to skip before the voxels")
+    parser.set_defaults(func=run)
+    return parser
+
+
+def describe(volume: Volume, *, progress: Any = None) -> dict[str, Any]:
+    """The facts ``cavitas info`` shows about a volume, as a JSON-ready dict.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> facts = describe(Volume(np.arange(8, dtype=np.uint8).reshape(2, 4)))
+    >>> facts["shape"], facts["min"], facts["max"], facts["memory_bytes"]
+    ([2, 4], 0, 7, 136)
+    """
+    stats = summarize(volume.data, progress=progress)
+    return {
+        "source": volume.source,
+        "format": volume.meta.get("format"),
+        "shape": list(volume.shape),
+        "dtype": str(volume.dtype),
+        "spacing": list(volume.spacing),
+        "unit": volume.unit,
+        "channel": volume.meta.get("channel"),
+        "time": volume.meta.get("time"),
+        "min": stats["min"],
+        "max": stats["max"],
+        "percentiles": stats["percentiles"],
+        "percentiles_exact": stats["exact"],
+        "nonfinite": stats["nonfinite"],
+        "memory_bytes": estimate_memory_bytes(volume.shape, volume.dtype),
+        "warnings": list(volume.meta.get("warnings", [])),
+    }
+
+
+def _size(count: float) -> str:
+    for unit in ("B", "KiB", "MiB", "GiB", "TiB"):
+        if count < 1024 or unit == "TiB":
+            return f"{count:.0f} {unit}" if unit == "B" else f"{count:.1f} {unit}"
+        count /= 1024
+    raise AssertionError("unreachable")  # pragma: no cover
+
+
+def _number(value: Any) -> str:
+    return "n/a" if value is None else f"{value:g}"
+
+
+def _text(facts: dict[str, Any]) -> str:
+    axes = "(z, y, x)" if len(facts["shape"]) == 3 else "(y, x)"
+    voxels = 1
+    for n in facts["shape"]:
+        voxels *= n
+    spacing = " × ".join(f"{s:g}" for s in facts["spacing"])
+    chosen = ", ".join(f"{k} {facts[k]}" for k in ("channel", "time") if facts[k] is not None)
+    pct = ", ".join(f"{k} %: {_number(v)}" for k, v in facts["percentiles"].items())
+    approx = "" if facts["percentiles_exact"] else " (from a histogram)"
+    lines = [
+        facts["source"],
+        f"  format      {facts['format']}" + (f" ({chosen})" if chosen else ""),
+        f"  shape       {axes} = {' × '.join(map(str, facts['shape']))} ({voxels:,} voxels)",
+        f"  dtype       {facts['dtype']}",
+        f"  spacing     {axes} = {spacing} {facts['unit']}",
+        f"  values      min {_number(facts['min'])}, max {_number(facts['max'])}",
+        f"  percentiles {pct}{approx}",
+        f"  NaN / Inf   {facts['nonfinite']:,} voxels",
+        f"  memory      about {_size(facts['memory_bytes'])} for a segmentation",
+    ]
+    lines += [f"  warning     {w}" for w in facts["warnings"]] or ["  warnings    none"]
+    return "\n".join(lines)
+
+
+def _progress(quiet: bool) -> Any:
+    from tqdm import tqdm
+
+    def wrap(chunks: Any, total: int) -> Any:
+        return tqdm(chunks, total=total, desc="statistics", unit="chunk", leave=False,
+                    file=sys.stderr, disable=quiet or total < 2)
+
+    return wrap
+
+
+def run(args: argparse.Namespace) -> int:
+    """Describe each file; carry on past failures; return the worst exit code."""
+    options = dict(channel=args.channel, time=args.time, key=args.key, spacing=args.spacing,
+                   unit=args.unit, shape=args.shape, dtype=args.dtype,
+                   byte_order=args.byte_order, offset=args.offset)
+    failed = 0
+    reader_log = logging.getLogger("cavitas.io")
+    level = reader_log.level
+    for index, name in enumerate(args.files):
+        reader_log.setLevel(logging.ERROR)  # metadata warnings are shown in the block
+        try:
+            facts = describe(read(name, **options), progress=_progress(args.quiet))
+        except CavitasError as exc:
+            if args.debug:
+                raise
+            print(f"cavitas info: error: {exc}", file=sys.stderr)
+            failed = max(failed, exc.exit_code)
+            continue
+        finally:
+            reader_log.setLevel(level)
+        if args.json:
+            print(json.dumps(facts, ensure_ascii=False))
+        else:
+            print(("\n" if index else "") + _text(facts))
+    return failed
+

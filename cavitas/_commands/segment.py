@@ -1,0 +1,182 @@
+"""``cavitas segment``: find the enclosed regions of one image and write labels and tables."""
+
+from __future__ import annotations
+
+import argparse
+from pathlib import Path
+from typing import Any
+
+from .._caution import RESEARCH_ONLY
+
+__all__ = [
+    "add_segment_options",
+    "params_from_args",
+    "read_options_from_args",
+    "register",
+    "run",
+]
+
+DESCRIPTION = f"""\
+Find the enclosed regions (cells, pores, vesicles, capsules, bubbles) of a 2D image or 3D
+volume and write them to OUTDIR:
+
+  labels.<ext>   one label per chamber (0 = walls, outside, border-cut regions), with the
+                 input's format and geometry (--label-format to change the format)
+  regions.csv    chambers, enclosures (groups of chambers inside a common wall) and
+                 border-cut regions: parent, depth, persistence, margin, level, volumes
+  diagram.csv    every cavity of the persistence diagram, with kept and margin columns
+  diagram.png    the diagram drawn, kept cavities filled, the threshold band shaded
+  run.json       every parameter and value chosen, the version, the input's SHA-256
+
+By default the significance threshold is automatic: the noise level is estimated from
+the image and a cavity is kept when its persistence (how much brighter its weakest wall
+point is than its darkest inside voxel) stands clear of the largest persistence that noise
+alone produces at the chosen smoothing. The smoothing is chosen from the data too.
+
+{RESEARCH_ONLY}
+"""
+
+EPILOG = """\
+examples:
+  cavitas segment foam.tif -o foam-out
+      bright walls, everything automatic
+  cavitas segment cells.ome.tif -o out --walls dark --min-volume 20 --shells 0.5
+      dark membranes; drop regions under 20 µm² (or µm³); shells 0.5 µm thick
+  cavitas segment capsules.nii.gz -o out --top 10 --enclosures --mesh ply
+      the ten most persistent chambers, the enclosures map, one PLY surface per chamber
+  cavitas segment scan.tif -o out --min-persistence 40 --region breach --level-fraction 0.8
+      a fixed threshold in intensity units; strict regions cut at 80 % of their level
+  cavitas segment scan.tif -o out --params settings.toml --force
+      parameters from a TOML file (options on the command line win), replacing output
+"""
+
+
+def register(subparsers: Any, *, parents: list[argparse.ArgumentParser],
+             formatter_class: type[argparse.HelpFormatter]) -> argparse.ArgumentParser:
+    """Add the ``segment`` subcommand to ``subparsers``."""
+    p = subparsers.add_parser(
+        "segment", parents=parents, formatter_class=formatter_class,
+        help="segment the enclosed regions of one image: labels, tables, shells",
+        description=DESCRIPTION, epilog=EPILOG,
+    )
+    p.add_argument("file", metavar="FILE", help="the 2D image or 3D volume to segment")
+    p.add_argument("-o", "--out", metavar="OUTDIR", required=True, type=Path,
+                   help="folder for the outputs (created if needed)")
+    add_segment_options(p)
+    p.add_argument("--no-report", action="store_true",
+                   help="do not write report.html (tables, maps and run.json are written)")
+    p.add_argument("--no-thickness", action="store_true",
+                   help="skip the wall-thickness measurement (slow on thick walls)")
+    p.add_argument("--force", action="store_true", help="replace outputs that already exist")
+    p.set_defaults(func=run)
+    return p
+
+
+def add_segment_options(p: argparse.ArgumentParser) -> None:
+    """Add the segmentation and reading options (shared by ``segment`` and ``batch``)."""
+    p.add_argument("--params", metavar="FILE.toml",
+                   help="read parameters from a TOML file (top level or a [segment] table; "
+                        "names as in the Python API, e.g. min_volume = 20)")
+    g = p.add_argument_group("what a wall is")
+    g.add_argument("--walls", choices=("bright", "dark"),
+                   help="polarity of the walls around the regions (default: bright)")
+    g.add_argument("--connectivity", type=int, metavar="N",
+                   help="connectivity of the wall set: 1 = faces only (default), 2 in 2D / 3 "
+                        "in 3D = full; regions use the complementary rule")
+    g.add_argument("--mask", metavar="MASKFILE",
+                   help="region of interest, same shape as the image: nonzero voxels are "
+                        "analysed, the rest counts as outside the scan")
+    g = p.add_argument_group("which regions to keep (criteria combine)")
+    g.add_argument("--auto", dest="auto", action="store_true", default=None,
+                   help="automatic significance (the default unless a persistence threshold "
+                        "is given; with one, the stricter of both applies)")
+    g.add_argument("--no-auto", dest="auto", action="store_false",
+                   help="no automatic significance: keep every cavity passing the others")
+    g.add_argument("--min-persistence", type=float, metavar="P",
+                   help="minimum persistence in the image's intensity units")
+    g.add_argument("--relative-persistence", type=float, metavar="F",
+                   help="minimum persistence as a fraction (0-1] of the image's robust range "
+                        "(0.5th to 99.5th percentile)")
+    g.add_argument("--top", type=int, metavar="K", help="keep at most the K most persistent")
+    g.add_argument("--min-volume", type=float, metavar="V",
+                   help="smallest region volume (area in 2D) in physical units; needs spacing")
+    g.add_argument("--max-volume", type=float, metavar="V",
+                   help="largest region volume (area in 2D) in physical units")
+    g.add_argument("--smooth", type=float, metavar="SIGMA",
+                   help="Gaussian smoothing σ in physical units before detection (0 = none; "
+                        "default: chosen from the data in automatic mode)")
+    g.add_argument("--safety", type=float, metavar="S",
+                   help="factor on the noise-only persistence in automatic mode (default 2)")
+    g = p.add_argument_group("what a region is")
+    g.add_argument("--region", choices=("basin", "breach"),
+                   help="basin (default): flooding partition minus each basin's wall, what "
+                        "you measure; breach: the strict component below the chamber's level")
+    g.add_argument("--level-fraction", type=float, metavar="F",
+                   help="breach regions: cut at this fraction [0-1] of the way from the core "
+                        "level to the chamber's level")
+    g.add_argument("--keep-border", action="store_true", default=None,
+                   help="keep regions cut by the scan or ROI border in labels (they are "
+                        "always listed in regions.csv)")
+    g = p.add_argument_group("extra outputs")
+    g.add_argument("--shells", nargs="?", type=float, const=0.0, metavar="THICKNESS",
+                   help="write shells.<ext>: the wall voxels around each region, thickened "
+                        "by THICKNESS in physical units (default 0: touching voxels only)")
+    g.add_argument("--enclosures", action="store_true", default=None,
+                   help="write enclosures.<ext>: groups of chambers inside a common wall")
+    g.add_argument("--mesh", choices=("ply", "stl"),
+                   help="write a surface mesh per chamber into meshes/ (3D only)")
+    g.add_argument("--label-format", metavar="EXT",
+                   help="file format of the label maps, e.g. .tif, .nii.gz, .npy "
+                        "(default: the input's; PNG and raw input give .tif)")
+    g = p.add_argument_group("reading")
+    g.add_argument("--channel", type=int, metavar="C", help="channel of a multichannel file")
+    g.add_argument("--time", type=int, metavar="T", help="time point of a time series")
+
+
+#: Command-line options that map one-to-one onto SegmentParams fields.
+_FIELDS = ("walls", "connectivity", "mask", "auto", "min_persistence", "relative_persistence",
+           "top", "min_volume", "max_volume", "smooth", "safety", "region", "level_fraction",
+           "keep_border", "shells", "enclosures", "mesh", "label_format")
+
+
+def params_from_args(args: argparse.Namespace) -> Any:
+    """The SegmentParams of ``args``: the ``--params`` file, then options given on top."""
+    from ..segment import SegmentParams
+
+    base = SegmentParams.from_toml(args.params) if args.params else SegmentParams()
+    given = {name: getattr(args, name) for name in _FIELDS if getattr(args, name) is not None}
+    return base.replace(**given)
+
+
+def read_options_from_args(args: argparse.Namespace) -> dict[str, Any]:
+    """The ``cavitas.io.read`` options given on the command line (channel, time)."""
+    return {k: getattr(args, k) for k in ("channel", "time") if getattr(args, k) is not None}
+
+
+def run(args: argparse.Namespace) -> int:
+    """Run ``cavitas segment`` and print a short summary."""
+    from ..workflow import segment_file
+
+    params, read_options = params_from_args(args), read_options_from_args(args)
+    summary = segment_file(args.file, args.out, params, force=args.force,
+                           progress=not args.quiet, read_options=read_options,
+                           report=not args.no_report, thickness=not args.no_thickness)
+    if not args.quiet:
+        unit = summary["unit"]
+        enclosures = summary["enclosures"]
+        extra = f", {enclosures} enclosures" if enclosures else ""
+        print(f"{args.file}: {summary['message']}{extra}.")
+        print(f"  border-cut regions (listed in regions.csv, "
+              f"{'kept' if params.keep_border else 'not'} in labels): {summary['border_cut']}")
+        print(f"  noise σ {summary['noise']:.4g}, persistence threshold "
+              f"{summary['threshold']:.4g} (intensity units), smoothing σ "
+              f"{summary['smooth_sigma']:.3g} {unit}")
+        if summary["porosity"] is not None and summary["regions"]:
+            vunit = f"{unit}{'³' if len(summary['shape']) == 3 else '²'}"
+            print(f"  volume fraction of the regions (closed porosity) "
+                  f"{summary['porosity']:.4f}; mean region size {summary['mean_volume']:.4g} "
+                  f"{vunit}")
+        print(f"  outputs in {args.out}: " + ", ".join(
+            Path(p).name for p in summary["outputs"].values()))
+        print(RESEARCH_ONLY)
+    return 0

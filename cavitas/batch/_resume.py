@@ -1,0 +1,183 @@
+"""Completion records: a ``done.json`` per input, written last, that makes a re-run skip it.
+
+An input's output folder is built under a hidden staging name and renamed into place only
+after its ``done.json`` is written, so a folder under its final name is always complete.
+Staging folders left by an interrupted run are removed when the next run starts.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import hashlib
+import json
+import os
+import shutil
+import uuid
+from collections.abc import Mapping
+from pathlib import Path
+from typing import Any
+
+from .._caution import RESEARCH_ONLY
+from .._errors import InputFileError, OutputError
+from ..io._atomic import atomic_path
+
+__all__ = [
+    "DONE_NAME",
+    "input_checksum",
+    "json_ready",
+    "new_staging",
+    "publish",
+    "read_record",
+    "remove_stale",
+    "reusable",
+    "write_record",
+]
+
+#: File name of the completion record inside each input's output folder.
+DONE_NAME = "done.json"
+_STAGING = ".partial-"
+_RETIRED = ".old-"
+_BLOCK = 1 << 20
+
+
+def json_ready(value: Any) -> Any:
+    """``value`` as it reads back from JSON (tuples become lists), for exact comparison.
+
+    Examples
+    --------
+    >>> json_ready({"spacing": (1, 2.5), "walls": "bright"})
+    {'spacing': [1, 2.5], 'walls': 'bright'}
+    """
+    return json.loads(json.dumps(value, sort_keys=True, default=str))
+
+
+def input_checksum(path: str | os.PathLike) -> str:
+    """SHA-256 of an input file, or of every file in an input folder (a Zarr store).
+
+    For a folder the digest covers each file's relative path and bytes, in sorted order,
+    so renaming or changing any chunk changes it.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> f = pathlib.Path(tempfile.mkdtemp()) / "a.raw"
+    >>> _ = f.write_bytes(b"abc")
+    >>> input_checksum(f)[:16]  # SHA-256 of b"abc" (FIPS 180-2, appendix B.1)
+    'ba7816bf8f01cfea'
+    """
+    path = Path(path)
+    digest = hashlib.sha256()
+    try:
+        if path.is_dir():
+            for file in sorted(p for p in path.rglob("*") if p.is_file()):
+                digest.update(file.relative_to(path).as_posix().encode() + b"\0")
+                _feed(digest, file)
+        else:
+            _feed(digest, path)
+    except OSError as exc:
+        raise InputFileError(f"Cannot read '{path}': {exc.strerror or exc}.") from exc
+    return digest.hexdigest()
+
+
+def _feed(digest: Any, file: Path) -> None:
+    with open(file, "rb") as fh:
+        while block := fh.read(_BLOCK):
+            digest.update(block)
+
+
+def write_record(folder: Path, *, input_path: str, checksum: str, params: Mapping[str, Any],
+                 version: str, summary: Mapping[str, Any], seconds: float) -> Path:
+    """Write ``folder/done.json`` listing every file already in ``folder`` with its size."""
+    outputs = {
+        p.relative_to(folder).as_posix(): p.stat().st_size
+        for p in sorted(folder.rglob("*")) if p.is_file() and p.name != DONE_NAME
+    }
+    record = {
+        "input": str(input_path),
+        "input_sha256": checksum,
+        "params": json_ready(dict(params)),
+        "version": version,
+        "summary": json_ready(dict(summary)),
+        "seconds": round(float(seconds), 3),
+        "outputs": outputs,
+        "caution": RESEARCH_ONLY,
+    }
+    target = folder / DONE_NAME
+    with atomic_path(target, force=True) as tmp:
+        tmp.write_text(json.dumps(record, indent=1, ensure_ascii=False), encoding="utf-8")
+    return target
+
+
+def read_record(folder: Path) -> dict[str, Any] | None:
+    """The completion record of ``folder``, or ``None`` if it is missing or unreadable."""
+    try:
+        record = json.loads((folder / DONE_NAME).read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return None
+    return record if isinstance(record, dict) else None
+
+
+def reusable(folder: Path, *, checksum: str, params: Mapping[str, Any],
+             version: str) -> tuple[bool, str]:
+    """Whether ``folder`` holds a complete run with these parameters, input and version.
+
+    Returns ``(True, "")`` or ``(False, reason)``; the reason is one sentence.
+    """
+    record = read_record(folder)
+    if record is None:
+        return False, f"has no readable {DONE_NAME} (no finished batch run wrote it)"
+    if record.get("input_sha256") != checksum:
+        return False, "the input file changed since it was processed"
+    if record.get("params") != json_ready(dict(params)):
+        return False, "it was processed with other parameters"
+    if record.get("version") != version:
+        return False, f"it was processed by cavitas {record.get('version')}, not {version}"
+    for name, size in dict(record.get("outputs", {})).items():
+        file = folder / name
+        if not file.is_file() or file.stat().st_size != size:
+            return False, f"its output '{file}' is missing or changed"
+    return True, ""
+
+
+def new_staging(root: Path, name: str) -> Path:
+    """Create and return an empty hidden staging folder for output ``name`` under ``root``."""
+    staging = root / f".{name}{_STAGING}{uuid.uuid4().hex[:12]}"
+    try:
+        staging.mkdir(parents=True)
+    except OSError as exc:
+        raise OutputError(f"Cannot create the folder '{staging}': {exc.strerror or exc}.") \
+            from exc
+    return staging
+
+
+def publish(staging: Path, final: Path) -> None:
+    """Rename a finished staging folder to ``final``, retiring an older ``final`` first."""
+    retired = None
+    try:
+        if final.exists():
+            retired = final.with_name(f".{final.name}{_RETIRED}{uuid.uuid4().hex[:12]}")
+            os.replace(final, retired)
+        os.replace(staging, final)
+    except OSError as exc:
+        raise OutputError(f"Cannot move the finished outputs to '{final}': "
+                          f"{exc.strerror or exc}.") from exc
+    if retired is not None:
+        shutil.rmtree(retired, ignore_errors=True)
+
+
+def remove_stale(root: Path, name: str = "") -> list[Path]:
+    """Remove staging and retired folders that an interrupted run left in ``root``.
+
+    With ``name``, only those of that output (another worker's may be in use).
+    """
+    removed = []
+    if root.is_dir():
+        for entry in root.iterdir():
+            for marker in (_STAGING, _RETIRED):
+                base, found, _ = entry.name[1:].partition(marker)
+                if entry.name.startswith(".") and found and (not name or base == name):
+                    with contextlib.suppress(OSError):
+                        shutil.rmtree(entry) if entry.is_dir() else entry.unlink()
+                        removed.append(entry)
+                    break
+    return removed

@@ -1,0 +1,227 @@
+"""Run a batch: expand the inputs, process each (locally or on Dask), write the batch tables."""
+
+from __future__ import annotations
+
+import json
+import logging
+import os
+import sys
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, field
+from datetime import datetime, timezone
+from pathlib import Path
+from typing import Any
+
+from .._caution import RESEARCH_ONLY
+from .._errors import EXIT_OK, EXIT_SOME_FAILED, OutputError, ParameterError
+from .._version import __version__
+from ..io._atomic import atomic_path
+from ._index import write_index
+from ._inputs import expand_inputs
+from ._lock import folder_lock
+from ._memory import available_memory, estimate_task_bytes
+from ._resume import json_ready, remove_stale
+from ._summary import combined_regions, summary_table
+from ._task import DEFAULT_WORKER, FAILED, Task
+
+__all__ = ["BatchResult", "run_batch"]
+
+log = logging.getLogger(__name__)
+
+#: Files the batch writes at the top of its output folder (and owns: rewritten each run).
+SUMMARY_NAME, REGIONS_NAME, INDEX_NAME, RECORD_NAME = (
+    "summary.csv", "regions.csv", "index.html", "batch.json")
+#: Share of the available memory that concurrent local tasks may use together.
+MEMORY_SHARE = 0.8
+
+
+@dataclass
+class BatchResult:
+    """What a batch did: one result per input (in input order) and the files it wrote."""
+
+    results: list[dict[str, Any]]
+    root: Path
+    files: dict[str, Path] = field(default_factory=dict)
+
+    @property
+    def failed(self) -> list[dict[str, Any]]:
+        """Results of the inputs that failed (each with its one-sentence ``error``)."""
+        return [r for r in self.results if r["status"] == FAILED]
+
+    @property
+    def exit_code(self) -> int:
+        """0 if every input is complete, 1 if some failed."""
+        return EXIT_SOME_FAILED if self.failed else EXIT_OK
+
+
+def params_record(params: Any) -> dict[str, Any]:
+    """The parameters as a JSON-ready dict (``to_dict()`` of a params object, or a mapping).
+
+    Examples
+    --------
+    >>> params_record({"walls": "dark", "spacing": (1, 2)})
+    {'spacing': [1, 2], 'walls': 'dark'}
+    """
+    if params is None:
+        return {}
+    if hasattr(params, "to_dict"):
+        return json_ready(params.to_dict())
+    if isinstance(params, Mapping):
+        return json_ready(dict(params))
+    raise ParameterError(f"params must be a parameters object or a mapping; got "
+                         f"{type(params).__name__}.")
+
+
+def default_jobs() -> int:
+    """Worker processes by default: the cores this process may use."""
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except AttributeError:  # not on Linux
+        return max(1, os.cpu_count() or 1)
+
+
+def _check_owned(root: Path, force: bool) -> None:
+    if (root / RECORD_NAME).exists() or force:
+        return
+    for name in (SUMMARY_NAME, REGIONS_NAME, INDEX_NAME):
+        if (root / name).exists():
+            raise OutputError(f"Output '{root / name}' already exists and was not written by "
+                              "a cavitas batch; use --force to replace it.")
+
+
+def run_batch(inputs: Sequence[str | os.PathLike], outdir: str | os.PathLike,
+              params: Any = None, *, jobs: int | None = None, scheduler: str | None = None,
+              dask: bool = False, force: bool = False, progress: bool = True,
+              read_options: Mapping[str, Any] | None = None, worker: str = DEFAULT_WORKER,
+              memory_budget: int | None = None) -> BatchResult:
+    """Process many inputs into ``outdir``: one folder per input plus batch-wide tables.
+
+    Each input gets ``outdir/<name>-<hash>/`` (its segmentation outputs and a ``done.json``
+    completion record); the batch writes ``summary.csv`` (one row per input),
+    ``regions.csv`` (every region, with its source file), ``index.html`` and
+    ``batch.json``. A failing input is recorded with one sentence and the others go on.
+    Running the same batch again reuses every input whose outputs are complete and whose
+    parameters, input checksum and cavitas version match.
+
+    Parameters
+    ----------
+    inputs : sequence of path or str
+        Files, folders (their image files) and glob patterns.
+    outdir : path or str
+        The batch output folder (created if needed).
+    params : SegmentParams or mapping, optional
+        Segmentation parameters, passed to the worker and recorded with every output.
+    jobs : int, optional
+        Most inputs processed at once (default: the usable cores). Locally, fewer run
+        together when their estimated memory would exceed what is available.
+    scheduler : str, optional
+        Address of a Dask scheduler to send the inputs to (needs the ``cluster`` extra).
+    dask : bool, optional
+        Use Dask: a local cluster of ``jobs`` workers unless ``scheduler`` is given.
+    force : bool, optional
+        Redo every input and replace existing outputs.
+    progress : bool, optional
+        Show a progress bar with an ETA on stderr.
+    read_options : mapping, optional
+        Options for reading every input (``channel``, ``time``), recorded like parameters.
+    worker : str, optional
+        ``"module:function"`` that processes one input (default: ``segment_file``).
+    memory_budget : int, optional
+        Bytes the concurrent local tasks may use together (default: 80% of available).
+
+    Returns
+    -------
+    BatchResult
+
+    Notes
+    -----
+    Local workers are new Python processes (the ``spawn`` start method), so a script that
+    calls this function must do so under ``if __name__ == "__main__":``, as with any
+    process pool. A task starts only while the estimated peak memory of the running tasks
+    (see ``_memory.estimate_task_bytes``) fits in ``memory_budget``.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> d = pathlib.Path(tempfile.mkdtemp())
+    >>> _ = (d / "blank.tif").write_bytes(b"")
+    >>> out = run_batch([d], d / "out", jobs=1, progress=False)
+    >>> out.exit_code, [r["status"] for r in out.results], sorted(out.files)
+    (1, ['failed'], ['batch.json', 'index.html', 'regions.csv', 'summary.csv'])
+    """
+    jobs = default_jobs() if jobs is None else jobs
+    if not isinstance(jobs, int) or jobs < 1:
+        raise ParameterError(f"--jobs must be a whole number >= 1; got {jobs!r}.")
+    root = Path(os.path.abspath(outdir))
+    items = [i for i in expand_inputs(list(inputs)) if root not in i.path.parents]
+    if not items:  # e.g. a glob that only matched earlier outputs
+        raise ParameterError(f"Every input found lies inside the output folder '{root}'.")
+    if root.exists() and not root.is_dir():
+        raise OutputError(f"Output '{root}' is a file; expected a folder for the batch.")
+    _check_owned(root, force)
+    record = params_record(params)
+    if read_options:
+        record["read_options"] = json_ready(dict(read_options))
+    tasks = [Task(path=str(item.path), name=item.name, root=str(root), params=params,
+                  record=record, force=force, worker=worker,
+                  read_options=dict(read_options or {})) for item in items]
+    started = datetime.now(timezone.utc)
+    with folder_lock(root):
+        remove_stale(root)
+        results = _execute(tasks, jobs=jobs, scheduler=scheduler, dask=dask,
+                           progress=progress, memory_budget=memory_budget)
+        files = _write_batch_files(root, results, record, started)
+    return BatchResult(results, root, files)
+
+
+def _execute(tasks: list[Task], *, jobs: int, scheduler: str | None, dask: bool,
+             progress: bool, memory_budget: int | None) -> list[dict[str, Any]]:
+    from tqdm import tqdm
+
+    failed = 0
+    with tqdm(total=len(tasks), unit="input", desc="batch", disable=not progress,
+              file=sys.stderr, dynamic_ncols=True) as bar:
+
+        def on_result(result: dict[str, Any]) -> None:
+            nonlocal failed
+            if result["status"] == FAILED:
+                failed += 1
+                bar.set_postfix_str(f"{failed} failed", refresh=False)
+                log.info("%s: %s", result["input"], result["error"])
+            bar.update(1)
+
+        if dask or scheduler:
+            from ._dask import run_dask
+
+            return run_dask(tasks, scheduler=scheduler, jobs=jobs, on_result=on_result)
+        from ._local import run_local
+
+        if memory_budget is None:
+            available = available_memory()
+            memory_budget = None if available is None else int(available * MEMORY_SHARE)
+        estimates = [estimate_task_bytes(t.path) for t in tasks]
+        return run_local(tasks, jobs=jobs, estimates=estimates, budget=memory_budget,
+                         on_result=on_result)
+
+
+def _write_batch_files(root: Path, results: list[dict[str, Any]], record: dict[str, Any],
+                       started: datetime) -> dict[str, Path]:
+    files = {name: root / name for name in (SUMMARY_NAME, REGIONS_NAME, INDEX_NAME,
+                                             RECORD_NAME)}
+    summary = summary_table(results)
+    summary.to_csv(files[SUMMARY_NAME], force=True)
+    combined_regions(results, root).to_csv(files[REGIONS_NAME], force=True)
+    write_index(files[INDEX_NAME], summary, root=root, params=record, version=__version__,
+                tables={"summary": SUMMARY_NAME, "all regions": REGIONS_NAME,
+                        "run record": RECORD_NAME})
+    batch = {
+        "version": __version__,
+        "params": record,
+        "started": started.isoformat(timespec="seconds"),
+        "finished": datetime.now(timezone.utc).isoformat(timespec="seconds"),
+        "inputs": [{k: r[k] for k in ("input", "name", "status", "error")} for r in results],
+        "caution": RESEARCH_ONLY,
+    }
+    with atomic_path(files[RECORD_NAME], force=True) as tmp:
+        tmp.write_text(json.dumps(batch, indent=1, ensure_ascii=False), encoding="utf-8")
+    return files

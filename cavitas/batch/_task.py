@@ -1,0 +1,155 @@
+"""One batch input, start to finish: skip if complete, else segment into staging and publish.
+
+:func:`run_task` is what every backend (local processes, Dask) runs, so their results are
+the same by construction. It never raises for a problem with the input: the problem comes
+back as one sentence in the result, and the other inputs go on.
+"""
+
+from __future__ import annotations
+
+import importlib
+import shutil
+import time
+from collections.abc import Callable, Mapping
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from .._errors import CavitasError
+from .._version import __version__
+from ._resume import (
+    input_checksum,
+    new_staging,
+    publish,
+    read_record,
+    reusable,
+    write_record,
+)
+
+__all__ = ["Task", "resolve_worker", "run_task"]
+
+#: The default worker: reads, segments and writes one input into a folder.
+DEFAULT_WORKER = "cavitas.workflow:segment_file"
+
+#: Statuses of a task result.
+DONE, REUSED, FAILED = "done", "reused", "failed"
+
+
+@dataclass(frozen=True)
+class Task:
+    """What a worker needs to process one input.
+
+    Parameters
+    ----------
+    path : str
+        The input file (absolute).
+    name : str
+        Name of its output folder under ``root``.
+    root : str
+        The batch output folder.
+    params : object
+        Segmentation parameters handed to the worker function unchanged.
+    record : mapping
+        The same parameters as a JSON-ready dict, compared on resume.
+    force : bool
+        Redo the input even if its outputs are complete.
+    worker : str
+        ``"module:function"`` called as ``worker(path, outdir, params, force=True,
+        progress=False)``; it must write its outputs into ``outdir`` and return a dict.
+    read_options : mapping
+        Options for reading the input (channel, time); passed to the worker when given.
+    """
+
+    path: str
+    name: str
+    root: str
+    params: Any
+    record: Mapping[str, Any] = field(default_factory=dict)
+    force: bool = False
+    worker: str = DEFAULT_WORKER
+    read_options: Mapping[str, Any] = field(default_factory=dict)
+    version: str = __version__
+
+
+def resolve_worker(spec: str) -> Callable[..., Mapping[str, Any]]:
+    """Import the worker function named ``"module:function"``.
+
+    Examples
+    --------
+    >>> resolve_worker("os.path:basename")("/a/b.tif")
+    'b.tif'
+    """
+    module, _, name = spec.partition(":")
+    return getattr(importlib.import_module(module), name)
+
+
+def failure_sentence(exc: BaseException, path: str) -> str:
+    """One sentence for a failed input: the error's own sentence, or a plain note for a bug.
+
+    Examples
+    --------
+    >>> failure_sentence(ValueError("bad"), "/d/a.tif")
+    "Internal error on '/d/a.tif' (ValueError: bad); please report it."
+    """
+    if isinstance(exc, CavitasError):
+        return str(exc)
+    if isinstance(exc, MemoryError):
+        return f"'{path}' needs more memory than was available; run it with fewer --jobs."
+    return f"Internal error on '{path}' ({type(exc).__name__}: {exc}); please report it."
+
+
+def run_task(task: Task) -> dict[str, Any]:
+    """Process one input and return its result row (never raises for input problems).
+
+    The result has ``input``, ``name``, ``status`` (``"done"``, ``"reused"`` or
+    ``"failed"``), ``error`` (one sentence or ``""``), ``seconds`` and ``summary`` (the
+    worker's figures).
+    """
+    start = time.perf_counter()
+    result: dict[str, Any] = {"input": task.path, "name": task.name, "status": FAILED,
+                              "error": "", "seconds": 0.0, "summary": {}}
+    root, final = Path(task.root), Path(task.root) / task.name
+    staging = None
+    try:
+        checksum = input_checksum(task.path)
+        if final.exists() and not task.force:
+            ok, why = reusable(final, checksum=checksum, params=task.record,
+                               version=task.version)
+            if ok:
+                record = read_record(final) or {}
+                result.update(status=REUSED, summary=record.get("summary", {}),
+                              seconds=record.get("seconds", 0.0))
+                return result
+            result["error"] = (f"Output folder '{final}' exists but {why}; "
+                               "use --force to replace it.")
+            return result
+        staging = new_staging(root, task.name)
+        options = {"read_options": dict(task.read_options)} if task.read_options else {}
+        figures = resolve_worker(task.worker)(task.path, staging, task.params, force=True,
+                                              progress=False, **options)
+        seconds = time.perf_counter() - start
+        summary = _plain_figures(figures or {})
+        write_record(staging, input_path=task.path, checksum=checksum, params=task.record,
+                     version=task.version, summary=summary, seconds=seconds)
+        publish(staging, final)
+        staging = None
+        result.update(status=DONE, summary=summary, seconds=round(seconds, 3))
+    except Exception as exc:  # one failing input must not stop the others
+        result["error"] = failure_sentence(exc, task.path)
+    finally:
+        if staging is not None:
+            shutil.rmtree(staging, ignore_errors=True)
+        if result["status"] == FAILED:
+            result["seconds"] = round(time.perf_counter() - start, 3)
+    return result
+
+
+def _plain_figures(figures: Mapping[str, Any]) -> dict[str, Any]:
+    """The scalar entries of a worker's result (numpy scalars become Python ones)."""
+    plain = {}
+    for key, value in figures.items():
+        if hasattr(value, "item") and getattr(value, "ndim", 1) == 0:
+            value = value.item()
+        if value is None or isinstance(value, (bool, int, float, str)):
+            plain[str(key)] = value
+    return plain

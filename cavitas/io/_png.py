@@ -1,0 +1,52 @@
+"""PNG images (2D) via Pillow, which matplotlib and scikit-image already require.
+
+Grey images keep their type (8-bit ``uint8``, 16-bit ``uint16``); colour images (RGB,
+RGBA, grey + alpha) need ``channel=`` (0 = red ...); palette images give their palette
+indices (label images are often stored so). The pixel size comes from the ``pHYs`` chunk
+when it states one (Pillow reports it in dots per inch); 72 dpi is ignored as a placeholder.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from .._errors import CavitasError, InputFileError
+from ._assemble import Decoded, note
+from ._axes import select_planes
+
+__all__ = ["read_png"]
+
+_PLACEHOLDER_DPI = 72.0
+
+
+def read_png(path: Path, *, channel: int | None = None) -> Decoded:
+    """Read a PNG image as a 2D array; see the module notes."""
+    from PIL import Image  # Pillow: a dependency of matplotlib and scikit-image
+
+    meta: dict[str, Any] = {"format": "PNG"}
+    try:
+        with Image.open(path) as image:
+            image.load()
+            mode, info = image.mode, dict(image.info)
+            data = np.asarray(image)
+        if mode == "P":
+            note(meta, path, "a palette image; reading the palette indices")
+        if data.dtype == bool:
+            data = data.astype(np.uint8)
+        data, chosen = select_planes(data, "YXC"[: data.ndim], channel=channel, time=None,
+                                     name=str(path))
+    except CavitasError:
+        raise
+    except Exception as exc:  # Pillow raises OSError, SyntaxError, ValueError ...
+        raise InputFileError(f"'{path}' cannot be read as PNG: {exc}.") from exc
+    meta.update(chosen)
+    spacing = None
+    dpi = info.get("dpi")
+    if dpi and max(abs(d - _PLACEHOLDER_DPI) for d in dpi) < 0.1:
+        note(meta, path, "72 dots per inch is a placeholder, not a pixel size; ignored")
+    elif dpi and min(dpi) > 0:
+        spacing = (25400.0 / float(dpi[1]), 25400.0 / float(dpi[0]))
+    return Decoded(data, spacing, "µm" if spacing else None, None, meta)

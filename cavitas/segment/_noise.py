@@ -1,0 +1,127 @@
+"""Noise level, the empirical null of cavity persistence, and Gaussian pre-smoothing.
+
+The automatic significance rule
+-------------------------------
+1. **Noise level** ``s``: the wavelet median absolute deviation of the raw image
+   (Donoho & Johnstone 1994): ``median(|d|) / 0.6745`` over the finest, all-high-pass Haar
+   detail coefficients ``d`` (every 2x2 or 2x2x2 block, signs alternating, divided by
+   ``2**(ndim/2)`` so that white noise keeps its variance). This is the estimate of
+   :func:`skimage.restoration.estimate_sigma` with the Haar wavelet, without needing
+   PyWavelets. It is robust to the sparse edges of walls, and the alternating sum cancels
+   slow (linear) illumination changes.
+2. **Null**: persistence scales with the noise amplitude, so the largest cavity
+   persistence that noise alone produces at smoothing ``σ`` is ``s · P(σ)``, where ``P``
+   is measured once on white noise of unit variance, smoothed the same way, of the same
+   shape (or of a crop of it, scaled up by ``sqrt(log N / log N_crop)``, the growth of the
+   maximum of Gaussian-tailed variables), over :data:`NULL_SEEDS` seeds (the maximum).
+3. **Threshold**: ``safety · s · P(σ)``, ``safety = 2`` by default. The stability theorem
+   (Cohen-Steiner, Edelsbrunner & Harer 2007) gives the cruder bound ``2 ε`` for noise
+   bounded by ``ε`` in sup norm (unbounded for Gaussian noise); the empirical null is
+   sharper because it uses the noise's actual law. The factor covers the maximum's spread
+   between images and the choice among six smoothing scales (a multiple test): on 30
+   white-noise images of 48 x 48 (invented data), factors 1.25 / 1.5 / 1.75 / 2 kept
+   12 / 3 / 1 / 0 spurious regions in all.
+4. The null assumes white noise; strongly correlated noise (deconvolved or resampled
+   data) has a larger null than the estimate predicts: raise ``safety`` there.
+
+References
+----------
+Donoho, D. L., & Johnstone, I. M. (1994). Ideal spatial adaptation by wavelet shrinkage.
+Biometrika 81(3), 425-455. doi:10.1093/biomet/81.3.425
+Cohen-Steiner, D., Edelsbrunner, H., & Harer, J. (2007). Stability of persistence diagrams.
+Discrete Comput. Geom. 37, 103-120. doi:10.1007/s00454-006-1276-5
+"""
+
+from __future__ import annotations
+
+import functools
+import math
+
+import numpy as np
+from scipy import ndimage as ndi
+
+__all__ = ["NULL_SEEDS", "QUANTISATION_SIGMA", "estimate_noise", "null_persistence", "smooth"]
+
+#: Standard deviation of rounding to integers (uniform over one step: 1/sqrt(12)); the
+#: noise floor of integer images, whose MAD can be 0 where the signal is flat.
+QUANTISATION_SIGMA = 12 ** -0.5
+#: Seeds of the noise-only images the null is measured on (fixed: results are reproducible).
+NULL_SEEDS = (11, 12, 13)
+#: Largest number of voxels simulated for the null; larger images are extrapolated.
+_NULL_VOXELS = {2: 256 * 256, 3: 64 * 64 * 64}
+#: Largest number of voxels used for the noise estimate (a central crop beyond).
+_NOISE_VOXELS = 1 << 22
+
+
+def estimate_noise(image: np.ndarray) -> float:
+    """Standard deviation of the image noise by wavelet MAD (Donoho & Johnstone 1994).
+
+    Examples
+    --------
+    >>> rng = np.random.default_rng(0)
+    >>> round(estimate_noise(rng.normal(0, 2.0, (128, 128))), 1)
+    2.0
+    """
+    detail = _central_crop(np.asarray(image), _NOISE_VOXELS).astype(np.float64)
+    for axis in range(detail.ndim):
+        detail = np.diff(detail, axis=axis)
+    detail /= 2.0 ** (detail.ndim / 2.0)
+    return float(np.median(np.abs(detail)) / 0.6745)
+
+
+def smooth(image: np.ndarray, sigma_voxels: tuple[float, ...]) -> np.ndarray:
+    """Gaussian smoothing with a per-axis σ in voxels (float64; a copy even at σ = 0)."""
+    image = np.asarray(image, dtype=np.float64)
+    if not any(s > 0 for s in sigma_voxels):
+        return image.copy()
+    return ndi.gaussian_filter(image, sigma=sigma_voxels, mode="nearest")
+
+
+def null_persistence(shape: tuple[int, ...], sigma_voxels: tuple[float, ...],
+                     connectivity: int) -> float:
+    """Largest cavity persistence of unit white noise of ``shape`` smoothed by ``sigma_voxels``.
+
+    Measured on :data:`NULL_SEEDS` noise images (cached per arguments).
+
+    Examples
+    --------
+    >>> p = null_persistence((48, 48), (1.0, 1.0), 1)
+    >>> 0 < p < null_persistence((48, 48), (0.0, 0.0), 1)
+    True
+    """
+    key_sigma = tuple(round(float(s), 3) for s in sigma_voxels)
+    return _null_cached(tuple(int(s) for s in shape), key_sigma, int(connectivity))
+
+
+@functools.lru_cache(maxsize=64)
+def _null_cached(shape: tuple[int, ...], sigma: tuple[float, ...], connectivity: int) -> float:
+    from .. import cubical
+
+    n_full = math.prod(shape)
+    sim_shape = _crop_shape(shape, _NULL_VOXELS[len(shape)])
+    n_sim = math.prod(sim_shape)
+    best = 0.0
+    for seed in NULL_SEEDS:
+        noise = np.random.default_rng(seed).standard_normal(sim_shape)
+        _, tree = cubical.cavity_sweep(smooth(noise, sigma), walls="bright",
+                                       connectivity=connectivity, mask=None)
+        pers = tree.persistence[1:]
+        if pers.size:
+            best = max(best, float(pers.max()))
+    if n_full > n_sim:
+        best *= math.sqrt(math.log(n_full) / math.log(n_sim))
+    return best
+
+
+def _crop_shape(shape: tuple[int, ...], limit: int) -> tuple[int, ...]:
+    shape = list(shape)
+    while math.prod(shape) > limit:
+        i = int(np.argmax(shape))
+        shape[i] = max(8, shape[i] // 2)
+    return tuple(shape)
+
+
+def _central_crop(image: np.ndarray, limit: int) -> np.ndarray:
+    crop = _crop_shape(image.shape, limit)
+    start = [(s - c) // 2 for s, c in zip(image.shape, crop, strict=True)]
+    return image[tuple(slice(a, a + c) for a, c in zip(start, crop, strict=True))]

@@ -1,0 +1,271 @@
+"""The :class:`Segmentation` result and the hierarchy table it carries."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from .._caution import RESEARCH_ONLY
+from .._table import Table
+from ..cubical._diagram import PAIR_DTYPE, Diagram
+from ..io._volume import Volume
+
+__all__ = ["Segmentation", "build_table", "label_dtype"]
+
+
+def label_dtype(n_labels: int) -> np.dtype:
+    """int32 labels, int64 when more than 2**31 - 1 regions are needed (scipy's policy)."""
+    return np.dtype(np.int32) if n_labels < np.iinfo(np.int32).max else np.dtype(np.int64)
+
+
+@dataclass(eq=False)
+class Segmentation:
+    """Result of :func:`cavitas.segment`: label maps, the hierarchy table, the diagram.
+
+    Attributes
+    ----------
+    labels : ndarray of int32
+        Chambers ``1..n``; walls, the outside (and border-cut regions unless
+        ``keep_border``) are 0.
+    regions : Table
+        One row per chamber, enclosure and border-cut region (``kind`` says which) with
+        parent, depth, birth, death, persistence, margin, core and breach voxels, level
+        used, own and enclosed voxel counts and volumes, and ``touches_border``.
+    diagram : Diagram
+        Cavity diagram (H_{d-1}) of the image at the detection scale, input units.
+    kept : ndarray of bool
+        Per row of ``diagram.pairs(d-1)``: whether that feature is a chamber of the result
+        (it passed the selection and the volume bounds).
+    margin : ndarray of float
+        Per row of the diagram: persistence minus the threshold.
+    threshold : float
+        Persistence threshold used (input units).
+    noise : float
+        Estimated noise standard deviation (input units).
+    params : dict
+        Every parameter and every value chosen automatically.
+    volume : Volume
+        The input.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from cavitas.segment import segment
+    >>> img = np.zeros((16, 16)); img[2:14, 2:14] = 1; img[4:12, 4:12] = 0
+    >>> seg = segment(img, min_persistence=0.5, region="breach")
+    >>> seg.regions["kind"].tolist(), int(seg.labels.max())
+    (['chamber', 'cut'], 1)
+    >>> int(seg.shell(1).sum()), int((seg.three_class(1) == 1).sum())
+    (36, 64)
+    """
+
+    labels: np.ndarray
+    regions: Table
+    diagram: Diagram
+    kept: np.ndarray
+    margin: np.ndarray
+    threshold: float
+    noise: float
+    params: dict[str, Any]
+    volume: Volume
+    all_labels: np.ndarray = field(repr=False, default=None)
+    enclosure_map: np.ndarray | None = field(repr=False, default=None)
+
+    @classmethod
+    def assemble(cls, parts: dict[str, Any], *, volume: Volume, params: Any,
+                 chosen: dict[str, Any], tree: Any) -> Segmentation:
+        """Build the result from the pieces :func:`segment` computed."""
+        sign = 1.0 if params.walls == "bright" else -1.0
+        pers = tree.persistence
+        rows = np.flatnonzero(pers > 0)
+        rows = rows[rows != 0]
+        pairs = np.zeros(len(rows), PAIR_DTYPE)
+        pairs["birth"] = sign * tree.breach_level[rows]
+        pairs["death"] = sign * tree.core_level[rows]
+        pairs["birth_voxel"] = tree.breach[rows]
+        pairs["death_voxel"] = tree.core[rows]
+        diagram = Diagram({volume.ndim - 1: pairs}, shape=volume.shape, walls=params.walls,
+                          connectivity=chosen["connectivity"], masked=parts["masked"])
+        record = {**params.to_dict(), **chosen, "caution": RESEARCH_ONLY}
+        return cls(
+            labels=parts["labels"], regions=parts["table"], diagram=diagram,
+            kept=np.isin(rows, parts["chamber_nodes"]), margin=pers[rows] - chosen["threshold"],
+            threshold=chosen["threshold"], noise=chosen["noise_sigma"], params=record,
+            volume=volume, all_labels=parts["all_labels"],
+            enclosure_map=parts["enclosure_labels"],
+        )
+
+    @property
+    def hierarchy(self) -> Table:
+        """The regions table (chambers, enclosures and border-cut regions)."""
+        return self.regions
+
+    @property
+    def enclosures(self) -> Table:
+        """Rows of the enclosures only."""
+        return self.regions.select(self.regions["kind"] == "enclosure")
+
+    def enclosure_labels(self) -> np.ndarray:
+        """Label map of the enclosures (innermost per voxel; 0 elsewhere)."""
+        if self.enclosure_map is None:
+            return np.zeros(self.labels.shape, self.labels.dtype)
+        return self.enclosure_map
+
+    def shell(self, label: int, thickness: float = 0.0) -> np.ndarray:
+        """Wall voxels touching region ``label``, thickened by ``thickness`` (physical units)."""
+        from ._shells import shell
+
+        return shell(self, label, thickness=thickness)
+
+    def three_class(self, label: int, thickness: float = 0.0) -> np.ndarray:
+        """uint8 map of one region: 1 inside, 2 shell, 0 outside."""
+        from ._shells import three_class
+
+        return three_class(self, label, thickness=thickness)
+
+    def __repr__(self) -> str:
+        kinds = self.regions["kind"] if len(self.regions) else np.array([])
+        return (f"Segmentation({int((kinds == 'chamber').sum())} chambers, "
+                f"{int((kinds == 'enclosure').sum())} enclosures, "
+                f"{int((kinds == 'cut').sum())} border-cut, threshold={self.threshold:.4g}, "
+                f"noise={self.noise:.4g})")
+
+
+def _depths(parent: np.ndarray) -> np.ndarray:
+    depth = np.full(len(parent), -1, np.int64)
+
+    def walk(i: int) -> int:
+        chain = []
+        while depth[i] < 0:
+            chain.append(i)
+            p = parent[i]
+            if p <= 0:
+                depth[i] = 0
+                chain.pop()
+                break
+            i = p - 1
+        d = depth[i]
+        for j in reversed(chain):
+            d += 1
+            depth[j] = d
+        return d
+
+    for i in range(len(parent)):
+        walk(i)
+    return depth
+
+
+def build_table(*, vol: Volume, sign: float, tree: Any, hier: Any, sweep: Any,
+                work: np.ndarray, n_cut: int, dropped: np.ndarray,
+                enclosure_map: np.ndarray | None,
+                nested: dict[int, int], tau: float, used_level: np.ndarray,
+                params: Any) -> dict[str, Any]:
+    """Apply the volume bounds, renumber, and build the regions table.
+
+    ``work`` holds chambers ``1..n_chambers`` and border-cut pieces after them; ``dropped``
+    marks chambers that became border-cut pieces. Final ids: chambers ``1..K``,
+    enclosures ``K+1..K+E``, border-cut regions after.
+    """
+    n_ch, n_enc = hier.n_chambers, hier.n_enclosures
+    voxel = vol.voxel_volume
+    counts = np.bincount(work.ravel(), minlength=n_ch + n_cut + 1)
+    own = counts[1:n_ch + 1]
+    ok = ~dropped  # chambers open to the border were moved to the border-cut pieces
+    if params.min_volume is not None:
+        ok &= own * voxel >= params.min_volume
+    if params.max_volume is not None:
+        ok &= own * voxel <= params.max_volume
+    cut_own = counts[n_ch + 1:]
+    cut_ok = np.ones(n_cut, bool)
+    if params.max_volume is not None:
+        cut_ok &= cut_own * voxel <= params.max_volume
+    k = int(ok.sum())
+    m = int(cut_ok.sum())
+    new_ch = np.zeros(n_ch + 1, np.int64)
+    new_ch[1:][ok] = np.arange(1, k + 1)
+    new_enc = np.arange(k + 1, k + n_enc + 1)
+    new_cut = np.zeros(n_cut, np.int64)
+    new_cut[cut_ok] = np.arange(k + n_enc + 1, k + n_enc + m + 1)
+    lut = np.concatenate([new_ch, new_cut])
+    dtype = label_dtype(k + n_enc + m)
+    all_labels = lut[work].astype(dtype)
+    labels = np.where(all_labels <= k, all_labels, 0).astype(dtype)
+
+    def remap_parent(p: int) -> int:
+        if p == 0:
+            return 0
+        return int(new_enc[p - n_ch - 1]) if p > n_ch else int(new_ch[p])
+
+    ch_nodes = hier.node[:n_ch][ok]
+    ch_parent = np.array([remap_parent(p) for p in hier.parent[:n_ch][ok]], np.int64)
+    old_ids = np.flatnonzero(ok) + 1
+    for j, old in enumerate(old_ids):
+        host = nested.get(int(old))
+        if host is not None and host <= n_ch and new_ch[host] > 0:
+            ch_parent[j] = new_ch[host]
+    enc_parent = np.array([remap_parent(p) for p in hier.parent[n_ch:]], np.int64)
+    parent = np.concatenate([ch_parent, enc_parent, np.zeros(m, np.int64)])
+
+    enc_labels = None
+    enc_own = np.zeros(n_enc, np.int64)
+    if enclosure_map is not None:
+        enc_labels = np.zeros(work.shape, dtype)
+        inside = enclosure_map > 0
+        enc_labels[inside] = new_enc[enclosure_map[inside] - n_ch - 1]
+        enc_own = np.bincount(enc_labels.ravel(), minlength=k + n_enc + 1)[k + 1:]
+    own_all = np.concatenate([own[ok], enc_own, cut_own[cut_ok]]).astype(np.int64)
+    n = k + n_enc + m
+    depth = _depths(parent)
+    enclosed = own_all.copy()
+    for i in np.argsort(-depth, kind="stable"):
+        p = parent[i]
+        if p > 0 and (p <= k) == (i < k):
+            enclosed[p - 1] += enclosed[i]
+
+    nodes = np.concatenate([ch_nodes, hier.node[n_ch:]])
+    ch_level = used_level[ok]
+    enc_close = hier.close_rank[n_ch:]
+    enc_formed = hier.formed_rank[n_ch:]
+    nan_m = np.full(m, np.nan)
+    birth = np.concatenate([sign * tree.breach_level[ch_nodes],
+                            sign * sweep.level_of_rank(enc_close), nan_m])
+    death = np.concatenate([sign * tree.core_level[ch_nodes],
+                            sign * sweep.level_of_rank(enc_formed), nan_m])
+    persistence = np.abs(birth - death)
+    breach_voxel = np.concatenate([tree.breach[ch_nodes], sweep.order[enc_close],
+                                   np.full(m, -1)])
+    core_voxel = np.concatenate([tree.core[nodes], np.full(m, -1)])
+    level = np.concatenate([sign * ch_level, sign * sweep.level_of_rank(enc_close), nan_m])
+    touches = np.zeros(n, bool)
+    touches[k + n_enc:] = True
+    kind = np.array(["chamber"] * k + ["enclosure"] * n_enc + ["cut"] * m, dtype=object)
+    unit = vol.unit
+    vunit = f"{unit}{'²' if vol.ndim == 2 else '³'}" if unit != "voxel" else "voxel"
+    table = Table(
+        {
+            "label": np.arange(1, n + 1),
+            "kind": kind,
+            "parent": parent,
+            "depth": depth,
+            "birth": birth,
+            "death": death,
+            "persistence": persistence,
+            "margin": persistence - tau,
+            "core_voxel": core_voxel,
+            "breach_voxel": breach_voxel,
+            "level": level,
+            "own_voxels": own_all,
+            "own_volume": own_all * voxel,
+            "enclosed_voxels": enclosed,
+            "enclosed_volume": enclosed * voxel,
+            "touches_border": touches,
+        },
+        units={"own_volume": vunit, "enclosed_volume": vunit},
+        meta={"threshold": tau, "caution": RESEARCH_ONLY},
+    )
+    if params.keep_border:
+        labels = all_labels
+    return {"labels": labels, "all_labels": all_labels, "table": table, "chamber_nodes": ch_nodes,
+            "enclosure_labels": enc_labels, "masked": sweep.outside.any()}

@@ -1,0 +1,262 @@
+"""The :func:`segment` entry point: noise, scale, selection, regions, table."""
+
+from __future__ import annotations
+
+import logging
+import math
+import time
+from typing import Any
+
+import numpy as np
+
+from .._errors import ParameterError
+from ..cubical._neighbors import check_connectivity
+from ..io._volume import Volume
+from . import _noise
+from ._params import AUTO_SCALES, SegmentParams
+from ._regions import (
+    Sweep,
+    basin_map,
+    cut_pieces,
+    fill_islands,
+    nested_map,
+    open_to_border,
+    remove_walls,
+)
+from ._result import Segmentation, build_table
+from ._select import persistence_threshold, select_nodes
+from ._tree import prune
+
+__all__ = ["segment"]
+
+#: Gaussian σ (voxels of the finest axis) of the image the basin walls are cut on.
+DELINEATION_SIGMA = 0.5
+
+log = logging.getLogger("cavitas.segment")
+
+
+def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = None,
+            mask: Any = None, **options: Any) -> Segmentation:
+    """Segment the enclosed regions of a 2D image or 3D volume.
+
+    Parameters
+    ----------
+    volume : Volume or array_like
+        The image. An array takes its geometry from ``spacing``.
+    spacing : sequence of float, optional
+        Voxel size per axis (arrays only; a ``Volume`` carries its own).
+    params : SegmentParams, optional
+        All parameters at once; ``options`` override single fields.
+    mask : array_like of bool, optional
+        Region of interest: voxels outside it count as outside the scan (default: the
+        file named by ``params.mask``, if any).
+    **options
+        Any field of :class:`SegmentParams` (``walls``, ``auto``, ``min_persistence``,
+        ``top``, ``region`` ...).
+
+    Returns
+    -------
+    Segmentation
+        ``.labels`` (chambers, walls 0), ``.regions`` (hierarchy table), ``.diagram``,
+        ``.params`` (every parameter and every value chosen automatically).
+
+    Notes
+    -----
+    Steps: (1) noise level and empirical null (:mod:`cavitas.segment._noise`); (2) the
+    detection scale: the candidate smoothing with most significant cavities
+    (:func:`_detect`); (3) selection on the cavity tree of that scale, pruned into chambers
+    and enclosures (:mod:`cavitas.segment._tree`); (4) regions in one pass over the sweep
+    order (:mod:`cavitas.segment._regions`). Detection needs the scale where noise falls
+    below significance; delineation the finest scale that keeps walls two voxels thick
+    intact, so basin walls are cut on the image smoothed by :data:`DELINEATION_SIGMA`
+    (0.5 voxel) whatever the detection scale. Measured on the bench scenes (sheets, foams,
+    capsules; noise 0.1 and 0.3): σ = 0.5 gave the best median Dice overall among 0, 0.5,
+    0.75 and 1 voxel (1 voxel, or the detection scale, widens walls; 0 leaves them ragged).
+
+    Levels in the table and the diagram are values of the image at the detection scale
+    (the input itself when no smoothing was chosen), in the input's units.
+
+    Cost: one sort and one union-find pass per candidate smoothing scale (six in automatic
+    mode), one labelling pass, and for basins a few linear passes; near-linear overall.
+    The empirical null is measured once per shape and scale and cached.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> img = np.zeros((15, 15)); img[3:12, 3] = img[3:12, 11] = 1
+    >>> img[3, 3:12] = img[11, 3:12] = img[3:12, 7] = 1
+    >>> seg = segment(img, min_persistence=0.5, region="breach")
+    >>> int(seg.labels.max()), seg.regions["own_voxels"].tolist()[:2]
+    (2, [21, 21])
+    >>> seg.regions["kind"].tolist()  # the medium around the frame is cut by the border
+    ['chamber', 'chamber', 'cut']
+    """
+    started = time.perf_counter()
+    params = (params or SegmentParams()).replace(**options) if options else (
+        params or SegmentParams())
+    vol = volume if isinstance(volume, Volume) else Volume(np.asarray(volume), spacing=spacing)
+    if isinstance(volume, Volume) and spacing is not None:
+        raise ParameterError("spacing= is for arrays; a Volume carries its own spacing.")
+    if (params.min_volume is not None or params.max_volume is not None) and (
+            vol.unit == "voxel"):
+        raise ParameterError("min_volume/max_volume are in physical units and need a known "
+                             "spacing; got an image without spacing (give spacing=).")
+    ndim = vol.ndim
+    connectivity = check_connectivity(ndim, params.connectivity or 1)
+    raw = np.asarray(vol.data, dtype=np.float64)
+    if not np.isfinite(raw).all():
+        raise ParameterError(f"Image {vol.name} holds NaN or infinite values; "
+                             "replace them (or mask them out) first.")
+    sign = 1.0 if params.walls == "bright" else -1.0
+    values = sign * raw
+    if mask is None and params.mask:
+        from ..io import read
+
+        mask = np.asarray(read(params.mask).data) != 0
+    roi = None if mask is None else np.asarray(mask, bool)
+    if roi is not None and roi.shape != raw.shape:
+        raise ParameterError(f"mask has shape {roi.shape}; the image has {raw.shape}.")
+    outside = None if roi is None else ~roi
+    timings: dict[str, float] = {}
+
+    noise = _noise.estimate_noise(raw)
+    if np.issubdtype(vol.dtype, np.integer):  # quantisation noise at least (uniform, 1 step)
+        noise = max(noise, _noise.QUANTISATION_SIGMA)
+    lo, hi = np.percentile(raw, [0.5, 99.5])
+    robust_range = float(hi - lo)
+    spacing_arr = np.asarray(vol.spacing, float)
+    sig, smoothed, order, tree, tau, tried = _detect(
+        values, params, noise=noise, robust_range=robust_range, spacing=spacing_arr,
+        connectivity=connectivity, roi=roi)
+    timings["detect"] = time.perf_counter() - started
+    log.info("%s: noise σ %.4g, detection σ %.3g %s, persistence threshold %.4g",
+             vol.name, noise, float((sig * spacing_arr).max()), vol.unit, tau)
+    sweep = Sweep(smoothed, order, tree, connectivity, outside)
+    keep = select_nodes(tree.persistence, tree.parent, tau, params.top)
+    hier = prune(tree, keep, sweep.rank, sweep.level_of_rank, tau)
+
+    fine_sigma = DELINEATION_SIGMA * spacing_arr.min() / spacing_arr
+    t0 = time.perf_counter()
+    work, n_cut, open_cut, nested, used_level, enclosure_map = _delineate(
+        params, sweep, hier, values, fine_sigma, outside, connectivity, vol.voxel_volume)
+    timings["regions"] = time.perf_counter() - t0
+
+    seg = build_table(
+        vol=vol, sign=sign, tree=tree, hier=hier, sweep=sweep, work=work, n_cut=n_cut,
+        dropped=open_cut,
+        enclosure_map=enclosure_map, nested=nested, tau=tau, used_level=used_level,
+        params=params,
+    )
+    timings["total"] = time.perf_counter() - started
+    chosen = {
+        "noise_sigma": noise,
+        "threshold": tau,
+        "robust_range": robust_range,
+        "smooth_sigma": float((sig * spacing_arr).max()),
+        "delineation_sigma": float((fine_sigma * spacing_arr).max()),
+        "scales_tried": tried,
+        "automatic": params.automatic,
+        "connectivity": connectivity,
+        "unit": vol.unit,
+        "timings_s": timings,
+    }
+    return Segmentation.assemble(seg, volume=vol, params=params, chosen=chosen, tree=tree)
+
+
+def _detect(values: np.ndarray, params: SegmentParams, *, noise: float, robust_range: float,
+            spacing: np.ndarray, connectivity: int, roi: np.ndarray | None):
+    """Detection scale, its sweep and threshold: the candidate with most significant cavities.
+
+    Candidates are :data:`AUTO_SCALES` (in voxels of the finest axis, the same physical σ on
+    every axis) in automatic mode, else the one given (or none). At each, the threshold is
+    the strictest criterion given, the automatic one being ``safety · noise · P(σ)``
+    (:mod:`cavitas.segment._noise`). Too little smoothing leaves the threshold high, too
+    much erases walls; both lose cavities, so the count peaks at the useful scale. Ties go
+    to the finer scale.
+    """
+    from .. import cubical
+
+    if params.smooth is not None:
+        scales = [params.smooth / spacing]
+    elif params.automatic:
+        scales = [s * spacing.min() / spacing for s in AUTO_SCALES]
+    else:
+        scales = [np.zeros(len(spacing))]
+    best, tried = None, []
+    for sig in scales:
+        auto = None
+        if params.automatic:
+            auto = params.safety * noise * _noise.null_persistence(values.shape, tuple(sig),
+                                                                   connectivity)
+        tau = persistence_threshold(auto=auto, absolute=params.min_persistence,
+                                    relative=params.relative_persistence,
+                                    robust_range=robust_range)
+        smoothed = _noise.smooth(values, tuple(sig))
+        order, tree = cubical.cavity_sweep(smoothed, walls="bright", connectivity=connectivity,
+                                           mask=roi)
+        pers = tree.persistence[1:]
+        count = int(np.count_nonzero((pers > 0) & (pers >= tau)))
+        tried.append({"sigma": float((sig * spacing).max()), "threshold": tau, "count": count})
+        if best is None or count > best[0]:
+            best = (count, sig, smoothed, order, tree, tau)
+    return (*best[1:], tried)
+
+
+def _delineate(params: SegmentParams, sweep: Sweep, hier, values: np.ndarray,
+               fine_sigma: np.ndarray, outside: np.ndarray | None, connectivity: int,
+               voxel_volume: float):
+    """Chamber regions (basin or breach), border-cut pieces, islands and enclosures.
+
+    Returns ``work`` (chambers ``1..n``, border-cut pieces ``n+1..n+m``), ``m``, the mask
+    of chambers found open to the border, ``{nested: host}``, each chamber's level (walls
+    high) and the enclosure map (or None).
+    """
+    tree = sweep.tree
+    n_ch = hier.n_chambers
+    ids = np.arange(1, len(hier.node) + 1)
+    # Regions are components of {f < level}: plateaus at the level itself stay out.
+    close_rank = sweep.rank_of_level(sweep.level_of_rank(hier.close_rank))
+    enclosure_rank = close_rank[n_ch:]
+    close_rank = close_rank[:n_ch]
+    level_rank = close_rank
+    if params.region == "breach" and params.level_fraction not in (None, 1.0):
+        core_level = sweep.values[tree.core[hier.node[:n_ch]]]
+        top_level = sweep.level_of_rank(close_rank)
+        cut = core_level + params.level_fraction * (top_level - core_level)
+        level_rank = np.minimum(sweep.rank_of_level(cut), close_rank)
+    basins = basin_map(sweep, tree.core[hier.node[:n_ch]], n_ch + 1)
+    cleared, basin_levels = remove_walls(basins, _noise.smooth(values, tuple(fine_sigma)),
+                                         n_ch + 1, connectivity)
+    if params.region == "basin":
+        labels = np.where(cleared <= n_ch, cleared, 0)
+        used_level = basin_levels[:n_ch]
+    else:
+        labels = nested_map(sweep, hier.node[:n_ch], level_rank, ids[:n_ch])
+        used_level = sweep.level_of_rank(level_rank)
+
+    # Border-cut: pieces of the outside basin, and chambers with no wall between them and
+    # the border.
+    in_outside = cleared == n_ch + 1
+    open_cut = open_to_border(labels, in_outside, n_ch, outside)
+    own = np.bincount(labels.ravel(), minlength=n_ch + 1)[1:]
+    min_cut = max(8, int(0.1 * np.median(own))) if n_ch else 8
+    if params.min_volume is not None:
+        min_cut = max(min_cut, math.ceil(params.min_volume / voxel_volume))
+    cut = cut_pieces(in_outside, connectivity, min_cut, beyond_roi=outside)
+    cut_ids = np.flatnonzero(open_cut) + 1
+    if cut_ids.size:
+        lut = np.zeros(n_ch + 1, np.int64)
+        lut[cut_ids] = np.arange(1, cut_ids.size + 1) + int(cut.max())
+        cut = np.where(cut > 0, cut, lut[labels])
+        labels = np.where(lut[labels] > 0, 0, labels)
+    n_cut = int(cut.max())
+    work = np.where(cut > 0, cut + n_ch, labels)
+    out_label = n_ch + n_cut + 1
+    work[in_outside & (cut == 0)] = out_label
+    work, nested = fill_islands(work, connectivity, exclude=n_ch + 1)
+    work[work == out_label] = 0
+
+    enclosure_map = None
+    if hier.n_enclosures:
+        enclosure_map = nested_map(sweep, hier.node[n_ch:], enclosure_rank, ids[n_ch:])
+    return work, n_cut, open_cut, nested, used_level, enclosure_map

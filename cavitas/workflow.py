@@ -1,0 +1,345 @@
+"""One file in, every segmentation output out: what ``cavitas segment`` and the batch runner call.
+
+:func:`segment_file` reads, segments, measures and writes into one folder, every file
+atomically:
+
+===================== ========================================================
+``labels.<ext>``      chambers (int32; walls and outside 0), the input's geometry
+``regions.csv``       one row per chamber, enclosure and border-cut region: the
+                      topological columns and the measurements in physical units
+``regions.json``      the same table with units and the global figures
+``diagram.csv``       the cavity diagram with ``kept`` and ``margin`` columns
+``diagram.png``       the diagram drawn, kept cavities filled, threshold shaded
+``report.html``       self-contained report (``report=False`` skips it)
+``run.json``          every parameter, chosen values, version, input SHA-256,
+                      timings, the outputs and the research-only caution
+``enclosures.<ext>``  enclosures label map (``enclosures=True``)
+``shells.<ext>``      shell label map (``shells`` given): walls near each region
+``meshes/``           one surface mesh per chamber (``mesh="ply"|"stl"``, 3D)
+===================== ========================================================
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import os
+import time
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from ._caution import RESEARCH_ONLY
+from ._errors import InputFileError, ParameterError
+from ._table import Table
+from ._version import __version__
+from .io._atomic import atomic_path, check_writable
+
+__all__ = ["segment_file"]
+
+
+def _sha256(path: Path) -> str | None:
+    files = [path] if path.is_file() else sorted(p for p in path.iterdir() if p.is_file()) \
+        if path.is_dir() else []
+    if not files:
+        return None
+    digest = hashlib.sha256()
+    for item in files:
+        with open(item, "rb") as fh:
+            for block in iter(lambda fh=fh: fh.read(1 << 20), b""):
+                digest.update(block)
+    return digest.hexdigest()
+
+
+def _label_suffix(source: Path, wanted: str | None) -> str:
+    from .io import WRITE_SUFFIXES
+
+    if wanted:
+        suffix = wanted if wanted.startswith(".") else f".{wanted}"
+        if suffix.lower() not in WRITE_SUFFIXES:
+            raise ParameterError(f"label_format must be one of {sorted(WRITE_SUFFIXES)}; "
+                                 f"got {wanted!r}.")
+        return suffix.lower()
+    name = source.name.lower()
+    for suffix in sorted(WRITE_SUFFIXES, key=len, reverse=True):
+        if name.endswith(suffix):
+            return suffix
+    return ".tif"  # PNG, raw and slice folders: labels need more than 8/16 bits
+
+
+def _diagram_table(seg: Any) -> Table:
+    dim = seg.diagram.cavity_dim
+    rows = seg.diagram.pairs(dim)
+    return Table({
+        "dim": np.full(len(rows), dim),
+        "birth": rows["birth"], "death": rows["death"],
+        "persistence": seg.diagram.persistence(dim),
+        "birth_voxel": rows["birth_voxel"], "death_voxel": rows["death_voxel"],
+        "kept": seg.kept, "margin": seg.margin,
+    }, meta={"caution": RESEARCH_ONLY})
+
+
+def _diagram_plot(seg: Any, path: Path, *, force: bool) -> None:
+    """The cavity diagram, kept features filled, the threshold band shaded."""
+    from .report.diagram_plots import plot_diagram, save_figure
+
+    dim = seg.diagram.cavity_dim
+    fig = plot_diagram(seg.diagram, dims=dim, highlight={dim: seg.kept},
+                       threshold=seg.threshold)
+    save_figure(fig, path, force=force)
+
+
+def measured_regions(seg: Any, *, mask: np.ndarray | None = None,
+                     thickness: bool = True) -> tuple[Table, dict[str, Any]]:
+    """The regions table joined with measurements, and the global figures of the chambers.
+
+    Chambers and border-cut regions are measured on the full label map
+    (:func:`cavitas.measure.measure_regions`); enclosures keep their topological columns and
+    have blanks for the measurements. Global figures (count, volumes, volume fraction =
+    closed porosity) count the chambers only, and add the noise estimate and threshold.
+    """
+    from .measure import global_figures, measure_regions
+
+    volume = seg.volume
+    full = seg.all_labels if seg.all_labels is not None else seg.labels
+    measured = measure_regions(full, spacing=volume.spacing, unit=volume.unit,
+                               image=np.asarray(volume.data), roi=mask, thickness=thickness)
+    regions = seg.regions
+    row_of = {int(lab): i for i, lab in enumerate(measured["label"])}
+    rows = np.array([row_of.get(int(lab), -1) for lab in regions["label"]], np.int64)
+    present = rows >= 0
+    added = {}
+    for name in measured.names:
+        if name in regions:
+            continue
+        values = measured[name]
+        if present.all():
+            added[name] = values[rows]
+        elif values.dtype.kind == "f":
+            added[name] = np.where(present, values[np.maximum(rows, 0)], np.nan)
+        else:  # ints and flags stay exact; a blank where nothing was measured
+            added[name] = np.array([values[r].item() if r >= 0 else None for r in rows],
+                                   dtype=object)
+    chamber_rows = np.isin(measured["label"], regions["label"][regions["kind"] == "chamber"])
+    figures = global_figures(measured.select(chamber_rows), labels=seg.labels,
+                             spacing=volume.spacing, unit=volume.unit, roi=mask)
+    figures["noise_sigma"] = seg.noise
+    figures["persistence_threshold"] = seg.threshold
+    table = regions.with_columns(added, measured.units)
+    table.meta.update(regions.meta)
+    table.meta.update({"global": {k: v for k, v in figures.items() if k != "units"},
+                       "global_units": figures.get("units", {}), "caution": RESEARCH_ONLY})
+    return table, figures
+
+
+def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any = None, *,
+                 force: bool = False, progress: bool = True,
+                 read_options: dict[str, Any] | None = None, report: bool = True,
+                 thickness: bool = True) -> dict[str, Any]:
+    """Segment one file and write every output into ``outdir``; return a summary dict.
+
+    Parameters
+    ----------
+    path : path-like
+        Input image or volume (any format :func:`cavitas.io.read` reads).
+    outdir : path-like
+        Output folder (created if needed).
+    params : SegmentParams, optional
+        Segmentation parameters (defaults: automatic significance, basin regions).
+    force : bool
+        Replace existing outputs.
+    progress : bool
+        Show a progress bar on stderr.
+    read_options : dict, optional
+        Passed to :func:`cavitas.io.read` (``channel``, ``time``, ``spacing`` ...).
+    report : bool
+        Write ``report.html``.
+    thickness : bool
+        Measure wall thickness (local thickness; the slowest measurement on thick walls).
+
+    Returns
+    -------
+    dict
+        ``regions`` (chambers kept), ``border_cut``, ``enclosures``, ``threshold``,
+        ``noise``, ``smooth_sigma``, ``porosity`` (volume fraction of the chambers),
+        ``mean_volume``, ``unit``, ``outputs`` (paths), ``message`` and ``caution``.
+
+    Examples
+    --------
+    >>> import tempfile, numpy as np, cavitas
+    >>> folder = tempfile.mkdtemp()
+    >>> img = np.zeros((24, 24), np.uint8); img[4:20, 4:20] = 200; img[7:17, 7:17] = 10
+    >>> _ = cavitas.write(f"{folder}/ring.tif", img, spacing=(0.5, 0.5))
+    >>> summary = segment_file(f"{folder}/ring.tif", f"{folder}/out", progress=False,
+    ...                        report=False)
+    >>> summary["regions"], round(summary["porosity"], 3)
+    (1, 0.174)
+    """
+    from tqdm import tqdm
+
+    from . import io
+    from .segment import SegmentParams, segment
+
+    params = params or SegmentParams()
+    source, outdir = Path(path), Path(outdir)
+    started = time.perf_counter()
+    planned = _planned_outputs(source, outdir, params, report=report)
+    for target in planned.values():  # fail before computing, not half-way through writing
+        check_writable(target, force=force, inputs=(source,))
+    steps = tqdm(total=5 + bool(params.mesh), disable=not progress, unit="step",
+                 desc=f"cavitas segment {source.name}", leave=False)
+    timings: dict[str, float] = {}
+
+    def done(step: str, since: float) -> float:
+        now = time.perf_counter()
+        timings[step] = round(now - since, 3)
+        steps.update()
+        return now
+
+    try:
+        tick = started
+        volume = io.read(source, **dict(read_options or {}))
+        mask = _read_mask(params.mask, volume, source)
+        if params.mesh and volume.ndim != 3:
+            raise ParameterError(f"mesh needs a 3D volume; '{source}' is 2D.")
+        checksum = _sha256(source)
+        tick = done("read", tick)
+        seg = segment(volume, params=params, mask=mask)
+        tick = done("segment", tick)
+        regions, figures = measured_regions(seg, mask=mask, thickness=thickness)
+        tick = done("measure", tick)
+        written = _write_maps(seg, planned, params, force=force)
+        regions.to_csv(planned["regions"], force=force)
+        regions.to_json(planned["regions_json"], force=force)
+        _diagram_table(seg).to_csv(planned["diagram"], force=force)
+        _diagram_plot(seg, planned["diagram_plot"], force=force)
+        for key in ("regions", "regions_json", "diagram", "diagram_plot"):
+            written[key] = planned[key]
+        if params.mesh:
+            written["meshes"] = _write_meshes(seg, outdir, params.mesh, force=force)
+        tick = done("write", tick)
+        if report:
+            from .report import write_report
+
+            written["report"] = write_report(
+                planned["report"], image=np.asarray(volume.data), labels=seg.labels,
+                spacing=volume.spacing, unit=volume.unit, regions=regions,
+                diagram=seg.diagram, kept=seg.kept, threshold=seg.threshold,
+                params=seg.params, figures=figures, title=source.name, source=source,
+                force=force)
+        tick = done("report", tick)
+        summary = _summary(seg, source, figures, written)
+        record = {
+            "cavitas_version": __version__,
+            "input": str(source),
+            "input_sha256": checksum,
+            "shape": list(volume.shape),
+            "spacing": list(volume.spacing),
+            "unit": volume.unit,
+            "read_options": dict(read_options or {}),
+            "parameters": seg.params,
+            "summary": {k: v for k, v in summary.items() if k != "outputs"},
+            "global_figures": figures,
+            "outputs": summary["outputs"],
+            "timings_s": timings,
+            "elapsed_s": round(time.perf_counter() - started, 3),
+            "caution": RESEARCH_ONLY,
+        }
+        with atomic_path(planned["run"], force=force) as tmp:
+            tmp.write_text(json.dumps(record, indent=1, ensure_ascii=False, default=_jsonable),
+                           encoding="utf-8")
+        summary["outputs"]["run"] = str(planned["run"])
+        steps.update()
+    finally:
+        steps.close()
+    return summary
+
+
+def _planned_outputs(source: Path, outdir: Path, params: Any, *,
+                     report: bool) -> dict[str, Path]:
+    suffix = _label_suffix(source, params.label_format)
+    planned = {"labels": outdir / f"labels{suffix}", "regions": outdir / "regions.csv",
+               "regions_json": outdir / "regions.json", "diagram": outdir / "diagram.csv",
+               "diagram_plot": outdir / "diagram.png", "run": outdir / "run.json"}
+    if report:
+        planned["report"] = outdir / "report.html"
+    if params.enclosures:
+        planned["enclosures"] = outdir / f"enclosures{suffix}"
+    if params.shells is not None:
+        planned["shells"] = outdir / f"shells{suffix}"
+    return planned
+
+
+def _read_mask(mask_path: str | None, volume: Any, source: Path) -> np.ndarray | None:
+    from . import io
+
+    if not mask_path:
+        return None
+    mask = np.asarray(io.read(mask_path).data) != 0
+    if mask.shape != volume.shape:
+        raise InputFileError(f"Mask '{mask_path}' has shape {mask.shape}; the image "
+                             f"'{source}' has shape {volume.shape}.")
+    return mask
+
+
+def _write_maps(seg: Any, planned: dict[str, Path], params: Any, *,
+                force: bool) -> dict[str, Path]:
+    from . import io
+    from .segment._shells import shell_labels
+
+    volume = seg.volume
+    written = {"labels": io.write(planned["labels"], seg.labels, like=volume, force=force)}
+    if params.enclosures:
+        written["enclosures"] = io.write(planned["enclosures"], seg.enclosure_labels(),
+                                         like=volume, force=force)
+    if params.shells is not None:
+        shells = shell_labels(seg.labels, volume.spacing, params.shells)
+        written["shells"] = io.write(planned["shells"], shells, like=volume, force=force)
+    return written
+
+
+def _write_meshes(seg: Any, outdir: Path, kind: str, *, force: bool) -> Path:
+    from scipy import ndimage as ndi
+
+    from .segment._mesh import region_mesh, write_mesh
+
+    chambers = seg.regions.select(seg.regions["kind"] == "chamber")["label"]
+    boxes = ndi.find_objects(seg.labels)
+    for label in chambers:
+        verts, faces = region_mesh(seg.labels, int(label), seg.volume.spacing,
+                                   box=boxes[label - 1])
+        write_mesh(outdir / "meshes" / f"region_{int(label):05d}.{kind}", verts, faces,
+                   force=force, comment=f"cavitas region {label}; {RESEARCH_ONLY}")
+    return outdir / "meshes"
+
+
+def _summary(seg: Any, source: Path, figures: dict[str, Any],
+             written: dict[str, Path]) -> dict[str, Any]:
+    kinds = seg.regions["kind"] if len(seg.regions) else np.array([], object)
+    n_regions = int((kinds == "chamber").sum())
+    return {
+        "input": str(source),
+        "shape": list(seg.volume.shape),
+        "regions": n_regions,
+        "border_cut": int((kinds == "cut").sum()),
+        "enclosures": int((kinds == "enclosure").sum()),
+        "threshold": seg.threshold,
+        "noise": seg.noise,
+        "smooth_sigma": seg.params["smooth_sigma"],
+        "porosity": figures.get("volume_fraction"),
+        "mean_volume": figures.get("mean_volume"),
+        "unit": seg.volume.unit,
+        "outputs": {k: str(v) for k, v in written.items()},
+        "message": ("no region passed the selection; empty outputs were written"
+                    if n_regions == 0 else f"{n_regions} regions found"),
+        "caution": RESEARCH_ONLY,
+    }
+
+
+def _jsonable(value: Any) -> Any:
+    if isinstance(value, np.generic):
+        return value.item()
+    if isinstance(value, (np.ndarray, tuple)):
+        return list(value)
+    return str(value)

@@ -1,0 +1,131 @@
+"""``cavitas info`` through ``cavitas.cli.main``: output, JSON, exit codes, one-sentence
+errors on stderr without traceback (exit codes as documented in cavitas/_errors.py).
+
+Reference values come from numpy (min/max/percentile) and nibabel (shape, zooms) on the
+same files."""
+
+import gzip
+import json
+from pathlib import Path
+
+import nibabel as nib
+import numpy as np
+import pytest
+from nibabel.testing import data_path
+
+from cavitas.cli import main
+from cavitas.io import estimate_memory_bytes, write
+
+
+def _one_sentence(stderr):
+    lines = [line for line in stderr.splitlines() if line.strip()]
+    assert len(lines) == 1, stderr
+    assert "Traceback" not in stderr
+    assert lines[0].startswith("cavitas info: error: ") and lines[0].endswith(".")
+    return lines[0]
+
+
+@pytest.fixture
+def volume(tmp_path, rng):
+    data = rng.integers(0, 1000, size=(4, 5, 6), dtype=np.uint16)
+    return write(tmp_path / "scan.tif", data, spacing=(2.0, 0.5, 0.5), unit="µm"), data
+
+
+def test_text_output(volume, capsys):
+    path, data = volume
+    assert main(["info", str(path)]) == 0
+    out = capsys.readouterr().out
+    assert "4 × 5 × 6" in out and "uint16" in out and "2 × 0.5 × 0.5 µm" in out
+    assert f"min {data.min()}, max {data.max()}" in out  # source: numpy min/max
+
+
+def test_json_output(volume, capsys):
+    path, data = volume
+    assert main(["info", "--json", str(path)]) == 0
+    facts = json.loads(capsys.readouterr().out)
+    assert facts["shape"] == [4, 5, 6] and facts["spacing"] == [2.0, 0.5, 0.5]
+    assert (facts["unit"], facts["dtype"], facts["source"]) == ("µm", "uint16", str(path))
+    assert (facts["min"], facts["max"]) == (int(data.min()), int(data.max()))
+    np.testing.assert_allclose(list(facts["percentiles"].values()),
+                               np.percentile(data, [1, 50, 99]))  # source: numpy.percentile
+    assert facts["memory_bytes"] == estimate_memory_bytes((4, 5, 6), np.uint16)
+    assert facts["warnings"] == [] and facts["nonfinite"] == 0
+
+
+def test_nibabel_file_with_time(capsys):
+    # source: nibabel reports example4d.nii.gz as (128, 96, 24, 2), zooms (2, 2, 2.2) mm
+    path = Path(data_path) / "example4d.nii.gz"
+    assert main(["info", "--json", "--time", "1", str(path)]) == 0
+    facts = json.loads(capsys.readouterr().out)
+    zooms = nib.load(path).header.get_zooms()[:3]
+    assert facts["shape"] == [24, 96, 128] and facts["unit"] == "mm"
+    assert np.float32(facts["spacing"]).tolist() == np.float32(zooms[::-1]).tolist()
+
+
+def test_several_files_go_on_past_failures(volume, tmp_path, capsys):
+    path, _ = volume
+    code = main(["info", "--json", str(path), str(tmp_path / "missing.nii"), str(path)])
+    captured = capsys.readouterr()
+    assert code == 3
+    assert len(captured.out.strip().splitlines()) == 2  # one JSON line per readable file
+    assert "missing.nii' does not exist" in _one_sentence(captured.err)
+
+
+def _bad_inputs(tmp_path):
+    """(arguments, exit code, text the sentence must hold) for each bad-input case."""
+    cases = [([str(tmp_path / "missing.tif")], 3, "does not exist")]
+    (tmp_path / "a.jpg").write_bytes(b"\xff\xd8")
+    cases.append(([str(tmp_path / "a.jpg")], 3, "extension"))
+    (tmp_path / "bad.tif").write_text("not a tiff")
+    cases.append(([str(tmp_path / "bad.tif")], 3, "cannot be read as TIFF"))
+    full = write(tmp_path / "full.nii.gz", np.ones((5, 6, 7), np.int16))
+    (tmp_path / "cut.nii.gz").write_bytes(full.read_bytes()[:-60])
+    cases.append(([str(tmp_path / "cut.nii.gz")], 3, "cut.nii.gz"))
+    with gzip.open(tmp_path / "junk.nii.gz", "wb") as stream:
+        stream.write(b"\x01" * 30)
+    cases.append(([str(tmp_path / "junk.nii.gz")], 3, "junk.nii.gz"))
+    header = nib.Nifti1Header()
+    header.set_data_shape((3, 4, 5))
+    header["dim"][3] = 0
+    (tmp_path / "dims.nii").write_bytes(header.binaryblock + bytes(4))
+    cases.append(([str(tmp_path / "dims.nii")], 3, "impossible dimensions"))
+    cases.append(([str(Path(data_path) / "example4d.nii.gz")], 3, "--time"))
+    (tmp_path / "a.raw").write_bytes(bytes(10))
+    cases.append(([str(tmp_path / "a.raw"), "--shape", "2,3", "--dtype", "uint8"], 3,
+                  "has 10 bytes"))
+    cases.append(([str(tmp_path / "a.raw")], 2, "shape="))
+    np.save(tmp_path / "empty.npy", np.zeros((3, 0), np.float32))
+    cases.append(([str(tmp_path / "empty.npy")], 3, "holds no voxels"))
+    np.save(tmp_path / "ok.npy", np.zeros((3, 4), np.float32))
+    cases.append(([str(tmp_path / "ok.npy"), "--spacing", "0,1"], 2, "spacing"))
+    return cases
+
+
+def test_every_bad_input_gives_one_sentence_and_its_exit_code(tmp_path, capsys):
+    for arguments, code, text in _bad_inputs(tmp_path):
+        assert main(["info", *arguments]) == code, arguments
+        captured = capsys.readouterr()
+        assert text in _one_sentence(captured.err), arguments
+        assert captured.out == ""
+
+
+def test_nan_is_reported_not_fatal(tmp_path, capsys):
+    data = np.ones((3, 4), np.float32)
+    data[0, :2] = np.nan
+    np.save(tmp_path / "nan.npy", data)
+    assert main(["info", "--json", str(tmp_path / "nan.npy")]) == 0
+    assert json.loads(capsys.readouterr().out)["nonfinite"] == 2
+
+
+def test_help_teaches(capsys):
+    assert main(["info", "--help"]) == 0
+    out = capsys.readouterr().out
+    assert "examples:" in out and "--channel" in out and "Memory estimate" in out
+
+
+def test_metadata_warnings_are_in_the_block_not_repeated_on_stderr(capsys):
+    # source: nibabel reports xyzt_units 'unknown' for its standard.nii.gz
+    assert main(["info", str(Path(data_path) / "standard.nii.gz")]) == 0
+    captured = capsys.readouterr()
+    assert "warning     the file gives a voxel size but no unit" in captured.out
+    assert captured.err == ""

@@ -1,0 +1,188 @@
+"""Bottleneck and Wasserstein distances against plainly written references.
+
+Definitions: bottleneck distance as in Cohen-Steiner, Edelsbrunner & Harer (2007), each
+diagram augmented with the diagonal projections of the other's points, L∞ ground distance,
+diagonal-to-diagonal cost 0; q-Wasserstein distance as in Mileyko, Mukherjee & Harer (2011)
+and Turner et al. (2014) with the same augmentation.
+"""
+
+import itertools
+import math
+
+import numpy as np
+import pytest
+from hypothesis import given
+from hypothesis import strategies as st
+from scipy.optimize import linear_sum_assignment
+
+from cavitas import ParameterError
+from cavitas.cubical import PAIR_DTYPE, Diagram, bottleneck, wasserstein
+
+
+def _augmented_costs(a, b):
+    """Full augmented cost matrix with the actual projection points (reference, by definition).
+
+    Rows: points of A, then projections of B; columns: points of B, then projections of A.
+    """
+    a = np.asarray(a, float).reshape(-1, 2)
+    b = np.asarray(b, float).reshape(-1, 2)
+    proj_a = np.repeat(a.mean(axis=1, keepdims=True), 2, axis=1)
+    proj_b = np.repeat(b.mean(axis=1, keepdims=True), 2, axis=1)
+    left = list(a) + list(proj_b)
+    right = list(b) + list(proj_a)
+    n_a, n_b = len(a), len(b)
+    size = n_a + n_b
+    cost = np.zeros((size, size))
+    for i in range(size):
+        for j in range(size):
+            if i >= n_a and j >= n_b:
+                cost[i, j] = 0.0  # diagonal to diagonal
+            else:
+                cost[i, j] = np.max(np.abs(left[i] - right[j]))
+    return cost
+
+
+def brute_bottleneck(a, b):
+    """Minimum over all perfect matchings of the largest cost (every permutation)."""
+    cost = _augmented_costs(a, b)
+    size = len(cost)
+    if size == 0:
+        return 0.0
+    return min(max(cost[i, p[i]] for i in range(size))
+               for p in itertools.permutations(range(size)))
+
+
+def brute_wasserstein(a, b, q):
+    """Minimum over all perfect matchings of (sum of cost**q)**(1/q) (every permutation)."""
+    cost = _augmented_costs(a, b)
+    size = len(cost)
+    if size == 0:
+        return 0.0
+    best = min(sum(cost[i, p[i]] ** q for i in range(size))
+               for p in itertools.permutations(range(size)))
+    return best ** (1.0 / q)
+
+
+def threshold_bottleneck(a, b):
+    """Bottleneck via scipy's assignment solver: smallest c with a zero-cost assignment of
+    the 0/1 matrix [cost > c] (an independent route for diagrams too big to enumerate)."""
+    cost = _augmented_costs(a, b)
+    for c in np.unique(cost):
+        over = (cost > c).astype(float)
+        rows, cols = linear_sum_assignment(over)
+        if over[rows, cols].sum() == 0:
+            return float(c)
+    return 0.0
+
+
+# tiny diagrams with many ties: small integer (half-integer) coordinates, birth >= death
+_point = st.tuples(st.integers(0, 6), st.integers(0, 6)).map(
+    lambda p: (max(p) / 2.0, min(p) / 2.0))
+_tiny = st.lists(_point, min_size=0, max_size=3)
+
+
+@given(_tiny, _tiny)
+def test_bottleneck_matches_permutation_brute_force(a, b):
+    # reference: definition, Cohen-Steiner, Edelsbrunner & Harer 2007 (all permutations)
+    assert bottleneck(a, b, 0) == pytest.approx(brute_bottleneck(a, b), rel=1e-12, abs=1e-12)
+
+
+@given(_tiny, _tiny, st.sampled_from([1.0, 2.0, 3.5]))
+def test_wasserstein_matches_permutation_brute_force(a, b, q):
+    # reference: definition, Mileyko, Mukherjee & Harer 2011; Turner et al. 2014
+    assert wasserstein(a, b, 0, order=q) == pytest.approx(
+        brute_wasserstein(a, b, q), rel=1e-9, abs=1e-12)
+
+
+def test_bottleneck_matches_assignment_reference_on_larger_diagrams(rng):
+    # reference: scipy.optimize.linear_sum_assignment on the full augmented matrix
+    for size in (5, 12, 25):
+        births = rng.integers(0, 20, size=(2, size)).astype(float)
+        a = np.column_stack([births[0], births[0] - rng.integers(0, 8, size)])
+        b = np.column_stack([births[1], births[1] - rng.integers(0, 8, size + 3)[:size]])
+        assert bottleneck(a, b, 0) == pytest.approx(threshold_bottleneck(a, b), abs=1e-12)
+
+
+_small = st.lists(_point, min_size=0, max_size=5)
+
+
+@given(_small, _small, _small)
+def test_metric_properties(a, b, c):
+    # common practice: a distance is symmetric, zero on equal inputs, obeys the triangle rule
+    for dist in (lambda x, y: bottleneck(x, y, 0),
+                 lambda x, y: wasserstein(x, y, 0, order=1),
+                 lambda x, y: wasserstein(x, y, 0, order=2)):
+        assert dist(a, b) == pytest.approx(dist(b, a), abs=1e-12)
+        assert dist(a, a) == 0.0
+        assert dist(a, c) <= dist(a, b) + dist(b, c) + 1e-9
+
+
+@given(_small, _small)
+def test_bottleneck_is_the_limit_of_wasserstein(a, b):
+    # definition: the bottleneck cost of the optimal W_q matching bounds d_B, so d_B <= W_q,
+    # and W_q is non-increasing in q (power mean inequality)
+    d_b = bottleneck(a, b, 0)
+    w = [wasserstein(a, b, 0, order=q) for q in (1, 2, 8)]
+    assert d_b <= w[2] + 1e-9
+    assert w[0] + 1e-9 >= w[1] >= w[2] - 1e-9
+
+
+def test_hand_computed_examples():
+    # hand-computed: a point (3, 1) is 2/2 = 1 from the diagonal in L∞
+    assert bottleneck([[3.0, 1.0]], [], 0) == 1.0
+    assert wasserstein([[3.0, 1.0]], [], 0) == 1.0
+    # hand-computed: (5,1)<->(4.5,1) costs 0.5, (2,1.9) to the diagonal 0.05
+    assert bottleneck([[5.0, 1.0], [2.0, 1.9]], [[4.5, 1.0]], 0) == 0.5
+    assert wasserstein([[5.0, 1.0], [2.0, 1.9]], [[4.5, 1.0]], 0) == pytest.approx(0.55)
+    # hand-computed: matching (4,0)<->(4,3) costs 3, both to the diagonal max(2, 0.5) = 2
+    assert bottleneck([[4.0, 0.0]], [[4.0, 3.0]], 0) == 2.0
+    assert wasserstein([[4.0, 0.0]], [[4.0, 3.0]], 0) == 2.5
+    # hand-computed: sublevel (dark walls) diagrams, death above birth
+    assert bottleneck([[1.0, 3.0]], [[1.5, 3.0]], 0) == 0.5
+    assert bottleneck([], [], 0) == 0.0
+
+
+def test_essential_classes():
+    # hand-computed: essentials matched in birth order: |3-5|, |10-9| -> max 2, sum 3
+    a = [[10.0, -np.inf], [3.0, -np.inf], [4.0, 2.0]]
+    b = [[9.0, -np.inf], [5.0, -np.inf], [4.0, 2.0]]
+    assert bottleneck(a, b, 0) == 2.0
+    assert wasserstein(a, b, 0) == 3.0
+    assert wasserstein(a, b, 0, order=2) == pytest.approx(math.sqrt(5.0))
+    # definition: different essential counts (or signs) -> infinite distance
+    # hand-computed: (4,2) vs (7,1) costs 3 either matched or both to the diagonal
+    assert bottleneck(a, b[:2] + [[7.0, 1.0]], 0) == 3.0
+    assert bottleneck(a, b[1:], 0) == math.inf
+    assert wasserstein(a, b[1:], 0) == math.inf
+    assert bottleneck([[1.0, np.inf]], [[1.0, -np.inf]], 0) == math.inf
+
+
+def _diagram(rows, walls="bright"):
+    pairs = np.array([(b, d, 0, -1 if np.isinf(d) else 1) for b, d in rows], dtype=PAIR_DTYPE)
+    return Diagram({0: pairs, 1: pairs[:0]}, shape=(3, 3), walls=walls, connectivity=1)
+
+
+def test_diagram_and_array_inputs_agree():
+    # consistency: a Diagram and its (birth, death) array give the same value
+    rows = [(6.0, 1.0), (5.0, 4.0), (9.0, -np.inf)]
+    other = [(5.5, 1.5), (9.5, -np.inf)]
+    expected = bottleneck(rows, other, 0)
+    assert bottleneck(_diagram(rows), _diagram(other), 0) == expected
+    assert bottleneck(_diagram(rows).pairs(0), other, 0) == expected
+    assert wasserstein(_diagram(rows), other, 0) == wasserstein(rows, other, 0)
+    assert bottleneck(_diagram(rows), _diagram(other), 1) == 0.0
+
+
+def test_bad_inputs_raise_parameter_error():
+    with pytest.raises(ParameterError, match="wall polarity"):
+        bottleneck(_diagram([(2.0, 1.0)]), _diagram([(1.0, 2.0)], walls="dark"), 0)
+    with pytest.raises(ParameterError, match="dgm_a"):
+        bottleneck(np.zeros((3, 3)), [], 0)
+    with pytest.raises(ParameterError, match="dgm_b"):
+        wasserstein([], [[1.0, 2.0], [3.0]], 0)
+    with pytest.raises(ParameterError, match="birth"):
+        bottleneck([[np.nan, 1.0]], [], 0)
+    with pytest.raises(ParameterError, match="order"):
+        wasserstein([], [], 0, order=0.5)
+    with pytest.raises(ParameterError, match="dim must be"):
+        bottleneck(_diagram([(2.0, 1.0)]), [], 2)

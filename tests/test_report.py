@@ -1,0 +1,267 @@
+"""Report plots and the HTML page: what is drawn, what the page holds, what it must not hold.
+
+Common practice for report tests (no published source): inspect the Matplotlib Artists
+behind each figure, parse the written HTML with the standard library's parser, decode every
+embedded picture, and compare outlines and histogram counts with general-purpose reference
+libraries (scikit-image's ``find_boundaries``, numpy's ``histogram``). Scenes are invented
+data (tests/report_scene.py), used for regression only.
+"""
+
+from __future__ import annotations
+
+import base64
+import html
+import io
+from html.parser import HTMLParser
+
+import numpy as np
+import pytest
+from hypothesis import given
+from hypothesis import strategies as st
+from PIL import Image
+from skimage.segmentation import find_boundaries
+
+from cavitas import RESEARCH_ONLY, OutputError, ParameterError
+from cavitas._table import Table
+from cavitas.report import (
+    plot_histograms,
+    plot_region_slices,
+    plot_slices,
+    write_report,
+)
+from cavitas.report._browser import build_frames
+from cavitas.report._regions import pick_region, region_centroids
+from cavitas.report._render import OUTLINE_DARK, OUTLINE_LIGHT, render_slice
+from cavitas.report._table_html import format_value
+from tests.report_scene import diagram, regions_of, scene
+
+DTYPES = [np.float32, np.uint16]
+
+
+class _Page(HTMLParser):
+    """Collects tags with their attributes, and the text, of a written page."""
+
+    def __init__(self) -> None:
+        super().__init__()
+        self.tags: list[tuple[str, dict[str, str | None]]] = []
+        self.text: list[str] = []
+
+    def handle_starttag(self, tag, attrs):
+        self.tags.append((tag, dict(attrs)))
+
+    def handle_data(self, data):
+        self.text.append(data)
+
+
+def _parse(path) -> tuple[str, _Page]:
+    source = path.read_text(encoding="utf-8")
+    page = _Page()
+    page.feed(source)
+    return source, page
+
+
+def _report(tmp_path, ndim, *, empty=False, with_diagram=True, **kw):
+    image, labels = scene(ndim)
+    spacing = (2.0, 0.5, 0.5)[3 - ndim:]
+    regions = regions_of(labels, spacing=spacing)
+    if empty:
+        labels = np.zeros_like(labels)
+        regions = regions.select(np.zeros(len(regions), bool))
+    out = tmp_path / "report.html"
+    write_report(out, image=image, labels=labels, spacing=spacing, unit="µm", regions=regions,
+                 diagram=diagram(ndim, 4) if with_diagram else None, kept=np.arange(4),
+                 threshold=0.5, params={"walls": "bright", "connectivity": 1},
+                 figures={"regions": len(regions), "porosity": (0.25, "%")},
+                 source="scan.tif", **kw)
+    return out, regions
+
+
+FRAME_BUDGET = 300_000
+
+
+@pytest.fixture(scope="module", params=[2, 3])
+def written(request, tmp_path_factory):
+    """One full report per ndim, shared by the page tests (rendering is the slow part)."""
+    out, regions = _report(tmp_path_factory.mktemp("report"), request.param,
+                           frame_budget=FRAME_BUDGET)
+    return out, regions
+
+
+# --- pixels and plots ------------------------------------------------------------------------
+
+@pytest.mark.parametrize("ndim", [2, 3])
+@pytest.mark.parametrize("walls", ["bright", "dark"])
+def test_outline_pixels_are_the_inner_boundaries(ndim, walls):
+    # Reference: skimage.segmentation.find_boundaries(mode="inner"), restricted to regions.
+    image, labels = scene(ndim)
+    image = image if walls == "bright" else 1.0 - image
+    plane, lab = (image, labels) if ndim == 2 else (image[10], labels[10])
+    grey, code = render_slice(plane, lab, (0.0, 1.0))
+    expected = find_boundaries(lab, mode="inner") & (lab > 0)
+    assert expected.any()
+    np.testing.assert_array_equal(code > 0, expected)
+    # two-tone: one tone per region, light when the region's pixels are dark on average
+    for label in np.unique(lab[expected]):
+        tones = np.unique(code[expected & (lab == label)])
+        assert len(tones) == 1
+        assert (tones[0] == 1) == (plane[lab == label].mean() < 0.5)
+    assert set(np.unique(code[expected])) == ({1} if walls == "bright" else {2})
+
+
+@pytest.mark.parametrize("ndim", [2, 3])
+@pytest.mark.parametrize("dtype", DTYPES)
+def test_plot_slices_draws_outlines(ndim, dtype):
+    image, labels = scene(ndim, dtype=dtype)
+    fig = plot_slices(image, labels, spacing=(2.0, 0.5, 0.5)[3 - ndim:], unit="µm")
+    assert len(fig.axes) == (1 if ndim == 2 else 3)
+    rgb = fig.axes[0].images[0].get_array()
+    outline = np.all(rgb == OUTLINE_LIGHT, axis=-1) | np.all(rgb == OUTLINE_DARK, axis=-1)
+    middle = labels if ndim == 2 else labels[round((labels.shape[0] - 1) / 2)]
+    np.testing.assert_array_equal(outline, find_boundaries(middle, mode="inner") & (middle > 0))
+    assert fig.axes[0].get_xlabel() == "x [µm]"
+    # physical extent: 64 (or 32) columns of 0.5 µm
+    assert fig.axes[0].images[0].get_extent()[1] == pytest.approx(0.5 * image.shape[-1])
+
+
+def test_region_slices_mark_the_picked_region():
+    image, labels = scene(3)
+    regions = regions_of(labels, spacing=(1.0, 1.0, 1.0))
+    largest = plot_region_slices(image, labels, regions, which="largest")
+    doubt = plot_region_slices(image, labels, regions, which="least_certain")
+    # region 4 has the largest radius; region 2 the smallest margin (0.05)
+    assert largest.texts[-1].get_text() == "Largest region: label 4"
+    assert doubt.texts[-1].get_text() == "Least certain region: label 2"
+    for ax in largest.axes:  # a dashed contour and a plus marker in every panel
+        assert any(line.get_marker() == "+" for line in ax.lines)
+        assert ax.collections and ax.collections[0].get_linestyle()[0][1] is not None
+    empty = regions.select(np.zeros(len(regions), bool))
+    assert plot_region_slices(image, labels, empty, which="largest") is None
+
+
+def test_histogram_counts_equal_the_table():
+    # Reference: numpy.histogram on the same column; hand-made table (invented values).
+    rng = np.random.default_rng(3)
+    volume = rng.lognormal(3.0, 1.5, 200)
+    sphericity = np.r_[rng.uniform(0.5, 1.0, 197), np.nan, np.nan, np.inf]
+    table = Table({"volume": volume, "sphericity": sphericity}, units={"volume": "µm³"})
+    fig = plot_histograms(table)
+    assert [ax.get_xlabel() for ax in fig.axes] == ["volume [µm³]", "sphericity"]
+    for ax, values in zip(fig.axes, (volume, sphericity[:197]), strict=True):
+        heights = np.array([p.get_height() for p in ax.patches])
+        edges = np.array([p.get_x() for p in ax.patches] + [ax.patches[-1].get_x()
+                                                             + ax.patches[-1].get_width()])
+        assert heights.sum() == len(values)
+        np.testing.assert_array_equal(heights, np.histogram(values, bins=edges)[0])
+    assert fig.axes[0].get_xscale() == "log"  # volumes span more than 100×
+    assert "3 not finite" in fig.axes[1].get_title()
+    assert plot_histograms(Table({"label": [1, 2]})) is None
+
+
+def test_pick_region_and_centroids():
+    _, labels = scene(2)
+    regions = regions_of(labels, spacing=(1.0, 1.0))
+    from_columns = region_centroids(labels, regions)
+    computed = region_centroids(labels, Table({"label": regions["label"]}))
+    np.testing.assert_allclose(computed, from_columns)  # scipy center_of_mass (table) agrees
+    assert pick_region(regions, "least_certain") == 1
+    with pytest.raises(ParameterError, match="which"):
+        pick_region(regions, "smallest")
+
+
+@given(st.floats(allow_nan=False))
+def test_sort_keys_read_back_as_the_value(value):
+    # The table sorts on data-v; JavaScript's Number() parses repr and "±Infinity" exactly.
+    key = format_value(value)[1]
+    assert float(key.replace("Infinity", "inf")) == value
+
+
+def test_frames_fit_the_budget():
+    image, labels = scene(3)
+    full = build_frames(image, labels, budget=10**9)
+    assert [len(v.indices) for v in full] == list(image.shape)
+    small = sum(v.nbytes for v in full) // 3
+    thin = build_frames(image, labels, budget=small)
+    assert sum(v.nbytes for v in thin) <= small
+    assert all(len(v.indices) >= 1 for v in thin)
+    for view in thin:  # every frame is a PNG of the capped size
+        img = Image.open(io.BytesIO(view.base[0]))
+        assert img.format == "PNG" and max(img.size) <= 256
+
+
+# --- the page ----------------------------------------------------------------------------------
+
+def test_report_is_self_contained(written):
+    out, regions = written
+    source, page = _parse(out)
+    assert "http://" not in source and "https://" not in source
+    links = [(tag, a) for tag, a in page.tags for k in ("src", "href") if a.get(k) is not None]
+    images = [a for tag, a in page.tags if tag == "img"]
+    assert images and all(a["src"].startswith("data:image/png;base64,") for a in images)
+    assert all(tag == "img" for tag, _ in links)  # no link, stylesheet or script file
+    assert not any(tag == "script" and "src" in a for tag, a in page.tags)
+    for a in images:  # every embedded picture decodes to a non-empty PNG
+        png = Image.open(io.BytesIO(base64.b64decode(a["src"].split(",", 1)[1])))
+        assert png.format == "PNG" and png.size[0] > 0 and png.size[1] > 0
+    alts = " ".join(a.get("alt", "") for a in images)
+    assert "Persistence diagram" in alts and "Barcode" in alts
+    # one table row per region, each with its centroid for the slice browser
+    rows = [a for tag, a in page.tags if tag == "tr" and "data-c" in a]
+    assert len(rows) == len(regions)
+    # units in the headers
+    assert "volume [µm³]" in source or "volume [µm²]" in source
+
+
+def test_report_shows_the_caution_prominently(written):
+    out, _ = written
+    source, page = _parse(out)
+    assert source.count(html.escape(RESEARCH_ONLY)) >= 2  # top of the page and footer
+    assert source.index('id="caution"') < source.index('id="summary"')
+
+
+def test_report_escapes_hostile_names(tmp_path):
+    hostile = "évil <script>alert('x')</script> & \"quotes\".tif"
+    image, labels = scene(2)
+    table = Table({"label": [1], "<b>odd</b>": ["<i>&amp;</i>"]}, units={"<b>odd</b>": "<u>"})
+    out = tmp_path / "r.html"
+    write_report(out, image=image, labels=labels, spacing=(1, 1), unit="<µm>", regions=table,
+                 params={"<p>": "</td>"}, figures={}, source=hostile, title=None)
+    source, page = _parse(out)
+    assert "<script>alert" not in source
+    assert "<b>odd" not in source and "<i>&amp;" not in source and "<u>" not in source
+    assert html.escape(hostile) in source
+    assert "évil" in "".join(page.text)
+    assert "&lt;b&gt;odd&lt;/b&gt; [&lt;u&gt;]" in source
+    assert sum(tag == "script" for tag, _ in page.tags) == 3  # frames JSON + two scripts
+
+
+def test_report_with_no_region_still_shows_the_diagram(tmp_path):
+    out, _ = _report(tmp_path, 3, empty=True)
+    source, page = _parse(out)
+    assert "No region was kept" in source
+    assert any("Persistence diagram" in (a.get("alt") or "") for tag, a in page.tags)
+    assert not any(tag == "tr" and "data-c" in a for tag, a in page.tags)
+
+
+def test_report_caps_the_table_rows(tmp_path):
+    out, regions = _report(tmp_path, 2, max_rows=3, with_diagram=False)
+    source, page = _parse(out)
+    assert sum(tag == "tr" and "data-c" in a for tag, a in page.tags) == 3
+    assert f"first 3 of {len(regions)} regions" in source
+
+
+def test_report_size_within_budget(written):
+    # A moderate input: the frame budget bounds the page (base64 adds a third), plus the
+    # static plots (well under 1 MB here).
+    out, _ = written
+    assert out.stat().st_size < FRAME_BUDGET * 4 / 3 + 1_000_000
+
+
+def test_report_needs_force_and_matching_shapes(tmp_path):
+    out, _ = _report(tmp_path, 2, with_diagram=False)
+    with pytest.raises(OutputError, match="already exists"):
+        _report(tmp_path, 2, with_diagram=False)
+    _report(tmp_path, 2, with_diagram=False, force=True)
+    image, labels = scene(2)
+    with pytest.raises(ParameterError, match="labels must have the image's shape"):
+        write_report(tmp_path / "x.html", image=image, labels=labels[:-1], spacing=(1, 1),
+                     unit="µm", regions=Table({}), params={}, figures={})
