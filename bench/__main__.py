@@ -12,6 +12,7 @@ MODULES = [
     "bench.segment_accuracy",
     "bench.measure",
     "bench.batch",
+    "bench.segment_scale",
 ]
 
 

@@ -5,7 +5,8 @@ uint16 TIFF: 20 volumes of 48^3 for the throughput, and with ``--large`` one 512
 (a 128^3 foam repeated 4 times per axis, then noise at full resolution).
 
 Targets: jobs 2 / jobs 1 throughput >= 1.6 on two free cores; 512^3 uint16 peak RSS well
-under the machine's 24 GiB (the io estimate, 18 bytes per voxel, is 2.25 GiB).
+under the machine's 24 GiB (``cavitas.io.estimate_memory_bytes``: 54 bytes per voxel,
+6.8 GiB).
 Run: ``python -m bench --only batch [--large]``.
 """
 

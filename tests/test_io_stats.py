@@ -64,6 +64,7 @@ def test_all_nan():
 
 
 def test_memory_estimate_formula():
-    # the documented formula: voxels * (itemsize + 12 engine + 4 label bytes)
-    assert estimate_memory_bytes((10, 20, 30), np.float32) == 6000 * (4 + 12 + 4)
-    assert estimate_memory_bytes((2048, 2048, 2048), "uint8") == 2048**3 * 17  # no overflow
+    # the formula of cavitas/io/_memory.py (input + measured work per voxel), common practice
+    assert estimate_memory_bytes((10, 20, 30), np.float32) == 6000 * (4 + 52)
+    assert estimate_memory_bytes((10, 20, 30), np.int32) == 6000 * (4 + 76)
+    assert estimate_memory_bytes((2048, 2048, 2048), "uint8") == 2048**3 * 53  # no overflow

@@ -108,6 +108,12 @@ def add_segment_options(p: argparse.ArgumentParser) -> None:
     g.add_argument("--safety", type=float, metavar="S",
                    help="factor on the noise-only persistence in automatic mode (default 2)")
     g = p.add_argument_group("what a region is")
+    g.add_argument("--split-fraction", type=float, metavar="F",
+                   help="an inner wall splits a region into two only if it closes at least "
+                        "F (0-1) of the way from the shallower side's core level up to the "
+                        "level where the surrounding wall opens; lower (a wall with a wide "
+                        "hole, e.g. a broken foam wall) keeps both sides as one region "
+                        "(default 0.15; 0 = every significant inner wall splits)")
     g.add_argument("--region", choices=("basin", "breach"),
                    help="basin (default): flooding partition minus each basin's wall, what "
                         "you measure; breach: the strict component below the chamber's level")
@@ -135,8 +141,8 @@ def add_segment_options(p: argparse.ArgumentParser) -> None:
 
 #: Command-line options that map one-to-one onto SegmentParams fields.
 _FIELDS = ("walls", "connectivity", "mask", "auto", "min_persistence", "relative_persistence",
-           "top", "min_volume", "max_volume", "smooth", "safety", "region", "level_fraction",
-           "keep_border", "shells", "enclosures", "mesh", "label_format")
+           "top", "min_volume", "max_volume", "smooth", "safety", "split_fraction", "region",
+           "level_fraction", "keep_border", "shells", "enclosures", "mesh", "label_format")
 
 
 def params_from_args(args: argparse.Namespace) -> Any:

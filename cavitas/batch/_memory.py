@@ -19,13 +19,9 @@ log = logging.getLogger(__name__)
 #: deliberately high so that the estimate errs on the safe side).
 _COMPRESSED_FACTOR = 4
 _COMPRESSED = (".gz", ".zarr")
-#: Peak bytes per voxel measured for a whole ``segment_file`` run in automatic mode (a
-#: 512^3 uint16 volume peaked at 17.2 GiB RSS, 138 B/voxel; ``python -m bench --only batch
-#: --large``, cavitas 0.1). Used while it exceeds the io estimate, so that two large inputs
-#: are not started together on the strength of an estimate that is too low.
-MEASURED_BYTES_PER_VOXEL = 140
-#: Peak memory per stored byte when the header cannot be read (8-bit data, the worst case).
-_BYTES_PER_INPUT_BYTE = MEASURED_BYTES_PER_VOXEL
+#: Peak memory per stored byte when the header cannot be read: 8-bit data, the worst case
+#: of :func:`cavitas.io.estimate_memory_bytes` per stored byte.
+_BYTES_PER_INPUT_BYTE = estimate_memory_bytes((1,), np.uint8)
 
 
 def available_memory() -> int | None:
@@ -90,25 +86,24 @@ def _declared_layout(path: Path) -> tuple[tuple[int, ...], Any]:
 def estimate_task_bytes(path: str | os.PathLike) -> int:
     """Estimated peak memory of segmenting one input, from its header when possible.
 
-    The larger of :func:`cavitas.io.estimate_memory_bytes` and the measured
-    ``MEASURED_BYTES_PER_VOXEL``, for the shape and type the file declares; files whose
-    header cannot be read get an estimate from their size on disk. Never raises: an
-    unreadable input gets a small estimate and fails in its worker.
+    :func:`cavitas.io.estimate_memory_bytes` (the measured peak of ``segment_file`` with a
+    margin) for the shape and type the file declares; files whose header cannot be read
+    get an estimate from their size on disk. Never raises: an unreadable input gets a
+    small estimate and fails in its worker. The batch raises every estimate when a worker
+    reports a larger peak.
 
     Examples
     --------
     >>> import tempfile, pathlib, numpy as np
     >>> f = pathlib.Path(tempfile.mkdtemp()) / "x.npy"
     >>> np.save(f, np.zeros((10, 10, 10), np.uint16))
-    >>> estimate_task_bytes(f)  # 1000 voxels * 140 bytes
-    140000
+    >>> estimate_task_bytes(f) == estimate_memory_bytes((10, 10, 10), np.uint16)
+    True
     """
     path = Path(path)
     try:
         shape, dtype = _declared_layout(path)
-        voxels = int(np.prod(shape, dtype=np.int64))
-        return max(int(estimate_memory_bytes(shape, dtype)),
-                   voxels * MEASURED_BYTES_PER_VOXEL)
+        return int(estimate_memory_bytes(shape, dtype))
     except Exception as exc:  # unreadable header: fall back on the size on disk
         log.debug("No header estimate for '%s' (%s); using its size on disk.", path, exc)
     try:

@@ -22,6 +22,9 @@ from ._thickness import thickness_3d
 __all__ = ["measure_regions"]
 
 _AXES = ("z", "y", "x")
+#: Image types the compiled sweeps read directly (native byte order); sums are in float64.
+_KERNEL_TYPES = tuple(np.dtype(t) for t in (np.uint8, np.uint16, np.int16, np.uint32,
+                                             np.int32, np.float32, np.float64))
 
 
 def measure_regions(labels: Any, *, spacing: Sequence[float] | None = None, unit: str = "µm",
@@ -99,8 +102,9 @@ def measure_regions(labels: Any, *, spacing: Sequence[float] | None = None, unit
     thickness needs one distance transform and a ball-painting pass), so the cost is
     O(N) in the number of voxels plus Σ r² over the wall's ridge voxels, independent
     of the number of regions. The wall thickness runs in a second thread beside the
-    region sweeps (the compiled kernels release the GIL). Memory: about 30 bytes per
-    voxel at the peak (renumbered labels, float64 image copy, distances, thickness).
+    region sweeps (the compiled kernels release the GIL). Memory: about 25 bytes per
+    voxel at the peak (renumbered labels, masks, float64 distances and thickness); the
+    image is read in its own type (no float copy for 8-32-bit integers and floats).
 
     Examples
     --------
@@ -124,7 +128,9 @@ def measure_regions(labels: Any, *, spacing: Sequence[float] | None = None, unit
         if img.dtype != bool and (not np.issubdtype(img.dtype, np.number)
                                   or np.issubdtype(img.dtype, np.complexfloating)):
             raise ParameterError(f"image must hold real numbers; got dtype {img.dtype}.")
-        img = as_3d(img.astype(np.float64, copy=False))
+        if img.dtype not in _KERNEL_TYPES:  # others are read as they are: no float copy
+            img = img.astype(np.float64)
+        img = as_3d(img)
     roi_mask = check_mask(roi, shape, "roi")
     walls = check_mask(walls_mask, shape, "walls_mask")
 

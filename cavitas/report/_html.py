@@ -44,7 +44,7 @@ h2 { font-size: 1.2rem; border-bottom: 2px solid var(--line); padding-bottom: .2
 .facts { display: flex; flex-wrap: wrap; gap: 1rem 2.5rem; align-items: flex-start; }
 table.kv td, table.kv th { padding: .15rem .8rem .15rem 0; text-align: left;
                            vertical-align: top; overflow-wrap: anywhere; }
-table.kv th { font-weight: 600; }
+table.kv th { font-weight: 600; white-space: nowrap; }
 .plots { display: flex; flex-wrap: wrap; gap: 1.2rem; align-items: flex-start; }
 .plots figure { margin: 0; max-width: 100%; }
 .plots img { max-width: 100%; height: auto; border: 1px solid var(--line); }
@@ -130,6 +130,24 @@ def _diagram_figures(diagram: Diagram | None, kept: Any, threshold: float | None
                          threshold=threshold),
             "Barcode of the cavities, longest bars first (at most 50)."))
     return "".join(parts)
+
+
+def _count_sentence(regions: Table) -> str:
+    """"13 chambers, 2 enclosures and 1 region cut by the border." (or "N regions kept.")."""
+    if "kind" not in regions:
+        n = len(regions)
+        return f"{n:,} region{'s' if n != 1 else ''} kept."
+    kinds = regions["kind"]
+    words = {"chamber": ("chamber", "chambers"), "enclosure": ("enclosure", "enclosures"),
+             "cut": ("region cut by the scan border (listed, not in the label map)",
+                     "regions cut by the scan border (listed, not in the label map)")}
+    parts = []
+    for kind, (one, many) in words.items():
+        count = int((kinds == kind).sum())
+        if count or kind == "chamber":
+            parts.append(f"{count:,} {one if count == 1 else many}")
+    text = parts[0] if len(parts) == 1 else ", ".join(parts[:-1]) + " and " + parts[-1]
+    return _esc(text[0].upper() + text[1:] + ".")
 
 
 def write_report(path: str | os.PathLike, *, image: np.ndarray, labels: np.ndarray,
@@ -219,23 +237,26 @@ def write_report(path: str | os.PathLike, *, image: np.ndarray, labels: np.ndarr
 
     n = len(regions)
     if n:
-        summary = f"<p>{n:,} region{'s' if n != 1 else ''} kept.</p>"
+        summary = f"<p>{_count_sentence(regions)}</p>"
     else:
         summary = ('<p class="empty" id="no-regions">No region was kept: no enclosed region '
                    "passed the selection. The persistence diagram below still shows every "
                    "feature that was found.</p>")
     centroids = region_centroids(labels, regions.select(slice(0, max_rows)))
     views = build_frames(image, labels if n else None, budget=frame_budget)
+    # Pictures of single regions and histograms show the regions of the label map only
+    # (chambers), not enclosures or border-cut regions listed in the table.
+    shown = regions.select(regions["kind"] == "chamber") if "kind" in regions else regions
     plots = [
         _figure(plot_slices(image, labels, spacing=spacing, unit=unit),
                 "Orthogonal slices through the centre with region outlines."),
-        _figure(plot_region_slices(image, labels, regions, which="largest", spacing=spacing,
+        _figure(plot_region_slices(image, labels, shown, which="largest", spacing=spacing,
                                    unit=unit), "Slices through the largest region."),
-        _figure(plot_region_slices(image, labels, regions, which="least_certain",
+        _figure(plot_region_slices(image, labels, shown, which="least_certain",
                                    spacing=spacing, unit=unit),
                 "Slices through the least certain region (smallest margin above the "
                 "threshold)."),
-        _figure(plot_histograms(regions), "Histograms of region measurements."),
+        _figure(plot_histograms(shown), "Histograms of region measurements."),
     ]
     hint = " ".join(filter(None, [
         "Move a slider to go through the volume along that axis." if image.ndim == 3 else "",

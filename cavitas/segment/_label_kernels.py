@@ -23,7 +23,8 @@ from numba import njit
 
 from ..cubical._neighbors import is_interior, neighbor_or_outside, unravel3
 
-__all__ = ["basin_pass", "continuation", "nested_pass"]
+__all__ = ["basin_pass", "continuation", "keep_largest_pieces", "nested_pass",
+           "same_value_pieces"]
 
 
 @njit(cache=True)
@@ -36,6 +37,15 @@ def _find(uf, a):
         uf[a] = root
         a = nxt
     return root
+
+
+@njit(cache=True)
+def _identity(size, dtype):
+    """``arange(size)`` in the voxel index type (int32 below 2**31 voxels: half the memory)."""
+    out = np.empty(size, dtype)
+    for i in range(size):
+        out[i] = i
+    return out
 
 
 @njit(cache=True)
@@ -71,8 +81,8 @@ def nested_pass(order, node_of_core, outside_seed, nz, ny, nx, zmargin, off, off
     """
     n = order.shape[0]
     size = out.shape[0]
-    uf = np.arange(size + 1)
-    node_at = np.full(size + 1, -1, np.int64)
+    uf = _identity(size + 1, order.dtype)
+    node_at = np.full(size + 1, -1, node_of_core.dtype)
     node_at[size] = 0
     visited = outside_seed.copy()
     for i in range(size):
@@ -143,7 +153,7 @@ def basin_pass(order, rank, label_of_core, outside_seed, nz, ny, nx, zmargin, of
     pending = -1
     n = order.shape[0]
     size = out.shape[0]
-    uf = np.arange(size)
+    uf = _identity(size, order.dtype)
     root_label = np.zeros(size, out.dtype)
     visited = outside_seed.copy()
     for i in range(size):
@@ -201,3 +211,81 @@ def basin_pass(order, rank, label_of_core, outside_seed, nz, ny, nx, zmargin, of
         if out[v] == pending:
             out[v] = root_label[_find(uf, v)]
     return n
+
+
+@njit(cache=True)
+def same_value_pieces(labels, back):
+    """Connected pieces of equal nonzero value, numbered ``1..`` in raster order of their
+    first voxel (as :func:`skimage.measure.label` with ``background=0`` numbers them).
+
+    ``labels`` is 3D (a 2D image as one plane); ``back`` holds the ``(dz, dy, dx)``
+    neighbour offsets that come earlier in raster order. One int32 array (4 bytes per
+    voxel) serves as union-find forest and then as the output; the root of a piece is its
+    first voxel, so numbering is one increasing pass.
+    """
+    nz, ny, nx = labels.shape
+    flat = labels.ravel()
+    out = np.empty(flat.shape[0], np.int32)
+    for z in range(nz):
+        for y in range(ny):
+            for x in range(nx):
+                i = (z * ny + y) * nx + x
+                lab = flat[i]
+                out[i] = i
+                if lab == 0:
+                    continue
+                for k in range(back.shape[0]):
+                    zz, yy, xx = z + back[k, 0], y + back[k, 1], x + back[k, 2]
+                    if zz < 0 or yy < 0 or xx < 0 or yy >= ny or xx >= nx:
+                        continue
+                    j = (zz * ny + yy) * nx + xx
+                    if flat[j] != lab:
+                        continue
+                    a = _find(out, i)
+                    b = _find(out, j)
+                    if a < b:
+                        out[b] = a
+                    elif b < a:
+                        out[a] = b
+    # parents come before their children: one increasing pass points every voxel at its
+    # root and numbers the roots (negative while the pass runs)
+    count = 0
+    for i in range(flat.shape[0]):
+        if flat[i] == 0:
+            out[i] = 0
+        elif out[i] == i:
+            count += 1
+            out[i] = -count
+        else:
+            out[i] = out[out[i]]
+    for i in range(flat.shape[0]):
+        out[i] = -out[i]
+    return out.reshape(labels.shape), count
+
+
+@njit(cache=True)
+def keep_largest_pieces(labels, back, n_labels):
+    """``labels`` (3D, values ``0..n_labels``) with each value kept on its largest piece only
+    (:func:`same_value_pieces`; ties go to the piece numbered last), as int32.
+
+    Works in the int32 piece array itself: 4 bytes per voxel in all.
+    """
+    out, count = same_value_pieces(labels, back)
+    flat, lab = out.ravel(), labels.ravel()
+    size = np.zeros(count + 1, np.int64)
+    owner = np.zeros(count + 1, np.int64)
+    for i in range(flat.shape[0]):
+        p = flat[i]
+        if p > 0:
+            size[p] += 1
+            owner[p] = lab[i]
+    best = np.zeros(n_labels + 1, np.int64)
+    best_size = np.zeros(n_labels + 1, np.int64)
+    for p in range(1, count + 1):
+        if size[p] >= best_size[owner[p]]:
+            best_size[owner[p]] = size[p]
+            best[owner[p]] = p
+    for i in range(flat.shape[0]):
+        p = flat[i]
+        flat[i] = lab[i] if p > 0 and best[owner[p]] == p else 0
+    return out

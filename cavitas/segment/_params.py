@@ -10,6 +10,7 @@ from dataclasses import dataclass, field, fields
 from typing import Any
 
 from .._errors import InputFileError, ParameterError
+from ._select import SPLIT_FRACTION
 
 __all__ = ["SegmentParams"]
 
@@ -49,6 +50,12 @@ class SegmentParams:
         otherwise; 0 disables smoothing.
     safety : float
         Factor on the empirical noise null (automatic mode).
+    split_fraction : float
+        In [0, 1]. An inner wall splits an enclosure into two chambers only when it closes
+        at least this fraction of the way from the shallower side's core level up to the
+        level where the whole enclosure opens; below that (a wall with a wide hole) both
+        sides are one region. 0 = every significant inner wall splits. Default 0.15
+        (see :mod:`cavitas.segment._select` for the measurements).
     region : {"basin", "breach"}
         Region definition (see :mod:`cavitas.segment._regions`).
     level_fraction : float or None
@@ -88,6 +95,7 @@ class SegmentParams:
     max_volume: float | None = None
     smooth: float | None = None
     safety: float = SAFETY
+    split_fraction: float = SPLIT_FRACTION
     region: str = "basin"
     level_fraction: float | None = None
     keep_border: bool = False
@@ -114,6 +122,10 @@ class SegmentParams:
         self.safety = _number("safety", self.safety)
         if self.safety <= 0:
             raise ParameterError(f"safety must be > 0; got {self.safety}.")
+        self.split_fraction = _number("split_fraction", self.split_fraction)
+        if not 0 <= self.split_fraction <= 1:
+            raise ParameterError(
+                f"split_fraction must be in [0, 1]; got {self.split_fraction}.")
         if self.relative_persistence is not None:
             self.relative_persistence = _number("relative_persistence",
                                                 self.relative_persistence)

@@ -37,12 +37,18 @@ import numpy as np
 from scipy import ndimage as ndi
 
 from ..cubical._neighbors import dual_connectivity, grid_shape3, neighbor_offsets
-from ._label_kernels import basin_pass, continuation, nested_pass
+from ._label_kernels import basin_pass, continuation, keep_largest_pieces, nested_pass
+from ._result import label_dtype
 
 #: Where a basin's wall level sits between its interior and its wall (see module notes).
 WALL_FRACTION = 0.6
+#: Planes per slab of the full-size comparisons (bounds their temporaries).
+_SLAB = 16
+#: Voxels per chunk of the flat passes of :func:`_label_quantile_f32`.
+_CHUNK = 1 << 22
 
-__all__ = ["Sweep", "basin_map", "cut_pieces", "fill_islands", "nested_map", "remove_walls"]
+__all__ = ["Sweep", "basin_map", "cut_pieces", "fill_islands", "label_counts", "nested_map",
+           "remove_walls"]
 
 
 class Sweep:
@@ -55,8 +61,8 @@ class Sweep:
         self.order = order
         self.tree = tree
         self.connectivity = connectivity
-        self.rank = np.full(values.size, -1, np.int64)
-        self.rank[order] = np.arange(order.size)
+        self.rank = np.full(values.size, -1, order.dtype)  # int32 below 2**31 voxels
+        self.rank[order] = np.arange(order.size, dtype=order.dtype)
         self.outside = (np.zeros(values.size, np.bool_) if outside is None
                         else np.ascontiguousarray(outside.ravel(), np.bool_))
         dual = dual_connectivity(len(self.shape), connectivity)
@@ -88,9 +94,9 @@ def nested_map(sweep: Sweep, node: np.ndarray, close_rank: np.ndarray,
     has = tree.breach >= 0
     merge_rank[has] = sweep.rank[tree.breach[has]]
     cont = continuation(tree.parent.astype(np.int64), merge_rank, reg_start, reg_rank, reg_label)
-    node_of_core = np.full(sweep.values.size, -1, np.int64)
+    node_of_core = np.full(sweep.values.size, -1, sweep.order.dtype)
     node_of_core[tree.core[1:]] = np.arange(1, n_nodes)
-    out = np.zeros(sweep.values.size, np.int64)
+    out = np.zeros(sweep.values.size, label_dtype(int(ids.max(initial=0))))
     bad = nested_pass(sweep.order, node_of_core, sweep.outside, *sweep.grid, sweep.offsets,
                       sweep.offsets_zyx, reg_start, reg_rank, reg_label, cont, out)
     if bad >= 0:
@@ -101,9 +107,10 @@ def nested_map(sweep: Sweep, node: np.ndarray, close_rank: np.ndarray,
 def basin_map(sweep: Sweep, cores: np.ndarray, outside_label: int) -> np.ndarray:
     """Flooding partition from ``cores`` (labels ``1..len(cores)``; the outside
     ``outside_label``)."""
-    label_of_core = np.zeros(sweep.values.size, np.int64)
+    dtype = label_dtype(outside_label)
+    label_of_core = np.zeros(sweep.values.size, dtype)
     label_of_core[cores] = np.arange(1, len(cores) + 1)
-    out = np.zeros(sweep.values.size, np.int64)
+    out = np.zeros(sweep.values.size, dtype)
     basin_pass(sweep.order, sweep.rank, label_of_core, sweep.outside, *sweep.grid,
                sweep.offsets, sweep.offsets_zyx, outside_label, out)
     return out.reshape(sweep.shape)
@@ -130,10 +137,15 @@ def remove_walls(basins: np.ndarray, image: np.ndarray, n_labels: int,
         return np.zeros_like(basins), np.full(0, np.inf)
     levels = wall_levels(basins, image, n_labels)
     lut = np.concatenate([[-np.inf], levels])
-    labels = np.where(image < lut[basins], basins, 0)
+    labels = np.zeros_like(basins)
+    for z in range(0, basins.shape[0], _SLAB):  # slabs: no full-size float64 temporary
+        part = slice(z, z + _SLAB)
+        below = image[part] < lut[basins[part]]
+        labels[part][below] = basins[part][below]
     outside = labels == n_labels  # the outside basin holds many pieces: keep them all
     kept = largest_pieces(np.where(outside, 0, labels), n_labels - 1, connectivity)
-    return np.where(outside, labels, kept), levels
+    kept[outside] = n_labels
+    return kept, levels
 
 
 def wall_levels(basins: np.ndarray, image: np.ndarray, n_labels: int) -> np.ndarray:
@@ -150,7 +162,13 @@ def wall_levels(basins: np.ndarray, image: np.ndarray, n_labels: int) -> np.ndar
 
 def _label_quantile(image: np.ndarray, labels: np.ndarray, n_labels: int,
                     q: float) -> np.ndarray:
-    """The ``q`` quantile of ``image`` over each label ``1..n_labels`` (NaN where empty)."""
+    """The ``q`` quantile of ``image`` over each label ``1..n_labels`` (NaN where empty).
+
+    The lower ``q`` quantile: the value at rank ``floor(q * (count - 1))`` among the label's
+    values in increasing order.
+    """
+    if image.dtype == np.float32 and n_labels < 2**31:
+        return _label_quantile_f32(image, labels, n_labels, q)
     lab = labels.ravel()
     keep = lab > 0
     lab, val = lab[keep], image.ravel()[keep]
@@ -165,23 +183,73 @@ def _label_quantile(image: np.ndarray, labels: np.ndarray, n_labels: int,
     return out
 
 
-def largest_pieces(labels: np.ndarray, n_labels: int, connectivity: int) -> np.ndarray:
-    """Keep, for each label, its largest connected piece (complement connectivity)."""
-    from skimage.measure import label as cc_label
+def _label_quantile_f32(image: np.ndarray, labels: np.ndarray, n_labels: int,
+                        q: float) -> np.ndarray:
+    """:func:`_label_quantile` of a float32 image with one sort of 8-byte keys.
 
+    Key = label in the high 32 bits, the value's order-preserving bit pattern in the low 32
+    (IEEE sign trick), so one in-place sort orders by (label, value): 8 bytes per labelled
+    voxel instead of the 24 of a two-key lexsort, and the value read back from the key is
+    the image value itself.
+    """
+    lab, val = labels.ravel(), image.ravel()
+    total = 0
+    for a in range(0, lab.size, _CHUNK):
+        total += int(np.count_nonzero(lab[a:a + _CHUNK] > 0))
+    key = np.empty(total, np.uint64)
+    filled = 0
+    for a in range(0, lab.size, _CHUNK):
+        keep = lab[a:a + _CHUNK] > 0
+        bits = val[a:a + _CHUNK][keep].view(np.uint32)
+        bits ^= (bits >> np.uint32(31)) * np.uint32(0x7FFFFFFF) | np.uint32(0x80000000)
+        part = key[filled:filled + bits.size]
+        part[:] = lab[a:a + _CHUNK][keep]
+        part <<= np.uint64(32)
+        part |= bits
+        filled += bits.size
+    key.sort()
+    ids = np.arange(1, n_labels + 1, dtype=np.uint64) << np.uint64(32)
+    start = np.searchsorted(key, ids, side="left")
+    stop = np.searchsorted(key, ids + np.uint64(1 << 32), side="left")
+    out = np.full(n_labels, np.nan)
+    has = stop > start
+    pick = start[has] + np.floor(q * (stop[has] - start[has] - 1)).astype(np.int64)
+    bits = (key[pick] & np.uint64(0xFFFFFFFF)).astype(np.uint32)
+    bits ^= (1 - (bits >> np.uint32(31))) * np.uint32(0x7FFFFFFF) | np.uint32(0x80000000)
+    out[has] = bits.view(np.float32)
+    return out
+
+
+def largest_pieces(labels: np.ndarray, n_labels: int, connectivity: int) -> np.ndarray:
+    """Keep, for each label, its largest connected piece (complement connectivity).
+
+    Pieces are numbered as :func:`skimage.measure.label` numbers them; of equal largest
+    pieces the one numbered last is kept. One compiled pass, 4 bytes per voxel.
+    """
     dual = dual_connectivity(labels.ndim, connectivity)
-    pieces = cc_label(labels, background=0, connectivity=dual)
-    size = np.bincount(pieces.ravel())
-    owner = np.zeros(size.size, np.int64)
-    owner[pieces.ravel()] = labels.ravel()
-    size[0] = 0
-    best = np.zeros(n_labels + 1, np.int64)
-    order = np.lexsort((size, owner))  # last of each owner = largest piece
-    best[owner[order]] = order
-    keep = np.zeros(size.size, bool)
-    keep[best[1:]] = True
-    keep[0] = False
-    return np.where(keep[pieces], labels, 0)
+    kept = keep_largest_pieces(labels.reshape(grid_shape3(labels.shape)),
+                               _backward_offsets(labels.ndim, dual), n_labels)
+    return kept.reshape(labels.shape).astype(labels.dtype, copy=False)
+
+
+def label_counts(labels: np.ndarray, minlength: int = 0) -> np.ndarray:
+    """``np.bincount(labels.ravel(), minlength)`` by chunks: bincount converts int32 labels
+    to a full int64 copy first; chunks bound that copy."""
+    flat = labels.ravel()
+    counts = np.zeros(max(minlength, int(flat.max(initial=0)) + 1), np.int64)
+    for a in range(0, flat.size, _CHUNK):
+        part = np.bincount(flat[a:a + _CHUNK])
+        counts[:part.size] += part
+    return counts
+
+
+def _backward_offsets(ndim: int, connectivity: int) -> np.ndarray:
+    """``(dz, dy, dx)`` of the neighbours within ``connectivity`` orthogonal hops that come
+    earlier in raster order (scikit-image's meaning of connectivity)."""
+    steps = [d for d in np.ndindex(*(3,) * ndim)
+             if 0 < sum(abs(v - 1) for v in d) <= connectivity]
+    back = [tuple(v - 1 for v in d) for d in steps if tuple(v - 1 for v in d) < (0,) * ndim]
+    return np.array([(0,) * (3 - ndim) + b for b in back], np.int64).reshape(-1, 3)
 
 
 def cut_pieces(outside: np.ndarray, connectivity: int, min_voxels: int,
@@ -203,10 +271,10 @@ def cut_pieces(outside: np.ndarray, connectivity: int, min_voxels: int,
             border[np.take(pieces, end, axis=ax)] = True
     if beyond_roi is not None and beyond_roi.any():
         border[pieces[ndi.binary_dilation(beyond_roi, structure)]] = True
-    size = np.bincount(pieces.ravel(), minlength=n + 1)
+    size = label_counts(pieces, n + 1)
     ok = border & (size >= min_voxels)
     ok[0] = False
-    new = np.zeros(n + 1, np.int64)
+    new = np.zeros(n + 1, pieces.dtype)
     new[ok] = np.arange(1, ok.sum() + 1)
     return new[pieces]
 
@@ -237,7 +305,7 @@ def open_to_border(labels: np.ndarray, outside: np.ndarray, n_labels: int,
     for x, y in ((a, b) for pair in _shift_pairs(ndim) for a, b in (pair, pair[::-1])):
         touch = opening[x] & (labels[y] > 0)
         contact += np.bincount(labels[y][touch], minlength=n_labels + 1)
-    size = np.bincount(labels.ravel(), minlength=n_labels + 1)
+    size = label_counts(labels, n_labels + 1)
     need = np.maximum(2.0, size ** ((ndim - 1) / ndim) / 4.0)
     return (contact >= need)[1:] & (size[1:] > 0)
 
@@ -265,12 +333,14 @@ def fill_islands(labels: np.ndarray, connectivity: int,
 
     Returns the new labels and ``{inner label: host label}``.
     """
-    from skimage.segmentation import expand_labels
-
     zero = labels == 0
     if not zero.any() or zero.all():
         return labels, {}
-    nearest = expand_labels(labels, distance=float(sum(labels.shape)))
+    # the label of the nearest labelled voxel: what skimage's expand_labels gives with an
+    # unbounded distance, without its float64 distances (int32 indices only)
+    index = ndi.distance_transform_edt(zero, return_distances=False, return_indices=True)
+    nearest = labels[tuple(index)]
+    del index
     offset = int(labels.max()) + 1
     xs, ys = [], []
     for a, b in _shift_pairs(labels.ndim):

@@ -168,9 +168,11 @@ def build_table(*, vol: Volume, sign: float, tree: Any, hier: Any, sweep: Any,
     marks chambers that became border-cut pieces. Final ids: chambers ``1..K``,
     enclosures ``K+1..K+E``, border-cut regions after.
     """
+    from ._regions import label_counts
+
     n_ch, n_enc = hier.n_chambers, hier.n_enclosures
     voxel = vol.voxel_volume
-    counts = np.bincount(work.ravel(), minlength=n_ch + n_cut + 1)
+    counts = label_counts(work, n_ch + n_cut + 1)
     own = counts[1:n_ch + 1]
     ok = ~dropped  # chambers open to the border were moved to the border-cut pieces
     if params.min_volume is not None:
@@ -190,8 +192,8 @@ def build_table(*, vol: Volume, sign: float, tree: Any, hier: Any, sweep: Any,
     new_cut[cut_ok] = np.arange(k + n_enc + 1, k + n_enc + m + 1)
     lut = np.concatenate([new_ch, new_cut])
     dtype = label_dtype(k + n_enc + m)
-    all_labels = lut[work].astype(dtype)
-    labels = np.where(all_labels <= k, all_labels, 0).astype(dtype)
+    all_labels = lut.astype(dtype)[work]  # memory: no int64 label map on the way
+    labels = np.where(all_labels <= k, all_labels, 0).astype(dtype, copy=False)
 
     def remap_parent(p: int) -> int:
         if p == 0:
@@ -214,7 +216,7 @@ def build_table(*, vol: Volume, sign: float, tree: Any, hier: Any, sweep: Any,
         enc_labels = np.zeros(work.shape, dtype)
         inside = enclosure_map > 0
         enc_labels[inside] = new_enc[enclosure_map[inside] - n_ch - 1]
-        enc_own = np.bincount(enc_labels.ravel(), minlength=k + n_enc + 1)[k + 1:]
+        enc_own = label_counts(enc_labels, k + n_enc + 1)[k + 1:]
     own_all = np.concatenate([own[ok], enc_own, cut_own[cut_ok]]).astype(np.int64)
     n = k + n_enc + m
     depth = _depths(parent)

@@ -5,7 +5,7 @@ from __future__ import annotations
 import logging
 import math
 import time
-from typing import Any
+from typing import Any, NamedTuple
 
 import numpy as np
 
@@ -19,12 +19,13 @@ from ._regions import (
     basin_map,
     cut_pieces,
     fill_islands,
+    label_counts,
     nested_map,
     open_to_border,
     remove_walls,
 )
 from ._result import Segmentation, build_table
-from ._select import persistence_threshold, select_nodes
+from ._select import persistence_threshold, select_nodes, split_rule
 from ._tree import prune
 
 __all__ = ["segment"]
@@ -64,8 +65,10 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
     -----
     Steps: (1) noise level and empirical null (:mod:`cavitas.segment._noise`); (2) the
     detection scale: the candidate smoothing with most significant cavities
-    (:func:`_detect`); (3) selection on the cavity tree of that scale, pruned into chambers
-    and enclosures (:mod:`cavitas.segment._tree`); (4) regions in one pass over the sweep
+    (:func:`_detect`); (3) selection on the cavity tree of that scale: the persistence
+    threshold, then the split rule (an inner wall must close at least ``split_fraction``
+    of the way up the local wall contrast, :mod:`cavitas.segment._select`), pruned into
+    chambers and enclosures (:mod:`cavitas.segment._tree`); (4) regions in one pass over the sweep
     order (:mod:`cavitas.segment._regions`). Detection needs the scale where noise falls
     below significance; delineation the finest scale that keeps walls two voxels thick
     intact, so basin walls are cut on the image smoothed by :data:`DELINEATION_SIGMA`
@@ -74,11 +77,17 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
     0.75 and 1 voxel (1 voxel, or the detection scale, widens walls; 0 leaves them ragged).
 
     Levels in the table and the diagram are values of the image at the detection scale
-    (the input itself when no smoothing was chosen), in the input's units.
+    (the input itself when no smoothing was chosen), in the input's units. Data of at most
+    16 bits and float32 data are smoothed in float32 (:func:`cavitas.io._memory.work_dtype`,
+    others in float64): levels are exact for that float32 image, and within about 1e-7
+    (relative) of smoothing in float64.
 
     Cost: one sort and one union-find pass per candidate smoothing scale (six in automatic
     mode), one labelling pass, and for basins a few linear passes; near-linear overall.
-    The empirical null is measured once per shape and scale and cached.
+    The empirical null is measured once per shape and scale and cached. Memory: about 45
+    bytes per voxel at the peak for uint16 input (the image is read in place; the smoothed
+    copies, sweep order and ranks and the label maps are float32/int32;
+    :func:`cavitas.io.estimate_memory_bytes`).
 
     Examples
     --------
@@ -103,12 +112,16 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
                              "spacing; got an image without spacing (give spacing=).")
     ndim = vol.ndim
     connectivity = check_connectivity(ndim, params.connectivity or 1)
-    raw = np.asarray(vol.data, dtype=np.float64)
-    if not np.isfinite(raw).all():
+    # Memory: the input is read in place (a memory map stays one); every smoothed copy is
+    # in the work type (float32 for <= 16-bit data) and only one or two live at a time.
+    raw = np.asarray(vol.data)
+    if raw.dtype == np.bool_:
+        raw = raw.view(np.uint8)
+    if raw.dtype.kind == "f" and not np.isfinite(raw).all():
         raise ParameterError(f"Image {vol.name} holds NaN or infinite values; "
                              "replace them (or mask them out) first.")
-    sign = 1.0 if params.walls == "bright" else -1.0
-    values = sign * raw
+    image = _Image(raw, 1.0 if params.walls == "bright" else -1.0,
+                   _noise.work_dtype(raw.dtype))
     if mask is None and params.mask:
         from ..io import read
 
@@ -122,27 +135,30 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
     noise = _noise.estimate_noise(raw)
     if np.issubdtype(vol.dtype, np.integer):  # quantisation noise at least (uniform, 1 step)
         noise = max(noise, _noise.QUANTISATION_SIGMA)
-    lo, hi = np.percentile(raw, [0.5, 99.5])
+    # integers: the same figures as in float64, without a float64 copy of the image
+    lo, hi = np.percentile(raw if raw.dtype.kind in "iu" else raw.astype(np.float64),
+                           [0.5, 99.5])
     robust_range = float(hi - lo)
     spacing_arr = np.asarray(vol.spacing, float)
     sig, smoothed, order, tree, tau, tried = _detect(
-        values, params, noise=noise, robust_range=robust_range, spacing=spacing_arr,
+        image, params, noise=noise, robust_range=robust_range, spacing=spacing_arr,
         connectivity=connectivity, roi=roi)
     timings["detect"] = time.perf_counter() - started
     log.info("%s: noise σ %.4g, detection σ %.3g %s, persistence threshold %.4g",
              vol.name, noise, float((sig * spacing_arr).max()), vol.unit, tau)
     sweep = Sweep(smoothed, order, tree, connectivity, outside)
-    keep = select_nodes(tree.persistence, tree.parent, tau, params.top)
+    significant = select_nodes(tree.persistence, tree.parent, tau, params.top)
+    keep = split_rule(tree, significant, params.split_fraction)
     hier = prune(tree, keep, sweep.rank, sweep.level_of_rank, tau)
 
     fine_sigma = DELINEATION_SIGMA * spacing_arr.min() / spacing_arr
     t0 = time.perf_counter()
     work, n_cut, open_cut, nested, used_level, enclosure_map = _delineate(
-        params, sweep, hier, values, fine_sigma, outside, connectivity, vol.voxel_volume)
+        params, sweep, hier, image, fine_sigma, outside, connectivity, vol.voxel_volume)
     timings["regions"] = time.perf_counter() - t0
 
     seg = build_table(
-        vol=vol, sign=sign, tree=tree, hier=hier, sweep=sweep, work=work, n_cut=n_cut,
+        vol=vol, sign=image.sign, tree=tree, hier=hier, sweep=sweep, work=work, n_cut=n_cut,
         dropped=open_cut,
         enclosure_map=enclosure_map, nested=nested, tau=tau, used_level=used_level,
         params=params,
@@ -155,6 +171,7 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
         "smooth_sigma": float((sig * spacing_arr).max()),
         "delineation_sigma": float((fine_sigma * spacing_arr).max()),
         "scales_tried": tried,
+        "splits_joined": int(np.count_nonzero(significant & ~keep)),
         "automatic": params.automatic,
         "connectivity": connectivity,
         "unit": vol.unit,
@@ -163,7 +180,18 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
     return Segmentation.assemble(seg, volume=vol, params=params, chosen=chosen, tree=tree)
 
 
-def _detect(values: np.ndarray, params: SegmentParams, *, noise: float, robust_range: float,
+class _Image(NamedTuple):
+    """The input as read, its polarity and the float type it is smoothed in."""
+
+    data: np.ndarray
+    sign: float  # 1 for bright walls, -1 for dark: smoothed images have walls high
+    dtype: np.dtype
+
+    def smoothed(self, sigma: np.ndarray) -> np.ndarray:
+        return _noise.smooth(self.data, tuple(sigma), dtype=self.dtype, sign=self.sign)
+
+
+def _detect(image: _Image, params: SegmentParams, *, noise: float, robust_range: float,
             spacing: np.ndarray, connectivity: int, roi: np.ndarray | None):
     """Detection scale, its sweep and threshold: the candidate with most significant cavities.
 
@@ -172,7 +200,8 @@ def _detect(values: np.ndarray, params: SegmentParams, *, noise: float, robust_r
     the strictest criterion given, the automatic one being ``safety · noise · P(σ)``
     (:mod:`cavitas.segment._noise`). Too little smoothing leaves the threshold high, too
     much erases walls; both lose cavities, so the count peaks at the useful scale. Ties go
-    to the finer scale.
+    to the finer scale. Memory: the best candidate's smoothed image and order stay, plus
+    the one being tried (in the work type, :func:`_noise.work_dtype`).
     """
     from .. import cubical
 
@@ -186,12 +215,12 @@ def _detect(values: np.ndarray, params: SegmentParams, *, noise: float, robust_r
     for sig in scales:
         auto = None
         if params.automatic:
-            auto = params.safety * noise * _noise.null_persistence(values.shape, tuple(sig),
-                                                                   connectivity)
+            auto = params.safety * noise * _noise.null_persistence(
+                image.data.shape, tuple(sig), connectivity)
         tau = persistence_threshold(auto=auto, absolute=params.min_persistence,
                                     relative=params.relative_persistence,
                                     robust_range=robust_range)
-        smoothed = _noise.smooth(values, tuple(sig))
+        smoothed = image.smoothed(sig)
         order, tree = cubical.cavity_sweep(smoothed, walls="bright", connectivity=connectivity,
                                            mask=roi)
         pers = tree.persistence[1:]
@@ -199,10 +228,11 @@ def _detect(values: np.ndarray, params: SegmentParams, *, noise: float, robust_r
         tried.append({"sigma": float((sig * spacing).max()), "threshold": tau, "count": count})
         if best is None or count > best[0]:
             best = (count, sig, smoothed, order, tree, tau)
+        del smoothed, order, tree  # a losing candidate is freed before the next scale
     return (*best[1:], tried)
 
 
-def _delineate(params: SegmentParams, sweep: Sweep, hier, values: np.ndarray,
+def _delineate(params: SegmentParams, sweep: Sweep, hier, image: _Image,
                fine_sigma: np.ndarray, outside: np.ndarray | None, connectivity: int,
                voxel_volume: float):
     """Chamber regions (basin or breach), border-cut pieces, islands and enclosures.
@@ -225,8 +255,9 @@ def _delineate(params: SegmentParams, sweep: Sweep, hier, values: np.ndarray,
         cut = core_level + params.level_fraction * (top_level - core_level)
         level_rank = np.minimum(sweep.rank_of_level(cut), close_rank)
     basins = basin_map(sweep, tree.core[hier.node[:n_ch]], n_ch + 1)
-    cleared, basin_levels = remove_walls(basins, _noise.smooth(values, tuple(fine_sigma)),
+    cleared, basin_levels = remove_walls(basins, image.smoothed(fine_sigma),
                                          n_ch + 1, connectivity)
+    del basins  # memory: full-size arrays are dropped as soon as they are used up
     if params.region == "basin":
         labels = np.where(cleared <= n_ch, cleared, 0)
         used_level = basin_levels[:n_ch]
@@ -237,15 +268,16 @@ def _delineate(params: SegmentParams, sweep: Sweep, hier, values: np.ndarray,
     # Border-cut: pieces of the outside basin, and chambers with no wall between them and
     # the border.
     in_outside = cleared == n_ch + 1
+    del cleared
     open_cut = open_to_border(labels, in_outside, n_ch, outside)
-    own = np.bincount(labels.ravel(), minlength=n_ch + 1)[1:]
+    own = label_counts(labels, n_ch + 1)[1:]
     min_cut = max(8, int(0.1 * np.median(own))) if n_ch else 8
     if params.min_volume is not None:
         min_cut = max(min_cut, math.ceil(params.min_volume / voxel_volume))
     cut = cut_pieces(in_outside, connectivity, min_cut, beyond_roi=outside)
     cut_ids = np.flatnonzero(open_cut) + 1
     if cut_ids.size:
-        lut = np.zeros(n_ch + 1, np.int64)
+        lut = np.zeros(n_ch + 1, labels.dtype)
         lut[cut_ids] = np.arange(1, cut_ids.size + 1) + int(cut.max())
         cut = np.where(cut > 0, cut, lut[labels])
         labels = np.where(lut[labels] > 0, 0, labels)
@@ -253,6 +285,7 @@ def _delineate(params: SegmentParams, sweep: Sweep, hier, values: np.ndarray,
     work = np.where(cut > 0, cut + n_ch, labels)
     out_label = n_ch + n_cut + 1
     work[in_outside & (cut == 0)] = out_label
+    del cut, labels, in_outside
     work, nested = fill_islands(work, connectivity, exclude=n_ch + 1)
     work[work == out_label] = 0
 

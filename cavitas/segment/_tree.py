@@ -6,6 +6,10 @@ and the elder carries on. Pruning keeps the nodes whose persistence passes the s
 (their ancestors pass too: an elder that absorbed a kept node lives at least as long).
 
 Every kept node is a **chamber**, the elder side of a split as well as the younger one.
+A split whose inner wall closes low compared with the wall around the group (a wall with a
+hole) is dropped before pruning (:func:`cavitas.segment._select.split_rule`): the dropped
+node is contracted into its parent, as when its pair is cancelled, so its region is part
+of the parent's and its kept children hang from the nearest kept ancestor.
 A chamber closes at the first of two events: it merges into its parent, or its first kept
 child merges into it. Its region is its component just before that rank (or at a chosen
 fraction of the way from its core level to that level).
@@ -71,7 +75,9 @@ def prune(tree: CavityTree, keep: np.ndarray, rank_of: np.ndarray, level_of_rank
     ----------
     tree : CavityTree
     keep : (n_nodes,) bool
-        Kept nodes, closed under ancestors; ``keep[OUTSIDE]`` is ignored.
+        Kept nodes, closed under ancestors but for the nodes the split rule dropped
+        (:func:`cavitas.segment._select.split_rule`): those are contracted into their
+        parent, and their kept descendants attach to the nearest kept ancestor.
     rank_of : (n_voxels,) int array
         Position of each voxel in the sweep order.
     level_of_rank : callable
@@ -86,9 +92,9 @@ def prune(tree: CavityTree, keep: np.ndarray, rank_of: np.ndarray, level_of_rank
     merge_rank = np.full(tree.n_nodes, np.iinfo(np.int64).max, np.int64)
     has_breach = tree.breach >= 0
     merge_rank[has_breach] = rank_of[tree.breach[has_breach]]
+    kept_parent, merge_rank = _kept_ancestors(parent, merge_rank, keep, nodes)
     chamber_id = np.full(tree.n_nodes, -1, np.int64)
     chamber_id[nodes] = np.arange(n_ch)
-    kept_parent = parent[nodes]
     inner = kept_parent != OUTSIDE
     core_rank = rank_of[tree.core[nodes]] if n_ch else np.zeros(0, np.int64)
 
@@ -107,8 +113,8 @@ def prune(tree: CavityTree, keep: np.ndarray, rank_of: np.ndarray, level_of_rank
             a = group_of[a]
         return a
 
-    for j in np.argsort(merge_rank[nodes], kind="stable"):
-        rank = int(merge_rank[nodes[j]])
+    for j in np.argsort(merge_rank, kind="stable"):
+        rank = int(merge_rank[j])
         gj = find(int(j))
         cj = current[gj]
         cand_end[cj] = rank
@@ -150,3 +156,23 @@ def prune(tree: CavityTree, keep: np.ndarray, rank_of: np.ndarray, level_of_rank
         parent=parent_id[idx],
         n_chambers=n_ch,
     )
+
+
+def _kept_ancestors(parent: np.ndarray, merge_rank: np.ndarray, keep: np.ndarray,
+                    nodes: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Nearest kept ancestor of each of ``nodes`` and the rank where it is reached.
+
+    With ``keep`` closed upward this is the parent and the node's own merge rank. A node
+    dropped by the split rule is contracted into its parent, as when its pair is cancelled:
+    a kept descendant then reaches the kept ancestor only where the dropped node merged
+    (ranks grow towards the root, so the last step of the chain is the largest).
+    """
+    up = parent[nodes].copy()
+    rank = merge_rank[nodes].copy()
+    for i in np.flatnonzero((up != OUTSIDE) & ~keep[up]):
+        p = up[i]
+        while p != OUTSIDE and not keep[p]:
+            rank[i] = merge_rank[p]
+            p = parent[p]
+        up[i] = p
+    return up, rank
