@@ -2,7 +2,7 @@
 
 Three scenarios of our own, made with :mod:`cavitas.scenes` at fixed seeds and written with
 ``cavitas.write`` (NIfTI gzip streams carry no time stamp; the TIFF files carry no date
-tag), so the files regenerate bit for bit:
+tag and are not compressed), so the files regenerate bit for bit:
 
 - ``foam.nii.gz``: micro-CT-like closed-cell polymer foam, uint16, with Poisson-like noise;
 - ``capsules.tif``: confocal-like stack of hollow fluorescent microcapsules, uint8, ImageJ;
@@ -100,7 +100,11 @@ def write_samples(out: str | Path, *, force: bool = False,
         image_file, truth_file = sample.files
         if scene.n_labels > np.iinfo(np.uint16).max:
             raise ValueError(f"{sample.name}: too many labels for uint16 truth.")
-        geometry = dict(spacing=scene.spacing, unit=scene.unit, force=force)
+        # TIFF samples are stored uncompressed: tifffile deflates with imagecodecs when it
+        # is installed and with Python's zlib otherwise, and the two give other bytes.
+        # The NIfTI samples use Python's gzip, the same everywhere.
+        geometry = dict(spacing=scene.spacing, unit=scene.unit, force=force,
+                        compress=sample.suffix != ".tif")
         cavitas.write(out / image_file, sample.encode(scene), **geometry)
         cavitas.write(out / truth_file, scene.truth.astype(np.uint16), **geometry)
         scenes[sample.name] = scene
