@@ -21,7 +21,6 @@ atomically:
 
 from __future__ import annotations
 
-import hashlib
 import json
 import os
 import time
@@ -35,21 +34,9 @@ from ._errors import InputFileError, ParameterError
 from ._table import Table
 from ._version import __version__
 from .io._atomic import atomic_path, check_writable
+from .io._checksum import input_checksum
 
 __all__ = ["segment_file"]
-
-
-def _sha256(path: Path) -> str | None:
-    files = [path] if path.is_file() else sorted(p for p in path.iterdir() if p.is_file()) \
-        if path.is_dir() else []
-    if not files:
-        return None
-    digest = hashlib.sha256()
-    for item in files:
-        with open(item, "rb") as fh:
-            for block in iter(lambda fh=fh: fh.read(1 << 20), b""):
-                digest.update(block)
-    return digest.hexdigest()
 
 
 def _label_suffix(source: Path, wanted: str | None) -> str:
@@ -203,7 +190,7 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
         mask = _read_mask(params.mask, volume, source)
         if params.mesh and volume.ndim != 3:
             raise ParameterError(f"mesh needs a 3D volume; '{source}' is 2D.")
-        checksum = _sha256(source)
+        checksum = input_checksum(source)
         tick = done("read", tick)
         seg = segment(volume, params=params, mask=mask)
         tick = done("segment", tick)

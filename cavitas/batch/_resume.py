@@ -8,7 +8,6 @@ Staging folders left by an interrupted run are removed when the next run starts.
 from __future__ import annotations
 
 import contextlib
-import hashlib
 import json
 import os
 import shutil
@@ -18,8 +17,9 @@ from pathlib import Path
 from typing import Any
 
 from .._caution import RESEARCH_ONLY
-from .._errors import InputFileError, OutputError
+from .._errors import OutputError
 from ..io._atomic import atomic_path
+from ..io._checksum import input_checksum
 
 __all__ = [
     "DONE_NAME",
@@ -37,7 +37,6 @@ __all__ = [
 DONE_NAME = "done.json"
 _STAGING = ".partial-"
 _RETIRED = ".old-"
-_BLOCK = 1 << 20
 
 
 def json_ready(value: Any) -> Any:
@@ -49,40 +48,6 @@ def json_ready(value: Any) -> Any:
     {'spacing': [1, 2.5], 'walls': 'bright'}
     """
     return json.loads(json.dumps(value, sort_keys=True, default=str))
-
-
-def input_checksum(path: str | os.PathLike) -> str:
-    """SHA-256 of an input file, or of every file in an input folder (a Zarr store).
-
-    For a folder the digest covers each file's relative path and bytes, in sorted order,
-    so renaming or changing any chunk changes it.
-
-    Examples
-    --------
-    >>> import tempfile, pathlib
-    >>> f = pathlib.Path(tempfile.mkdtemp()) / "a.raw"
-    >>> _ = f.write_bytes(b"abc")
-    >>> input_checksum(f)[:16]  # SHA-256 of b"abc" (FIPS 180-2, appendix B.1)
-    'ba7816bf8f01cfea'
-    """
-    path = Path(path)
-    digest = hashlib.sha256()
-    try:
-        if path.is_dir():
-            for file in sorted(p for p in path.rglob("*") if p.is_file()):
-                digest.update(file.relative_to(path).as_posix().encode() + b"\0")
-                _feed(digest, file)
-        else:
-            _feed(digest, path)
-    except OSError as exc:
-        raise InputFileError(f"Cannot read '{path}': {exc.strerror or exc}.") from exc
-    return digest.hexdigest()
-
-
-def _feed(digest: Any, file: Path) -> None:
-    with open(file, "rb") as fh:
-        while block := fh.read(_BLOCK):
-            digest.update(block)
 
 
 def write_record(folder: Path, *, input_path: str, checksum: str, params: Mapping[str, Any],
