@@ -239,7 +239,7 @@ def plot_barcode(dgm: Diagram, *, dim: int, top: int = 50, highlight: Any = None
     if threshold is not None:
         n_above = int(np.sum(pers[order] > threshold))
         ax.axhline(n_above - 0.5, color=_GUIDE, linestyle="-.", linewidth=1,
-                   label=f"persistence threshold {threshold:g}")
+                   label=f"persistence threshold {threshold:.4g}")
     ax.set_xlim(*((hi + pad, lo - pad) if dgm.walls == "bright" else (lo - pad, hi + pad)))
     ax.set_ylim(max(len(order), 1) - 0.5, -0.5)
     ax.set_yticks([])
