@@ -100,7 +100,7 @@ def test_help_teaches(capsys):
     text = capsys.readouterr().out
     assert "examples:" in text and "--walls dark" in text and "research" in text.lower()
     for option in ("--out", "--walls", "--connectivity", "--mask", "--channel", "--time",
-                   "--bars", "--force"):
+                   "--bars", "--force", "--one-thread"):
         assert option in text
 
 
@@ -118,3 +118,9 @@ def test_volume_cavity_dimension_is_h2(tmp_path):
     dgm = load_diagram(out / "diagram.csv")
     assert dgm.dims == (0, 2)
     assert dgm.pairs(2)[["birth", "death"]].tolist() == [(180.0, 10.0)]
+    # the low-memory run (sweeps one after the other) writes the same diagram
+    assert main(["diagram", str(tmp_path / "shell.tif"), "-o", str(tmp_path / "serial"),
+                 "--one-thread", "-q"]) == 0
+    serial = load_diagram(tmp_path / "serial" / "diagram.csv")
+    for dim in (0, 2):
+        np.testing.assert_array_equal(serial.pairs(dim), dgm.pairs(dim))

@@ -67,12 +67,21 @@ def threshold_bottleneck(a, b):
     """Bottleneck via scipy's assignment solver: smallest c with a zero-cost assignment of
     the 0/1 matrix [cost > c] (an independent route for diagrams too big to enumerate)."""
     cost = _augmented_costs(a, b)
-    for c in np.unique(cost):
+
+    def zero_cost(c):
         over = (cost > c).astype(float)
         rows, cols = linear_sum_assignment(over)
-        if over[rows, cols].sum() == 0:
-            return float(c)
-    return 0.0
+        return over[rows, cols].sum() == 0
+
+    values = np.unique(cost)  # feasibility is monotone in c: bisect over the values
+    lo, hi = 0, len(values) - 1
+    while lo < hi:
+        mid = (lo + hi) // 2
+        if zero_cost(values[mid]):
+            hi = mid
+        else:
+            lo = mid + 1
+    return float(values[lo]) if len(values) else 0.0
 
 
 # tiny diagrams with many ties: small integer (half-integer) coordinates, birth >= death
@@ -101,6 +110,21 @@ def test_bottleneck_matches_assignment_reference_on_larger_diagrams(rng):
         a = np.column_stack([births[0], births[0] - rng.integers(0, 8, size)])
         b = np.column_stack([births[1], births[1] - rng.integers(0, 8, size + 3)[:size]])
         assert bottleneck(a, b, 0) == pytest.approx(threshold_bottleneck(a, b), abs=1e-12)
+
+
+
+def test_bottleneck_with_many_noise_points_matches_the_reference(rng):
+    # reference: as above. Mostly noise near the diagonal around a few far points, the
+    # case where points with no far partner leave the matching graph.
+    def diagram(count, n_far):
+        births = rng.uniform(0, 100, count + n_far)
+        gaps = np.concatenate([rng.exponential(1.0, count), rng.uniform(20, 60, n_far)])
+        return np.column_stack([births, births - gaps])
+
+    for n_noise, n_far in ((150, 3), (240, 10)):
+        a, b = diagram(n_noise, n_far), diagram(n_noise + 17, n_far)
+        assert bottleneck(a, b, 0) == pytest.approx(threshold_bottleneck(a, b), abs=1e-12)
+        assert bottleneck(a, a[::-1] + 1e-3, 0) == pytest.approx(1e-3, abs=1e-9)
 
 
 _small = st.lists(_point, min_size=0, max_size=5)

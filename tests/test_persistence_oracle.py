@@ -27,7 +27,11 @@ CASES = [
 
 
 def _ours(image, conn, walls, mask):
-    dgm = persistence(image, connectivity=conn, walls=walls, mask=mask)
+    dgm = persistence(image, connectivity=conn, walls=walls, mask=mask, parallel=False)
+    # The threaded run (one work array per sweep) must give the very same rows.
+    threaded = persistence(image, connectivity=conn, walls=walls, mask=mask, parallel=True)
+    for dim in dgm.dims:
+        np.testing.assert_array_equal(threaded.pairs(dim), dgm.pairs(dim))
     out = {}
     for dim in dgm.dims:
         rows = dgm.pairs(dim)

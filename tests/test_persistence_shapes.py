@@ -247,3 +247,14 @@ def test_int64_index_path_agrees(rng):
     ref = cavity_sweep_kernel(prep.order, prep.new_parent(), *args)
     for a, b in zip(ours, ref, strict=True):
         np.testing.assert_array_equal(a, b)
+
+
+def test_parallel_default_and_serial_sweeps_agree(rng):
+    # Above 65,536 voxels the sweeps run in two threads by default; the rows must be the
+    # same as one after the other (common practice: a parallel path equals the serial one).
+    image = _smoothed(rng, (40, 42, 44))
+    serial = persistence(image, parallel=False)
+    for dgm in (persistence(image), persistence(image, parallel=True)):
+        for dim in (0, 2):
+            np.testing.assert_array_equal(dgm.pairs(dim), serial.pairs(dim))
+    assert len(serial.pairs(0)) > 10 and len(serial.pairs(2)) > 10

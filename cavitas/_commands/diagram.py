@@ -65,6 +65,10 @@ def register(subparsers: Any, *, parents: list[argparse.ArgumentParser],
                         help="channel to analyse in a multichannel file (from 0)")
     parser.add_argument("--time", type=int, metavar="T",
                         help="time point to analyse in a time series (from 0)")
+    parser.add_argument("--one-thread", action="store_true",
+                        help="run the wall and cavity sweeps one after the other instead of "
+                             "at the same time: 8 instead of 12 bytes per voxel beyond the "
+                             "image, about 1.7x slower")
     parser.add_argument("--bars", type=int, default=50, metavar="K",
                         help="number of cavity bars drawn in barcode.png, longest first")
     parser.add_argument("--force", action="store_true",
@@ -102,7 +106,7 @@ def run(args: argparse.Namespace) -> int:
         bar.update()
         bar.set_postfix_str(f"persistence of {' x '.join(map(str, vol.shape))} voxels")
         dgm = persistence(vol.data, walls=args.walls, connectivity=args.connectivity,
-                          mask=mask)
+                          mask=mask, parallel=False if args.one_thread else None)
         bar.update()
         bar.set_postfix_str("writing")
         save_diagram(dgm, targets[0], force=args.force)

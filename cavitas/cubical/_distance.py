@@ -93,11 +93,27 @@ def _perfect_matching_exists(n: int, m: int, ia: np.ndarray, jb: np.ndarray,
     then ``n`` diagonal slots of A. Edges: A_i–B_j (given), A_i–diag(A_i) if ``light_a[i]``,
     diag(B_j)–B_j if ``light_b[j]``, and diag(B_j)–diag(A_i) mirroring every A_i–B_j edge
     (enough: the two diagonal slots are free exactly when A_i and B_j are matched together).
+
+    A light point with no A–B edge can only take its own diagonal slot, which nothing else
+    can take, so both leave the graph; what remains is usually a small part of the points.
     """
-    la = np.flatnonzero(light_a)
-    lb = np.flatnonzero(light_b)
+    keep_a = ~light_a
+    keep_a[ia] = True
+    keep_b = ~light_b
+    keep_b[jb] = True
+    new_a = np.cumsum(keep_a) - 1
+    new_b = np.cumsum(keep_b) - 1
+    n, m = int(keep_a.sum()), int(keep_b.sum())
+    if n + m == 0:
+        return True
+    ia, jb = new_a[ia], new_b[jb]
+    la = new_a[np.flatnonzero(light_a & keep_a)]
+    lb = new_b[np.flatnonzero(light_b & keep_b)]
     rows = np.concatenate([ia, la, n + lb, n + jb])
     cols = np.concatenate([jb, m + la, lb, m + ia])
+    degree = np.bincount(rows, minlength=n + m)
+    if degree.min() == 0:  # a heavy point with no partner within reach
+        return False
     graph = csr_matrix((np.ones(len(rows), np.int8), (rows, cols)), shape=(n + m, n + m))
     match = maximum_bipartite_matching(graph, perm_type="column")
     return bool(np.all(match >= 0))
@@ -131,8 +147,8 @@ def bottleneck(dgm_a: Any, dgm_b: Any, dim: int) -> float:
     edges has a perfect matching (Hopcroft–Karp), in at most 64 tests. Edges between two
     points that may both go to the diagonal are left out (they are never needed), so
     memory stays proportional to the pairs within the answer of a point far from the
-    diagonal. Time grows with that number: for diagrams with tens of thousands of noise
-    points near the diagonal, compare the pairs above a persistence floor instead.
+    diagonal, and light points with no heavy partner leave the matching graph (they go to
+    the diagonal).
     Essential classes of the same death sign are matched in order of birth.
 
     References

@@ -27,6 +27,8 @@ visits only the remaining bits. Border voxels take the plain, bounds-checked loo
 
 from __future__ import annotations
 
+import functools
+
 import numpy as np
 from numba import njit
 from numba.cpython.unsafe.numbers import trailing_zeros
@@ -68,12 +70,21 @@ def neighbor_chain(shape: tuple[int, ...], connectivity: int):
         1 where neighbour ``k`` touches neighbour ``k - 1``.
     """
     flat, zyx = neighbor_offsets(shape, connectivity)
+    path, chain = _chain_path(len(shape), connectivity)
+    return flat[list(path)].copy(), zyx[list(path)].copy(), np.array(chain, np.uint8)
+
+
+@functools.cache
+def _chain_path(ndim: int, connectivity: int) -> tuple[tuple[int, ...], tuple[bool, ...]]:
+    """The chain order of the neighbours and its ``chain`` flags (they depend on the
+    dimension and connectivity only, not on the shape)."""
+    zyx = neighbor_offsets((3,) * ndim, connectivity)[1]
 
     def touch(a, b):
         d = np.abs(zyx[a] - zyx[b])
-        return d.max() == 1 and d.sum() <= connectivity
+        return bool(d.max() == 1 and d.sum() <= connectivity)
 
-    left = list(range(len(flat)))
+    left = list(range(len(zyx)))
     path = [left.pop(0)]
     while left:
         near = [b for b in left if touch(path[-1], b)]
@@ -83,9 +94,8 @@ def neighbor_chain(shape: tuple[int, ...], connectivity: int):
             nxt = left[0]
         left.remove(nxt)
         path.append(nxt)
-    chain = np.array([0] + [touch(a, b) for a, b in zip(path[:-1], path[1:], strict=True)],
-                     np.uint8)
-    return flat[path].copy(), zyx[path].copy(), chain
+    chain = (False,) + tuple(touch(a, b) for a, b in zip(path[:-1], path[1:], strict=True))
+    return tuple(path), chain
 
 
 @njit(cache=True, inline="always")

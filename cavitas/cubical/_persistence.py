@@ -2,7 +2,9 @@
 
 from __future__ import annotations
 
+import os
 from collections.abc import Iterable
+from concurrent.futures import ThreadPoolExecutor
 from typing import Any
 
 import numpy as np
@@ -16,6 +18,10 @@ from ._sort import index_dtype, sort_voxels, supported
 from ._tree import CavityTree
 
 __all__ = ["cavity_sweep", "persistence"]
+
+#: Image size (voxels) above which the two sweeps run in parallel by default; below it,
+#: starting a thread costs more than it saves.
+_PARALLEL_FROM = 65_536
 
 
 class _Prepared:
@@ -74,10 +80,10 @@ class _Prepared:
         return np.empty(self.flat.shape[0] + 1, index_dtype(self.flat.shape[0] + 1))
 
     def h0(self, parent: np.ndarray | None = None) -> np.ndarray:
-        parent = self.new_parent() if parent is None else parent
+        # A work array made here is an argument only, so it is freed as the kernel returns.
         births, deaths, essential = h0_sweep(
-            self.flat, self.order, parent, *neighbor_chain(self.shape, self.connectivity),
-            *self.grid, self.zmargin,
+            self.flat, self.order, self.new_parent() if parent is None else parent,
+            *neighbor_chain(self.shape, self.connectivity), *self.grid, self.zmargin,
         )
         rows = np.empty(len(births) + len(essential), PAIR_DTYPE)
         rows["birth_voxel"] = np.concatenate((essential, births))
@@ -88,12 +94,12 @@ class _Prepared:
         return _sorted_rows(rows)
 
     def tree(self, parent: np.ndarray | None = None) -> CavityTree:
-        parent = self.new_parent() if parent is None else parent
         neighbors = neighbor_chain(self.shape, dual_connectivity(self.ndim, self.connectivity))
         use_mask = self.mask is not None
         mask_u8 = self.mask.view(np.uint8) if use_mask else np.zeros(1, np.uint8)
         core, breach, tparent = cavity_sweep_kernel(
-            self.order, parent, mask_u8, use_mask, *neighbors, *self.grid, self.zmargin
+            self.order, self.new_parent() if parent is None else parent, mask_u8, use_mask,
+            *neighbors, *self.grid, self.zmargin,
         )
         core_level = np.empty(len(core))
         core_level[1:] = self.flat[core[1:]]
@@ -106,10 +112,26 @@ class _Prepared:
             core_level=core_level, breach=breach, breach_level=breach_level, parent=tparent,
         )
 
-    def both(self) -> tuple[np.ndarray, CavityTree]:
-        """H0 rows and the cavity tree, one sweep after the other on one work array."""
-        parent = self.new_parent()
-        return self.h0(parent), self.tree(parent)
+    def both(self, parallel: bool) -> tuple[np.ndarray, CavityTree]:
+        """H0 rows and the cavity tree.
+
+        In parallel, the cavity sweep runs in a second thread (the kernels release the GIL)
+        on its own work array; otherwise the sweeps run one after the other on one array.
+        """
+        if not parallel:
+            parent = self.new_parent()
+            return self.h0(parent), self.tree(parent)
+        with ThreadPoolExecutor(max_workers=1, thread_name_prefix="cavitas-sweep") as pool:
+            cavities = pool.submit(self.tree)
+            return self.h0(), cavities.result()
+
+
+def usable_cores() -> int:
+    """CPU cores this process may run on."""
+    try:
+        return len(os.sched_getaffinity(0))
+    except AttributeError:  # not on Linux
+        return os.cpu_count() or 1
 
 
 def _sorted_rows(rows: np.ndarray) -> np.ndarray:
@@ -160,6 +182,7 @@ def persistence(
     connectivity: int = 1,
     mask: np.ndarray | None = None,
     dims: Iterable[int] | None = None,
+    parallel: bool | None = None,
 ) -> Diagram:
     """Persistence diagram of the wall components (H0) and of the cavities (H_{ndim-1}).
 
@@ -186,6 +209,11 @@ def persistence(
     dims : sequence of int, optional
         Homology dimensions to compute; default ``(0, ndim - 1)``. The middle dimension of
         a 3D image (H1) is not available yet.
+    parallel : bool, optional
+        Run the H0 and cavity sweeps at the same time, in two threads. Default: for images
+        of more than 65,536 voxels, when the process may use more than one CPU core. It
+        costs one more union-find array (4 bytes per voxel); ``False`` keeps memory at its
+        lowest.
 
     Returns
     -------
@@ -202,11 +230,11 @@ def persistence(
     counting pass for 8/16-bit data) serves both sweeps: the cavity sweep visits voxels in
     increasing value (bright walls), H0 in the reverse order. Each sweep is a union-find with
     path halving, near-linear in the number of voxels. Memory beyond the input, per voxel
-    below 2**31 voxels: the order and one union-find array shared by the sweeps (4 bytes
-    each, 8 in all; the sort of 32/64-bit data briefly needs a second 4-byte buffer instead
-    of the union-find array). Pairs and tree nodes come on top (40 bytes per tree node). A
-    non-C-contiguous input is copied once. The kernels release the GIL, so several images
-    can be processed in threads.
+    below 2**31 voxels: the order and one union-find array per sweep (4 bytes each, 12 in
+    all; 8 with ``parallel=False``, when the sweeps share one array; the sort of 32/64-bit
+    data briefly needs a second 4-byte buffer). Pairs and tree nodes come on top (40 bytes
+    per tree node). A non-C-contiguous input is copied once. The kernels release the GIL,
+    so several images can also be processed in threads.
 
     The cavity diagram follows from Alexander duality: cavities of the wall set are the
     components of the complement that do not reach the outside.
@@ -237,7 +265,9 @@ def persistence(
     top = prep.ndim - 1
     pairs = {}
     if wanted == (0, top):
-        pairs[0], tree = prep.both()
+        if parallel is None:
+            parallel = prep.flat.size > _PARALLEL_FROM and usable_cores() > 1
+        pairs[0], tree = prep.both(bool(parallel))
         pairs[top] = _cavity_rows(tree)
     elif 0 in wanted:
         pairs[0] = prep.h0()
