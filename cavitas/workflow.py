@@ -123,7 +123,7 @@ def measured_regions(seg: Any, *, mask: np.ndarray | None = None,
 def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any = None, *,
                  force: bool = False, progress: bool = True,
                  read_options: dict[str, Any] | None = None, report: bool = True,
-                 thickness: bool = True) -> dict[str, Any]:
+                 thickness: bool = True, input_sha256: str | None = None) -> dict[str, Any]:
     """Segment one file and write every output into ``outdir``; return a summary dict.
 
     Parameters
@@ -144,6 +144,9 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
         Write ``report.html``.
     thickness : bool
         Measure wall thickness (local thickness; the slowest measurement on thick walls).
+    input_sha256 : str, optional
+        The input's SHA-256 checksum (recorded in ``run.json``) when the caller has it
+        already, as the batch runner does; it is computed otherwise.
 
     Returns
     -------
@@ -190,7 +193,7 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
         mask = _read_mask(params.mask, volume, source)
         if params.mesh and volume.ndim != 3:
             raise ParameterError(f"mesh needs a 3D volume; '{source}' is 2D.")
-        checksum = input_checksum(source)
+        checksum = input_sha256 or input_checksum(source)
         tick = done("read", tick)
         seg = segment(volume, params=params, mask=mask)
         tick = done("segment", tick)

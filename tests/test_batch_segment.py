@@ -115,3 +115,27 @@ def test_batch_help_teaches(capsys):
     text = capsys.readouterr().out
     assert "examples:" in text and "--jobs" in text and "--min-persistence" in text
     assert "research use only" in text
+
+
+def test_the_batch_hashes_each_input_once(tmp_path, folder, monkeypatch):
+    # The batch passes its checksum to segment_file instead of letting it hash the input
+    # again; both records hold the same value (reference: hashlib.sha256 of the file).
+    import hashlib
+
+    import cavitas.batch._task as task_module
+    import cavitas.workflow as workflow
+    from cavitas.batch._task import Task, run_task
+
+    calls = []
+    real = task_module.input_checksum
+    monkeypatch.setattr(task_module, "input_checksum", lambda p: calls.append(p) or real(p))
+    monkeypatch.setattr(workflow, "input_checksum", lambda p: pytest.fail("hashed twice"))
+    source = folder / "b2.tif"
+    result = run_task(Task(path=str(source), name="b2", root=str(tmp_path / "out"),
+                           params=SegmentParams()))
+    assert result["status"] == "done", result["error"]
+    assert calls == [str(source)]
+    run = json.loads((tmp_path / "out" / "b2" / "run.json").read_text())
+    done = json.loads((tmp_path / "out" / "b2" / "done.json").read_text())
+    assert run["input_sha256"] == hashlib.sha256(source.read_bytes()).hexdigest()
+    assert done["input_sha256"] == run["input_sha256"]

@@ -8,6 +8,7 @@ back as one sentence in the result, and the other inputs go on.
 from __future__ import annotations
 
 import importlib
+import inspect
 import shutil
 import time
 from collections.abc import Callable, Mapping
@@ -56,6 +57,7 @@ class Task:
     worker : str
         ``"module:function"`` called as ``worker(path, outdir, params, force=True,
         progress=False)``; it must write its outputs into ``outdir`` and return a dict.
+        A worker that takes an ``input_sha256`` keyword also gets the input's checksum.
     read_options : mapping
         Options for reading the input (channel, time); passed to the worker when given.
     """
@@ -81,6 +83,14 @@ def resolve_worker(spec: str) -> Callable[..., Mapping[str, Any]]:
     """
     module, _, name = spec.partition(":")
     return getattr(importlib.import_module(module), name)
+
+
+def _accepts(function: Callable[..., Any], keyword: str) -> bool:
+    """Whether ``function`` takes the keyword argument ``keyword``."""
+    try:
+        return keyword in inspect.signature(function).parameters
+    except (TypeError, ValueError):  # a builtin without a signature
+        return False
 
 
 def failure_sentence(exc: BaseException, path: str) -> str:
@@ -124,9 +134,14 @@ def run_task(task: Task) -> dict[str, Any]:
                                "use --force to replace it.")
             return result
         staging = new_staging(root, task.name)
-        options = {"read_options": dict(task.read_options)} if task.read_options else {}
-        figures = resolve_worker(task.worker)(task.path, staging, task.params, force=True,
-                                              progress=False, **options)
+        worker = resolve_worker(task.worker)
+        options: dict[str, Any] = {}
+        if task.read_options:
+            options["read_options"] = dict(task.read_options)
+        if _accepts(worker, "input_sha256"):  # spare the worker a second pass over the input
+            options["input_sha256"] = checksum
+        figures = worker(task.path, staging, task.params, force=True, progress=False,
+                         **options)
         seconds = time.perf_counter() - start
         summary = _plain_figures(figures or {})
         write_record(staging, input_path=task.path, checksum=checksum, params=task.record,
