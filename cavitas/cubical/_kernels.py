@@ -207,6 +207,10 @@ def h0_sweep(values, order, parent, offsets_flat, offsets_zyx, chain, nz, ny, nx
                 continue
             lastp = p
             rw = _find_neg(parent, w)
+            if rv == v:  # first neighbour: its component absorbs the new, youngest voxel
+                parent[v] = rw
+                rv = rw
+                continue
             if rw == rv:
                 continue
             if parent[rw] < parent[rv]:  # rw is the elder

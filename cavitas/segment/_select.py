@@ -29,9 +29,9 @@ smoothing nearly closes their 4-voxel holes). The lower bound is set by designed
 inner walls that must stay: the two ventricles of the Shepp-Logan phantom (Shepp & Logan
 1974) lie in brain tissue at 0.2 of the skull contrast (ratio 0.2), and an enclosure's
 inner walls are by definition weaker than its outer wall. The default
-:data:`SPLIT_FRACTION` = 0.15 sits below 0.2 and above the holes of the bundled foam; holes
-that smoothing raised above it stay split (a finer-scale pass level would tell them apart
-from plateaus; not done yet).
+:data:`SPLIT_FRACTION` = 0.15 sits below 0.2 and above the holes of the bundled foam. Holes
+that smoothing raised above it are found afterwards at the delineation scale, where the two
+chambers touch through them (:mod:`cavitas.segment._perforation`).
 """
 
 from __future__ import annotations
