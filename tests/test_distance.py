@@ -113,9 +113,16 @@ def test_bottleneck_matches_assignment_reference_on_larger_diagrams(rng):
 
 
 
-def test_bottleneck_with_many_noise_points_matches_the_reference(rng):
+@pytest.mark.parametrize("listed_at_once", [2_000_000, 1])
+def test_bottleneck_with_many_noise_points_matches_the_reference(rng, monkeypatch,
+                                                                 listed_at_once):
     # reference: as above. Mostly noise near the diagonal around a few far points, the
-    # case where points with no far partner leave the matching graph.
+    # case where points with no far partner leave the matching graph. Listing one pair at
+    # most forces the interval to be halved before the candidates are listed.
+    import cavitas.cubical._distance as distance
+
+    monkeypatch.setattr(distance, "_MAX_CANDIDATE_PAIRS", listed_at_once)
+
     def diagram(count, n_far):
         births = rng.uniform(0, 100, count + n_far)
         gaps = np.concatenate([rng.exponential(1.0, count), rng.uniform(20, 60, n_far)])

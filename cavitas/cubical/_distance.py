@@ -142,14 +142,15 @@ def bottleneck(dgm_a: Any, dgm_b: Any, dim: int) -> float:
     Each diagram is augmented with the diagonal projections of the other's points; a
     point may be matched with the diagonal at cost half its persistence, and two diagonal
     points with each other at cost 0 (Cohen-Steiner, Edelsbrunner & Harer 2007). The answer
-    is one of the candidate costs (half persistences and L∞ point distances); a bisection
-    on the bit patterns of floats finds the smallest cost for which the graph of cheaper
-    edges has a perfect matching (Hopcroft–Karp), in at most 64 tests. Edges between two
-    points that may both go to the diagonal are left out (they are never needed), so
-    memory stays proportional to the pairs within the answer of a point far from the
-    diagonal, and light points with no heavy partner leave the matching graph (they go to
-    the diagonal).
-    Essential classes of the same death sign are matched in order of birth.
+    is one of the candidate costs (half persistences and L∞ point distances): the smallest
+    one for which the graph of cheaper edges has a perfect matching (Hopcroft–Karp), found
+    by bisection over the candidates between a lower bound (the largest cost some point
+    must pay to the diagonal or to its nearest partner) and the largest half persistence.
+    Edges between two points that may both go to the diagonal are left out (they are
+    never needed), and light points with no heavy partner leave the matching graph (they
+    go to the diagonal), so memory stays proportional to the pairs within the answer of a
+    point far from the diagonal. Essential classes of the same death sign are matched in
+    order of birth.
 
     References
     ----------
@@ -175,27 +176,91 @@ def bottleneck(dgm_a: Any, dgm_b: Any, dim: int) -> float:
     tree_a = cKDTree(fin_a) if n else None
     tree_b = cKDTree(fin_b) if m else None
 
-    def feasible(delta: float) -> bool:
-        ia, jb = _heavy_edges(fin_a, fin_b, tree_a, tree_b, half_a > delta,
-                              half_b > delta, delta)
-        return _perfect_matching_exists(n, m, ia, jb, half_a <= delta, half_b <= delta)
+    def edges(delta: float, heavy_above: float) -> tuple[np.ndarray, ...]:
+        """Pairs within ``delta`` with a point heavier than ``heavy_above``, and their
+        exact L-infinity distances (a few ulps of slack only widen the superset)."""
+        reach = delta + 4 * np.spacing(delta)
+        ia, jb = _heavy_edges(fin_a, fin_b, tree_a, tree_b, half_a > heavy_above,
+                              half_b > heavy_above, reach)
+        dist = np.maximum(np.abs(fin_a[ia, 0] - fin_b[jb, 0]),
+                          np.abs(fin_a[ia, 1] - fin_b[jb, 1]))
+        return ia, jb, dist
 
-    # Every point to the diagonal is always feasible, so the answer is at most ``upper``.
-    # Feasibility is a step function of delta that switches at one of the candidate costs
-    # (a half persistence or an L-infinity point distance, both computed exactly as in
-    # the test); bisecting on the bit patterns of non-negative floats finds that value
-    # exactly in at most 64 steps, without listing the n*m candidate costs.
+    listed = [0]  # pairs listed by the last test that listed its own
+
+    def feasible(delta: float, graph: tuple[np.ndarray, ...] | None = None) -> bool:
+        if graph is None:
+            graph = edges(delta, delta)
+            listed[0] = len(graph[0])
+        ia, jb, dist = graph
+        use = (dist <= delta) & ((half_a[ia] > delta) | (half_b[jb] > delta))
+        return _perfect_matching_exists(n, m, ia[use], jb[use], half_a <= delta,
+                                        half_b <= delta)
+
+    # The answer is a candidate cost: a half persistence or a point distance (computed
+    # exactly as in the test), between a lower bound (some point has neither the diagonal
+    # nor a partner closer) and ``upper`` (every point to the diagonal). Halve the interval
+    # until the pairs it may need are few, then list the candidates inside and bisect
+    # over them, testing each on that one list of pairs.
     upper = float(max(half_a.max(initial=0.0), half_b.max(initial=0.0)))
-    lo, hi = 0, int(np.float64(upper).view(np.int64))
-    if feasible(0.0):
+    bound = _lower_bound(fin_a, fin_b, tree_a, tree_b, half_a, half_b)
+    lo = max(0.0, bound - 4 * np.spacing(bound))  # below it, no cost can pass the test
+    if lo == 0.0 and feasible(0.0):
         return ess_cost
-    while hi - lo > 1:
-        mid = (lo + hi) // 2
-        if feasible(float(np.int64(mid).view(np.float64))):
+    hi = upper
+    while (_pairs_within(fin_a, fin_b, tree_a, tree_b, half_a > lo, half_b > lo, hi)
+           > max(_MAX_CANDIDATE_PAIRS, 2 * listed[0])
+           and lo < (mid := lo + (hi - lo) / 2) < hi):
+        if feasible(mid):
             hi = mid
         else:
             lo = mid
-    return max(float(np.int64(hi).view(np.float64)), ess_cost)
+    graph = edges(hi, lo)
+    within = (graph[2] > lo) & (graph[2] <= hi)
+    cands = np.unique(np.concatenate([graph[2][within], half_a[(half_a > lo) & (half_a <= hi)],
+                                      half_b[(half_b > lo) & (half_b <= hi)]]))
+    first, last = 0, len(cands)  # the answer is cands[first:last][0] once first == last - 1
+    while last - first > 1:
+        mid_at = (first + last - 1) // 2
+        if feasible(float(cands[mid_at]), graph):
+            last = mid_at + 1
+        else:
+            first = mid_at + 1
+    return max(float(cands[first]) if len(cands) else hi, ess_cost)
+
+
+#: Most point pairs listed at once to draw the candidate costs from (or twice as many as
+#: the last test needed, when that is more).
+_MAX_CANDIDATE_PAIRS = 2_000_000
+
+
+def _pairs_within(fin_a: np.ndarray, fin_b: np.ndarray, tree_a: Any, tree_b: Any,
+                  heavy_a: np.ndarray, heavy_b: np.ndarray, delta: float) -> int:
+    """How many pairs :func:`_heavy_edges` would list (heavy-heavy pairs counted twice),
+    counted without listing them."""
+    total = 0
+    for tree, pts, heavy in ((tree_b, fin_a, heavy_a), (tree_a, fin_b, heavy_b)):
+        if tree is not None and heavy.any():
+            total += int(tree.query_ball_point(pts[heavy], r=delta, p=np.inf,
+                                               return_length=True).sum())
+    return total
+
+
+def _lower_bound(fin_a: np.ndarray, fin_b: np.ndarray, tree_a: Any, tree_b: Any,
+                 half_a: np.ndarray, half_b: np.ndarray) -> float:
+    """The largest cost some point must pay: to the diagonal or to its nearest partner
+    (the tree's L-infinity distance, which may differ from the exact one in the last
+    bits; the caller leaves a margin)."""
+    bound = 0.0
+    for pts, half, other in ((fin_a, half_a, tree_b), (fin_b, half_b, tree_a)):
+        if not len(pts):
+            continue
+        if other is None:
+            bound = max(bound, float(half.max()))
+            continue
+        nearest, _ = other.query(pts, k=1, p=np.inf)
+        bound = max(bound, float(np.minimum(half, nearest).max()))
+    return bound
 
 
 def _heavy_edges(fin_a: np.ndarray, fin_b: np.ndarray, tree_a: Any, tree_b: Any,
