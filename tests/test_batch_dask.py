@@ -86,3 +86,36 @@ def test_unreachable_scheduler_is_a_parameter_error(tmp_path, inputs, monkeypatc
     with pytest.raises(ParameterError, match="--scheduler"):
         run_batch([inputs], tmp_path / "out", progress=False, worker=STANDIN,
                   scheduler="tcp://127.0.0.1:9")
+
+
+def test_local_cluster_keeps_to_the_memory_budget(tmp_path, inputs, monkeypatch):
+    # Expected behaviour (as in the local backend): with room for one input at a time, a
+    # cluster of two workers still runs the inputs one after the other.
+    log = tmp_path / "calls.log"
+    monkeypatch.setenv("CAVITAS_STANDIN_LOG", str(log))
+    monkeypatch.setenv("CAVITAS_STANDIN_SLEEP", "0.3")
+    from cavitas.batch._local import WORKER_BASE_BYTES
+
+    out = run_batch([inputs], tmp_path / "dask", {"level": 40}, jobs=2, dask=True,
+                    progress=False, worker=STANDIN, memory_budget=WORKER_BASE_BYTES + 1)
+    assert sorted(r["status"] for r in out.results) == ["done"] * 3 + ["failed"]
+    running = set()  # broken.npy fails on reading: it logs a start and no finish
+    for event, name, _ in (line.split() for line in log.read_text().splitlines()):
+        if event == "start":
+            assert not running, log.read_text()
+            if name != "broken.npy":
+                running.add(name)
+        else:
+            running.remove(name)
+
+
+def test_scheduler_budget_comes_from_its_workers_limits(scheduler):
+    # Reference: the memory limits the scheduler itself reports (distributed's
+    # scheduler_info), times the share the batch may use.
+    from cavitas.batch._dask import _cluster_budget
+    from cavitas.batch._memory import MEMORY_SHARE
+
+    with distributed.Client(scheduler) as client:
+        limits = [w["memory_limit"] for w in client.scheduler_info()["workers"].values()]
+        expected = int(sum(limits) * MEMORY_SHARE) if all(limits) else None
+        assert _cluster_budget(client) == expected

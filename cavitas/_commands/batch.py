@@ -65,7 +65,8 @@ def register(subparsers: Any, *, parents: list[argparse.ArgumentParser],
                                   "cores); fewer run together when memory would not suffice")
     run_options.add_argument("--scheduler", metavar="ADDRESS",
                              help="address of a Dask scheduler to send the inputs to "
-                                  "(e.g. tcp://host:8786)")
+                                  "(e.g. tcp://host:8786); inputs are sent while their "
+                                  "estimated memory fits 80%% of the workers' limits")
     run_options.add_argument("--dask-local", action="store_true",
                              help="run through a Dask cluster started on this machine")
     run_options.add_argument("--force", action="store_true",

@@ -3,17 +3,28 @@
 Workers run the same :func:`~cavitas.batch._task.run_task` as the local backend, so the
 outputs are the same; the output folder must be reachable from every worker (a shared
 file system). Imported only when used.
+
+Memory: like the local backend, inputs are handed to the cluster only while the estimated
+peak memory of those in flight fits the budget (that of this machine for a local cluster;
+for a scheduler, 80 % of its workers' memory limits when they all have one); an input
+larger than the budget is sent alone.
 """
 
 from __future__ import annotations
 
 import contextlib
+import logging
 import uuid
+from collections import deque
 from collections.abc import Callable, Sequence
 from typing import Any
 
 from .._errors import ParameterError
+from ._local import WORKER_BASE_BYTES
+from ._memory import MEMORY_SHARE
 from ._task import FAILED, Task, run_task
+
+log = logging.getLogger(__name__)
 
 __all__ = ["run_dask"]
 
@@ -34,6 +45,7 @@ def _import_distributed() -> Any:
 
 
 def run_dask(tasks: Sequence[Task], *, scheduler: str | None, jobs: int,
+             estimates: Sequence[int], budget: int | None,
              on_result: Callable[[dict[str, Any]], None]) -> list[dict[str, Any]]:
     """Run ``tasks`` on a Dask cluster; return one result per task, in order.
 
@@ -46,6 +58,12 @@ def run_dask(tasks: Sequence[Task], *, scheduler: str | None, jobs: int,
         cluster of ``jobs`` single-threaded worker processes on the loopback interface.
     jobs : int
         Workers of the local cluster (ignored with a scheduler address).
+    estimates : sequence of int
+        Estimated peak memory of each task's data, in bytes (a worker's own
+        ``WORKER_BASE_BYTES`` come on top).
+    budget : int or None
+        Memory the tasks in flight may use together; ``None``: for a scheduler, 80 % of
+        its workers' memory limits (no limit if a worker has none), else no limit.
     on_result : callable
         Called with each result as it arrives (progress display).
     """
@@ -63,14 +81,34 @@ def run_dask(tasks: Sequence[Task], *, scheduler: str | None, jobs: int,
                 raise ParameterError(
                     f"Cannot reach the Dask scheduler at --scheduler {scheduler!r}: {exc}."
                 ) from exc
+            if budget is None:
+                budget = _cluster_budget(client)
         batch_id = uuid.uuid4().hex[:8]
-        futures = [client.submit(run_task, task, key=f"cavitas-{batch_id}-{i}", pure=False)
-                   for i, task in enumerate(tasks)]
-        order = {future.key: i for i, future in enumerate(futures)}
+        pending = deque(range(len(tasks)))
+        in_flight: dict[str, tuple[int, int, Any]] = {}  # key: (task, bytes, future)
+        arrivals = distributed.as_completed()
+
+        def submit_more() -> None:
+            while pending:
+                need = WORKER_BASE_BYTES + int(estimates[pending[0]])
+                used = sum(b for _, b, _ in in_flight.values())
+                if in_flight and budget is not None and used + need > budget:
+                    return
+                if not in_flight and budget is not None and need > budget:
+                    log.warning("'%s' may need %.1f GiB, more than the %.1f GiB budget; "
+                                "sending it alone.", tasks[pending[0]].path, need / 2**30,
+                                budget / 2**30)
+                i = pending.popleft()
+                future = client.submit(run_task, tasks[i], key=f"cavitas-{batch_id}-{i}",
+                                       pure=False)
+                in_flight[future.key] = (i, need, future)
+                arrivals.add(future)
+
         results: dict[int, dict[str, Any]] = {}
         try:
-            for future in distributed.as_completed(futures):
-                i = order[future.key]
+            submit_more()
+            for future in arrivals:
+                i, _, _ = in_flight.pop(future.key)
                 try:
                     result = future.result()
                 except Exception as exc:  # a lost worker, a task the cluster gave up on
@@ -80,7 +118,17 @@ def run_dask(tasks: Sequence[Task], *, scheduler: str | None, jobs: int,
                                        f"({type(exc).__name__}: {exc}); nothing was kept."}
                 results[i] = result
                 on_result(result)
+                submit_more()
         except BaseException:
-            client.cancel(futures)
+            client.cancel([f for _, _, f in in_flight.values()])
             raise
     return [results[i] for i in range(len(tasks))]
+
+
+def _cluster_budget(client: Any) -> int | None:
+    """80 % of the workers' memory limits together, or ``None`` if one has no limit."""
+    workers = client.scheduler_info().get("workers", {}).values()
+    limits = [int(w.get("memory_limit") or 0) for w in workers]
+    if not limits or min(limits) <= 0:
+        return None
+    return int(sum(limits) * MEMORY_SHARE)

@@ -11,9 +11,13 @@ import numpy as np
 
 from ..io._memory import estimate_memory_bytes
 
-__all__ = ["available_memory", "estimate_task_bytes"]
+__all__ = ["MEMORY_SHARE", "available_memory", "estimate_task_bytes"]
 
 log = logging.getLogger(__name__)
+
+#: Share of the available memory (or of a cluster's memory limits) that concurrent tasks
+#: may use together.
+MEMORY_SHARE = 0.8
 
 #: Compressed formats hold several times less than they unpack to (rule of thumb, kept
 #: deliberately high so that the estimate errs on the safe side).

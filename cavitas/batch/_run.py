@@ -19,7 +19,7 @@ from ..io._atomic import atomic_path
 from ._index import write_index
 from ._inputs import expand_inputs
 from ._lock import folder_lock
-from ._memory import available_memory, estimate_task_bytes
+from ._memory import MEMORY_SHARE, available_memory, estimate_task_bytes
 from ._resume import json_ready, remove_stale
 from ._summary import combined_regions, summary_table
 from ._task import DEFAULT_WORKER, FAILED, Task
@@ -31,8 +31,6 @@ log = logging.getLogger(__name__)
 #: Files the batch writes at the top of its output folder (and owns: rewritten each run).
 SUMMARY_NAME, REGIONS_NAME, INDEX_NAME, RECORD_NAME = (
     "summary.csv", "regions.csv", "index.html", "batch.json")
-#: Share of the available memory that concurrent local tasks may use together.
-MEMORY_SHARE = 0.8
 
 
 @dataclass
@@ -127,7 +125,8 @@ def run_batch(inputs: Sequence[str | os.PathLike], outdir: str | os.PathLike,
     worker : str, optional
         ``"module:function"`` that processes one input (default: ``segment_file``).
     memory_budget : int, optional
-        Bytes the concurrent local tasks may use together (default: 80% of available).
+        Bytes the concurrent tasks may use together (default: 80% of what this machine
+        has available, or with ``scheduler`` 80% of the workers' memory limits).
 
     Returns
     -------
@@ -190,16 +189,17 @@ def _execute(tasks: list[Task], *, jobs: int, scheduler: str | None, dask: bool,
                 log.info("%s: %s", result["input"], result["error"])
             bar.update(1)
 
+        estimates = [estimate_task_bytes(t.path) for t in tasks]
+        if memory_budget is None and not scheduler:  # a scheduler reports its own
+            available = available_memory()
+            memory_budget = None if available is None else int(available * MEMORY_SHARE)
         if dask or scheduler:
             from ._dask import run_dask
 
-            return run_dask(tasks, scheduler=scheduler, jobs=jobs, on_result=on_result)
+            return run_dask(tasks, scheduler=scheduler, jobs=jobs, estimates=estimates,
+                            budget=memory_budget, on_result=on_result)
         from ._local import run_local
 
-        if memory_budget is None:
-            available = available_memory()
-            memory_budget = None if available is None else int(available * MEMORY_SHARE)
-        estimates = [estimate_task_bytes(t.path) for t in tasks]
         return run_local(tasks, jobs=jobs, estimates=estimates, budget=memory_budget,
                          on_result=on_result)
 
