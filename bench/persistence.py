@@ -24,8 +24,9 @@ from pathlib import Path
 import numpy as np
 from scipy import ndimage as ndi
 
+from cavitas._cores import usable_cores
 from cavitas.cubical import Diagram, persistence
-from cavitas.cubical._persistence import _cavity_rows, _Prepared, usable_cores
+from cavitas.cubical._persistence import _cavity_rows, _Prepared
 
 NAME = "persistence"
 

@@ -13,6 +13,7 @@ from pathlib import Path
 from typing import Any
 
 from .._caution import RESEARCH_ONLY
+from .._cores import usable_cores
 from .._errors import EXIT_OK, EXIT_SOME_FAILED, OutputError, ParameterError
 from .._version import __version__
 from ..io._atomic import atomic_path
@@ -72,10 +73,7 @@ def params_record(params: Any) -> dict[str, Any]:
 
 def default_jobs() -> int:
     """Worker processes by default: the cores this process may use."""
-    try:
-        return max(1, len(os.sched_getaffinity(0)))
-    except AttributeError:  # not on Linux
-        return max(1, os.cpu_count() or 1)
+    return usable_cores()
 
 
 def _check_owned(root: Path, force: bool) -> None:

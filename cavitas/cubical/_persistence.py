@@ -2,13 +2,13 @@
 
 from __future__ import annotations
 
-import os
 from collections.abc import Iterable
 from concurrent.futures import ThreadPoolExecutor
 from typing import Any
 
 import numpy as np
 
+from .._cores import usable_cores
 from .._errors import ParameterError
 from ..io._volume import Volume
 from ._diagram import PAIR_DTYPE, Diagram
@@ -124,14 +124,6 @@ class _Prepared:
         with ThreadPoolExecutor(max_workers=1, thread_name_prefix="cavitas-sweep") as pool:
             cavities = pool.submit(self.tree)
             return self.h0(), cavities.result()
-
-
-def usable_cores() -> int:
-    """CPU cores this process may run on."""
-    try:
-        return len(os.sched_getaffinity(0))
-    except AttributeError:  # not on Linux
-        return os.cpu_count() or 1
 
 
 def _sorted_rows(rows: np.ndarray) -> np.ndarray:

@@ -67,7 +67,7 @@ def _key(u, mode, descending, signbit, allbits):
     return k
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def _histograms(bits, mask, use_mask, mode, descending, width, dbits, ndig, expmask):
     """Counts of every digit in one pass, the number of sorted voxels and of non-finite ones."""
     signbit = np.uint64(1) << np.uint64(width - 1)
@@ -89,7 +89,7 @@ def _histograms(bits, mask, use_mask, mode, descending, width, dbits, ndig, expm
     return hist, m, nonfinite
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def _scatter_pass(bits, src, from_identity, mask, use_mask, dst, starts, shift, mode,
                   descending, width, dbits):
     """One stable counting-sort pass on digit ``shift`` (src -> dst)."""
@@ -115,7 +115,7 @@ def _scatter_pass(bits, src, from_identity, mask, use_mask, dst, starts, shift, 
             pos[d] += 1
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def _masked_identity(mask, use_mask, dst):
     j = 0
     for i in range(mask.shape[0] if use_mask else dst.shape[0]):

@@ -27,7 +27,7 @@ __all__ = ["basin_pass", "continuation", "keep_largest_pieces", "nested_pass",
            "same_value_pieces"]
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def _find(uf, a):
     root = a
     while uf[root] != root:
@@ -39,7 +39,7 @@ def _find(uf, a):
     return root
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def _identity(size, dtype):
     """``arange(size)`` in the voxel index type (int32 below 2**31 voxels: half the memory)."""
     out = np.empty(size, dtype)
@@ -48,7 +48,7 @@ def _identity(size, dtype):
     return out
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def _resolve(node, r, reg_start, reg_rank, reg_label, cont):
     for j in range(reg_start[node], reg_start[node + 1]):
         if r < reg_rank[j]:
@@ -56,7 +56,7 @@ def _resolve(node, r, reg_start, reg_rank, reg_label, cont):
     return cont[node]
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def continuation(parent, merge_rank, reg_start, reg_rank, reg_label):
     """``cont[n]``: the region a voxel of node ``n``'s component ends in once ``n`` merges.
 
@@ -69,7 +69,7 @@ def continuation(parent, merge_rank, reg_start, reg_rank, reg_label):
     return cont
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def nested_pass(order, node_of_core, outside_seed, nz, ny, nx, zmargin, off, offz,
                 reg_start, reg_rank, reg_label, cont, out):
     """Write into ``out`` (flat) the innermost region of every voxel; return -1 or the bad voxel.
@@ -141,7 +141,7 @@ def nested_pass(order, node_of_core, outside_seed, nz, ny, nx, zmargin, off, off
     return -1
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def basin_pass(order, rank, label_of_core, outside_seed, nz, ny, nx, zmargin, off, offz,
                outside_label, out):
     """Flood from the kept cores into ``out`` (flat); return the number of voxels labelled.
@@ -213,7 +213,7 @@ def basin_pass(order, rank, label_of_core, outside_seed, nz, ny, nx, zmargin, of
     return n
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def same_value_pieces(labels, back):
     """Connected pieces of equal nonzero value, numbered ``1..`` in raster order of their
     first voxel (as :func:`skimage.measure.label` with ``background=0`` numbers them).
@@ -263,7 +263,7 @@ def same_value_pieces(labels, back):
     return out.reshape(labels.shape), count
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def keep_largest_pieces(labels, back, n_labels):
     """``labels`` (3D, values ``0..n_labels``) with each value kept on its largest piece only
     (:func:`same_value_pieces`; ties go to the piece numbered last), as int32.
