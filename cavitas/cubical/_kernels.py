@@ -36,7 +36,7 @@ from numba.cpython.unsafe.numbers import trailing_zeros
 from ._neighbors import is_interior, neighbor_offsets, neighbor_or_outside, unravel3
 from ._prefetch import prefetch
 
-__all__ = ["cavity_sweep_kernel", "h0_sweep", "neighbor_chain"]
+__all__ = ["cavity_sweep_kernel", "h0_sweep", "neighbor_chain", "prefetch_around"]
 
 #: How many voxels ahead in the sweep order the neighbourhood is prefetched.
 _AHEAD = 8
@@ -99,8 +99,9 @@ def _chain_path(ndim: int, connectivity: int) -> tuple[tuple[int, ...], tuple[bo
 
 
 @njit(cache=True, inline="always")
-def _prefetch_around(parent, order, j, nz, ny, nx, zmargin, full):
-    """Prefetch the rows of ``parent`` around voxel ``order[j]`` (if ``j`` is valid)."""
+def prefetch_around(parent, order, j, nz, ny, nx, zmargin, full):
+    """Prefetch the rows of ``parent`` (any per-voxel array) around voxel ``order[j]``
+    (if ``j`` is valid)."""
     if j < 0 or j >= order.shape[0]:
         return
     u = order[j]
@@ -174,7 +175,7 @@ def h0_sweep(values, order, parent, offsets_flat, offsets_zyx, chain, nz, ny, nx
     deaths = np.empty(cap, np.int64)
     npairs = 0
     for j in range(order.shape[0] - 1, -1, -1):
-        _prefetch_around(parent, order, j - _AHEAD, nz, ny, nx, zmargin, full)
+        prefetch_around(parent, order, j - _AHEAD, nz, ny, nx, zmargin, full)
         v = order[j]
         parent[v] = -(j + 2)
         rv = v
@@ -284,7 +285,7 @@ def cavity_sweep_kernel(order, parent, mask, use_mask, offsets_flat, offsets_zyx
     cbits = _chain_bits(chain)
     roots = np.empty(nk, parent.dtype)
     for j in range(order.shape[0]):
-        _prefetch_around(parent, order, j + _AHEAD, nz, ny, nx, zmargin, full)
+        prefetch_around(parent, order, j + _AHEAD, nz, ny, nx, zmargin, full)
         v = order[j]
         nr = 0
         lastp = -1  # parent entry of the last neighbour met: same value, same root

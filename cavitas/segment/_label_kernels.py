@@ -21,7 +21,11 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
+from ..cubical._kernels import prefetch_around
 from ..cubical._neighbors import is_interior, neighbor_or_outside, unravel3
+
+#: How many voxels ahead in the sweep order the neighbourhood is prefetched.
+_AHEAD = 8
 
 __all__ = ["basin_pass", "continuation", "keep_largest_pieces", "nested_pass",
            "same_value_pieces"]
@@ -155,14 +159,16 @@ def basin_pass(order, rank, label_of_core, outside_seed, nz, ny, nx, zmargin, of
     size = out.shape[0]
     uf = _identity(size, order.dtype)
     root_label = np.zeros(size, out.dtype)
-    visited = outside_seed.copy()
+    out[:] = 0  # 0: not visited yet; a visited voxel holds its basin or ``pending``
     for i in range(size):
         if outside_seed[i]:
             out[i] = outside_label
     waiting = np.empty(off.shape[0], np.int64)
+    full = off.shape[0] > 2 * (2 + zmargin)
     for r in range(n):
+        prefetch_around(out, order, r + _AHEAD, nz, ny, nx, zmargin, full)
+        prefetch_around(rank, order, r + _AHEAD, nz, ny, nx, zmargin, full)
         v = order[r]
-        visited[v] = True
         if label_of_core[v] > 0:
             out[v] = label_of_core[v]
             continue
@@ -180,9 +186,9 @@ def basin_pass(order, rank, label_of_core, outside_seed, nz, ny, nx, zmargin, of
                     best = outside_label
                     best_rank = -1
                     continue
-            if not visited[u] or u == v:
-                continue
             lab = out[u]
+            if lab == 0:
+                continue
             if lab == pending:
                 rt = _find(uf, u)
                 lab = root_label[rt]
