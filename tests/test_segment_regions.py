@@ -298,3 +298,19 @@ def test_level_fraction_shrinks_breach_regions(rng):
     half = segment(img, min_persistence=0.005, region="breach", level_fraction=0.5).labels
     assert half.max() == full.max() > 0
     assert np.all(full[half > 0] == half[half > 0]) and (half > 0).sum() < (full > 0).sum()
+
+
+def test_detection_in_two_threads_equals_one_after_the_other(monkeypatch):
+    # Common practice: a parallel path gives exactly what the serial one gives. On one
+    # core the detection scales are tried one at a time; on more, two at a time.
+    import cavitas.segment._segment as segment_module
+    from cavitas.scenes import foam
+
+    scene = foam((64, 64, 64), cells=120, noise=0.2, ramp=2.0, walls="bright", seed=5)
+    monkeypatch.setattr(segment_module, "usable_cores", lambda: 2)
+    threaded = segment(scene.volume)
+    monkeypatch.setattr(segment_module, "usable_cores", lambda: 1)
+    serial = segment(scene.volume)
+    np.testing.assert_array_equal(threaded.labels, serial.labels)
+    assert threaded.params["scales_tried"] == serial.params["scales_tried"]
+    assert threaded.labels.max() > 5
