@@ -23,6 +23,7 @@ from numba import njit
 
 from ..cubical._kernels import prefetch_around
 from ..cubical._neighbors import is_interior, neighbor_or_outside, unravel3
+from ..cubical._prefetch import prefetch
 
 #: How many voxels ahead in the sweep order the neighbourhood is prefetched.
 _AHEAD = 8
@@ -167,15 +168,18 @@ def basin_pass(order, rank, label_of_core, outside_seed, nz, ny, nx, zmargin, of
     full = off.shape[0] > 2 * (2 + zmargin)
     for r in range(n):
         prefetch_around(out, order, r + _AHEAD, nz, ny, nx, zmargin, full)
-        prefetch_around(rank, order, r + _AHEAD, nz, ny, nx, zmargin, full)
+        if r + _AHEAD < n:
+            prefetch(label_of_core, order[r + _AHEAD])
         v = order[r]
         if label_of_core[v] > 0:
             out[v] = label_of_core[v]
             continue
         z, y, x = unravel3(v, ny, nx)
         inner = is_interior(z, y, x, nz, ny, nx, zmargin)
+        # Most voxels see one basin only, and then no rank need be read; where basins
+        # meet, the earliest-visited labelled neighbour decides.
         best = 0
-        best_rank = n
+        mixed = False
         m = 0
         for k in range(off.shape[0]):
             if inner:
@@ -183,8 +187,10 @@ def basin_pass(order, rank, label_of_core, outside_seed, nz, ny, nx, zmargin, of
             else:
                 u = neighbor_or_outside(v, z, y, x, k, off, offz, nz, ny, nx)
                 if u < 0:
-                    best = outside_label
-                    best_rank = -1
+                    if best == 0:
+                        best = outside_label
+                    elif best != outside_label:
+                        mixed = True
                     continue
             lab = out[u]
             if lab == 0:
@@ -201,9 +207,31 @@ def basin_pass(order, rank, label_of_core, outside_seed, nz, ny, nx, zmargin, of
                         waiting[m] = rt
                         m += 1
                     continue
-            if rank[u] < best_rank:
+            if best == 0:
                 best = lab
-                best_rank = rank[u]
+            elif lab != best:
+                mixed = True
+        if mixed:
+            best_rank = n + 1
+            for k in range(off.shape[0]):
+                if inner:
+                    u = v + off[k]
+                else:
+                    u = neighbor_or_outside(v, z, y, x, k, off, offz, nz, ny, nx)
+                    if u < 0:
+                        best = outside_label
+                        best_rank = -1
+                        continue
+                lab = out[u]
+                if lab == 0:
+                    continue
+                if lab == pending:
+                    lab = root_label[_find(uf, u)]
+                    if lab == 0:
+                        continue
+                if rank[u] < best_rank:
+                    best = lab
+                    best_rank = rank[u]
         if best != 0:
             out[v] = best
             for j in range(m):
