@@ -100,6 +100,7 @@ def nested_pass(order, node_of_core, outside_seed, nz, ny, nx, zmargin, off, off
         inner = is_interior(z, y, x, nz, ny, nx, zmargin)
         touch = False
         m = 0
+        last = -1  # union-find entry of the last visited neighbour: same entry, same root
         for k in range(off.shape[0]):
             if inner:
                 u = v + off[k]
@@ -109,6 +110,9 @@ def nested_pass(order, node_of_core, outside_seed, nz, ny, nx, zmargin, off, off
                     touch = True
                     continue
             if visited[u]:
+                if uf[u] == last:
+                    continue
+                last = uf[u]
                 rt = _find(uf, u)
                 new = True
                 for j in range(m):
