@@ -195,7 +195,8 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
             raise ParameterError(f"mesh needs a 3D volume; '{source}' is 2D.")
         checksum = input_sha256 or input_checksum(source)
         tick = done("read", tick)
-        seg = segment(volume, params=params, mask=mask)
+        seg = segment(volume, params=params, mask=mask,
+                      stage=lambda text: steps.set_postfix_str(text))
         tick = done("segment", tick)
         regions, figures = measured_regions(seg, mask=mask, thickness=thickness)
         tick = done("measure", tick)

@@ -314,3 +314,14 @@ def test_detection_in_two_threads_equals_one_after_the_other(monkeypatch):
     np.testing.assert_array_equal(threaded.labels, serial.labels)
     assert threaded.params["scales_tried"] == serial.params["scales_tried"]
     assert threaded.labels.max() > 5
+
+
+def test_stages_are_reported_in_order():
+    # Common practice for progress displays: every stage is announced once, in order.
+    img = _nested_rings()
+    stages = []
+    segment(img, stage=stages.append)
+    n = len(stages) - 2
+    assert stages == ["noise level", *[f"smoothing scale {i} of {n}" for i in range(1, n + 1)],
+                      "regions"]
+    assert n >= 2  # automatic mode tries several scales

@@ -7,6 +7,7 @@ import logging
 import math
 import time
 from collections import deque
+from collections.abc import Callable
 from concurrent.futures import ThreadPoolExecutor
 from typing import Any, NamedTuple
 
@@ -42,7 +43,8 @@ log = logging.getLogger("cavitas.segment")
 
 
 def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = None,
-            mask: Any = None, **options: Any) -> Segmentation:
+            mask: Any = None, stage: Callable[[str], None] | None = None,
+            **options: Any) -> Segmentation:
     """Segment the enclosed regions of a 2D image or 3D volume.
 
     Parameters
@@ -56,6 +58,9 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
     mask : array_like of bool, optional
         Region of interest: voxels outside it count as outside the scan (default: the
         file named by ``params.mask``, if any).
+    stage : callable, optional
+        Called with a few words on each stage as it starts (``"smoothing scale 2 of 6"``,
+        ``"regions"`` ...), for a progress display.
     **options
         Any field of :class:`SegmentParams` (``walls``, ``auto``, ``min_persistence``,
         ``top``, ``region`` ...).
@@ -138,7 +143,9 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
         raise ParameterError(f"mask has shape {roi.shape}; the image has {raw.shape}.")
     outside = None if roi is None else ~roi
     timings: dict[str, float] = {}
+    tell = stage or (lambda text: None)
 
+    tell("noise level")
     noise = _noise.estimate_noise(raw)
     if np.issubdtype(vol.dtype, np.integer):  # quantisation noise at least (uniform, 1 step)
         noise = max(noise, _noise.QUANTISATION_SIGMA)
@@ -149,7 +156,7 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
     spacing_arr = np.asarray(vol.spacing, float)
     sig, smoothed, order, tree, tau, tried = _detect(
         image, params, noise=noise, robust_range=robust_range, spacing=spacing_arr,
-        connectivity=connectivity, roi=roi)
+        connectivity=connectivity, roi=roi, tell=tell)
     timings["detect"] = time.perf_counter() - started
     log.info("%s: noise σ %.4g, detection σ %.3g %s, persistence threshold %.4g",
              vol.name, noise, float((sig * spacing_arr).max()), vol.unit, tau)
@@ -160,6 +167,7 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
 
     fine_sigma = DELINEATION_SIGMA * spacing_arr.min() / spacing_arr
     t0 = time.perf_counter()
+    tell("regions")
     work, n_cut, open_cut, nested, used_level, enclosure_map = _delineate(
         params, sweep, hier, image, fine_sigma, outside, connectivity, vol.voxel_volume)
     perforated = np.zeros(len(keep), bool)
@@ -168,6 +176,7 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
         perforated = perforated_splits(work, image.smoothed(fine_sigma), used_level,
                                        hier.node[:hier.n_chambers], tree.parent, keep)
     if perforated.any():
+        tell("regions, joined through perforated walls")
         keep &= ~perforated
         hier = prune(tree, keep, sweep.rank, sweep.level_of_rank, tau)
         del work, enclosure_map
@@ -211,7 +220,8 @@ class _Image(NamedTuple):
 
 
 def _detect(image: _Image, params: SegmentParams, *, noise: float, robust_range: float,
-            spacing: np.ndarray, connectivity: int, roi: np.ndarray | None):
+            spacing: np.ndarray, connectivity: int, roi: np.ndarray | None,
+            tell: Callable[[str], None]):
     """Detection scale, its sweep and threshold: the candidate with most significant cavities.
 
     Candidates are :data:`AUTO_SCALES` (in voxels of the finest axis, the same physical σ on
@@ -251,6 +261,7 @@ def _detect(image: _Image, params: SegmentParams, *, noise: float, robust_range:
     workers = 2 if len(scales) > 1 and usable_cores() > 1 else 1
     best, tried = None, []
     todo = iter(scales)
+    tell(f"smoothing scale 1 of {len(scales)}")
     with ThreadPoolExecutor(max_workers=workers, thread_name_prefix="cavitas-scale") as pool:
         running = deque(pool.submit(candidate, sig) for sig in itertools.islice(todo, workers))
         while running:
@@ -261,6 +272,8 @@ def _detect(image: _Image, params: SegmentParams, *, noise: float, robust_range:
             if best is None or count > best[0]:
                 best = result
             del result  # a losing candidate is freed before the next scale starts
+            if len(tried) < len(scales):
+                tell(f"smoothing scale {len(tried) + 1} of {len(scales)}")
             following = next(todo, None)
             if following is not None:
                 running.append(pool.submit(candidate, following))
