@@ -161,7 +161,7 @@ def h0_sweep(values, order, parent, offsets_flat, offsets_zyx, chain, nz, ny, nx
 
     Returns
     -------
-    births, deaths : int64 arrays
+    births, deaths : arrays of ``order``'s dtype
         Birth and death voxel of each finite pair with nonzero persistence.
     essential : int64 array
         Birth voxel of each class that never dies.
@@ -171,8 +171,8 @@ def h0_sweep(values, order, parent, offsets_flat, offsets_zyx, chain, nz, ny, nx
     full = nk > 2 * (2 + zmargin)
     cbits = _chain_bits(chain)
     cap = 1024
-    births = np.empty(cap, np.int64)
-    deaths = np.empty(cap, np.int64)
+    births = np.empty(cap, order.dtype)
+    deaths = np.empty(cap, order.dtype)
     npairs = 0
     for j in range(order.shape[0] - 1, -1, -1):
         prefetch_around(parent, order, j - _AHEAD, nz, ny, nx, zmargin, full)
@@ -261,7 +261,7 @@ def cavity_sweep_kernel(order, parent, mask, use_mask, offsets_flat, offsets_zyx
 
     Returns
     -------
-    core, breach, tree_parent : int64 arrays, one entry per node
+    core, breach, tree_parent : arrays of ``order``'s dtype, one entry per node
         Node 0 is the outside (all three ``-1``).
     """
     n = nz * ny * nx
@@ -274,9 +274,9 @@ def cavity_sweep_kernel(order, parent, mask, use_mask, offsets_flat, offsets_zyx
                 parent[i] = out
     nk = offsets_flat.shape[0]
     cap = 1024
-    core = np.empty(cap, np.int64)
-    breach = np.empty(cap, np.int64)
-    tparent = np.empty(cap, np.int64)
+    core = np.empty(cap, order.dtype)
+    breach = np.empty(cap, order.dtype)
+    tparent = np.empty(cap, order.dtype)
     core[0] = -1
     breach[0] = -1
     tparent[0] = -1

@@ -97,10 +97,10 @@ class _Prepared:
         neighbors = neighbor_chain(self.shape, dual_connectivity(self.ndim, self.connectivity))
         use_mask = self.mask is not None
         mask_u8 = self.mask.view(np.uint8) if use_mask else np.zeros(1, np.uint8)
-        core, breach, tparent = cavity_sweep_kernel(
+        core, breach, tparent = (a.astype(np.int64) for a in cavity_sweep_kernel(
             self.order, self.new_parent() if parent is None else parent, mask_u8, use_mask,
             *neighbors, *self.grid, self.zmargin,
-        )
+        ))  # the kernel grows 4-byte arrays while its work array is alive
         core_level = np.empty(len(core))
         core_level[1:] = self.flat[core[1:]]
         core_level[0] = -np.inf if self.bright else np.inf
