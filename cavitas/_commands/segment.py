@@ -112,8 +112,10 @@ def add_segment_options(p: argparse.ArgumentParser) -> None:
                    help="an inner wall splits a region into two only if it closes at least "
                         "F (0-1) of the way from the shallower side's core level up to the "
                         "level where the surrounding wall opens; lower (a wall with a wide "
-                        "hole, e.g. a broken foam wall) keeps both sides as one region "
-                        "(default 0.15; 0 = every significant inner wall splits)")
+                        "hole, e.g. a broken foam wall) keeps both sides as one region, "
+                        "and so does a hole the smoothing closed if the two sides touch "
+                        "through it at the fine scale (default 0.15; 0 = every significant "
+                        "inner wall splits)")
     g.add_argument("--region", choices=("basin", "breach"),
                    help="basin (default): flooding partition minus each basin's wall, what "
                         "you measure; breach: the strict component below the chamber's level")
