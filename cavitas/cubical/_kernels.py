@@ -36,7 +36,8 @@ from numba.cpython.unsafe.numbers import trailing_zeros
 from ._neighbors import is_interior, neighbor_offsets, neighbor_or_outside, unravel3
 from ._prefetch import prefetch
 
-__all__ = ["cavity_sweep_kernel", "h0_sweep", "neighbor_chain", "prefetch_around"]
+__all__ = ["add_distinct", "cavity_sweep_kernel", "h0_sweep", "neighbor_chain",
+           "prefetch_around"]
 
 #: How many voxels ahead in the sweep order the neighbourhood is prefetched.
 _AHEAD = 8
@@ -133,6 +134,16 @@ def _visited_bits(parent, v, offsets_flat, chain_bits):
     for k in range(offsets_flat.shape[0]):
         bits |= np.int64(parent[v + offsets_flat[k]] != -1) << k
     return bits & ~((bits << 1) & chain_bits)
+
+
+@njit(cache=True, inline="always")
+def add_distinct(items, count, value):
+    """Append ``value`` to ``items[:count]`` unless it is there already; the new count."""
+    for q in range(count):
+        if items[q] == value:
+            return count
+    items[count] = value
+    return count + 1
 
 
 @njit(cache=True)
@@ -320,15 +331,7 @@ def cavity_sweep_kernel(order, parent, mask, use_mask, offsets_flat, offsets_zyx
             if p == lastp:
                 continue
             lastp = p
-            r = _find_neg(parent, w)
-            known = False
-            for q in range(nr):
-                if roots[q] == r:
-                    known = True
-                    break
-            if not known:
-                roots[nr] = r
-                nr += 1
+            nr = add_distinct(roots, nr, _find_neg(parent, w))
         if nr == 0:
             if nnodes == core.shape[0]:
                 core = _grow(core, nnodes + 1)

@@ -21,7 +21,7 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
-from ..cubical._kernels import prefetch_around
+from ..cubical._kernels import add_distinct, prefetch_around
 from ..cubical._neighbors import is_interior, neighbor_or_outside, unravel3
 from ..cubical._prefetch import prefetch
 
@@ -113,23 +113,9 @@ def nested_pass(order, node_of_core, outside_seed, nz, ny, nx, zmargin, off, off
                 if uf[u] == last:
                     continue
                 last = uf[u]
-                rt = _find(uf, u)
-                new = True
-                for j in range(m):
-                    if roots[j] == rt:
-                        new = False
-                if new:
-                    roots[m] = rt
-                    m += 1
+                m = add_distinct(roots, m, _find(uf, u))
         if touch:
-            rt = _find(uf, size)
-            new = True
-            for j in range(m):
-                if roots[j] == rt:
-                    new = False
-            if new:
-                roots[m] = rt
-                m += 1
+            m = add_distinct(roots, m, _find(uf, size))
         visited[v] = True
         if m == 0:
             nd = node_of_core[v]
@@ -203,13 +189,7 @@ def basin_pass(order, rank, label_of_core, outside_seed, nz, ny, nx, zmargin, of
                 rt = _find(uf, u)
                 lab = root_label[rt]
                 if lab == 0:
-                    new = True
-                    for j in range(m):
-                        if waiting[j] == rt:
-                            new = False
-                    if new:
-                        waiting[m] = rt
-                        m += 1
+                    m = add_distinct(waiting, m, rt)
                     continue
             if best == 0:
                 best = lab
