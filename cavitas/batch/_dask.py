@@ -13,7 +13,6 @@ larger than the budget is sent alone.
 from __future__ import annotations
 
 import contextlib
-import logging
 import uuid
 from collections import deque
 from collections.abc import Callable, Sequence
@@ -21,10 +20,8 @@ from typing import Any
 
 from .._errors import ParameterError
 from ._local import WORKER_BASE_BYTES
-from ._memory import MEMORY_SHARE
+from ._memory import MEMORY_SHARE, admits
 from ._task import FAILED, Task, run_task
-
-log = logging.getLogger(__name__)
 
 __all__ = ["run_dask"]
 
@@ -92,12 +89,8 @@ def run_dask(tasks: Sequence[Task], *, scheduler: str | None, jobs: int,
             while pending:
                 need = WORKER_BASE_BYTES + int(estimates[pending[0]])
                 used = sum(b for _, b, _ in in_flight.values())
-                if in_flight and budget is not None and used + need > budget:
+                if not admits(need, used, len(in_flight), budget, tasks[pending[0]].path):
                     return
-                if not in_flight and budget is not None and need > budget:
-                    log.warning("'%s' may need %.1f GiB, more than the %.1f GiB budget; "
-                                "sending it alone.", tasks[pending[0]].path, need / 2**30,
-                                budget / 2**30)
                 i = pending.popleft()
                 future = client.submit(run_task, tasks[i], key=f"cavitas-{batch_id}-{i}",
                                        pure=False)

@@ -25,6 +25,7 @@ from multiprocessing.connection import Connection, wait
 from pathlib import Path
 from typing import Any
 
+from ._memory import admits
 from ._resume import remove_stale
 from ._task import FAILED, Task, run_task
 
@@ -133,17 +134,14 @@ def run_local(tasks: Sequence[Task], *, jobs: int, estimates: Sequence[int],
         while pending:
             busy = [w for w in workers if w.index is not None]
             wanted = need(pending[0])
-            if busy and budget is not None and sum(w.bytes for w in busy) + wanted > budget:
+            if not admits(wanted, sum(w.bytes for w in busy), len(busy), budget,
+                          tasks[pending[0]].path):
                 return
             worker = next((w for w in workers if w.index is None), None)
             if worker is None:
                 if len(workers) >= jobs:
                     return
                 worker = start_worker()
-            if not busy and budget is not None and wanted > budget:
-                log.warning("'%s' may need %.1f GiB, more than the %.1f GiB available; "
-                            "running it alone.", tasks[pending[0]].path, wanted / 2**30,
-                            budget / 2**30)
             index = pending.popleft()
             worker.index, worker.bytes = index, wanted
             try:

@@ -11,7 +11,7 @@ import numpy as np
 
 from ..io._memory import estimate_memory_bytes
 
-__all__ = ["MEMORY_SHARE", "available_memory", "estimate_task_bytes"]
+__all__ = ["MEMORY_SHARE", "admits", "available_memory", "estimate_task_bytes"]
 
 log = logging.getLogger(__name__)
 
@@ -26,6 +26,27 @@ _COMPRESSED = (".gz", ".zarr")
 #: Peak memory per stored byte when the header cannot be read: 8-bit data, the worst case
 #: of :func:`cavitas.io.estimate_memory_bytes` per stored byte.
 _BYTES_PER_INPUT_BYTE = estimate_memory_bytes((1,), np.uint8)
+
+
+def admits(need: int, used: int, running: int, budget: int | None, path: str) -> bool:
+    """Whether a task estimated at ``need`` bytes may start beside ``running`` tasks that
+    use ``used`` bytes together, within ``budget`` (``None``: no limit).
+
+    A task larger than the whole budget starts alone, with a warning.
+
+    Examples
+    --------
+    >>> admits(60, 50, 1, 100, "a.tif"), admits(60, 0, 0, 100, "a.tif")
+    (False, True)
+    """
+    if budget is None:
+        return True
+    if running:
+        return used + need <= budget
+    if need > budget:
+        log.warning("'%s' may need %.1f GiB, more than the %.1f GiB budget; running it "
+                    "alone.", path, need / 2**30, budget / 2**30)
+    return True
 
 
 def available_memory() -> int | None:
