@@ -186,12 +186,13 @@ def bottleneck(dgm_a: Any, dgm_b: Any, dim: int) -> float:
                           np.abs(fin_a[ia, 1] - fin_b[jb, 1]))
         return ia, jb, dist
 
-    listed = [0]  # pairs listed by the last test that listed its own
+    listed = 0  # pairs listed by the last test that listed its own
 
     def feasible(delta: float, graph: tuple[np.ndarray, ...] | None = None) -> bool:
+        nonlocal listed
         if graph is None:
             graph = edges(delta, delta)
-            listed[0] = len(graph[0])
+            listed = len(graph[0])
         ia, jb, dist = graph
         use = (dist <= delta) & ((half_a[ia] > delta) | (half_b[jb] > delta))
         return _perfect_matching_exists(n, m, ia[use], jb[use], half_a <= delta,
@@ -209,7 +210,7 @@ def bottleneck(dgm_a: Any, dgm_b: Any, dim: int) -> float:
         return ess_cost
     hi = upper
     while (_pairs_within(fin_a, fin_b, tree_a, tree_b, half_a > lo, half_b > lo, hi)
-           > max(_MAX_CANDIDATE_PAIRS, 2 * listed[0])
+           > max(_MAX_CANDIDATE_PAIRS, 2 * listed)
            and lo < (mid := lo + (hi - lo) / 2) < hi):
         if feasible(mid):
             hi = mid
