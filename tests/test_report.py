@@ -265,3 +265,21 @@ def test_report_needs_force_and_matching_shapes(tmp_path):
     with pytest.raises(ParameterError, match="labels must have the image's shape"):
         write_report(tmp_path / "x.html", image=image, labels=labels[:-1], spacing=(1, 1),
                      unit="µm", regions=Table({}), params={}, figures={})
+
+
+def test_parameters_read_as_plain_text(tmp_path):
+    # Common practice for reports: no JSON syntax in what a reader sees; unset values are a
+    # dash, nested records become "name value" pairs, numbers keep 4 significant digits.
+    image, labels = scene(2)
+    out = tmp_path / "report.html"
+    write_report(out, image=image, labels=labels, spacing=(0.5, 0.5), unit="µm",
+                 regions=regions_of(labels, spacing=(0.5, 0.5)),
+                 params={"min_persistence": None,
+                         "scales_tried": [{"sigma": 1.25, "threshold": 49.0963062882},
+                                          {"sigma": 2.5, "threshold": 16.4514426773}]},
+                 figures={}, source="scan.tif")
+    source = out.read_text(encoding="utf-8")
+    table = source.split("<h3>Parameters</h3>", 1)[1].split("</table>", 1)[0]
+    assert "null" not in table and '{"sigma"' not in table
+    assert "sigma 1.25, threshold 49.1; sigma 2.5, threshold 16.45" in table
+    assert "<th>min_persistence</th><td>–</td>" in table

@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import datetime
 import html
-import json
 import os
 from collections.abc import Mapping, Sequence
 from pathlib import Path
@@ -88,6 +87,28 @@ def _esc(value: Any) -> str:
     return html.escape(str(value), quote=True)
 
 
+def _plain(value: Any) -> str:
+    """A value as a reader would write it: numbers to 4 digits, "–" for unset, records
+    as ``name value`` pairs, lists joined by semicolons.
+
+    Examples
+    --------
+    >>> _plain([{"sigma": 1.25, "count": 53}, {"sigma": 2.5, "count": 54}])
+    'sigma 1.25, count 53; sigma 2.5, count 54'
+    >>> _plain(None), _plain(0.123456789), _plain(True)
+    ('–', '0.1235', 'yes')
+    """
+    if isinstance(value, np.generic):
+        value = value.item()
+    if value is None or isinstance(value, (bool, float, int)):
+        return format_value(value)[0]
+    if isinstance(value, Mapping):
+        return ", ".join(f"{key} {_plain(item)}" for key, item in value.items())
+    if isinstance(value, (list, tuple)):
+        return "; ".join(_plain(item) for item in value)
+    return str(value)
+
+
 def _kv_table(items: Mapping[str, Any]) -> str:
     """Name–value rows; a ``"units"`` mapping among the items gives units to the others."""
     units = items.get("units") if isinstance(items.get("units"), Mapping) else {}
@@ -99,12 +120,8 @@ def _kv_table(items: Mapping[str, Any]) -> str:
             value = (value, str(units[key]))
         if isinstance(value, tuple) and len(value) == 2 and isinstance(value[1], str):
             text = f"{format_value(value[0])[0]} {value[1]}"  # (value, unit)
-        elif isinstance(value, (bool, float, int, np.generic)):
-            text = format_value(value.item() if isinstance(value, np.generic) else value)[0]
-        elif isinstance(value, str):
-            text = value
         else:
-            text = json.dumps(value, ensure_ascii=False, default=str)
+            text = _plain(value)
         rows.append(f"<tr><th>{_esc(key)}</th><td>{_esc(text)}</td></tr>")
     return f'<table class="kv">{"".join(rows)}</table>' if rows else "<p>None.</p>"
 
