@@ -106,7 +106,8 @@ def add_segment_options(p: argparse.ArgumentParser) -> None:
                    help="Gaussian smoothing σ in physical units before detection (0 = none; "
                         "default: chosen from the data in automatic mode)")
     g.add_argument("--safety", type=float, metavar="S",
-                   help="factor on the noise-only persistence in automatic mode (default 2)")
+                   help="factor on the noise-only persistence in automatic mode, used when the "
+                        "diagram shows no gap between noise and cavities (default 1.25)")
     g = p.add_argument_group("what a region is")
     g.add_argument("--split-fraction", type=float, metavar="F",
                    help="an inner wall splits a region into two only if it closes at least "

@@ -282,9 +282,11 @@ def same_value_pieces(labels, back):
 
 
 @njit(cache=True, nogil=True)
-def keep_largest_pieces(labels, back, n_labels):
-    """``labels`` (3D, values ``0..n_labels``) with each value kept on its largest piece only
-    (:func:`same_value_pieces`; ties go to the piece numbered last), as int32.
+def keep_largest_pieces(labels, back, n_labels, prefer):
+    """``labels`` (3D, values ``0..n_labels``) with each value kept on one piece only, as int32.
+
+    The piece kept is the one holding voxel ``prefer[value]`` (flat index; -1 for none),
+    else the largest (:func:`same_value_pieces`; ties go to the piece numbered last).
 
     Works in the int32 piece array itself: 4 bytes per voxel in all.
     """
@@ -303,6 +305,10 @@ def keep_largest_pieces(labels, back, n_labels):
         if size[p] >= best_size[owner[p]]:
             best_size[owner[p]] = size[p]
             best[owner[p]] = p
+    for value in range(1, min(n_labels + 1, prefer.shape[0])):
+        v = prefer[value]
+        if v >= 0 and lab[v] == value and flat[v] > 0:
+            best[value] = flat[v]
     for i in range(flat.shape[0]):
         p = flat[i]
         flat[i] = lab[i] if p > 0 and best[owner[p]] == p else 0

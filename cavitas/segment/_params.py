@@ -17,7 +17,7 @@ __all__ = ["SegmentParams"]
 #: Candidate detection scales of the automatic mode, as Gaussian σ in voxels of the finest axis.
 AUTO_SCALES = (0.0, 0.5, 1.0, 1.5, 2.0, 3.0)
 #: Safety factor on the empirical noise null (see :mod:`cavitas.segment._noise`).
-SAFETY = 2.0
+SAFETY = 1.25
 
 
 @dataclass

@@ -47,8 +47,8 @@ _SLAB = 16
 #: Voxels per chunk of the flat passes of :func:`_label_quantile_f32`.
 _CHUNK = 1 << 22
 
-__all__ = ["Sweep", "basin_map", "cut_pieces", "fill_islands", "label_counts", "nested_map",
-           "remove_walls"]
+__all__ = ["Sweep", "basin_map", "cut_pieces", "fill_islands", "interior_levels",
+           "label_counts", "nested_map", "remove_walls"]
 
 
 class Sweep:
@@ -126,16 +126,19 @@ def _meeting_lines(basins: np.ndarray) -> np.ndarray:
     return line
 
 
-def remove_walls(basins: np.ndarray, image: np.ndarray, n_labels: int,
-                 connectivity: int) -> tuple[np.ndarray, np.ndarray]:
-    """Cut each basin at its own wall level; keep its largest piece. Returns (labels, levels).
+def remove_walls(basins: np.ndarray, image: np.ndarray, n_labels: int, connectivity: int,
+                 cores: np.ndarray | None = None,
+                 interior: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """Cut each basin at its own wall level; keep one piece of it. Returns (labels, levels).
 
     Label ``n_labels`` is the outside basin: all its pieces are kept (they are the regions
-    cut by the border).
+    cut by the border). ``cores`` (flat index per basin ``1..n_labels - 1``) picks the piece
+    kept: the one holding the core, else the largest. ``interior`` (per basin, optional)
+    is each basin's typical inside value (see :func:`wall_levels`).
     """
     if n_labels == 0:
         return np.zeros_like(basins), np.full(0, np.inf)
-    levels = wall_levels(basins, image, n_labels)
+    levels = wall_levels(basins, image, n_labels, interior)
     lut = np.concatenate([[-np.inf], levels])
     labels = np.zeros_like(basins)
     for z in range(0, basins.shape[0], _SLAB):  # slabs: no full-size float64 temporary
@@ -143,21 +146,38 @@ def remove_walls(basins: np.ndarray, image: np.ndarray, n_labels: int,
         below = image[part] < lut[basins[part]]
         labels[part][below] = basins[part][below]
     outside = labels == n_labels  # the outside basin holds many pieces: keep them all
-    kept = largest_pieces(np.where(outside, 0, labels), n_labels - 1, connectivity)
+    kept = largest_pieces(np.where(outside, 0, labels), n_labels - 1, connectivity, cores)
     kept[outside] = n_labels
     return kept, levels
 
 
-def wall_levels(basins: np.ndarray, image: np.ndarray, n_labels: int) -> np.ndarray:
-    """Each basin's wall level: :data:`WALL_FRACTION` of the way from its median to its
-    meeting-line median."""
+def wall_levels(basins: np.ndarray, image: np.ndarray, n_labels: int,
+                interior: np.ndarray | None = None) -> np.ndarray:
+    """Each basin's wall level: :data:`WALL_FRACTION` of the way from its interior to its
+    meeting-line median.
+
+    ``interior`` (per basin ``1..n_labels``; NaN where unknown) is the typical inside
+    value; by default, and where NaN, the median of the whole basin. A small pore in a
+    large basin of matrix needs its own (:func:`interior_levels`): the basin's median is
+    the matrix.
+    """
     levels = np.full(n_labels, np.inf)
     line = _meeting_lines(basins)
     wall = _label_quantile(image, np.where(line, basins, 0), n_labels, 0.5)
-    interior = _label_quantile(image, basins, n_labels, 0.5)
-    ok = np.isfinite(wall) & np.isfinite(interior)
-    levels[ok] = interior[ok] + WALL_FRACTION * (wall[ok] - interior[ok])
+    whole = _label_quantile(image, basins, n_labels, 0.5)
+    if interior is not None:
+        own = np.full(n_labels, np.nan)
+        own[:len(interior)] = interior[:n_labels]
+        whole = np.where(np.isfinite(own), own, whole)
+    ok = np.isfinite(wall) & np.isfinite(whole)
+    levels[ok] = whole[ok] + WALL_FRACTION * (wall[ok] - whole[ok])
     return levels
+
+
+def interior_levels(regions: np.ndarray, image: np.ndarray, n_labels: int) -> np.ndarray:
+    """Median of ``image`` over each region ``1..n_labels`` of ``regions`` (NaN where empty):
+    the typical inside value of each chamber, from its breach region."""
+    return _label_quantile(image, regions, n_labels, 0.5)
 
 
 def _label_quantile(image: np.ndarray, labels: np.ndarray, n_labels: int,
@@ -220,15 +240,21 @@ def _label_quantile_f32(image: np.ndarray, labels: np.ndarray, n_labels: int,
     return out
 
 
-def largest_pieces(labels: np.ndarray, n_labels: int, connectivity: int) -> np.ndarray:
-    """Keep, for each label, its largest connected piece (complement connectivity).
+def largest_pieces(labels: np.ndarray, n_labels: int, connectivity: int,
+                   cores: np.ndarray | None = None) -> np.ndarray:
+    """Keep, for each label, one connected piece (complement connectivity).
 
-    Pieces are numbered as :func:`skimage.measure.label` numbers them; of equal largest
-    pieces the one numbered last is kept. One compiled pass, 4 bytes per voxel.
+    The piece holding ``cores[label - 1]`` (a flat index) when that voxel carries the
+    label, else the largest. Pieces are numbered as :func:`skimage.measure.label` numbers
+    them; of equal largest pieces the one numbered last is kept. One compiled pass, 4 bytes
+    per voxel.
     """
     dual = dual_connectivity(labels.ndim, connectivity)
+    prefer = np.full(n_labels + 1, -1, np.int64)
+    if cores is not None:
+        prefer[1:1 + len(cores)] = cores[:n_labels]
     kept = keep_largest_pieces(labels.reshape(grid_shape3(labels.shape)),
-                               _backward_offsets(labels.ndim, dual), n_labels)
+                               _backward_offsets(labels.ndim, dual), n_labels, prefer)
     return kept.reshape(labels.shape).astype(labels.dtype, copy=False)
 
 
@@ -283,7 +309,8 @@ def open_to_border(labels: np.ndarray, outside: np.ndarray, n_labels: int,
                    beyond_roi: np.ndarray | None = None) -> np.ndarray:
     """Chambers cut by the scan or ROI border: no wall between them and it.
 
-    A border voxel (on the array faces or next to the outside of the ROI) that is not a
+    A chamber that holds a border voxel itself reaches the border below its own wall level:
+    it is cut. A border voxel (on the array faces or next to the outside of the ROI) that is not a
     wall belongs to the outside basin (``outside``). A chamber face-adjacent to at least
     ``max(2, s ** ((d - 1) / d) / 4)`` such voxels (``s`` its voxel count, ``d`` the
     dimension: a quarter of a typical cross-section) is open to the border: the smoothing
@@ -301,13 +328,14 @@ def open_to_border(labels: np.ndarray, outside: np.ndarray, n_labels: int,
         border |= ndi.binary_dilation(beyond_roi, ndi.generate_binary_structure(ndim, 1))
         border &= ~beyond_roi
     opening = border & outside
+    on_face = np.bincount(labels[border].ravel().astype(np.int64), minlength=n_labels + 1) > 0
     contact = np.zeros(n_labels + 1, np.int64)
     for x, y in ((a, b) for pair in _shift_pairs(ndim) for a, b in (pair, pair[::-1])):
         touch = opening[x] & (labels[y] > 0)
         contact += np.bincount(labels[y][touch], minlength=n_labels + 1)
     size = label_counts(labels, n_labels + 1)
     need = np.maximum(2.0, size ** ((ndim - 1) / ndim) / 4.0)
-    return (contact >= need)[1:] & (size[1:] > 0)
+    return ((contact >= need) | on_face)[1:] & (size[1:] > 0)
 
 
 def _shift_pairs(ndim: int):

@@ -5,10 +5,12 @@ from __future__ import annotations
 import itertools
 import logging
 import math
+import threading
 import time
 from collections import deque
 from collections.abc import Callable
 from concurrent.futures import ThreadPoolExecutor
+from dataclasses import dataclass
 from typing import Any, NamedTuple
 
 import numpy as np
@@ -16,8 +18,12 @@ import numpy as np
 from .._cores import usable_cores
 from .._errors import ParameterError
 from ..cubical._neighbors import check_connectivity
+from ..cubical._tree import OUTSIDE, CavityTree
 from ..io._volume import Volume
 from . import _noise
+from ._evidence import MIN_CLASS_SEPARATION, class_split, small_region_factor, straddles
+from ._gap import find_gap
+from ._owner import region_sizes
 from ._params import AUTO_SCALES, SegmentParams
 from ._perforation import perforated_splits
 from ._regions import (
@@ -25,6 +31,7 @@ from ._regions import (
     basin_map,
     cut_pieces,
     fill_islands,
+    interior_levels,
     label_counts,
     nested_map,
     open_to_border,
@@ -40,6 +47,8 @@ __all__ = ["segment"]
 DELINEATION_SIGMA = 0.5
 
 log = logging.getLogger("cavitas.segment")
+#: Region sizes of two detection scales are never counted at the same time (memory peak).
+_REGION_SIZES_ONE_AT_A_TIME = threading.Lock()
 
 
 def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = None,
@@ -154,18 +163,23 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
                            [0.5, 99.5])
     robust_range = float(hi - lo)
     spacing_arr = np.asarray(vol.spacing, float)
-    sig, smoothed, order, tree, tau, tried = _detect(
+    det, tried = _detect(
         image, params, noise=noise, robust_range=robust_range, spacing=spacing_arr,
         connectivity=connectivity, roi=roi, tell=tell)
+    sig, smoothed, order, tree, tau = det.sigma, det.smoothed, det.order, det.tree, det.threshold
     timings["detect"] = time.perf_counter() - started
-    log.info("%s: noise σ %.4g, detection σ %.3g %s, persistence threshold %.4g",
-             vol.name, noise, float((sig * spacing_arr).max()), vol.unit, tau)
+    log.info("%s: noise σ %.4g, detection σ %.3g %s, persistence threshold %.4g (%s)",
+             vol.name, noise, float((sig * spacing_arr).max()), vol.unit, tau,
+             "at the diagram's gap" if det.gap is not None else
+             "no gap in the diagram: noise null times the safety factor")
     sweep = Sweep(smoothed, order, tree, connectivity, outside)
-    significant = select_nodes(tree.persistence, tree.parent, tau, params.top)
+    significant = select_nodes(tree.persistence, tree.parent, tau, params.top,
+                               eligible=det.eligible)
     keep = split_rule(tree, significant, params.split_fraction)
     hier = prune(tree, keep, sweep.rank, sweep.level_of_rank, tau)
 
-    fine_sigma = DELINEATION_SIGMA * spacing_arr.min() / spacing_arr
+    # never delineate on an image smoother than the one the regions were detected on
+    fine_sigma = np.minimum(DELINEATION_SIGMA * spacing_arr.min() / spacing_arr, sig)
     t0 = time.perf_counter()
     tell("regions")
     work, n_cut, open_cut, nested, used_level, enclosure_map = _delineate(
@@ -200,6 +214,7 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
         "smooth_sigma": float((sig * spacing_arr).max()),
         "delineation_sigma": float((fine_sigma * spacing_arr).max()),
         "scales_tried": tried,
+        "gap": det.gap,
         "splits_joined": int(np.count_nonzero(significant & ~keep)),
         "perforated_walls": int(np.count_nonzero(perforated)),
         "automatic": params.automatic,
@@ -208,6 +223,20 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
         "timings_s": timings,
     }
     return Segmentation.assemble(seg, volume=vol, params=params, chosen=chosen, tree=tree)
+
+
+@dataclass
+class Detection:
+    """The detection scale's smoothed image, sweep, threshold and eligible nodes."""
+
+    sigma: np.ndarray            # Gaussian σ per axis, in voxels
+    smoothed: np.ndarray         # the image at that scale, walls high
+    order: np.ndarray            # its cavity-sweep order
+    tree: CavityTree             # its cavity tree
+    threshold: float             # persistence threshold
+    gap: float | None            # persistence at the diagram's gap (automatic mode), if any
+    eligible: np.ndarray | None  # per node: straddles the class split (automatic mode)
+    count: int                   # nodes passing every criterion
 
 
 class _Image(NamedTuple):
@@ -244,19 +273,33 @@ def _detect(image: _Image, params: SegmentParams, *, noise: float, robust_range:
     else:
         scales = [np.zeros(len(spacing))]
 
-    def candidate(sig: np.ndarray) -> tuple:
-        auto = None
-        if params.automatic:
-            auto = params.safety * noise * _noise.null_persistence(
-                image.data.shape, tuple(sig), connectivity)
-        tau = persistence_threshold(auto=auto, absolute=params.min_persistence,
-                                    relative=params.relative_persistence,
-                                    robust_range=robust_range)
+    def candidate(sig: np.ndarray) -> Detection:
         smoothed = image.smoothed(sig)
         order, tree = cubical.cavity_sweep(smoothed, walls="bright", connectivity=connectivity,
                                            mask=roi)
-        pers = tree.persistence[1:]
-        return int(np.count_nonzero((pers > 0) & (pers >= tau))), sig, smoothed, order, tree, tau
+        pers = tree.persistence
+        eligible = gap = None
+        auto = None
+        if params.automatic:
+            floor = noise * _noise.null_persistence(image.data.shape, tuple(sig), connectivity)
+            eligible = _straddling(tree, smoothed, roi,
+                                   _noise.smoothed_noise_sigma(noise, tuple(sig)))
+            gap = find_gap(pers[eligible], floor)
+            auto = gap if gap is not None else params.safety * floor
+        tau = persistence_threshold(auto=auto, absolute=params.min_persistence,
+                                    relative=params.relative_persistence,
+                                    robust_range=robust_range)
+        passing = (pers > 0) & (pers >= tau)
+        if eligible is not None and (passing & eligible).any():
+            with _REGION_SIZES_ONE_AT_A_TIME:  # memory: its work arrays, 13 bytes per voxel
+                area = region_sizes(tree, order, None if roi is None else ~roi, connectivity,
+                                    smoothed.shape)
+            eligible &= pers >= tau * small_region_factor(area, passing & eligible)
+        if eligible is not None:
+            passing &= eligible
+        passing[OUTSIDE] = False
+        return Detection(sig, smoothed, order, tree, tau, gap, eligible,
+                         int(np.count_nonzero(passing)))
 
     # Two scales at a time in two threads (smoothing, sort and sweep release the GIL);
     # results are taken in scale order, so the choice is the same as one after the other.
@@ -268,10 +311,10 @@ def _detect(image: _Image, params: SegmentParams, *, noise: float, robust_range:
         running = deque(pool.submit(candidate, sig) for sig in itertools.islice(todo, workers))
         while running:
             result = running.popleft().result()
-            count, sig, _, _, _, tau = result
-            tried.append({"sigma": float((sig * spacing).max()), "threshold": tau,
-                          "count": count})
-            if best is None or count > best[0]:
+            tried.append({"sigma": float((result.sigma * spacing).max()),
+                          "threshold": result.threshold, "count": result.count,
+                          "gap": result.gap})
+            if best is None or result.count > best.count:
                 best = result
             del result  # a losing candidate is freed before the next scale starts
             if len(tried) < len(scales):
@@ -279,7 +322,30 @@ def _detect(image: _Image, params: SegmentParams, *, noise: float, robust_range:
             following = next(todo, None)
             if following is not None:
                 running.append(pool.submit(candidate, following))
-    return (*best[1:], tried)
+    return best, tried
+
+
+def _straddling(tree: CavityTree, smoothed: np.ndarray, roi: np.ndarray | None,
+                noise: float) -> np.ndarray:
+    """Per node: its inside in the interior class and its wall in the wall class
+    (:mod:`cavitas.segment._evidence`); False for the outside, and for every node when the
+    two classes lie less than :data:`MIN_CLASS_SEPARATION` times ``noise`` (the smoothed
+    image's noise level) apart: the image shows no structure at this scale.
+
+    The inside is judged against the local two-class threshold at the core; the wall
+    against the lower of the local threshold at the breach and the whole image's, so that a
+    dim corner (uneven illumination) keeps its cells while an empty surround, which has no
+    local threshold of its own, is judged by the whole image.
+    """
+    split = class_split(smoothed, roi)
+    nodes = np.arange(1, tree.n_nodes)
+    eligible = np.zeros(tree.n_nodes, bool)
+    if split.separation < MIN_CLASS_SEPARATION * noise:
+        return eligible
+    wall_threshold = np.minimum(split.whole, split.at(tree.breach[nodes], smoothed.shape))
+    eligible[nodes] = straddles(tree.core_level[nodes], tree.breach_level[nodes],
+                                split.at(tree.core[nodes], smoothed.shape), wall_threshold)
+    return eligible
 
 
 def _delineate(params: SegmentParams, sweep: Sweep, hier, image: _Image,
@@ -304,9 +370,16 @@ def _delineate(params: SegmentParams, sweep: Sweep, hier, image: _Image,
         top_level = sweep.level_of_rank(close_rank)
         cut = core_level + params.level_fraction * (top_level - core_level)
         level_rank = np.minimum(sweep.rank_of_level(cut), close_rank)
-    basins = basin_map(sweep, tree.core[hier.node[:n_ch]], n_ch + 1)
-    cleared, basin_levels = remove_walls(basins, image.smoothed(fine_sigma),
-                                         n_ch + 1, connectivity)
+    cores = tree.core[hier.node[:n_ch]]
+    fine = image.smoothed(fine_sigma)
+    # Each chamber's inside, judged on its breach region (a small pore in a large basin of
+    # matrix would otherwise take the matrix as its inside).
+    interior = interior_levels(nested_map(sweep, hier.node[:n_ch], close_rank, ids[:n_ch]),
+                               fine, n_ch)
+    basins = basin_map(sweep, cores, n_ch + 1)
+    cleared, basin_levels = remove_walls(basins, fine, n_ch + 1, connectivity, cores=cores,
+                                         interior=interior)
+    del fine
     del basins  # memory: full-size arrays are dropped as soon as they are used up
     if params.region == "basin":
         labels = np.where(cleared <= n_ch, cleared, 0)

@@ -72,8 +72,10 @@ def close_upward(keep: np.ndarray, parent: np.ndarray) -> np.ndarray:
 
 
 def select_nodes(persistence: np.ndarray, parent: np.ndarray, threshold: float,
-                 top: int | None) -> np.ndarray:
+                 top: int | None, eligible: np.ndarray | None = None) -> np.ndarray:
     """Kept nodes: persistence > 0 and >= ``threshold``, at most ``top`` of them, closed upward.
+
+    ``eligible`` (per node) further restricts the candidates before ``top`` applies.
 
     Examples
     --------
@@ -84,6 +86,8 @@ def select_nodes(persistence: np.ndarray, parent: np.ndarray, threshold: float,
     [True, True, False, False]
     """
     keep = (persistence > 0) & (persistence >= threshold)
+    if eligible is not None:
+        keep &= eligible
     keep[OUTSIDE] = False
     if top is not None and keep.sum() > top:
         cand = np.flatnonzero(keep)

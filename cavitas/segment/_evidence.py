@@ -1,0 +1,160 @@
+"""The image's own evidence for a cavity: its wall and its inside against two classes.
+
+A white-noise null (:mod:`cavitas.segment._noise`) says whether a cavity could be noise of
+the measured amplitude. Real scans hold more than noise: texture inside cells (vesicles,
+mitochondria), a specimen in an empty surround, a material whose grains enclose pockets of
+the matrix. There, many cavities pass the null but are not what a user calls a region. The
+test here asks the image itself: split the smoothed intensities into two classes (Otsu's
+threshold ``T``, Otsu 1979: the split that maximises the between-class variance), the
+*wall* class above ``T`` and the *interior* class below it (polarity applied: walls high).
+A cavity is a region candidate only when its wall reaches the wall class and its inside
+lies in the interior class::
+
+    breach_level >= T   and   core_level < T
+
+* Noise "walls" around noise "cavities" in an empty surround stay far below ``T``.
+* Texture pockets inside a cell are closed by texture, mostly below ``T``.
+* Pockets of a bright matrix between brighter grains have their inside above ``T``.
+
+The threshold is computed on the image at the detection scale, inside the ROI, from at
+most :data:`_SAMPLE` voxels (a regular subsample; Otsu's threshold is a statistic of the
+histogram, which a regular subsample of a large image keeps).
+
+Reference
+---------
+Otsu, N. (1979). A threshold selection method from gray-level histograms. IEEE Trans.
+Syst. Man Cybern. 9(1), 62-66. doi:10.1109/TSMC.1979.4310076
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import ndimage as ndi
+
+__all__ = ["MIN_CLASS_SEPARATION", "ClassSplit", "class_split", "small_region_factor",
+           "straddles"]
+
+#: Largest number of voxels a two-class threshold is computed from.
+_SAMPLE = 1 << 18
+#: Blocks per axis of the local thresholds, and their smallest side in voxels.
+_BLOCKS = 4
+_BLOCK_MIN = 24
+#: A block has its own threshold when its two class medians lie at least this fraction of
+#: the whole image's apart; otherwise (an empty surround, one material only) the whole
+#: image's threshold applies there.
+_MIN_SEPARATION = 0.25
+#: The two classes must lie at least this many (smoothed) noise standard deviations apart;
+#: white noise alone splits into classes about 1.6 apart (the medians of the two halves of a
+#: normal law, ±0.674 σ, plus sampling spread).
+MIN_CLASS_SEPARATION = 3.0
+#: Regions smaller than this fraction of the typical significant region need more evidence.
+SMALL_FRACTION = 1 / 16
+
+
+@dataclass(frozen=True)
+class ClassSplit:
+    """Two-class thresholds over the image: a coarse grid of blocks, and the whole image.
+
+    ``grid`` holds one threshold per block (the block's own where the block shows both
+    classes, the whole image's where it does not); :meth:`at` interpolates it linearly.
+    """
+
+    grid: np.ndarray
+    block: tuple[int, ...]
+    whole: float
+    separation: float  # the whole image's upper class median minus its lower one
+
+    def at(self, flat_index: np.ndarray, shape: tuple[int, ...]) -> np.ndarray:
+        """Thresholds at the given voxels (flat indices into an array of ``shape``)."""
+        if self.grid.size == 1:
+            return np.full(np.shape(flat_index), self.whole)
+        coords = np.unravel_index(np.asarray(flat_index, np.int64), shape)
+        pos = [(c + 0.5) / b - 0.5 for c, b in zip(coords, self.block, strict=True)]
+        return ndi.map_coordinates(self.grid, pos, order=1, mode="nearest")
+
+
+def class_split(values: np.ndarray, roi: np.ndarray | None = None) -> ClassSplit:
+    """Otsu thresholds of the whole image and of each block of it (see the module notes).
+
+    Examples
+    --------
+    >>> img = np.zeros((64, 64)); img[::8] = 1.0
+    >>> split = class_split(img)
+    >>> 0 < split.whole < 1
+    True
+    """
+    whole, low, high = _otsu(values, roi)
+    shape = values.shape
+    block = tuple(max(_BLOCK_MIN, -(-n // _BLOCKS)) for n in shape)
+    counts = tuple(-(-n // b) for n, b in zip(shape, block, strict=True))
+    grid = np.full(counts, whole)
+    if math.prod(counts) > 1 and high > low:
+        for idx in np.ndindex(*counts):
+            part = tuple(slice(i * b, (i + 1) * b) for i, b in zip(idx, block, strict=True))
+            t, lo, hi = _otsu(values[part], None if roi is None else roi[part])
+            if hi - lo >= _MIN_SEPARATION * (high - low):
+                grid[idx] = t
+    return ClassSplit(grid, block, whole, high - low)
+
+
+def _otsu(values: np.ndarray, roi: np.ndarray | None) -> tuple[float, float, float]:
+    """Otsu's threshold and the two class medians, from a regular subsample."""
+    from skimage.filters import threshold_otsu
+
+    flat = values.ravel()
+    if roi is not None:
+        flat = flat[roi.ravel()]
+    step = max(1, flat.size // _SAMPLE)
+    sample = flat[::step]
+    if sample.size == 0:
+        return 0.0, 0.0, 0.0
+    if sample.min() == sample.max():
+        v = float(sample[0])
+        return v, v, v
+    t = float(threshold_otsu(sample.astype(np.float64), nbins=1024))
+    return t, float(np.median(sample[sample <= t])), float(np.median(sample[sample > t]))
+
+
+def straddles(core_level: np.ndarray, breach_level: np.ndarray,
+              core_threshold: np.ndarray | float,
+              breach_threshold: np.ndarray | float) -> np.ndarray:
+    """Nodes whose inside lies below its threshold and whose wall reaches its own.
+
+    Examples
+    --------
+    >>> straddles(np.array([0.0, 0.6, 0.1]), np.array([1.0, 0.9, 0.3]), 0.5, 0.5).tolist()
+    [True, False, False]
+    """
+    with np.errstate(invalid="ignore"):
+        return (core_level < core_threshold) & (breach_level >= breach_threshold)
+
+
+def small_region_factor(area: np.ndarray, candidates: np.ndarray) -> np.ndarray:
+    """Factor on the persistence threshold for each node: ``sqrt(A_small / area)``, at least 1.
+
+    ``A_small`` is :data:`SMALL_FRACTION` of the *typical* region among ``candidates``: the
+    area-weighted median (the size of the region that holds the median candidate voxel), so
+    a crowd of tiny texture pockets does not make itself typical. Noise and texture pockets
+    are small; a real region that small must be proportionally clearer.
+
+    Examples
+    --------
+    >>> area = np.array([np.inf, 1000.0, 1200.0, 10.0])
+    >>> small_region_factor(area, np.array([False, True, True, True])).round(2).tolist()
+    [1.0, 1.0, 1.0, 2.74]
+    """
+    factor = np.ones(area.shape)
+    sizes = area[candidates & np.isfinite(area)]
+    if sizes.size == 0:
+        return factor
+    sizes = np.sort(sizes)
+    cum = np.cumsum(sizes)
+    typical = sizes[np.searchsorted(cum, 0.5 * cum[-1])]
+    small = SMALL_FRACTION * typical
+    with np.errstate(divide="ignore"):
+        factor = np.maximum(1.0, np.sqrt(small / np.maximum(area, 1.0)))
+    factor[~np.isfinite(area)] = 1.0
+    return factor

@@ -1,0 +1,89 @@
+"""The image's own evidence for a cavity: class split, empty surround, gap, small regions.
+
+Constructed cases (hand-made geometry) checked against outside references: Otsu's
+threshold (Otsu 1979) as computed by scikit-image, scipy.ndimage.label components.
+"""
+
+import numpy as np
+from scipy import ndimage as ndi
+
+from cavitas.segment import segment
+from cavitas.segment._evidence import class_split, small_region_factor, straddles
+from cavitas.segment._gap import find_gap
+
+
+def _ring_image(rng, noise=0.05):
+    """A bright square ring (wall 1.0) around a dim inside (0.2), in an empty black
+    surround (0.0) with weak noise."""
+    img = np.zeros((96, 96))
+    img[30:66, 30:66] = 1.0
+    img[33:63, 33:63] = 0.2
+    return img + rng.normal(0, noise, img.shape)
+
+
+def test_whole_image_threshold_is_otsu():
+    # Reference: skimage.filters.threshold_otsu (Otsu 1979) on the same values.
+    from skimage.filters import threshold_otsu
+
+    img = _ring_image(np.random.default_rng(0))
+    split = class_split(img)
+    assert abs(split.whole - threshold_otsu(img, nbins=1024)) < 0.01
+
+
+def test_cavity_in_an_empty_surround_is_the_only_region():
+    # Reference: scipy.ndimage.label of the noise-free inside (one component). The black
+    # surround holds noise cavities whose noise walls never reach the wall class.
+    rng = np.random.default_rng(1)
+    img = _ring_image(rng)
+    seg = segment(img)
+    assert seg.labels.max() == 1
+    region = seg.labels == 1
+    inside = np.zeros(img.shape, bool)
+    inside[33:63, 33:63] = True
+    assert ndi.label(inside)[1] == 1
+    dice = 2 * (region & inside).sum() / (region.sum() + inside.sum())
+    assert dice > 0.9
+    assert not seg.labels[:28].any() and not seg.labels[68:].any()  # nothing in the surround
+
+
+def test_textured_inside_stays_one_region():
+    # A cell with dark-on-bright texture inside (small rings of 0.5 contrast, 3 px across)
+    # and a wall of contrast 1: the rings pass a white-noise null but are small next to the
+    # cell, so they need proportionally more evidence (hand-made geometry).
+    rng = np.random.default_rng(2)
+    img = np.zeros((120, 120))
+    img[10:110, 10:110] = 1.0
+    img[13:107, 13:107] = 0.0
+    for y in range(25, 100, 12):
+        for x in range(25, 100, 12):
+            img[y - 2:y + 3, x - 2:x + 3] = 0.5
+            img[y - 1:y + 2, x - 1:x + 2] = 0.0
+    img += rng.normal(0, 0.03, img.shape)
+    seg = segment(img)
+    assert seg.labels.max() == 1
+    assert (seg.labels == 1).sum() > 0.8 * 94 * 94
+
+
+def test_straddles_needs_both_sides_of_the_split():
+    core = np.array([0.0, 0.6, 0.1, 0.1])
+    breach = np.array([1.0, 0.9, 0.3, 0.5])
+    assert straddles(core, breach, 0.5, 0.5).tolist() == [True, False, False, True]
+
+
+def test_small_region_factor_grows_as_the_region_shrinks():
+    area = np.array([np.inf, 1000.0, 1000.0, 1000.0, 100.0, 10.0])
+    factor = small_region_factor(area, np.ones(6, bool))
+    # typical 1000 -> small = 1000/16 = 62.5: regions of 100 need nothing more
+    assert factor[1:5].tolist() == [1.0, 1.0, 1.0, 1.0]
+    assert np.isclose(factor[5], np.sqrt(62.5 / 10))
+
+
+def test_gap_between_two_lognormal_populations():
+    # Common practice: a two-population mixture on a log scale has its valley between the
+    # modes; a single population has none.
+    rng = np.random.default_rng(3)
+    crowd = np.exp(rng.normal(np.log(0.05), 0.6, 5000))
+    cells = np.exp(rng.normal(np.log(1.0), 0.15, 200))
+    gap = find_gap(np.r_[crowd, cells], floor=0.01)
+    assert gap is not None and 0.25 < gap < 0.75
+    assert find_gap(crowd, floor=0.01) is None
