@@ -17,14 +17,14 @@ The automatic significance rule
 3. **Threshold**: ``safety · s · P(σ)``, ``safety = 1.25`` by default, when the diagram
    shows no gap (otherwise the gap decides, :mod:`cavitas.segment._gap`; and only cavities
    that straddle the image's two classes count, :mod:`cavitas.segment._evidence`). The
-   stability theorem (Cohen-Steiner, Edelsbrunner & Harer 2007) gives the cruder bound
-   ``2 ε`` for noise bounded by ``ε`` in sup norm (unbounded for Gaussian noise); the
-   empirical null is sharper because it uses the noise's actual law. The factor covers the maximum's spread
-   between images and the choice among six smoothing scales (a multiple test): on 30
-   white-noise images of 48 x 48 (invented data), factors 1.25 / 1.5 / 1.75 / 2 kept
-   12 / 3 / 1 / 0 spurious regions in all with the null alone; with the class-separation
-   test (a noise-only image has no two classes) 1.25 keeps 0, and small cells with
-   2-pixel walls at noise 0.18 are found at 91 % instead of 77 % with 1.5.
+   stability theorem (Cohen-Steiner, Edelsbrunner & Harer 2007) gives the cruder bound ``2
+   ε`` for noise bounded by ``ε`` in sup norm (unbounded for Gaussian noise); the empirical
+   null is sharper because it uses the noise's actual law. The factor covers the maximum's
+   spread between images and the choice among six smoothing scales (a multiple test): on 30
+   white-noise images of 48 x 48 (invented data), factors 1.25 / 1.5 / 1.75 / 2 kept 12 / 3
+   / 1 / 0 spurious regions in all with the null alone; with the class-separation test (a
+   noise-only image has no two classes) 1.25 keeps 0, and small cells with 2-pixel walls at
+   noise 0.18 are found at 91 % instead of 77 % with 1.5.
 4. The null assumes white noise; strongly correlated noise (deconvolved or resampled
    data) has a larger null than the estimate predicts: raise ``safety`` there.
 
