@@ -782,6 +782,15 @@ def _sizes(sizes: np.ndarray) -> str:
     return f"median {np.median(sizes):.0f} ({sizes.min()}-{sizes.max()})"
 
 
+def untuned_otsu_run(image: np.ndarray, why: str) -> Run:
+    """Otsu + label at :data:`UNTUNED_SIGMA`, bright walls: the baseline of a 3D scan
+    without a reference (``why`` says so in the setting column)."""
+    t0 = time.perf_counter()
+    labels = otsu_label(image, "bright", UNTUNED_SIGMA)
+    return Run("Otsu + label (untuned)", [labels], time.perf_counter() - t0,
+               f"sigma={UNTUNED_SIGMA:g} vx ({why})")
+
+
 def arabidopsis_embryo(opts: Options) -> ScanReport:
     """Arabidopsis embryo (3D, bright walls, no reference): regions in the embryo vs outside.
 
@@ -792,11 +801,7 @@ def arabidopsis_embryo(opts: Options) -> ScanReport:
     volume = read_scan(opts.root / "arabidopsis_embryo" / "arabidopsis-embryo.tif")
     image = as_float(volume)
     embryo = body_mask(image)
-    t0 = time.perf_counter()
-    otsu = otsu_label(image, "bright", UNTUNED_SIGMA)
-    otsu_run = Run("Otsu + label (untuned)", [otsu], time.perf_counter() - t0,
-                   f"sigma={UNTUNED_SIGMA:g} vx (no reference to tune on)")
-    runs = [run_cavitas([volume], "bright"), otsu_run]
+    runs = [run_cavitas([volume], "bright"), untuned_otsu_run(image, "no reference to tune on")]
     report = ScanReport("arabidopsis_embryo",
                         f"106x112x109 confocal, bright walls, no reference; expected "
                         f"{EMBRYO_EXPECTED} (realdata README)",
@@ -885,11 +890,8 @@ def concrete_xray(opts: Options) -> ScanReport:
     image = as_float(volume)
     specimen = body_mask(image, per_slice_fill=True)
     voids = find_voids(image, specimen)
-    t0 = time.perf_counter()
-    otsu = otsu_label(image, "bright", UNTUNED_SIGMA)
-    otsu_run = Run("Otsu + label (untuned)", [otsu], time.perf_counter() - t0,
-                   f"sigma={UNTUNED_SIGMA:g} vx (no reference; close to the void rule)")
-    runs = [run_cavitas([volume], "bright"), otsu_run]
+    runs = [run_cavitas([volume], "bright"),
+            untuned_otsu_run(image, "no reference; close to the void rule")]
     report = ScanReport("concrete_xray",
                         "100^3 micro-CT bin 16, bright walls, no reference; the wanted regions "
                         "are the small dark air voids (realdata README)",

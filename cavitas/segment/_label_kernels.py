@@ -1,15 +1,16 @@
 """Compiled labelling passes over the cavity-sweep order (numba, private).
 
-Both kernels replay the union-find of the cavity sweep over ``order`` once, with the
+The kernels replay the union-find of the cavity sweep over ``order`` once, with the
 neighbour rules of :mod:`cavitas.cubical._neighbors` (the complement's connectivity, the
 border joining the outside), so they see exactly the components the
 :class:`~cavitas.cubical.CavityTree` describes. Neither sorts nor relabels per feature.
 
-* :func:`nested_pass` labels every voxel with the innermost kept region (chamber or
-  enclosure) that holds it. Each region is rooted at a tree node and closes at a rank
-  ``R`` (its level, as a position in ``order``); a voxel that enters the component of node
-  ``n`` at rank ``r`` belongs to the first region of ``n`` with ``r < R``, otherwise to
-  ``cont[n]``: what its component becomes when ``n`` merges into its parent.
+* :func:`owner_pass` writes the tree node that owned each voxel's component when the voxel
+  arrived; :func:`resolve_regions` then labels every voxel with the innermost kept region
+  (chamber or enclosure) that holds it. Each region is rooted at a tree node and closes at
+  a rank ``R`` (its level, as a position in ``order``); a voxel that enters the component
+  of node ``n`` at rank ``r`` belongs to the first region of ``n`` with ``r < R``,
+  otherwise to ``cont[n]``: what its component becomes when ``n`` merges into its parent.
 * :func:`basin_pass` floods from the kept cores: a voxel takes the basin of its
   earliest-visited labelled neighbour; voxels of components without a kept core wait in a
   union-find until their component first touches a basin (at its lowest pass), and then
@@ -28,8 +29,8 @@ from ..cubical._prefetch import prefetch
 #: How many voxels ahead in the sweep order the neighbourhood is prefetched.
 _AHEAD = 8
 
-__all__ = ["basin_pass", "continuation", "keep_largest_pieces", "nested_pass",
-           "same_value_pieces"]
+__all__ = ["basin_pass", "continuation", "count_labels", "keep_largest_pieces", "owner_pass",
+           "resolve_regions", "same_value_pieces", "sum_up_tree"]
 
 
 @njit(cache=True, nogil=True)
@@ -75,24 +76,51 @@ def continuation(parent, merge_rank, reg_start, reg_rank, reg_label):
 
 
 @njit(cache=True, nogil=True)
-def nested_pass(order, node_of_core, outside_seed, nz, ny, nx, zmargin, off, offz,
-                reg_start, reg_rank, reg_label, cont, out):
-    """Write into ``out`` (flat) the innermost region of every voxel; return -1 or the bad voxel.
+def count_labels(labels, n_labels):
+    """Voxels per label ``0..n_labels - 1`` as float64 (no int64 copy of ``labels``)."""
+    counts = np.zeros(n_labels, np.float64)
+    for i in range(labels.shape[0]):
+        counts[labels[i]] += 1.0
+    return counts
 
-    ``node_of_core[v]`` is the node whose core is ``v`` (else -1); ``outside_seed[v]`` marks
-    the voxels beyond the ROI, which are not in ``order`` and belong to the outside from the
-    start (as in the cavity sweep). A voxel starting a component
-    that is no node's core means the tree and the order disagree: its index is returned.
+
+@njit(cache=True, nogil=True)
+def sum_up_tree(parent, counts):
+    """Each node's count plus its descendants' (``parent[n] < n``); ``inf`` at the root."""
+    out = counts.copy()
+    for n in range(parent.shape[0] - 1, 0, -1):
+        out[parent[n]] += out[n]
+    out[0] = np.inf
+    return out
+
+
+@njit(cache=True, nogil=True)
+def _owner_of(out, root, size):
+    return 0 if root == size else out[root]
+
+
+@njit(cache=True, nogil=True)
+def owner_pass(order, outside_seed, use_seed, nz, ny, nx, zmargin, off, offz, out):
+    """Write into ``out`` (flat) the tree node that owns each voxel's component on arrival.
+
+    On entry ``out`` holds each core's node and -1 elsewhere. The owner of a component is
+    its eldest node (the outside, 0, is the eldest of all); voxels beyond the ROI
+    (``outside_seed``, read if ``use_seed``) belong to the outside from the start, as in
+    the cavity sweep. Returns -1, or the first voxel that starts a component without being
+    a node's core (the tree and the order disagree).
     """
     n = order.shape[0]
     size = out.shape[0]
-    uf = _identity(size + 1, order.dtype)
-    node_at = np.full(size + 1, -1, node_of_core.dtype)
-    node_at[size] = 0
-    visited = outside_seed.copy()
-    for i in range(size):
-        if outside_seed[i]:
-            uf[i] = size
+    # uf[i] < 0: not visited yet. Every root is a core (or ``size``, the outside), and a
+    # core's owner is its own node, so a root's owner is read from ``out``: no per-voxel
+    # arrays beyond the union-find itself.
+    uf = np.full(size + 1, -1, order.dtype)
+    uf[size] = size
+    if use_seed:
+        for i in range(size):
+            if outside_seed[i]:
+                uf[i] = size
+                out[i] = 0
     roots = np.empty(off.shape[0] + 1, np.int64)
     for r in range(n):
         v = order[r]
@@ -109,31 +137,41 @@ def nested_pass(order, node_of_core, outside_seed, nz, ny, nx, zmargin, off, off
                 if u < 0:
                     touch = True
                     continue
-            if visited[u]:
+            if uf[u] >= 0:
                 if uf[u] == last:
                     continue
                 last = uf[u]
                 m = add_distinct(roots, m, _find(uf, u))
         if touch:
-            m = add_distinct(roots, m, _find(uf, size))
-        visited[v] = True
+            m = add_distinct(roots, m, size)
         if m == 0:
-            nd = node_of_core[v]
-            if nd < 0:
+            if out[v] < 0:
                 return v
-            node_at[v] = nd
+            uf[v] = v
         else:
             best = roots[0]
             for j in range(1, m):
-                if node_at[roots[j]] < node_at[best]:
+                if _owner_of(out, roots[j], size) < _owner_of(out, best, size):
                     best = roots[j]
             for j in range(m):
                 if roots[j] != best:
                     uf[roots[j]] = best
             uf[v] = best
-            nd = node_at[best]
-        out[v] = _resolve(nd, r, reg_start, reg_rank, reg_label, cont)
+            out[v] = _owner_of(out, best, size)
     return -1
+
+
+@njit(cache=True, nogil=True)
+def resolve_regions(order, reg_start, reg_rank, reg_label, cont, out):
+    """Turn :func:`owner_pass`'s owners in ``out`` into the innermost region of each voxel.
+
+    A voxel that entered the component of node ``n`` at rank ``r`` belongs to the first
+    region of ``n`` with ``r < R``, otherwise to ``cont[n]``. Voxels beyond the ROI (not in
+    ``order``) keep the outside's 0.
+    """
+    for r in range(order.shape[0]):
+        v = order[r]
+        out[v] = _resolve(out[v], r, reg_start, reg_rank, reg_label, cont)
 
 
 @njit(cache=True, nogil=True)

@@ -37,7 +37,15 @@ import numpy as np
 from scipy import ndimage as ndi
 
 from ..cubical._neighbors import dual_connectivity, grid_shape3, neighbor_offsets
-from ._label_kernels import basin_pass, continuation, keep_largest_pieces, nested_pass
+from ._label_kernels import (
+    basin_pass,
+    continuation,
+    count_labels,
+    keep_largest_pieces,
+    owner_pass,
+    resolve_regions,
+    sum_up_tree,
+)
 from ._result import label_dtype
 
 #: Where a basin's wall level sits between its interior and its wall (see module notes).
@@ -48,7 +56,7 @@ _SLAB = 16
 _CHUNK = 1 << 22
 
 __all__ = ["Sweep", "basin_map", "cut_pieces", "fill_islands", "interior_levels",
-           "label_counts", "nested_map", "remove_walls"]
+           "label_counts", "nested_map", "region_sizes", "remove_walls"]
 
 
 class Sweep:
@@ -65,9 +73,7 @@ class Sweep:
         self.rank[order] = np.arange(order.size, dtype=order.dtype)
         self.outside = (np.zeros(values.size, np.bool_) if outside is None
                         else np.ascontiguousarray(outside.ravel(), np.bool_))
-        dual = dual_connectivity(len(self.shape), connectivity)
-        self.offsets, self.offsets_zyx = neighbor_offsets(self.shape, dual)
-        self.grid = (*grid_shape3(self.shape), 1 if len(self.shape) == 3 else 0)
+        self.offsets, self.offsets_zyx, self.grid = _neighbourhood(self.shape, connectivity)
 
     def level_of_rank(self, ranks: np.ndarray) -> np.ndarray:
         """Sweep value (walls high) at positions of ``order``."""
@@ -94,14 +100,59 @@ def nested_map(sweep: Sweep, node: np.ndarray, close_rank: np.ndarray,
     has = tree.breach >= 0
     merge_rank[has] = sweep.rank[tree.breach[has]]
     cont = continuation(tree.parent.astype(np.int64), merge_rank, reg_start, reg_rank, reg_label)
-    node_of_core = np.full(sweep.values.size, -1, sweep.order.dtype)
-    node_of_core[tree.core[1:]] = np.arange(1, n_nodes)
-    out = np.zeros(sweep.values.size, label_dtype(int(ids.max(initial=0))))
-    bad = nested_pass(sweep.order, node_of_core, sweep.outside, *sweep.grid, sweep.offsets,
-                      sweep.offsets_zyx, reg_start, reg_rank, reg_label, cont, out)
+    # owners and region labels share one array: wide enough for both
+    dtype = np.promote_types(label_dtype(int(ids.max(initial=0))), _index_type(n_nodes))
+    out = _owners(tree, sweep.order, sweep.outside, sweep.grid, sweep.offsets,
+                  sweep.offsets_zyx, dtype)
+    resolve_regions(sweep.order, reg_start, reg_rank, reg_label, cont, out)
+    return out.reshape(sweep.shape)
+
+
+def region_sizes(tree, order: np.ndarray, outside: np.ndarray | None, connectivity: int,
+                 shape: tuple[int, ...]) -> np.ndarray:
+    """Voxels in each node's breach region (its component just before it opens; ``inf`` for
+    the outside).
+
+    The region is every voxel that joined the component while the node, or a node that
+    merged into it, owned it: one :func:`owner_pass`, then the owners' counts summed up
+    the tree (children merge before their parents open).
+
+    Examples
+    --------
+    >>> from cavitas import cubical
+    >>> img = np.ones((7, 7)); img[2:5, 2:5] = 0; img[3, 3] = -1
+    >>> order, tree = cubical.cavity_sweep(img, walls="bright")
+    >>> region_sizes(tree, order, None, 1, img.shape)[1:].tolist()
+    [9.0]
+    """
+    offsets, offsets_zyx, grid = _neighbourhood(shape, connectivity)
+    owner = _owners(tree, order, outside, grid, offsets, offsets_zyx,
+                    _index_type(max(int(np.prod(shape)), tree.n_nodes)))
+    # voxels beyond the ROI are the outside's (node 0), whose size is infinite anyway
+    return sum_up_tree(tree.parent.astype(np.int64), count_labels(owner, tree.n_nodes))
+
+
+def _neighbourhood(shape: tuple[int, ...], connectivity: int) -> tuple:
+    """The complement's neighbour offsets (flat, zyx) and the kernels' grid arguments."""
+    offsets, offsets_zyx = neighbor_offsets(shape, dual_connectivity(len(shape), connectivity))
+    return offsets, offsets_zyx, (*grid_shape3(shape), 1 if len(shape) == 3 else 0)
+
+
+def _index_type(n: int) -> np.dtype:
+    return np.dtype(np.int32 if n < 2**31 else np.int64)
+
+
+def _owners(tree, order: np.ndarray, outside: np.ndarray | None, grid: tuple, offsets,
+            offsets_zyx, dtype) -> np.ndarray:
+    """:func:`owner_pass` of ``tree`` over ``order`` (flat; -1 nowhere once done)."""
+    out = np.full(int(np.prod(grid[:3])), -1, dtype)
+    out[tree.core[1:]] = np.arange(1, tree.n_nodes)
+    seed = (np.zeros(1, np.bool_) if outside is None
+            else np.ascontiguousarray(outside.ravel(), np.bool_))
+    bad = owner_pass(order, seed, outside is not None, *grid, offsets, offsets_zyx, out)
     if bad >= 0:
         raise RuntimeError(f"cavity tree and sweep order disagree at voxel {bad}")
-    return out.reshape(sweep.shape)
+    return out
 
 
 def basin_map(sweep: Sweep, cores: np.ndarray, outside_label: int) -> np.ndarray:
@@ -164,13 +215,13 @@ def wall_levels(basins: np.ndarray, image: np.ndarray, n_labels: int,
     levels = np.full(n_labels, np.inf)
     line = _meeting_lines(basins)
     wall = _label_quantile(image, np.where(line, basins, 0), n_labels, 0.5)
-    whole = _label_quantile(image, basins, n_labels, 0.5)
+    inside = _label_quantile(image, basins, n_labels, 0.5)
     if interior is not None:
-        own = np.full(n_labels, np.nan)
-        own[:len(interior)] = interior[:n_labels]
-        whole = np.where(np.isfinite(own), own, whole)
-    ok = np.isfinite(wall) & np.isfinite(whole)
-    levels[ok] = whole[ok] + WALL_FRACTION * (wall[ok] - whole[ok])
+        own = interior[:n_labels]
+        known = np.isfinite(own)
+        inside[:own.size][known] = own[known]
+    ok = np.isfinite(wall) & np.isfinite(inside)
+    levels[ok] = inside[ok] + WALL_FRACTION * (wall[ok] - inside[ok])
     return levels
 
 

@@ -23,7 +23,6 @@ from ..io._volume import Volume
 from . import _noise
 from ._evidence import MIN_CLASS_SEPARATION, class_split, small_region_factor, straddles
 from ._gap import find_gap
-from ._owner import region_sizes
 from ._params import AUTO_SCALES, SegmentParams
 from ._perforation import perforated_splits
 from ._regions import (
@@ -35,6 +34,7 @@ from ._regions import (
     label_counts,
     nested_map,
     open_to_border,
+    region_sizes,
     remove_walls,
 )
 from ._result import Segmentation, build_table
@@ -290,13 +290,14 @@ def _detect(image: _Image, params: SegmentParams, *, noise: float, robust_range:
                                     relative=params.relative_persistence,
                                     robust_range=robust_range)
         passing = (pers > 0) & (pers >= tau)
-        if eligible is not None and (passing & eligible).any():
-            with _REGION_SIZES_ONE_AT_A_TIME:  # memory: its work arrays, 13 bytes per voxel
-                area = region_sizes(tree, order, None if roi is None else ~roi, connectivity,
-                                    smoothed.shape)
-            eligible &= pers >= tau * small_region_factor(area, passing & eligible)
         if eligible is not None:
             passing &= eligible
+            if passing.any():
+                with _REGION_SIZES_ONE_AT_A_TIME:  # memory: 8 bytes per voxel while it runs
+                    area = region_sizes(tree, order, None if roi is None else ~roi,
+                                        connectivity, smoothed.shape)
+                eligible &= pers >= tau * small_region_factor(area, passing)
+                passing &= eligible
         passing[OUTSIDE] = False
         return Detection(sig, smoothed, order, tree, tau, gap, eligible,
                          int(np.count_nonzero(passing)))
@@ -372,15 +373,16 @@ def _delineate(params: SegmentParams, sweep: Sweep, hier, image: _Image,
         level_rank = np.minimum(sweep.rank_of_level(cut), close_rank)
     cores = tree.core[hier.node[:n_ch]]
     fine = image.smoothed(fine_sigma)
-    # Each chamber's inside, judged on its breach region (a small pore in a large basin of
-    # matrix would otherwise take the matrix as its inside).
-    interior = interior_levels(nested_map(sweep, hier.node[:n_ch], close_rank, ids[:n_ch]),
-                               fine, n_ch)
+    interior = None
+    if params.region == "basin":
+        # Each chamber's inside, judged on its breach region (a small pore in a large basin
+        # of matrix would otherwise take the matrix as its inside).
+        interior = interior_levels(nested_map(sweep, hier.node[:n_ch], close_rank,
+                                              ids[:n_ch]), fine, n_ch)
     basins = basin_map(sweep, cores, n_ch + 1)
     cleared, basin_levels = remove_walls(basins, fine, n_ch + 1, connectivity, cores=cores,
                                          interior=interior)
-    del fine
-    del basins  # memory: full-size arrays are dropped as soon as they are used up
+    del fine, basins  # memory: full-size arrays are dropped as soon as they are used up
     if params.region == "basin":
         labels = np.where(cleared <= n_ch, cleared, 0)
         used_level = basin_levels[:n_ch]
