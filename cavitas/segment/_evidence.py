@@ -16,9 +16,15 @@ lies in the interior class::
 * Texture pockets inside a cell are closed by texture, mostly below ``T``.
 * Pockets of a bright matrix between brighter grains have their inside above ``T``.
 
-The threshold is computed on the image at the detection scale, inside the ROI, from at
-most :data:`_SAMPLE` voxels (a regular subsample; Otsu's threshold is a statistic of the
-histogram, which a regular subsample of a large image keeps).
+Uneven illumination moves both classes: ``T`` is also computed per block (4 per axis) and
+interpolated between blocks, where a block shows both classes clearly; a block that does
+not (an empty surround, one material only) takes the whole image's. The inside is judged
+against the local threshold at the core, the wall against the lower of the local one at
+the breach and the whole image's. Each threshold comes from at most :data:`_SAMPLE`
+voxels at the detection scale, inside the ROI (a regular subsample keeps the histogram).
+
+A second piece of evidence is size (:func:`small_region_factor`): a cavity far smaller
+than the typical significant one needs proportionally more persistence.
 
 Reference
 ---------
