@@ -218,7 +218,7 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
                 spacing=volume.spacing, unit=volume.unit, regions=regions,
                 diagram=seg.diagram, kept=seg.kept, threshold=seg.threshold,
                 params=seg.params, figures=figures, title=source.name, source=source,
-                force=force)
+                notes=[n for n in (threshold_basis(seg.params),) if n], force=force)
         tick = done("report", tick)
         summary = _summary(seg, source, figures, written)
         record = {
@@ -305,6 +305,26 @@ def _write_meshes(seg: Any, outdir: Path, kind: str, *, force: bool) -> Path:
     return outdir / "meshes"
 
 
+def threshold_basis(params: dict[str, Any]) -> str | None:
+    """One sentence on what set the automatic threshold (None for a hand threshold).
+
+    Examples
+    --------
+    >>> threshold_basis({"automatic": True, "gap": 3.2}).startswith("The threshold lies in")
+    True
+    >>> threshold_basis({"automatic": False}) is None
+    True
+    """
+    if not params.get("automatic"):
+        return None
+    if params.get("gap") is not None:
+        return ("The threshold lies in the gap of the persistence diagram, between the crowd "
+                "of small cavities (noise, texture) and the large ones.")
+    return ("The persistence diagram shows no gap between noise and cavities: the threshold "
+            "is the noise-only level times the safety factor, and regions near it are "
+            "uncertain (see their margin).")
+
+
 def _summary(seg: Any, source: Path, figures: dict[str, Any],
              written: dict[str, Path]) -> dict[str, Any]:
     kinds = seg.regions["kind"] if len(seg.regions) else np.array([], object)
@@ -322,6 +342,7 @@ def _summary(seg: Any, source: Path, figures: dict[str, Any],
         "mean_volume": figures.get("mean_volume"),
         "unit": seg.volume.unit,
         "outputs": {k: str(v) for k, v in written.items()},
+        "threshold_basis": threshold_basis(seg.params),
         "message": ("no region passed the selection; empty outputs were written"
                     if n_regions == 0 else f"{n_regions} regions found"),
         "caution": RESEARCH_ONLY,

@@ -8,7 +8,12 @@ import numpy as np
 from scipy import ndimage as ndi
 
 from cavitas.segment import segment
-from cavitas.segment._evidence import class_split, small_region_factor, straddles
+from cavitas.segment._evidence import (
+    SMALL_CONTRAST,
+    class_split,
+    small_region_threshold,
+    straddles,
+)
 from cavitas.segment._gap import find_gap
 
 
@@ -70,12 +75,15 @@ def test_straddles_needs_both_sides_of_the_split():
     assert straddles(core, breach, 0.5, 0.5).tolist() == [True, False, False, True]
 
 
-def test_small_region_factor_grows_as_the_region_shrinks():
+def test_small_regions_must_stand_out_like_typical_ones():
+    # Hand-made numbers: three regions of ordinary size (persistence 4, 5, 6; typical area
+    # 1000, so "small" is below 1000/16 = 62.5) and two small ones.
     area = np.array([np.inf, 1000.0, 1000.0, 1000.0, 100.0, 10.0])
-    factor = small_region_factor(area, np.ones(6, bool))
-    # typical 1000 -> small = 1000/16 = 62.5: regions of 100 need nothing more
-    assert factor[1:5].tolist() == [1.0, 1.0, 1.0, 1.0]
-    assert np.isclose(factor[5], np.sqrt(62.5 / 10))
+    pers = np.array([np.inf, 4.0, 5.0, 6.0, 1.0, 4.0])
+    need = small_region_threshold(area, pers, np.ones(6, bool))
+    assert need[:5].tolist() == [0.0, 0.0, 0.0, 0.0, 0.0]  # 100 voxels is ordinary
+    # the median of the ordinary regions' persistence (1, 4, 5, 6) is 4.5
+    assert np.isclose(need[5], SMALL_CONTRAST * 4.5)
 
 
 def test_gap_between_two_lognormal_populations():

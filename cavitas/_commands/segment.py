@@ -28,10 +28,13 @@ volume and write them to OUTDIR:
   diagram.png    the diagram drawn, kept cavities filled, the threshold band shaded
   run.json       every parameter and value chosen, the version, the input's SHA-256
 
-By default the significance threshold is automatic: the noise level is estimated from
-the image and a cavity is kept when its persistence (how much brighter its weakest wall
-point is than its darkest inside voxel) stands clear of the largest persistence that noise
-alone produces at the chosen smoothing. The smoothing is chosen from the data too.
+By default the significance threshold is automatic: a cavity is kept when its
+persistence (how much brighter its weakest wall point is than its darkest inside voxel)
+stands clear of what noise alone produces (the noise level is estimated from the image),
+its inside is dark and its wall bright compared with the image's two intensity classes
+(so texture, an empty surround or the matrix between grains do not count), and, when
+the diagram shows a gap between the crowd of small cavities and the large ones, it lies
+above the gap. The smoothing is chosen from the data too.
 
 {RESEARCH_ONLY}
 """
@@ -180,6 +183,8 @@ def run(args: argparse.Namespace) -> int:
         print(f"  noise σ {summary['noise']:.4g}, persistence threshold "
               f"{summary['threshold']:.4g} (intensity units), smoothing σ "
               f"{summary['smooth_sigma']:.3g} {unit}")
+        if summary["threshold_basis"]:
+            print(f"  {summary['threshold_basis']}")
         if summary["porosity"] is not None and summary["regions"]:
             vunit = f"{unit}{'³' if len(summary['shape']) == 3 else '²'}"
             print(f"  volume fraction of the regions (closed porosity) "

@@ -173,7 +173,8 @@ def write_report(path: str | os.PathLike, *, image: np.ndarray, labels: np.ndarr
                  threshold: float | None = None, params: Mapping[str, Any],
                  figures: Mapping[str, Any], title: str | None = None,
                  source: str | os.PathLike | None = None, force: bool = False,
-                 max_rows: int = 5000, frame_budget: int = 7_000_000) -> Path:
+                 max_rows: int = 5000, frame_budget: int = 7_000_000,
+                 notes: Sequence[str] = ()) -> Path:
     """Write a single self-contained HTML page that shows a segmentation.
 
     The page holds the research-only caution, the parameters and global figures, the
@@ -212,6 +213,8 @@ def write_report(path: str | os.PathLike, *, image: np.ndarray, labels: np.ndarr
         Most table rows written (the CSV export holds them all).
     frame_budget : int
         Most bytes of slice-browser frames (before base64); frames are thinned to fit.
+    notes : sequence of str
+        Sentences shown under the summary (e.g. what set the threshold).
 
     Returns
     -------
@@ -259,6 +262,7 @@ def write_report(path: str | os.PathLike, *, image: np.ndarray, labels: np.ndarr
         summary = ('<p class="empty" id="no-regions">No region was kept: no enclosed region '
                    "passed the selection. The persistence diagram below still shows every "
                    "feature that was found.</p>")
+    summary += "".join(f'<p class="note">{_esc(note)}</p>' for note in notes)
     centroids = region_centroids(labels, regions.select(slice(0, max_rows)))
     views = build_frames(image, labels if n else None, budget=frame_budget)
     # Pictures of single regions and histograms show the regions of the label map only

@@ -21,7 +21,7 @@ from ..cubical._neighbors import check_connectivity
 from ..cubical._tree import OUTSIDE, CavityTree
 from ..io._volume import Volume
 from . import _noise
-from ._evidence import MIN_CLASS_SEPARATION, class_split, small_region_factor, straddles
+from ._evidence import MIN_CLASS_SEPARATION, class_split, small_region_threshold, straddles
 from ._gap import find_gap
 from ._params import AUTO_SCALES, SegmentParams
 from ._perforation import perforated_splits
@@ -296,7 +296,7 @@ def _detect(image: _Image, params: SegmentParams, *, noise: float, robust_range:
                 with _REGION_SIZES_ONE_AT_A_TIME:  # memory: 8 bytes per voxel while it runs
                     area = region_sizes(tree, order, None if roi is None else ~roi,
                                         connectivity, smoothed.shape)
-                eligible &= pers >= tau * small_region_factor(area, passing)
+                eligible &= pers >= small_region_threshold(area, pers, passing)
                 passing &= eligible
         passing[OUTSIDE] = False
         return Detection(sig, smoothed, order, tree, tau, gap, eligible,
@@ -375,10 +375,11 @@ def _delineate(params: SegmentParams, sweep: Sweep, hier, image: _Image,
     fine = image.smoothed(fine_sigma)
     interior = None
     if params.region == "basin":
-        # Each chamber's inside, judged on its breach region (a small pore in a large basin
-        # of matrix would otherwise take the matrix as its inside).
-        interior = interior_levels(nested_map(sweep, hier.node[:n_ch], close_rank,
-                                              ids[:n_ch]), fine, n_ch)
+        # Each chamber's inside, from its breach region (a pore in a matrix: from the part of
+        # it in the interior class; see wall_levels).
+        interior = interior_levels(
+            nested_map(sweep, hier.node[:n_ch], close_rank, ids[:n_ch]), fine, n_ch,
+            class_split(fine, None if outside is None else ~outside).at(cores, fine.shape))
     basins = basin_map(sweep, cores, n_ch + 1)
     cleared, basin_levels = remove_walls(basins, fine, n_ch + 1, connectivity, cores=cores,
                                          interior=interior)
