@@ -95,3 +95,43 @@ def test_gap_between_two_lognormal_populations():
     gap = find_gap(np.r_[crowd, cells], floor=0.01)
     assert gap is not None and 0.25 < gap < 0.75
     assert find_gap(crowd, floor=0.01) is None
+
+
+def test_a_wall_that_fades_below_the_class_threshold_still_counts(monkeypatch):
+    # Two overlapping classes of equal size (0 and 1, noise 0.25) give an Otsu threshold near 0.5
+    # (Otsu 1979; checked against scikit-image above). A cavity whose weakest wall point
+    # fades to 0.45 (below the threshold, far above its inside at 0.05) still counts; one
+    # whose wall stops at 0.3 does not; an inside at 0.6 is not an inside.
+    from types import SimpleNamespace
+
+    import cavitas.segment._segment as segment_module
+
+    rng = np.random.default_rng(5)
+    image = np.where(rng.random((64, 64)) < 0.5, 0.0, 1.0) + rng.normal(0, 0.25, (64, 64))
+    split = class_split(image)
+    assert 0.4 < split.whole < 0.6 and abs(split.low) < 0.1
+    tree = SimpleNamespace(n_nodes=4, core=np.array([-1, 10, 20, 30]),
+                           breach=np.array([-1, 11, 21, 31]),
+                           core_level=np.array([-np.inf, 0.05, 0.05, 0.6]),
+                           breach_level=np.array([np.nan, 0.45, 0.3, 1.0]))
+    eligible = segment_module._straddling(tree, image, None, noise=0.01)
+    assert eligible.tolist() == [False, True, False, False]
+    monkeypatch.setattr(segment_module, "WALL_REACH", 1.0)  # the bare threshold
+    assert segment_module._straddling(tree, image, None, noise=0.01).tolist() == [False] * 4
+
+
+def test_no_structure_means_no_candidate():
+    # White noise splits into two classes only about 1.6 standard deviations apart (the
+    # medians of the two halves of a normal law are +-0.674 sigma): below the required
+    # separation, so no cavity of a noise-only image counts (common practice: a bimodality
+    # test before a two-class split).
+    from types import SimpleNamespace
+
+    import cavitas.segment._segment as segment_module
+
+    image = np.random.default_rng(6).normal(0, 1.0, (64, 64))
+    tree = SimpleNamespace(n_nodes=2, core=np.array([-1, 10]), breach=np.array([-1, 11]),
+                           core_level=np.array([-np.inf, -2.0]),
+                           breach_level=np.array([np.nan, 2.0]))
+    assert not segment_module._straddling(tree, image, None, noise=1.0).any()
+    assert segment_module._straddling(tree, image, None, noise=0.1)[1]

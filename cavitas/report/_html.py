@@ -140,7 +140,10 @@ def _diagram_figures(diagram: Diagram | None, kept: Any, threshold: float | None
         kept = {diagram.cavity_dim: kept}
     parts = [_figure(plot_diagram(diagram, highlight=kept, threshold=threshold),
                      "Persistence diagram: kept features filled, the others hollow; the "
-                     "shaded band lies below the persistence threshold.")]
+                     "shaded band lies below the persistence threshold. In automatic mode, "
+                     "hollow points above the band failed the image's own evidence (inside "
+                     "not darker than the image's wall class, wall not reaching it, or too "
+                     "small for their persistence).")]
     if diagram.cavity_dim in diagram.dims:
         parts.append(_figure(
             plot_barcode(diagram, dim=diagram.cavity_dim, top=50, highlight=kept,

@@ -21,7 +21,13 @@ from ..cubical._neighbors import check_connectivity
 from ..cubical._tree import OUTSIDE, CavityTree
 from ..io._volume import Volume
 from . import _noise
-from ._evidence import MIN_CLASS_SEPARATION, class_split, small_region_threshold, straddles
+from ._evidence import (
+    MIN_CLASS_SEPARATION,
+    WALL_REACH,
+    class_split,
+    small_region_threshold,
+    straddles,
+)
 from ._gap import find_gap
 from ._params import AUTO_SCALES, SegmentParams
 from ._perforation import perforated_splits
@@ -334,9 +340,10 @@ def _straddling(tree: CavityTree, smoothed: np.ndarray, roi: np.ndarray | None,
     image's noise level) apart: the image shows no structure at this scale.
 
     The inside is judged against the local two-class threshold at the core; the wall
-    against the lower of the local threshold at the breach and the whole image's, so that a
-    dim corner (uneven illumination) keeps its cells while an empty surround, which has no
-    local threshold of its own, is judged by the whole image.
+    against :data:`WALL_REACH` of the way from the lower class up to the lower of the local
+    threshold at the breach and the whole image's, so that a dim corner (uneven
+    illumination) keeps its cells while an empty surround, which has no local threshold of
+    its own, is judged by the whole image.
     """
     split = class_split(smoothed, roi)
     nodes = np.arange(1, tree.n_nodes)
@@ -344,6 +351,7 @@ def _straddling(tree: CavityTree, smoothed: np.ndarray, roi: np.ndarray | None,
     if split.separation < MIN_CLASS_SEPARATION * noise:
         return eligible
     wall_threshold = np.minimum(split.whole, split.at(tree.breach[nodes], smoothed.shape))
+    wall_threshold = split.low + WALL_REACH * (wall_threshold - split.low)
     eligible[nodes] = straddles(tree.core_level[nodes], tree.breach_level[nodes],
                                 split.at(tree.core[nodes], smoothed.shape), wall_threshold)
     return eligible
