@@ -104,7 +104,7 @@ def test_a_wall_that_fades_below_the_class_threshold_still_counts(monkeypatch):
     # whose wall stops at 0.3 does not; an inside at 0.6 is not an inside.
     from types import SimpleNamespace
 
-    import cavitas.segment._segment as segment_module
+    import cavitas.segment._evidence as evidence
 
     rng = np.random.default_rng(5)
     image = np.where(rng.random((64, 64)) < 0.5, 0.0, 1.0) + rng.normal(0, 0.25, (64, 64))
@@ -114,10 +114,10 @@ def test_a_wall_that_fades_below_the_class_threshold_still_counts(monkeypatch):
                            breach=np.array([-1, 11, 21, 31]),
                            core_level=np.array([-np.inf, 0.05, 0.05, 0.6]),
                            breach_level=np.array([np.nan, 0.45, 0.3, 1.0]))
-    eligible = segment_module._straddling(tree, image, None, noise=0.01)
+    eligible = evidence.eligible_nodes(tree, image, None, noise=0.01)
     assert eligible.tolist() == [False, True, False, False]
-    monkeypatch.setattr(segment_module, "WALL_REACH", 1.0)  # the bare threshold
-    assert segment_module._straddling(tree, image, None, noise=0.01).tolist() == [False] * 4
+    monkeypatch.setattr(evidence, "WALL_REACH", 1.0)  # the bare threshold
+    assert evidence.eligible_nodes(tree, image, None, noise=0.01).tolist() == [False] * 4
 
 
 def test_no_structure_means_no_candidate():
@@ -127,11 +127,11 @@ def test_no_structure_means_no_candidate():
     # test before a two-class split).
     from types import SimpleNamespace
 
-    import cavitas.segment._segment as segment_module
+    import cavitas.segment._evidence as evidence
 
     image = np.random.default_rng(6).normal(0, 1.0, (64, 64))
     tree = SimpleNamespace(n_nodes=2, core=np.array([-1, 10]), breach=np.array([-1, 11]),
                            core_level=np.array([-np.inf, -2.0]),
                            breach_level=np.array([np.nan, 2.0]))
-    assert not segment_module._straddling(tree, image, None, noise=1.0).any()
-    assert segment_module._straddling(tree, image, None, noise=0.1)[1]
+    assert not evidence.eligible_nodes(tree, image, None, noise=1.0).any()
+    assert evidence.eligible_nodes(tree, image, None, noise=0.1)[1]

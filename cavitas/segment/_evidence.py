@@ -42,7 +42,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import ndimage as ndi
 
-__all__ = ["MIN_CLASS_SEPARATION", "WALL_REACH", "ClassSplit", "class_split",
+__all__ = ["MIN_CLASS_SEPARATION", "WALL_REACH", "ClassSplit", "class_split", "eligible_nodes",
            "small_region_threshold", "straddles"]
 
 #: Largest number of voxels a two-class threshold is computed from.
@@ -143,6 +143,30 @@ def _otsu(values: np.ndarray, roi: np.ndarray | None) -> tuple[float, float, flo
         return v, v, v
     t = float(threshold_otsu(sample.astype(np.float64), nbins=1024))
     return t, float(np.median(sample[sample <= t])), float(np.median(sample[sample > t]))
+
+
+def eligible_nodes(tree, smoothed: np.ndarray, roi: np.ndarray | None,
+                   noise: float) -> np.ndarray:
+    """Per node of ``tree``: its inside in the interior class and its wall in the wall class.
+
+    False for the outside (node 0), and for every node when the two classes lie less than
+    :data:`MIN_CLASS_SEPARATION` times ``noise`` (the smoothed image's noise level) apart:
+    the image shows no structure at this scale. The inside is judged against the local
+    two-class threshold at the core; the wall against :data:`WALL_REACH` of the way from
+    the lower class up to the lower of the local threshold at the breach and the whole
+    image's, so that a dim corner (uneven illumination) keeps its cells while an empty
+    surround, which has no local threshold of its own, is judged by the whole image.
+    """
+    split = class_split(smoothed, roi)
+    nodes = np.arange(1, tree.n_nodes)
+    eligible = np.zeros(tree.n_nodes, bool)
+    if split.separation < MIN_CLASS_SEPARATION * noise:
+        return eligible
+    wall_threshold = np.minimum(split.whole, split.at(tree.breach[nodes], smoothed.shape))
+    wall_threshold = split.low + WALL_REACH * (wall_threshold - split.low)
+    eligible[nodes] = straddles(tree.core_level[nodes], tree.breach_level[nodes],
+                                split.at(tree.core[nodes], smoothed.shape), wall_threshold)
+    return eligible
 
 
 def straddles(core_level: np.ndarray, breach_level: np.ndarray,

@@ -21,13 +21,7 @@ from ..cubical._neighbors import check_connectivity
 from ..cubical._tree import OUTSIDE, CavityTree
 from ..io._volume import Volume
 from . import _noise
-from ._evidence import (
-    MIN_CLASS_SEPARATION,
-    WALL_REACH,
-    class_split,
-    small_region_threshold,
-    straddles,
-)
+from ._evidence import class_split, eligible_nodes, small_region_threshold
 from ._gap import find_gap
 from ._params import AUTO_SCALES, SegmentParams
 from ._perforation import perforated_splits
@@ -88,20 +82,25 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
 
     Notes
     -----
-    Steps: (1) noise level and empirical null (:mod:`cavitas.segment._noise`); (2) the
-    detection scale: the candidate smoothing with most significant cavities
-    (:func:`_detect`); (3) selection on the cavity tree of that scale: the persistence
-    threshold, then the split rule (an inner wall must close at least ``split_fraction``
-    of the way up the local wall contrast, :mod:`cavitas.segment._select`), pruned into
-    chambers and enclosures (:mod:`cavitas.segment._tree`); (4) regions in one pass over the sweep
-    order (:mod:`cavitas.segment._regions`); (5) in basin mode, splits whose two chambers
-    touch through a hole at the delineation scale are joined and the regions redone
+    Steps: (1) noise level and empirical null (:mod:`cavitas.segment._noise`); (2) at each
+    candidate smoothing, the image's own evidence: cavities whose inside lies in the
+    image's interior class and whose wall reaches its wall class, large enough for their
+    persistence (:mod:`cavitas.segment._evidence`), above the gap of their diagram when it
+    has one, else above the null times ``safety`` (:mod:`cavitas.segment._gap`); the
+    detection scale is the candidate with most such cavities (:func:`_detect`); (3)
+    selection on the cavity tree of that scale, then the split rule (an inner wall must
+    close at least ``split_fraction`` of the way up the local wall contrast,
+    :mod:`cavitas.segment._select`), pruned into chambers and enclosures
+    (:mod:`cavitas.segment._tree`); (4) regions in one pass over the sweep order
+    (:mod:`cavitas.segment._regions`); (5) in basin mode, splits whose two chambers touch
+    through a hole at the delineation scale are joined and the regions redone
     (:mod:`cavitas.segment._perforation`). Detection needs the scale where noise falls
     below significance; delineation the finest scale that keeps walls two voxels thick
     intact, so basin walls are cut on the image smoothed by :data:`DELINEATION_SIGMA`
-    (0.5 voxel) whatever the detection scale. Measured on the bench scenes (sheets, foams,
-    capsules; noise 0.1 and 0.3): σ = 0.5 gave the best median Dice overall among 0, 0.5,
-    0.75 and 1 voxel (1 voxel, or the detection scale, widens walls; 0 leaves them ragged).
+    (0.5 voxel), or by the detection scale when that is finer. Measured on the bench
+    scenes (sheets, foams, capsules; noise 0.1 and 0.3): σ = 0.5 gave the best median Dice
+    overall among 0, 0.5, 0.75 and 1 voxel (1 voxel, or the detection scale, widens walls;
+    0 leaves them ragged).
 
     Levels in the table and the diagram are values of the image at the detection scale
     (the input itself when no smoothing was chosen), in the input's units. Data of at most
@@ -288,8 +287,8 @@ def _detect(image: _Image, params: SegmentParams, *, noise: float, robust_range:
         auto = None
         if params.automatic:
             floor = noise * _noise.null_persistence(image.data.shape, tuple(sig), connectivity)
-            eligible = _straddling(tree, smoothed, roi,
-                                   _noise.smoothed_noise_sigma(noise, tuple(sig)))
+            eligible = eligible_nodes(tree, smoothed, roi,
+                                      _noise.smoothed_noise_sigma(noise, tuple(sig)))
             gap = find_gap(pers[eligible], floor)
             auto = gap if gap is not None else params.safety * floor
         tau = persistence_threshold(auto=auto, absolute=params.min_persistence,
@@ -330,31 +329,6 @@ def _detect(image: _Image, params: SegmentParams, *, noise: float, robust_range:
             if following is not None:
                 running.append(pool.submit(candidate, following))
     return best, tried
-
-
-def _straddling(tree: CavityTree, smoothed: np.ndarray, roi: np.ndarray | None,
-                noise: float) -> np.ndarray:
-    """Per node: its inside in the interior class and its wall in the wall class
-    (:mod:`cavitas.segment._evidence`); False for the outside, and for every node when the
-    two classes lie less than :data:`MIN_CLASS_SEPARATION` times ``noise`` (the smoothed
-    image's noise level) apart: the image shows no structure at this scale.
-
-    The inside is judged against the local two-class threshold at the core; the wall
-    against :data:`WALL_REACH` of the way from the lower class up to the lower of the local
-    threshold at the breach and the whole image's, so that a dim corner (uneven
-    illumination) keeps its cells while an empty surround, which has no local threshold of
-    its own, is judged by the whole image.
-    """
-    split = class_split(smoothed, roi)
-    nodes = np.arange(1, tree.n_nodes)
-    eligible = np.zeros(tree.n_nodes, bool)
-    if split.separation < MIN_CLASS_SEPARATION * noise:
-        return eligible
-    wall_threshold = np.minimum(split.whole, split.at(tree.breach[nodes], smoothed.shape))
-    wall_threshold = split.low + WALL_REACH * (wall_threshold - split.low)
-    eligible[nodes] = straddles(tree.core_level[nodes], tree.breach_level[nodes],
-                                split.at(tree.core[nodes], smoothed.shape), wall_threshold)
-    return eligible
 
 
 def _delineate(params: SegmentParams, sweep: Sweep, hier, image: _Image,
