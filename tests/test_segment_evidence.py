@@ -135,3 +135,22 @@ def test_no_structure_means_no_candidate():
                            breach_level=np.array([np.nan, 2.0]))
     assert not evidence.eligible_nodes(tree, image, None, noise=1.0).any()
     assert evidence.eligible_nodes(tree, image, None, noise=0.1)[1]
+
+
+def test_tree_size_is_the_breach_region_size():
+    # Reference: scipy.ndimage.label of {f < breach level} (distinct values, so no ties),
+    # the complement's connectivity (full when the walls use faces), the component holding
+    # the node's core.
+    from cavitas import cubical
+
+    rng = np.random.default_rng(7)
+    img = ndi.gaussian_filter(rng.random((40, 50)), 1.5)
+    img = np.pad(img, 1, constant_values=1.0)  # a frame: every pocket is enclosed
+    _, tree = cubical.cavity_sweep(img, walls="bright", connectivity=1)
+    structure = ndi.generate_binary_structure(2, 2)
+    for n in range(1, tree.n_nodes):
+        if tree.breach_level[n] <= tree.core_level[n]:
+            continue
+        comp, _ = ndi.label(img < tree.breach_level[n], structure)
+        want = int((comp == comp.flat[tree.core[n]]).sum())
+        assert tree.size[n] == want

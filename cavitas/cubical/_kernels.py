@@ -272,8 +272,10 @@ def cavity_sweep_kernel(order, parent, mask, use_mask, offsets_flat, offsets_zyx
 
     Returns
     -------
-    core, breach, tree_parent : arrays of ``order``'s dtype, one entry per node
-        Node 0 is the outside (all three ``-1``).
+    core, breach, tree_parent, size : arrays of ``order``'s dtype, one entry per node
+        Node 0 is the outside (``-1``, ``-1``, ``-1`` and the voxels it took). ``size`` is
+        the number of voxels in each node's component when it merged (its breach region:
+        its own voxels and those of the nodes that merged into it before).
     """
     n = nz * ny * nx
     out = n
@@ -288,9 +290,11 @@ def cavity_sweep_kernel(order, parent, mask, use_mask, offsets_flat, offsets_zyx
     core = np.empty(cap, order.dtype)
     breach = np.empty(cap, order.dtype)
     tparent = np.empty(cap, order.dtype)
+    size = np.empty(cap, order.dtype)
     core[0] = -1
     breach[0] = -1
     tparent[0] = -1
+    size[0] = 0
     nnodes = 1
     full = nk > 2 * (2 + zmargin)
     cbits = _chain_bits(chain)
@@ -337,9 +341,11 @@ def cavity_sweep_kernel(order, parent, mask, use_mask, offsets_flat, offsets_zyx
                 core = _grow(core, nnodes + 1)
                 breach = _grow(breach, nnodes + 1)
                 tparent = _grow(tparent, nnodes + 1)
+                size = _grow(size, nnodes + 1)
             core[nnodes] = v
             breach[nnodes] = -1
             tparent[nnodes] = -1
+            size[nnodes] = 1
             parent[v] = -(nnodes + 2)
             nnodes += 1
             continue
@@ -354,6 +360,9 @@ def cavity_sweep_kernel(order, parent, mask, use_mask, offsets_flat, offsets_zyx
                 node = -parent[r] - 2
                 tparent[node] = eldest
                 breach[node] = v
+                size[eldest] += size[node]
                 parent[r] = best
+        size[eldest] += 1
         parent[v] = best
-    return core[:nnodes].copy(), breach[:nnodes].copy(), tparent[:nnodes].copy()
+    return (core[:nnodes].copy(), breach[:nnodes].copy(), tparent[:nnodes].copy(),
+            size[:nnodes].copy())

@@ -97,7 +97,7 @@ class _Prepared:
         neighbors = neighbor_chain(self.shape, dual_connectivity(self.ndim, self.connectivity))
         use_mask = self.mask is not None
         mask_u8 = self.mask.view(np.uint8) if use_mask else np.zeros(1, np.uint8)
-        core, breach, tparent = (a.astype(np.int64) for a in cavity_sweep_kernel(
+        core, breach, tparent, size = (a.astype(np.int64) for a in cavity_sweep_kernel(
             self.order, self.new_parent() if parent is None else parent, mask_u8, use_mask,
             *neighbors, *self.grid, self.zmargin,
         ))  # the kernel grows 4-byte arrays while its work array is alive
@@ -110,6 +110,7 @@ class _Prepared:
         return CavityTree(
             shape=self.shape, walls=self.walls, connectivity=self.connectivity, core=core,
             core_level=core_level, breach=breach, breach_level=breach_level, parent=tparent,
+            size=size,
         )
 
     def both(self, parallel: bool) -> tuple[np.ndarray, CavityTree]:

@@ -45,6 +45,10 @@ class CavityTree:
         Image value at the breach (the level at which the enclosure opens).
     parent : (n_nodes,) int64
         The elder node it merged into; ``-1`` for the outside.
+    size : (n_nodes,) int64 or None
+        Voxels in each node's component just before it merged (its breach region: its own
+        voxels and those of the nodes that merged into it first); for the outside, the
+        voxels it took. None when the tree was built by hand.
 
     Notes
     -----
@@ -62,6 +66,7 @@ class CavityTree:
     breach: np.ndarray
     breach_level: np.ndarray
     parent: np.ndarray
+    size: np.ndarray | None = None
 
     @property
     def n_nodes(self) -> int:

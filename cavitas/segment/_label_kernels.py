@@ -29,8 +29,8 @@ from ..cubical._prefetch import prefetch
 #: How many voxels ahead in the sweep order the neighbourhood is prefetched.
 _AHEAD = 8
 
-__all__ = ["basin_pass", "continuation", "count_labels", "keep_largest_pieces", "owner_pass",
-           "resolve_regions", "same_value_pieces", "sum_up_tree"]
+__all__ = ["basin_pass", "continuation", "keep_largest_pieces", "owner_pass", "resolve_regions",
+           "same_value_pieces"]
 
 
 @njit(cache=True, nogil=True)
@@ -73,25 +73,6 @@ def continuation(parent, merge_rank, reg_start, reg_rank, reg_label):
     for n in range(1, n_nodes):
         cont[n] = _resolve(parent[n], merge_rank[n], reg_start, reg_rank, reg_label, cont)
     return cont
-
-
-@njit(cache=True, nogil=True)
-def count_labels(labels, n_labels):
-    """Voxels per label ``0..n_labels - 1`` as float64 (no int64 copy of ``labels``)."""
-    counts = np.zeros(n_labels, np.float64)
-    for i in range(labels.shape[0]):
-        counts[labels[i]] += 1.0
-    return counts
-
-
-@njit(cache=True, nogil=True)
-def sum_up_tree(parent, counts):
-    """Each node's count plus its descendants' (``parent[n] < n``); ``inf`` at the root."""
-    out = counts.copy()
-    for n in range(parent.shape[0] - 1, 0, -1):
-        out[parent[n]] += out[n]
-    out[0] = np.inf
-    return out
 
 
 @njit(cache=True, nogil=True)

@@ -42,11 +42,9 @@ from ..cubical._neighbors import dual_connectivity, grid_shape3, neighbor_offset
 from ._label_kernels import (
     basin_pass,
     continuation,
-    count_labels,
     keep_largest_pieces,
     owner_pass,
     resolve_regions,
-    sum_up_tree,
 )
 from ._result import label_dtype
 
@@ -65,7 +63,7 @@ _SLAB = 16
 _CHUNK = 1 << 22
 
 __all__ = ["Interior", "Sweep", "basin_map", "cut_pieces", "fill_islands", "interior_levels",
-           "label_counts", "nested_map", "region_sizes", "remove_walls"]
+           "label_counts", "nested_map", "remove_walls"]
 
 
 class Sweep:
@@ -82,7 +80,9 @@ class Sweep:
         self.rank[order] = np.arange(order.size, dtype=order.dtype)
         self.outside = (np.zeros(values.size, np.bool_) if outside is None
                         else np.ascontiguousarray(outside.ravel(), np.bool_))
-        self.offsets, self.offsets_zyx, self.grid = _neighbourhood(self.shape, connectivity)
+        dual = dual_connectivity(len(self.shape), connectivity)
+        self.offsets, self.offsets_zyx = neighbor_offsets(self.shape, dual)
+        self.grid = (*grid_shape3(self.shape), 1 if len(self.shape) == 3 else 0)
 
     def level_of_rank(self, ranks: np.ndarray) -> np.ndarray:
         """Sweep value (walls high) at positions of ``order``."""
@@ -109,59 +109,17 @@ def nested_map(sweep: Sweep, node: np.ndarray, close_rank: np.ndarray,
     has = tree.breach >= 0
     merge_rank[has] = sweep.rank[tree.breach[has]]
     cont = continuation(tree.parent.astype(np.int64), merge_rank, reg_start, reg_rank, reg_label)
-    # owners and region labels share one array: wide enough for both
-    dtype = np.promote_types(label_dtype(int(ids.max(initial=0))), _index_type(n_nodes))
-    out = _owners(tree, sweep.order, sweep.outside, sweep.grid, sweep.offsets,
-                  sweep.offsets_zyx, dtype)
-    resolve_regions(sweep.order, reg_start, reg_rank, reg_label, cont, out)
-    return out.reshape(sweep.shape)
-
-
-def region_sizes(tree, order: np.ndarray, outside: np.ndarray | None, connectivity: int,
-                 shape: tuple[int, ...]) -> np.ndarray:
-    """Voxels in each node's breach region (its component just before it opens; ``inf`` for
-    the outside).
-
-    The region is every voxel that joined the component while the node, or a node that
-    merged into it, owned it: one :func:`owner_pass`, then the owners' counts summed up
-    the tree (children merge before their parents open).
-
-    Examples
-    --------
-    >>> from cavitas import cubical
-    >>> img = np.ones((7, 7)); img[2:5, 2:5] = 0; img[3, 3] = -1
-    >>> order, tree = cubical.cavity_sweep(img, walls="bright")
-    >>> region_sizes(tree, order, None, 1, img.shape)[1:].tolist()
-    [9.0]
-    """
-    offsets, offsets_zyx, grid = _neighbourhood(shape, connectivity)
-    owner = _owners(tree, order, outside, grid, offsets, offsets_zyx,
-                    _index_type(max(int(np.prod(shape)), tree.n_nodes)))
-    # voxels beyond the ROI are the outside's (node 0), whose size is infinite anyway
-    return sum_up_tree(tree.parent.astype(np.int64), count_labels(owner, tree.n_nodes))
-
-
-def _neighbourhood(shape: tuple[int, ...], connectivity: int) -> tuple:
-    """The complement's neighbour offsets (flat, zyx) and the kernels' grid arguments."""
-    offsets, offsets_zyx = neighbor_offsets(shape, dual_connectivity(len(shape), connectivity))
-    return offsets, offsets_zyx, (*grid_shape3(shape), 1 if len(shape) == 3 else 0)
-
-
-def _index_type(n: int) -> np.dtype:
-    return np.dtype(np.int32 if n < 2**31 else np.int64)
-
-
-def _owners(tree, order: np.ndarray, outside: np.ndarray | None, grid: tuple, offsets,
-            offsets_zyx, dtype) -> np.ndarray:
-    """:func:`owner_pass` of ``tree`` over ``order`` (flat; -1 nowhere once done)."""
-    out = np.full(int(np.prod(grid[:3])), -1, dtype)
-    out[tree.core[1:]] = np.arange(1, tree.n_nodes)
-    seed = (np.zeros(1, np.bool_) if outside is None
-            else np.ascontiguousarray(outside.ravel(), np.bool_))
-    bad = owner_pass(order, seed, outside is not None, *grid, offsets, offsets_zyx, out)
+    # owners (tree nodes) and then region labels share one array: wide enough for both
+    index = np.int32 if n_nodes < 2**31 else np.int64
+    out = np.full(sweep.values.size, -1, np.promote_types(label_dtype(int(ids.max(initial=0))),
+                                                           index))
+    out[tree.core[1:]] = np.arange(1, n_nodes)
+    bad = owner_pass(sweep.order, sweep.outside, True, *sweep.grid, sweep.offsets,
+                     sweep.offsets_zyx, out)
     if bad >= 0:
         raise RuntimeError(f"cavity tree and sweep order disagree at voxel {bad}")
-    return out
+    resolve_regions(sweep.order, reg_start, reg_rank, reg_label, cont, out)
+    return out.reshape(sweep.shape)
 
 
 def basin_map(sweep: Sweep, cores: np.ndarray, outside_label: int) -> np.ndarray:

@@ -5,7 +5,6 @@ from __future__ import annotations
 import itertools
 import logging
 import math
-import threading
 import time
 from collections import deque
 from collections.abc import Callable
@@ -34,7 +33,6 @@ from ._regions import (
     label_counts,
     nested_map,
     open_to_border,
-    region_sizes,
     remove_walls,
 )
 from ._result import Segmentation, build_table
@@ -47,8 +45,6 @@ __all__ = ["segment"]
 DELINEATION_SIGMA = 0.5
 
 log = logging.getLogger("cavitas.segment")
-#: Region sizes of two detection scales are never counted at the same time (memory peak).
-_REGION_SIZES_ONE_AT_A_TIME = threading.Lock()
 
 
 def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = None,
@@ -279,6 +275,9 @@ def _detect(image: _Image, params: SegmentParams, *, noise: float, robust_range:
         scales = [np.zeros(len(spacing))]
 
     def candidate(sig: np.ndarray) -> Detection:
+        # the null first: its simulation (first use per shape and scale) then peaks alone
+        floor = (noise * _noise.null_persistence(image.data.shape, tuple(sig), connectivity)
+                 if params.automatic else 0.0)
         smoothed = image.smoothed(sig)
         order, tree = cubical.cavity_sweep(smoothed, walls="bright", connectivity=connectivity,
                                            mask=roi)
@@ -286,7 +285,6 @@ def _detect(image: _Image, params: SegmentParams, *, noise: float, robust_range:
         eligible = gap = None
         auto = None
         if params.automatic:
-            floor = noise * _noise.null_persistence(image.data.shape, tuple(sig), connectivity)
             eligible = eligible_nodes(tree, smoothed, roi,
                                       _noise.smoothed_noise_sigma(noise, tuple(sig)))
             gap = find_gap(pers[eligible], floor)
@@ -298,9 +296,8 @@ def _detect(image: _Image, params: SegmentParams, *, noise: float, robust_range:
         if eligible is not None:
             passing &= eligible
             if passing.any():
-                with _REGION_SIZES_ONE_AT_A_TIME:  # memory: 8 bytes per voxel while it runs
-                    area = region_sizes(tree, order, None if roi is None else ~roi,
-                                        connectivity, smoothed.shape)
+                area = tree.size.astype(np.float64)
+                area[OUTSIDE] = np.inf
                 eligible &= pers >= small_region_threshold(area, pers, passing)
                 passing &= eligible
         passing[OUTSIDE] = False
