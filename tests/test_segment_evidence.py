@@ -5,6 +5,7 @@ threshold (Otsu 1979) as computed by scikit-image, scipy.ndimage.label component
 """
 
 import numpy as np
+import pytest
 from scipy import ndimage as ndi
 
 from cavitas.segment import segment
@@ -154,3 +155,24 @@ def test_tree_size_is_the_breach_region_size():
         comp, _ = ndi.label(img < tree.breach_level[n], structure)
         want = int((comp == comp.flat[tree.core[n]]).sum())
         assert tree.size[n] == want
+
+
+@pytest.mark.parametrize("dtype", [np.float32, np.float64])
+def test_interior_medians_of_whole_regions_and_their_part_below_a_level(dtype):
+    # Reference: numpy sort of each region's values (the lower median, rank
+    # floor((count - 1) / 2)), over all of them and over those under the region's level.
+    from cavitas.segment._regions import interior_levels
+
+    rng = np.random.default_rng(8)
+    image = rng.normal(0, 1, (30, 40)).astype(dtype)
+    regions = rng.integers(0, 6, (30, 40)).astype(np.int32)
+    below = np.array([-0.5, 0.0, 0.3, 1.0, -9.0])
+    got = interior_levels(regions, image, 5, below)
+    for label in range(1, 6):
+        values = np.sort(image[regions == label])
+        under = values[values < dtype(below[label - 1])]
+        assert got.breach[label - 1] == values[(values.size - 1) // 2]
+        if under.size:
+            assert got.pore[label - 1] == under[(under.size - 1) // 2]
+        else:
+            assert np.isnan(got.pore[label - 1])

@@ -213,24 +213,21 @@ class Interior:
 def interior_levels(regions: np.ndarray, image: np.ndarray, n_labels: int,
                     below: np.ndarray) -> Interior:
     """:class:`Interior` of each region ``1..n_labels`` of ``regions`` (breach regions),
-    ``below`` being each region's two-class threshold. ``regions`` is overwritten."""
-    breach = _label_quantile(image, regions, n_labels, 0.5)
-    lut = np.concatenate([[-np.inf], np.asarray(below, np.float64)])
-    for z in range(0, regions.shape[0], _SLAB):  # in place, by slabs
-        part = regions[z:z + _SLAB]
-        part[image[z:z + _SLAB] >= lut[part]] = 0
-    return Interior(breach, _label_quantile(image, regions, n_labels, 0.5))
+    ``below`` being each region's two-class threshold (one sort for both medians)."""
+    breach, pore = _label_quantile(image, regions, n_labels, 0.5, below=below)
+    return Interior(breach, pore)
 
 
-def _label_quantile(image: np.ndarray, labels: np.ndarray, n_labels: int,
-                    q: float) -> np.ndarray:
+def _label_quantile(image: np.ndarray, labels: np.ndarray, n_labels: int, q: float,
+                    below: np.ndarray | None = None):
     """The ``q`` quantile of ``image`` over each label ``1..n_labels`` (NaN where empty).
 
     The lower ``q`` quantile: the value at rank ``floor(q * (count - 1))`` among the label's
-    values in increasing order.
+    values in increasing order. With ``below`` (a level per label), also the quantile over
+    the label's values under its level, from the same sort: returns both then.
     """
     if image.dtype == np.float32 and n_labels < 2**31:
-        return _label_quantile_f32(image, labels, n_labels, q)
+        return _label_quantile_f32(image, labels, n_labels, q, below)
     lab = labels.ravel()
     keep = lab > 0
     lab, val = lab[keep], image.ravel()[keep]
@@ -238,15 +235,24 @@ def _label_quantile(image: np.ndarray, labels: np.ndarray, n_labels: int,
     lab, val = lab[order], val[order]
     start = np.searchsorted(lab, np.arange(1, n_labels + 1), side="left")
     stop = np.searchsorted(lab, np.arange(1, n_labels + 1), side="right")
-    out = np.full(n_labels, np.nan)
+    if below is None:
+        return _pick(val, start, stop, q)
+    under = np.bincount(lab[val < np.asarray(below, np.float64)[lab - 1]],
+                        minlength=n_labels + 1)[1:]
+    return _pick(val, start, stop, q), _pick(val, start, start + under, q)
+
+
+def _pick(values: np.ndarray, start: np.ndarray, stop: np.ndarray, q: float) -> np.ndarray:
+    """The lower ``q`` quantile of each sorted run ``values[start:stop]`` (NaN if empty)."""
+    out = np.full(start.shape, np.nan)
     has = stop > start
     pick = start[has] + np.floor(q * (stop[has] - start[has] - 1)).astype(np.int64)
-    out[has] = val[pick]
+    out[has] = values[pick]
     return out
 
 
-def _label_quantile_f32(image: np.ndarray, labels: np.ndarray, n_labels: int,
-                        q: float) -> np.ndarray:
+def _label_quantile_f32(image: np.ndarray, labels: np.ndarray, n_labels: int, q: float,
+                        below: np.ndarray | None = None):
     """:func:`_label_quantile` of a float32 image with one sort of 8-byte keys.
 
     Key = label in the high 32 bits, the value's order-preserving bit pattern in the low 32
@@ -273,7 +279,18 @@ def _label_quantile_f32(image: np.ndarray, labels: np.ndarray, n_labels: int,
     ids = np.arange(1, n_labels + 1, dtype=np.uint64) << np.uint64(32)
     start = np.searchsorted(key, ids, side="left")
     stop = np.searchsorted(key, ids + np.uint64(1 << 32), side="left")
-    out = np.full(n_labels, np.nan)
+    if below is None:
+        return _pick_keys(key, start, stop, q)
+    # the first key of each label at or above its level: the values before it are under it
+    level = np.asarray(below, np.float32).copy().view(np.uint32)
+    level ^= (level >> np.uint32(31)) * np.uint32(0x7FFFFFFF) | np.uint32(0x80000000)
+    under = np.searchsorted(key, ids | level.astype(np.uint64), side="left")
+    return _pick_keys(key, start, stop, q), _pick_keys(key, start, under, q)
+
+
+def _pick_keys(key: np.ndarray, start: np.ndarray, stop: np.ndarray, q: float) -> np.ndarray:
+    """:func:`_pick` on the sorted keys of :func:`_label_quantile_f32` (values decoded)."""
+    out = np.full(start.shape, np.nan)
     has = stop > start
     pick = start[has] + np.floor(q * (stop[has] - start[has] - 1)).astype(np.int64)
     bits = (key[pick] & np.uint64(0xFFFFFFFF)).astype(np.uint32)
