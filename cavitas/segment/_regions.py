@@ -62,8 +62,8 @@ _SLAB = 16
 #: Voxels per chunk of the flat passes of :func:`_label_quantile_f32`.
 _CHUNK = 1 << 22
 
-__all__ = ["Interior", "Sweep", "basin_map", "cut_pieces", "fill_islands", "interior_levels",
-           "label_counts", "nested_map", "remove_walls"]
+__all__ = ["Interior", "Sweep", "basin_map", "below_levels", "cut_pieces", "fill_islands",
+           "interior_levels", "label_counts", "nested_map", "remove_walls"]
 
 
 class Sweep:
@@ -208,6 +208,25 @@ class Interior:
 
     breach: np.ndarray
     pore: np.ndarray
+
+
+def below_levels(labels: np.ndarray, image: np.ndarray, levels: np.ndarray) -> np.ndarray:
+    """``labels`` where ``image`` lies under its label's level (``levels[label - 1]``; labels
+    beyond ``levels`` and 0 give 0), by slabs.
+
+    Examples
+    --------
+    >>> below_levels(np.array([[1, 1, 2]]), np.array([[0.0, 5.0, 1.0]]), np.array([2.0, 3.0]))
+    array([[1, 0, 2]])
+    """
+    lut = np.full(int(labels.max(initial=0)) + 1, -np.inf)
+    lut[1:1 + len(levels)] = np.asarray(levels, np.float64)[:lut.size - 1]
+    out = np.zeros_like(labels)
+    for z in range(0, labels.shape[0], _SLAB):
+        part = slice(z, z + _SLAB)
+        under = image[part] < lut[labels[part]]
+        out[part][under] = labels[part][under]
+    return out
 
 
 def interior_levels(regions: np.ndarray, image: np.ndarray, n_labels: int,

@@ -27,6 +27,7 @@ from ._perforation import perforated_splits
 from ._regions import (
     Sweep,
     basin_map,
+    below_levels,
     cut_pieces,
     fill_islands,
     interior_levels,
@@ -352,14 +353,16 @@ def _delineate(params: SegmentParams, sweep: Sweep, hier, image: _Image,
         level_rank = np.minimum(sweep.rank_of_level(cut), close_rank)
     cores = tree.core[hier.node[:n_ch]]
     fine = image.smoothed(fine_sigma)
+    basins = basin_map(sweep, cores, n_ch + 1)
     interior = None
     if params.region == "basin":
-        # Each chamber's inside, from its breach region (a pore in a matrix: from the part of
-        # it in the interior class; see wall_levels).
+        # Each chamber's inside, from its breach region (its basin below its close level at
+        # the detection scale; a pore in a matrix: the part of it in the interior class, see
+        # wall_levels).
         interior = interior_levels(
-            nested_map(sweep, hier.node[:n_ch], close_rank, ids[:n_ch]), fine, n_ch,
+            below_levels(basins, sweep.values.reshape(basins.shape),
+                         sweep.level_of_rank(close_rank)), fine, n_ch,
             class_split(fine, None if outside is None else ~outside).at(cores, fine.shape))
-    basins = basin_map(sweep, cores, n_ch + 1)
     cleared, basin_levels = remove_walls(basins, fine, n_ch + 1, connectivity, cores=cores,
                                          interior=interior)
     del fine, basins  # memory: full-size arrays are dropped as soon as they are used up
