@@ -176,3 +176,37 @@ def test_interior_medians_of_whole_regions_and_their_part_below_a_level(dtype):
             assert got.pore[label - 1] == under[(under.size - 1) // 2]
         else:
             assert np.isnan(got.pore[label - 1])
+
+
+def _haar_detail_std(kernel: np.ndarray, block: int) -> float:
+    """Standard deviation of the all-high-pass Haar detail of white noise (unit variance)
+    filtered by ``kernel``, at block size ``block``: the norm of the combined weights."""
+    haar = np.kron(np.array([[1.0, -1.0], [-1.0, 1.0]]), np.ones((block, block)))
+    haar /= 2.0 * block * block  # orthonormal detail of the block means
+    combined = ndi.convolve(np.pad(kernel, 2 * block), haar, mode="constant")
+    return float(np.sqrt(np.sum(combined ** 2)))
+
+
+@pytest.mark.parametrize("width", [0.0, 1.0])
+def test_noise_levels_match_the_variance_of_filtered_white_noise(width):
+    # Reference: the variance of a linear filter of white noise is the sum of its squared
+    # weights (any probability text); MAD / 0.6745 estimates a Gaussian's standard
+    # deviation (Donoho & Johnstone 1994); one estimate per wavelet level (Johnstone &
+    # Silverman 1997). White noise: both levels agree; Gaussian-filtered noise (correlated):
+    # the coarser level is markedly larger, as predicted by the weights.
+    from cavitas.segment._noise import noise_level
+
+    field = np.random.default_rng(7).normal(0, 1.0, (1024, 1024))
+    delta = np.zeros((17, 17))
+    delta[8, 8] = 1.0
+    kernel = ndi.gaussian_filter(delta, width) if width else delta
+    if width:
+        field = ndi.gaussian_filter(field, width)
+    levels = noise_level(field)
+    assert levels.pixel == pytest.approx(_haar_detail_std(kernel, 1), rel=0.03)
+    assert levels.two_pixel == pytest.approx(2 * _haar_detail_std(kernel, 2), rel=0.03)
+    if width:
+        assert levels.ratio > 2 and levels.effective == pytest.approx(levels.two_pixel)
+    else:
+        assert levels.ratio == pytest.approx(1.0, abs=0.03)
+        assert levels.effective == levels.pixel

@@ -8,7 +8,16 @@ The automatic significance rule
    ``2**(ndim/2)`` so that white noise keeps its variance). This is the estimate of
    :func:`skimage.restoration.estimate_sigma` with the Haar wavelet, without needing
    PyWavelets. It is robust to the sparse edges of walls, and the alternating sum cancels
-   slow (linear) illumination changes.
+   slow (linear) illumination changes. **Correlated noise** (EM, resampled or deconvolved
+   data) has more power at coarser scales than this finest level shows, and the white-noise
+   null then lies far below what the noise really makes. The same estimate one wavelet
+   level up (on 2x2 block means, scaled back by ``2**(ndim/2)``) equals it for white noise;
+   level-dependent estimates are those of Johnstone & Silverman (1997). Their ratio ``c``
+   also grows with fine structure (thin walls in the blocks): 1.44 for 2-pixel walls every
+   12 pixels at noise 0.1 of the contrast, 1.08 at noise 0.3 (invented sheets), against 2.4
+   on the public EM slices (textured cytoplasm) and 2.0 on the confocal embryo. The noise
+   level used is ``s · k(c)``, with ``k = 1`` up to ``c = 1.5`` (structure alone explains
+   it), ``k = c`` from ``c = 2`` on, linear between (:func:`correlation_factor`).
 2. **Null**: persistence scales with the noise amplitude, so the largest cavity
    persistence that noise alone produces at smoothing ``σ`` is ``s · P(σ)``, where ``P``
    is measured once on white noise of unit variance, smoothed the same way, of the same
@@ -32,6 +41,8 @@ References
 ----------
 Donoho, D. L., & Johnstone, I. M. (1994). Ideal spatial adaptation by wavelet shrinkage.
 Biometrika 81(3), 425-455. doi:10.1093/biomet/81.3.425
+Johnstone, I. M., & Silverman, B. W. (1997). Wavelet threshold estimators for data with
+correlated noise. J. R. Statist. Soc. B 59(2), 319-351. doi:10.1111/1467-9868.00071
 Cohen-Steiner, D., Edelsbrunner, H., & Harer, J. (2007). Stability of persistence diagrams.
 Discrete Comput. Geom. 37, 103-120. doi:10.1007/s00454-006-1276-5
 """
@@ -40,14 +51,16 @@ from __future__ import annotations
 
 import functools
 import math
+from dataclasses import dataclass
 
 import numpy as np
 from scipy import ndimage as ndi
 
 from ..io._memory import work_dtype  # the dtype policy lives beside the memory estimate
 
-__all__ = ["NULL_SEEDS", "QUANTISATION_SIGMA", "estimate_noise", "null_persistence", "smooth",
-           "smoothed_noise_sigma", "work_dtype"]
+__all__ = ["NULL_SEEDS", "QUANTISATION_SIGMA", "NoiseLevel", "correlation_factor",
+           "estimate_noise", "noise_level", "null_persistence", "smooth", "smoothed_noise_sigma",
+           "work_dtype"]
 
 #: Standard deviation of rounding to integers (uniform over one step: 1/sqrt(12)); the
 #: noise floor of integer images, whose MAD can be 0 where the signal is flat.
@@ -74,6 +87,77 @@ def estimate_noise(image: np.ndarray) -> float:
         detail = np.diff(detail, axis=axis)
     detail /= 2.0 ** (detail.ndim / 2.0)
     return float(np.median(np.abs(detail)) / 0.6745)
+
+
+#: Ratio of the two wavelet levels' estimates up to which fine structure explains it.
+CORRELATION_START = 1.5
+#: Ratio from which the coarser level's estimate is used as it is.
+CORRELATION_FULL = 2.0
+
+
+@dataclass(frozen=True)
+class NoiseLevel:
+    """Noise standard deviation at the pixel scale and one wavelet level up."""
+
+    pixel: float      # finest-level wavelet MAD (white-noise equivalent at the pixel scale)
+    two_pixel: float  # the same on 2x2(x2) block means, scaled back by 2**(ndim/2)
+
+    @property
+    def ratio(self) -> float:
+        """``two_pixel / pixel``: 1 for white noise, more for correlated noise or texture."""
+        return self.two_pixel / self.pixel if self.pixel > 0 else 1.0
+
+    @property
+    def effective(self) -> float:
+        """The level the null is scaled by: ``pixel · correlation_factor(ratio)``."""
+        return self.pixel * correlation_factor(self.ratio)
+
+
+def correlation_factor(ratio: float) -> float:
+    """How much of the coarser level's excess counts as noise (see the module notes).
+
+    Examples
+    --------
+    >>> correlation_factor(1.2), correlation_factor(1.75), correlation_factor(2.4)
+    (1.0, 1.375, 2.4)
+    """
+    if ratio <= CORRELATION_START:
+        return 1.0
+    if ratio >= CORRELATION_FULL:
+        return float(ratio)
+    weight = (ratio - CORRELATION_START) / (CORRELATION_FULL - CORRELATION_START)
+    return float(1.0 + weight * (ratio - 1.0))
+
+
+def noise_level(image: np.ndarray) -> NoiseLevel:
+    """Noise at the pixel scale and one wavelet level up (:class:`NoiseLevel`).
+
+    Examples
+    --------
+    >>> rng = np.random.default_rng(0)
+    >>> white = noise_level(rng.normal(0, 2.0, (256, 256)))
+    >>> round(white.pixel, 1), round(white.ratio, 1), round(white.effective, 1)
+    (2.0, 1.0, 2.0)
+    >>> from scipy import ndimage as ndi
+    >>> correlated = noise_level(ndi.gaussian_filter(rng.normal(0, 1.0, (256, 256)), 1.0))
+    >>> bool(correlated.ratio > 2)
+    True
+    """
+    pixel = estimate_noise(image)
+    crop = _central_crop(np.asarray(image), _NOISE_VOXELS)
+    blocks = _block_means(crop.astype(np.float64, copy=False), 2)
+    two_pixel = estimate_noise(blocks) * 2.0 ** (blocks.ndim / 2.0) if min(blocks.shape) >= 2 \
+        else pixel
+    return NoiseLevel(pixel, float(two_pixel))
+
+
+def _block_means(image: np.ndarray, factor: int) -> np.ndarray:
+    """Means over non-overlapping ``factor``-wide blocks (a remainder at the end is dropped)."""
+    trimmed = image[tuple(slice(0, (n // factor) * factor) for n in image.shape)]
+    split: list[int] = []
+    for n in trimmed.shape:
+        split += [n // factor, factor]
+    return trimmed.reshape(split).mean(axis=tuple(range(1, 2 * trimmed.ndim, 2)))
 
 
 def smooth(image: np.ndarray, sigma_voxels: tuple[float, ...], *,

@@ -157,9 +157,12 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
     tell = stage or (lambda text: None)
 
     tell("noise level")
-    noise = _noise.estimate_noise(raw)
+    levels = _noise.noise_level(raw)
+    pixel_noise = levels.pixel
     if np.issubdtype(vol.dtype, np.integer):  # quantisation noise at least (uniform, 1 step)
-        noise = max(noise, _noise.QUANTISATION_SIGMA)
+        pixel_noise = max(pixel_noise, _noise.QUANTISATION_SIGMA)
+    # correlated noise or texture: the null scales with the noise one wavelet level up
+    noise = pixel_noise * _noise.correlation_factor(levels.ratio)
     # integers: the same figures as in float64, without a float64 copy of the image
     lo, hi = np.percentile(raw if raw.dtype.kind in "iu" else raw.astype(np.float64),
                            [0.5, 99.5])
@@ -211,6 +214,8 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
     timings["total"] = time.perf_counter() - started
     chosen = {
         "noise_sigma": noise,
+        "noise_pixel_sigma": pixel_noise,
+        "noise_level_ratio": levels.ratio,
         "threshold": tau,
         "robust_range": robust_range,
         "smooth_sigma": float((sig * spacing_arr).max()),
