@@ -108,8 +108,13 @@ def measured_regions(seg: Any, *, mask: np.ndarray | None = None,
         else:  # ints and flags stay exact; a blank where nothing was measured
             added[name] = np.array([values[r].item() if r >= 0 else None for r in rows],
                                    dtype=object)
-    chamber_rows = np.isin(measured["label"], regions["label"][regions["kind"] == "chamber"])
-    figures = global_figures(measured.select(chamber_rows), labels=seg.labels,
+    # Global figures describe whole regions: those touching the border (kept with
+    # keep_border) are listed and labelled but left out (border_note says so).
+    whole = regions["label"][(regions["kind"] == "chamber") & ~regions["touches_border"]]
+    chamber_rows = np.isin(measured["label"], whole)
+    whole_labels = np.where(np.isin(seg.labels, whole), seg.labels, 0) if (
+        len(whole) < int((regions["kind"] == "chamber").sum())) else seg.labels
+    figures = global_figures(measured.select(chamber_rows), labels=whole_labels,
                              spacing=volume.spacing, unit=volume.unit, roi=mask)
     figures["noise_sigma"] = seg.noise
     figures["persistence_threshold"] = seg.threshold
@@ -218,7 +223,8 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
                 spacing=volume.spacing, unit=volume.unit, regions=regions,
                 diagram=seg.diagram, kept=seg.kept, threshold=seg.threshold,
                 params=seg.params, figures=figures, title=source.name, source=source,
-                notes=[n for n in (threshold_basis(seg.params),) if n], force=force)
+                notes=[n for n in (threshold_basis(seg.params), border_note(seg.regions)) if n],
+                force=force)
         tick = done("report", tick)
         summary = _summary(seg, source, figures, written)
         record = {
@@ -325,6 +331,27 @@ def threshold_basis(params: dict[str, Any]) -> str | None:
             "uncertain (see their margin).")
 
 
+def border_note(regions: Any) -> str | None:
+    """One sentence on labelled regions that touch the border (None when there are none).
+
+    Examples
+    --------
+    >>> from cavitas._table import Table
+    >>> rows = Table({"kind": np.array(["chamber", "chamber", "cut"], object),
+    ...               "touches_border": np.array([False, True, True])})
+    >>> border_note(rows).split(":")[0]
+    '1 labelled region touches the scan border'
+    """
+    if not len(regions):
+        return None
+    n = int(np.count_nonzero((regions["kind"] == "chamber") & regions["touches_border"]))
+    if n == 0:
+        return None
+    return (f"{n} labelled region{'s touch' if n > 1 else ' touches'} the scan border: "
+            f"{'they are' if n > 1 else 'it is'} listed (touches_border) but left out of the "
+            "global figures (porosity, count, mean size).")
+
+
 def _summary(seg: Any, source: Path, figures: dict[str, Any],
              written: dict[str, Path]) -> dict[str, Any]:
     kinds = seg.regions["kind"] if len(seg.regions) else np.array([], object)
@@ -343,6 +370,7 @@ def _summary(seg: Any, source: Path, figures: dict[str, Any],
         "unit": seg.volume.unit,
         "outputs": {k: str(v) for k, v in written.items()},
         "threshold_basis": threshold_basis(seg.params),
+        "border_note": border_note(seg.regions),
         "message": ("no region passed the selection; empty outputs were written"
                     if n_regions == 0 else f"{n_regions} regions found"),
         "caution": RESEARCH_ONLY,

@@ -269,8 +269,45 @@ def test_border_cut_regions_are_listed_and_kept_on_request():
     cut = rows.select(rows["kind"] == "cut")
     assert cut["touches_border"].all() and len(cut) >= 2  # the U's inside, the medium
     assert seg.labels[5, 20] == 0
+    # keep_border: the U's inside is a chamber flagged touches_border, delineated like the
+    # ring's inside: it equals the scipy.ndimage.label component of the noise-free inside
+    # (the faces are given back to it); the medium around both is not a region.
     kept = segment(img, min_persistence=0.5, keep_border=True)
-    assert kept.labels[5, 20] in set(cut["label"].tolist())
+    inside, _ = ndi.label(img == 0)
+    u_label = kept.labels[5, 20]
+    rows = kept.regions
+    assert u_label > 0 and rows["touches_border"][rows["label"] == u_label].all()
+    assert np.array_equal(kept.labels == u_label, inside == inside[5, 20])
+    ring = kept.labels[8, 6]
+    assert ring > 0 and not rows["touches_border"][rows["label"] == ring].any()
+    assert kept.labels[18, 28] == 0 and int(kept.labels.max()) == 2
+
+
+def test_keep_border_labels_cells_cut_one_voxel_short_of_the_face():
+    # Hand-made geometry: a 4 x 4 grid of square cells (walls 2 voxels, bright) cropped
+    # through the outer cells, so 12 of them are cut by the faces (they would stop one
+    # voxel short of the face if the face were taken as a wall). Reference:
+    # scipy.ndimage.label of the noise-free cell interiors. Default: the cut cells are not
+    # in the label map; keep_border: every cell is, the cut ones flagged, each equal to its
+    # scipy component (the face voxels included).
+    img = np.zeros((50, 50))
+    for w in (8, 24, 40):
+        img[:, w:w + 2] = 1.0
+        img[w:w + 2, :] = 1.0
+    cells, n = ndi.label(img == 0)
+    assert n == 16
+    default = segment(img, min_persistence=0.5)
+    whole = [c for c in range(1, n + 1)
+             if not np.isin(c, np.concatenate([cells[0], cells[-1], cells[:, 0], cells[:, -1]]))]
+    assert int(default.labels.max()) == len(whole)
+    kept = segment(img, min_persistence=0.5, keep_border=True)
+    assert int(kept.labels.max()) == n
+    for c in range(1, n + 1):
+        labels_here = np.unique(kept.labels[cells == c])
+        assert labels_here.size == 1 and labels_here[0] > 0
+        assert np.array_equal(kept.labels == labels_here[0], cells == c)
+    touching = kept.regions["touches_border"][kept.regions["kind"] == "chamber"]
+    assert int(touching.sum()) == n - len(whole)
 
 
 def test_enclosure_holds_its_chambers_and_inner_walls():

@@ -183,8 +183,9 @@ def run(args: argparse.Namespace) -> int:
         print(f"  noise σ {summary['noise']:.4g}, persistence threshold "
               f"{summary['threshold']:.4g} (intensity units), smoothing σ "
               f"{summary['smooth_sigma']:.3g} {unit}")
-        if summary["threshold_basis"]:
-            print(f"  {summary['threshold_basis']}")
+        for note in (summary["threshold_basis"], summary["border_note"]):
+            if note:
+                print(f"  {note}")
         if summary["porosity"] is not None and summary["regions"]:
             vunit = f"{unit}{'³' if len(summary['shape']) == 3 else '²'}"
             print(f"  volume fraction of the regions (closed porosity) "

@@ -62,7 +62,8 @@ _SLAB = 16
 #: Voxels per chunk of the flat passes of :func:`_label_quantile_f32`.
 _CHUNK = 1 << 22
 
-__all__ = ["Interior", "Sweep", "basin_map", "below_levels", "cut_pieces", "fill_islands",
+__all__ = ["Interior", "Sweep", "basin_map", "below_levels", "cut_pieces", "face_labels",
+           "fill_islands",
            "interior_levels", "label_counts", "nested_map", "remove_walls"]
 
 
@@ -334,6 +335,23 @@ def largest_pieces(labels: np.ndarray, n_labels: int, connectivity: int,
     kept = keep_largest_pieces(labels.reshape(grid_shape3(labels.shape)),
                                _backward_offsets(labels.ndim, dual), n_labels, prefer)
     return kept.reshape(labels.shape).astype(labels.dtype, copy=False)
+
+
+def face_labels(labels: np.ndarray) -> np.ndarray:
+    """Distinct labels on the faces of the array (0 included when present).
+
+    Examples
+    --------
+    >>> face_labels(np.array([[0, 0, 0], [0, 3, 4], [0, 0, 4]])).tolist()
+    [0, 4]
+    """
+    faces = []
+    for axis in range(labels.ndim):
+        for end in (0, -1):
+            index = [slice(None)] * labels.ndim
+            index[axis] = end
+            faces.append(np.unique(labels[tuple(index)]))
+    return np.unique(np.concatenate(faces))
 
 
 def label_counts(labels: np.ndarray, minlength: int = 0) -> np.ndarray:

@@ -168,13 +168,15 @@ def build_table(*, vol: Volume, sign: float, tree: Any, hier: Any, sweep: Any,
     marks chambers that became border-cut pieces. Final ids: chambers ``1..K``,
     enclosures ``K+1..K+E``, border-cut regions after.
     """
-    from ._regions import label_counts
+    from ._regions import face_labels, label_counts
 
     n_ch, n_enc = hier.n_chambers, hier.n_enclosures
     voxel = vol.voxel_volume
     counts = label_counts(work, n_ch + n_cut + 1)
     own = counts[1:n_ch + 1]
-    ok = ~dropped  # chambers open to the border were moved to the border-cut pieces
+    # chambers open to the border were moved to the border-cut pieces; a chamber left with
+    # no voxel of its own (its basin all wall) is no region
+    ok = ~dropped & (own > 0)
     if params.min_volume is not None:
         ok &= own * voxel >= params.min_volume
     if params.max_volume is not None:
@@ -242,6 +244,8 @@ def build_table(*, vol: Volume, sign: float, tree: Any, hier: Any, sweep: Any,
     level = np.concatenate([sign * ch_level, sign * sweep.level_of_rank(enc_close), nan_m])
     touches = np.zeros(n, bool)
     touches[k + n_enc:] = True
+    on_faces = face_labels(all_labels)
+    touches[on_faces[(on_faces > 0) & (on_faces <= k)] - 1] = True  # keep_border chambers
     kind = np.array(["chamber"] * k + ["enclosure"] * n_enc + ["cut"] * m, dtype=object)
     unit = vol.unit
     vunit = f"{unit}{'²' if vol.ndim == 2 else '³'}" if unit != "voxel" else "voxel"

@@ -144,7 +144,7 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
         raise ParameterError(f"Image {vol.name} holds NaN or infinite values; "
                              "replace them (or mask them out) first.")
     image = _Image(raw, 1.0 if params.walls == "bright" else -1.0,
-                   _noise.work_dtype(raw.dtype))
+                   _noise.work_dtype(raw.dtype), closed_border=params.keep_border)
     if mask is None and params.mask:
         from ..io import read
 
@@ -180,7 +180,8 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
     sweep = Sweep(smoothed, order, tree, connectivity, outside)
     significant = select_nodes(tree.persistence, tree.parent, tau, params.top,
                                eligible=det.eligible)
-    keep = split_rule(tree, significant, params.split_fraction)
+    keep = split_rule(tree, significant, params.split_fraction,
+                      on_faces(tree.breach, smoothed.shape) if image.closed_border else None)
     hier = prune(tree, keep, sweep.rank, sweep.level_of_rank, tau)
 
     # never delineate on an image smoother than the one the regions were detected on
@@ -252,9 +253,85 @@ class _Image(NamedTuple):
     data: np.ndarray
     sign: float  # 1 for bright walls, -1 for dark: smoothed images have walls high
     dtype: np.dtype
+    closed_border: bool = False  # keep_border: the array's faces act as a wall
 
     def smoothed(self, sigma: np.ndarray) -> np.ndarray:
-        return _noise.smooth(self.data, tuple(sigma), dtype=self.dtype, sign=self.sign)
+        out = _noise.smooth(self.data, tuple(sigma), dtype=self.dtype, sign=self.sign)
+        if self.closed_border:
+            close_faces(out)
+        return out
+
+    def sampled(self, roi: np.ndarray | None) -> np.ndarray | None:
+        """The voxels intensity statistics are taken on: the ROI, less closed faces."""
+        if not self.closed_border:
+            return roi
+        inner = np.ones(self.data.shape, bool) if roi is None else roi.copy()
+        for axis in range(inner.ndim):
+            index = [slice(None)] * inner.ndim
+            for end in (0, -1):
+                index[axis] = end
+                inner[tuple(index)] = False
+        return inner
+
+
+def close_faces(image: np.ndarray) -> None:
+    """Raise the outermost voxel layer of ``image`` to its maximum, in place.
+
+    With the faces a wall, a cell cut by the border is enclosed like any other and is
+    detected and delineated the same way (``keep_border``); :func:`reopen_faces` gives the
+    face voxels back to the regions afterwards.
+
+    Examples
+    --------
+    >>> img = np.arange(9.0).reshape(3, 3)
+    >>> close_faces(img); img.tolist()
+    [[8.0, 8.0, 8.0], [8.0, 4.0, 8.0], [8.0, 8.0, 8.0]]
+    """
+    top = image.max()
+    for axis in range(image.ndim):
+        for end in (0, -1):
+            index = [slice(None)] * image.ndim
+            index[axis] = end
+            image[tuple(index)] = top
+
+
+def on_faces(flat_index: np.ndarray, shape: tuple[int, ...]) -> np.ndarray:
+    """Whether each flat index (-1: none) lies on a face of an array of ``shape``.
+
+    Examples
+    --------
+    >>> on_faces(np.array([0, 4, 7, -1]), (3, 3)).tolist()
+    [True, False, True, False]
+    """
+    valid = flat_index >= 0
+    coords = np.unravel_index(np.where(valid, flat_index, 0), shape)
+    face = np.zeros(flat_index.shape, bool)
+    for c, n in zip(coords, shape, strict=True):
+        face |= (c == 0) | (c == n - 1)
+    return face & valid
+
+
+def reopen_faces(labels: np.ndarray) -> None:
+    """Give each face voxel the label of its neighbour one layer in, in place.
+
+    The inverse of :func:`close_faces` for the label map: regions reach the faces again
+    (corners and edges follow from one axis after another).
+
+    Examples
+    --------
+    >>> lab = np.array([[0, 0, 0, 0], [0, 1, 2, 0], [0, 1, 2, 0], [0, 0, 0, 0]])
+    >>> reopen_faces(lab); lab.tolist()
+    [[1, 1, 2, 2], [1, 1, 2, 2], [1, 1, 2, 2], [1, 1, 2, 2]]
+    """
+    for axis in range(labels.ndim):
+        if labels.shape[axis] < 3:
+            continue
+        for end, inner in ((0, 1), (-1, -2)):
+            face = [slice(None)] * labels.ndim
+            face[axis] = end
+            near = list(face)
+            near[axis] = inner
+            labels[tuple(face)] = labels[tuple(near)]
 
 
 def _detect(image: _Image, params: SegmentParams, *, noise: float, robust_range: float,
@@ -291,8 +368,10 @@ def _detect(image: _Image, params: SegmentParams, *, noise: float, robust_range:
         eligible = gap = None
         auto = None
         if params.automatic:
-            eligible = eligible_nodes(tree, smoothed, roi,
+            eligible = eligible_nodes(tree, smoothed, image.sampled(roi),
                                       _noise.smoothed_noise_sigma(noise, tuple(sig)))
+            if image.closed_border:  # a breach on the closed faces: the specimen as a whole
+                eligible &= ~on_faces(tree.breach, smoothed.shape)
             gap = find_gap(pers[eligible], floor)
             auto = gap if gap is not None else params.safety * floor
         tau = persistence_threshold(auto=auto, absolute=params.min_persistence,
@@ -367,7 +446,8 @@ def _delineate(params: SegmentParams, sweep: Sweep, hier, image: _Image,
         interior = interior_levels(
             below_levels(basins, sweep.values.reshape(basins.shape),
                          sweep.level_of_rank(close_rank)), fine, n_ch,
-            class_split(fine, None if outside is None else ~outside).at(cores, fine.shape))
+            class_split(fine, image.sampled(None if outside is None else ~outside)).at(
+                cores, fine.shape))
     cleared, basin_levels = remove_walls(basins, fine, n_ch + 1, connectivity, cores=cores,
                                          interior=interior)
     del fine, basins  # memory: full-size arrays are dropped as soon as they are used up
@@ -405,4 +485,61 @@ def _delineate(params: SegmentParams, sweep: Sweep, hier, image: _Image,
     enclosure_map = None
     if hier.n_enclosures:
         enclosure_map = nested_map(sweep, hier.node[n_ch:], enclosure_rank, ids[n_ch:])
+    if image.closed_border:
+        reopen_faces(work)
+        if enclosure_map is not None:
+            reopen_faces(enclosure_map)
+        open_cut |= medium_at_faces(work, n_ch)
     return work, n_cut, open_cut, nested, used_level, enclosure_map
+
+
+#: Share of its boundary on the faces from which a region larger than every whole chamber
+#: is medium; with no whole chamber to compare with, the share alone decides at
+#: :data:`MEDIUM_FACE_SHARE_ALONE`.
+MEDIUM_FACE_SHARE = 0.25
+MEDIUM_FACE_SHARE_ALONE = 0.5
+
+
+def medium_at_faces(labels: np.ndarray, n_chambers: int) -> np.ndarray:
+    """Chambers on the closed faces that are the medium around the specimen, not cells.
+
+    With the faces closed (``keep_border``), the medium around a specimen (the empty
+    surround of an embryo, the liquid around a foam) is enclosed by the faces too. A cell
+    cut by the border is part of a cell, so at most about as large as a whole one, and
+    most of its boundary is wall (a cell cut in half: about 0.4 on the faces, a corner
+    piece about 0.5); the medium is larger and lines the faces. Medium: larger than every
+    whole chamber with more than :data:`MEDIUM_FACE_SHARE` of its boundary voxels on the
+    faces; with no whole chamber, more than :data:`MEDIUM_FACE_SHARE_ALONE` on the faces.
+
+    Examples
+    --------
+    >>> lab = np.zeros((12, 12), int); lab[:, 9:] = 5  # 5 lines the right face
+    >>> for i, (y, x) in enumerate([(1, 1), (1, 5), (5, 1), (5, 5)]):
+    ...     lab[y:y + 3, x:x + 3] = i + 1  # whole cells
+    >>> lab[10:, 1:5] = 6  # a cell cut by the bottom face
+    >>> medium_at_faces(lab, 6).tolist()
+    [False, False, False, False, True, False]
+    """
+    counts = label_counts(labels, n_chambers + 1)[1:n_chambers + 1]
+    face = np.zeros(labels.shape, bool)
+    edge = np.zeros(labels.shape, bool)
+    for axis in range(labels.ndim):
+        index = [slice(None)] * labels.ndim
+        for end in (0, -1):
+            index[axis] = end
+            face[tuple(index)] = True
+        lo, hi = list(index), list(index)
+        lo[axis], hi[axis] = slice(None, -1), slice(1, None)
+        differs = labels[tuple(lo)] != labels[tuple(hi)]
+        edge[tuple(lo)] |= differs
+        edge[tuple(hi)] |= differs
+    region = labels.ravel()
+    n_face = np.bincount(region, weights=face.ravel(), minlength=n_chambers + 1)
+    n_edge = np.bincount(region, weights=(edge & ~face).ravel(), minlength=n_chambers + 1)
+    n_face, n_edge = n_face[1:n_chambers + 1], n_edge[1:n_chambers + 1]
+    on_faces = n_face > 0
+    share = n_face / np.maximum(n_face + n_edge, 1)
+    whole = counts[~on_faces & (counts > 0)]
+    if whole.size == 0:
+        return on_faces & (share > MEDIUM_FACE_SHARE_ALONE)
+    return on_faces & (counts > whole.max()) & (share > MEDIUM_FACE_SHARE)

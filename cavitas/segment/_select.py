@@ -97,11 +97,14 @@ def select_nodes(persistence: np.ndarray, parent: np.ndarray, threshold: float,
     return close_upward(keep, parent)
 
 
-def split_rule(tree: CavityTree, keep: np.ndarray, fraction: float) -> np.ndarray:
+def split_rule(tree: CavityTree, keep: np.ndarray, fraction: float,
+               open_hosts: np.ndarray | None = None) -> np.ndarray:
     """Drop the kept splits whose inner wall closes below ``fraction`` of the local contrast.
 
     ``keep`` is closed upward (:func:`select_nodes`); the result is not: a dropped node's
-    region joins the chamber it splits from, its kept descendants stay chambers.
+    region joins the chamber it splits from, its kept descendants stay chambers. Nodes in
+    ``open_hosts`` (their breach is on closed faces, ``keep_border``) are no wall to compare
+    with: splits from them are kept, as splits from the outside are.
 
     Examples
     --------
@@ -126,6 +129,8 @@ def split_rule(tree: CavityTree, keep: np.ndarray, fraction: float) -> np.ndarra
         if n == OUTSIDE or parent[n] == OUTSIDE:
             continue
         q = host[parent[n]]
+        if open_hosts is not None and open_hosts[q]:
+            continue
         if breach[n] - core[n] < fraction * (breach[q] - core[n]):
             keep[n] = False
             host[n] = q
