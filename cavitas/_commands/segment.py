@@ -127,8 +127,10 @@ def add_segment_options(p: argparse.ArgumentParser) -> None:
                    help="breach regions: cut at this fraction [0-1] of the way from the core "
                         "level to the chamber's level")
     g.add_argument("--keep-border", action="store_true", default=None,
-                   help="keep regions cut by the scan or ROI border in labels (they are "
-                        "always listed in regions.csv)")
+                   help="label the cells cut by the scan border too: the faces count as a "
+                        "wall, so cut cells are delineated like whole ones; they are flagged "
+                        "(touches_border in regions.csv) and left out of the porosity, count "
+                        "and mean size")
     g = p.add_argument_group("extra outputs")
     g.add_argument("--shells", nargs="?", type=float, const=0.0, metavar="THICKNESS",
                    help="write shells.<ext>: the wall voxels around each region, thickened "
@@ -178,8 +180,10 @@ def run(args: argparse.Namespace) -> int:
         enclosures = summary["enclosures"]
         extra = f", {enclosures} enclosures" if enclosures else ""
         print(f"{args.file}: {summary['message']}{extra}.")
-        print(f"  border-cut regions (listed in regions.csv, "
-              f"{'kept' if params.keep_border else 'not'} in labels): {summary['border_cut']}")
+        if summary["border_cut"] or not params.keep_border:
+            print(f"  border-cut regions (listed in regions.csv, "
+                  f"{'kept' if params.keep_border else 'not'} in labels): "
+                  f"{summary['border_cut']}")
         print(f"  noise σ {summary['noise']:.4g}, persistence threshold "
               f"{summary['threshold']:.4g} (intensity units), smoothing σ "
               f"{summary['smooth_sigma']:.3g} {unit}")

@@ -62,7 +62,10 @@ class SegmentParams:
         Breach regions only: cut at this fraction in [0, 1] of the way from the core level to
         the chamber's level (None = 1).
     keep_border : bool
-        Keep the regions cut by the scan or ROI border in the label map.
+        Label the cells cut by the array's faces too: the faces count as a wall, so cut
+        cells are detected and delineated like whole ones; their rows have
+        ``touches_border`` set (the workflow leaves them out of the global figures). The
+        medium lining the faces is not labelled. Pieces cut by an ROI border stay ``cut``.
     shells : float or None
         Write shells, thickened by this physical distance (0 = touching wall voxels only).
     enclosures : bool
