@@ -534,8 +534,9 @@ def medium_at_faces(labels: np.ndarray, n_chambers: int) -> np.ndarray:
         edge[tuple(lo)] |= differs
         edge[tuple(hi)] |= differs
     region = labels.ravel()
-    n_face = np.bincount(region, weights=face.ravel(), minlength=n_chambers + 1)
-    n_edge = np.bincount(region, weights=(edge & ~face).ravel(), minlength=n_chambers + 1)
+    n_face = np.bincount(region[face.ravel()], minlength=n_chambers + 1)
+    edge &= ~face
+    n_edge = np.bincount(region[edge.ravel()], minlength=n_chambers + 1)
     n_face, n_edge = n_face[1:n_chambers + 1], n_edge[1:n_chambers + 1]
     on_faces = n_face > 0
     share = n_face / np.maximum(n_face + n_edge, 1)
