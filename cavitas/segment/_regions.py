@@ -337,6 +337,21 @@ def largest_pieces(labels: np.ndarray, n_labels: int, connectivity: int,
     return kept.reshape(labels.shape).astype(labels.dtype, copy=False)
 
 
+def face_slices(ndim: int):
+    """Index of each face of an ``ndim``-dimensional array (first and last plane per axis).
+
+    Examples
+    --------
+    >>> [idx for idx in face_slices(1)]
+    [(0,), (-1,)]
+    """
+    for axis in range(ndim):
+        for end in (0, -1):
+            index: list[int | slice] = [slice(None)] * ndim
+            index[axis] = end
+            yield tuple(index)
+
+
 def face_labels(labels: np.ndarray) -> np.ndarray:
     """Distinct labels on the faces of the array (0 included when present).
 
@@ -345,13 +360,7 @@ def face_labels(labels: np.ndarray) -> np.ndarray:
     >>> face_labels(np.array([[0, 0, 0], [0, 3, 4], [0, 0, 4]])).tolist()
     [0, 4]
     """
-    faces = []
-    for axis in range(labels.ndim):
-        for end in (0, -1):
-            index = [slice(None)] * labels.ndim
-            index[axis] = end
-            faces.append(np.unique(labels[tuple(index)]))
-    return np.unique(np.concatenate(faces))
+    return np.unique(np.concatenate([np.unique(labels[f]) for f in face_slices(labels.ndim)]))
 
 
 def label_counts(labels: np.ndarray, minlength: int = 0) -> np.ndarray:

@@ -29,6 +29,7 @@ from ._regions import (
     basin_map,
     below_levels,
     cut_pieces,
+    face_slices,
     fill_islands,
     interior_levels,
     label_counts,
@@ -266,11 +267,8 @@ class _Image(NamedTuple):
         if not self.closed_border:
             return roi
         inner = np.ones(self.data.shape, bool) if roi is None else roi.copy()
-        for axis in range(inner.ndim):
-            index = [slice(None)] * inner.ndim
-            for end in (0, -1):
-                index[axis] = end
-                inner[tuple(index)] = False
+        for face in face_slices(inner.ndim):
+            inner[face] = False
         return inner
 
 
@@ -288,11 +286,8 @@ def close_faces(image: np.ndarray) -> None:
     [[8.0, 8.0, 8.0], [8.0, 4.0, 8.0], [8.0, 8.0, 8.0]]
     """
     top = image.max()
-    for axis in range(image.ndim):
-        for end in (0, -1):
-            index = [slice(None)] * image.ndim
-            index[axis] = end
-            image[tuple(index)] = top
+    for face in face_slices(image.ndim):
+        image[face] = top
 
 
 def on_faces(flat_index: np.ndarray, shape: tuple[int, ...]) -> np.ndarray:
