@@ -110,10 +110,12 @@ def measured_regions(seg: Any, *, mask: np.ndarray | None = None,
                                    dtype=object)
     # Global figures describe whole regions: those touching the border (kept with
     # keep_border) are listed and labelled but left out (border_note says so).
-    whole = regions["label"][(regions["kind"] == "chamber") & ~regions["touches_border"]]
-    chamber_rows = np.isin(measured["label"], whole)
-    whole_labels = np.where(np.isin(seg.labels, whole), seg.labels, 0) if (
-        len(whole) < int((regions["kind"] == "chamber").sum())) else seg.labels
+    chambers = regions["kind"] == "chamber"
+    on_border = chambers & regions["touches_border"]
+    touching = regions["label"][on_border]
+    chamber_rows = np.isin(measured["label"], regions["label"][chambers & ~on_border])
+    whole_labels = (np.where(np.isin(seg.labels, touching), 0, seg.labels) if len(touching)
+                    else seg.labels)
     figures = global_figures(measured.select(chamber_rows), labels=whole_labels,
                              spacing=volume.spacing, unit=volume.unit, roi=mask)
     figures["noise_sigma"] = seg.noise

@@ -82,7 +82,12 @@ def estimate_noise(image: np.ndarray) -> float:
     >>> round(estimate_noise(rng.normal(0, 2.0, (128, 128))), 1)
     2.0
     """
-    detail = _central_crop(np.asarray(image), _NOISE_VOXELS).astype(np.float64)
+    return _haar_mad(_central_crop(np.asarray(image), _NOISE_VOXELS).astype(np.float64))
+
+
+def _haar_mad(values: np.ndarray) -> float:
+    """MAD / 0.6745 of the finest all-high-pass Haar details of ``values`` (float64)."""
+    detail = values
     for axis in range(detail.ndim):
         detail = np.diff(detail, axis=axis)
     detail /= 2.0 ** (detail.ndim / 2.0)
@@ -129,8 +134,11 @@ def correlation_factor(ratio: float) -> float:
     return float(1.0 + weight * (ratio - 1.0))
 
 
-def noise_level(image: np.ndarray) -> NoiseLevel:
+def noise_level(image: np.ndarray, floor: float = 0.0) -> NoiseLevel:
     """Noise at the pixel scale and one wavelet level up (:class:`NoiseLevel`).
+
+    ``floor`` bounds the pixel level from below (:data:`QUANTISATION_SIGMA` for integer
+    data, whose MAD can be 0 where the signal is flat).
 
     Examples
     --------
@@ -143,12 +151,12 @@ def noise_level(image: np.ndarray) -> NoiseLevel:
     >>> bool(correlated.ratio > 2)
     True
     """
-    pixel = estimate_noise(image)
-    crop = _central_crop(np.asarray(image), _NOISE_VOXELS)
-    blocks = _block_means(crop.astype(np.float64, copy=False), 2)
-    two_pixel = estimate_noise(blocks) * 2.0 ** (blocks.ndim / 2.0) if min(blocks.shape) >= 2 \
-        else pixel
-    return NoiseLevel(pixel, float(two_pixel))
+    crop = _central_crop(np.asarray(image), _NOISE_VOXELS).astype(np.float64)
+    pixel = max(_haar_mad(crop), floor)
+    blocks = _block_means(crop, 2)
+    two_pixel = (_haar_mad(blocks) * 2.0 ** (blocks.ndim / 2.0) if min(blocks.shape) >= 2
+                 else pixel)
+    return NoiseLevel(pixel, two_pixel)
 
 
 def _block_means(image: np.ndarray, factor: int) -> np.ndarray:

@@ -63,8 +63,8 @@ _SLAB = 16
 _CHUNK = 1 << 22
 
 __all__ = ["Interior", "Sweep", "basin_map", "below_levels", "cut_pieces", "face_labels",
-           "fill_islands",
-           "interior_levels", "label_counts", "nested_map", "remove_walls"]
+           "face_slices", "fill_islands", "interior_levels", "label_counts", "medium_at_faces",
+           "nested_map", "remove_walls", "reopen_faces"]
 
 
 class Sweep:
@@ -337,16 +337,17 @@ def largest_pieces(labels: np.ndarray, n_labels: int, connectivity: int,
     return kept.reshape(labels.shape).astype(labels.dtype, copy=False)
 
 
-def face_slices(ndim: int):
-    """Index of each face of an ``ndim``-dimensional array (first and last plane per axis).
+def face_slices(ndim: int, depth: int = 0):
+    """Index of each face of an ``ndim``-dimensional array (first and last plane per axis),
+    or of the plane ``depth`` layers inside it.
 
     Examples
     --------
-    >>> [idx for idx in face_slices(1)]
-    [(0,), (-1,)]
+    >>> list(face_slices(1)), list(face_slices(1, depth=1))
+    ([(0,), (-1,)], [(1,), (-2,)])
     """
     for axis in range(ndim):
-        for end in (0, -1):
+        for end in (depth, -1 - depth):
             index: list[int | slice] = [slice(None)] * ndim
             index[axis] = end
             yield tuple(index)
@@ -361,6 +362,70 @@ def face_labels(labels: np.ndarray) -> np.ndarray:
     [0, 4]
     """
     return np.unique(np.concatenate([np.unique(labels[f]) for f in face_slices(labels.ndim)]))
+
+
+def reopen_faces(labels: np.ndarray) -> None:
+    """Give each face voxel the label of its neighbour one layer in, in place.
+
+    The label map's side of closing the faces (``keep_border``, where the faces were a
+    wall): regions reach the faces again; edges and corners follow from one axis after
+    another.
+
+    Examples
+    --------
+    >>> lab = np.array([[0, 0, 0, 0], [0, 1, 2, 0], [0, 1, 2, 0], [0, 0, 0, 0]])
+    >>> reopen_faces(lab); lab.tolist()
+    [[1, 1, 2, 2], [1, 1, 2, 2], [1, 1, 2, 2], [1, 1, 2, 2]]
+    """
+    if min(labels.shape) < 3:
+        return
+    for face, near in zip(face_slices(labels.ndim), face_slices(labels.ndim, depth=1),
+                          strict=True):
+        labels[face] = labels[near]
+
+
+#: Share of its boundary voxels on the faces above which a region larger than every whole
+#: chamber is medium, not a cell (:func:`medium_at_faces`).
+MEDIUM_FACE_SHARE = 0.25
+#: The same share when no whole chamber gives a size to compare with.
+MEDIUM_FACE_SHARE_ALONE = 0.5
+
+
+def medium_at_faces(labels: np.ndarray, n_chambers: int) -> np.ndarray:
+    """Chambers on the closed faces that are the medium around the specimen, not cells.
+
+    With the faces closed (``keep_border``), the medium around a specimen (the empty
+    surround of an embryo, the liquid around a foam) is enclosed by the faces too. A cell
+    cut by the border is part of a cell, so at most about as large as a whole one, and
+    most of its boundary is wall (a cell cut in half: about 0.4 on the faces, a corner
+    piece about 0.5); the medium is larger and lines the faces. Medium: larger than every
+    whole chamber with more than :data:`MEDIUM_FACE_SHARE` of its boundary voxels on the
+    faces; with no whole chamber, more than :data:`MEDIUM_FACE_SHARE_ALONE` on the faces.
+
+    Examples
+    --------
+    >>> lab = np.zeros((12, 12), int); lab[:, 9:] = 5  # 5 lines the right face
+    >>> for i, (y, x) in enumerate([(1, 1), (1, 5), (5, 1), (5, 5)]):
+    ...     lab[y:y + 3, x:x + 3] = i + 1  # whole cells
+    >>> lab[10:, 1:5] = 6  # a cell cut by the bottom face
+    >>> medium_at_faces(lab, 6).tolist()
+    [False, False, False, False, True, False]
+    """
+    n = n_chambers + 1
+    counts = label_counts(labels, n)[1:n]
+    face = np.zeros(labels.shape, bool)
+    for f in face_slices(labels.ndim):
+        face[f] = True
+    edge = _meeting_lines(labels)
+    edge &= ~face
+    n_face = np.bincount(labels[face], minlength=n)[1:n]
+    n_edge = np.bincount(labels[edge], minlength=n)[1:n]
+    touching = n_face > 0
+    share = n_face / np.maximum(n_face + n_edge, 1)
+    whole = counts[~touching & (counts > 0)]
+    if whole.size == 0:
+        return touching & (share > MEDIUM_FACE_SHARE_ALONE)
+    return touching & (counts > whole.max()) & (share > MEDIUM_FACE_SHARE)
 
 
 def label_counts(labels: np.ndarray, minlength: int = 0) -> np.ndarray:

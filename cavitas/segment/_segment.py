@@ -33,9 +33,11 @@ from ._regions import (
     fill_islands,
     interior_levels,
     label_counts,
+    medium_at_faces,
     nested_map,
     open_to_border,
     remove_walls,
+    reopen_faces,
 )
 from ._result import Segmentation, build_table
 from ._select import persistence_threshold, select_nodes, split_rule
@@ -144,8 +146,6 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
     if raw.dtype.kind == "f" and not np.isfinite(raw).all():
         raise ParameterError(f"Image {vol.name} holds NaN or infinite values; "
                              "replace them (or mask them out) first.")
-    image = _Image(raw, 1.0 if params.walls == "bright" else -1.0,
-                   _noise.work_dtype(raw.dtype), closed_border=params.keep_border)
     if mask is None and params.mask:
         from ..io import read
 
@@ -153,17 +153,19 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
     roi = None if mask is None else np.asarray(mask, bool)
     if roi is not None and roi.shape != raw.shape:
         raise ParameterError(f"mask has shape {roi.shape}; the image has {raw.shape}.")
+    image = _Image(raw, 1.0 if params.walls == "bright" else -1.0,
+                   _noise.work_dtype(raw.dtype), closed_border=params.keep_border,
+                   statistics_mask=_statistics_mask(roi, raw.shape, params.keep_border))
     outside = None if roi is None else ~roi
     timings: dict[str, float] = {}
     tell = stage or (lambda text: None)
 
     tell("noise level")
-    levels = _noise.noise_level(raw)
-    pixel_noise = levels.pixel
-    if np.issubdtype(vol.dtype, np.integer):  # quantisation noise at least (uniform, 1 step)
-        pixel_noise = max(pixel_noise, _noise.QUANTISATION_SIGMA)
-    # correlated noise or texture: the null scales with the noise one wavelet level up
-    noise = pixel_noise * _noise.correlation_factor(levels.ratio)
+    # integers: quantisation noise at least (uniform, 1 step); correlated noise or
+    # texture: the null scales with the noise one wavelet level up
+    levels = _noise.noise_level(raw, floor=_noise.QUANTISATION_SIGMA if np.issubdtype(
+        vol.dtype, np.integer) else 0.0)
+    noise = levels.effective
     # integers: the same figures as in float64, without a float64 copy of the image
     lo, hi = np.percentile(raw if raw.dtype.kind in "iu" else raw.astype(np.float64),
                            [0.5, 99.5])
@@ -181,8 +183,7 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
     sweep = Sweep(smoothed, order, tree, connectivity, outside)
     significant = select_nodes(tree.persistence, tree.parent, tau, params.top,
                                eligible=det.eligible)
-    keep = split_rule(tree, significant, params.split_fraction,
-                      on_faces(tree.breach, smoothed.shape) if image.closed_border else None)
+    keep = split_rule(tree, significant, params.split_fraction, det.face_breach)
     hier = prune(tree, keep, sweep.rank, sweep.level_of_rank, tau)
 
     # never delineate on an image smoother than the one the regions were detected on
@@ -216,7 +217,7 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
     timings["total"] = time.perf_counter() - started
     chosen = {
         "noise_sigma": noise,
-        "noise_pixel_sigma": pixel_noise,
+        "noise_pixel_sigma": levels.pixel,
         "noise_level_ratio": levels.ratio,
         "threshold": tau,
         "robust_range": robust_range,
@@ -246,6 +247,7 @@ class Detection:
     gap: float | None            # persistence at the diagram's gap (automatic mode), if any
     eligible: np.ndarray | None  # per node: straddles the class split (automatic mode)
     count: int                   # nodes passing every criterion
+    face_breach: np.ndarray | None = None  # per node: breach on the closed faces (keep_border)
 
 
 class _Image(NamedTuple):
@@ -255,6 +257,7 @@ class _Image(NamedTuple):
     sign: float  # 1 for bright walls, -1 for dark: smoothed images have walls high
     dtype: np.dtype
     closed_border: bool = False  # keep_border: the array's faces act as a wall
+    statistics_mask: np.ndarray | None = None  # voxels the class split is taken on
 
     def smoothed(self, sigma: np.ndarray) -> np.ndarray:
         out = _noise.smooth(self.data, tuple(sigma), dtype=self.dtype, sign=self.sign)
@@ -262,14 +265,16 @@ class _Image(NamedTuple):
             close_faces(out)
         return out
 
-    def sampled(self, roi: np.ndarray | None) -> np.ndarray | None:
-        """The voxels intensity statistics are taken on: the ROI, less closed faces."""
-        if not self.closed_border:
-            return roi
-        inner = np.ones(self.data.shape, bool) if roi is None else roi.copy()
-        for face in face_slices(inner.ndim):
-            inner[face] = False
-        return inner
+
+def _statistics_mask(roi: np.ndarray | None, shape: tuple[int, ...],
+                     closed_border: bool) -> np.ndarray | None:
+    """The voxels intensity statistics are taken on: the ROI, less the faces if closed."""
+    if not closed_border:
+        return roi
+    inner = np.ones(shape, bool) if roi is None else roi.copy()
+    for face in face_slices(inner.ndim):
+        inner[face] = False
+    return inner
 
 
 def close_faces(image: np.ndarray) -> None:
@@ -306,29 +311,6 @@ def on_faces(flat_index: np.ndarray, shape: tuple[int, ...]) -> np.ndarray:
     return face & valid
 
 
-def reopen_faces(labels: np.ndarray) -> None:
-    """Give each face voxel the label of its neighbour one layer in, in place.
-
-    The inverse of :func:`close_faces` for the label map: regions reach the faces again
-    (corners and edges follow from one axis after another).
-
-    Examples
-    --------
-    >>> lab = np.array([[0, 0, 0, 0], [0, 1, 2, 0], [0, 1, 2, 0], [0, 0, 0, 0]])
-    >>> reopen_faces(lab); lab.tolist()
-    [[1, 1, 2, 2], [1, 1, 2, 2], [1, 1, 2, 2], [1, 1, 2, 2]]
-    """
-    for axis in range(labels.ndim):
-        if labels.shape[axis] < 3:
-            continue
-        for end, inner in ((0, 1), (-1, -2)):
-            face = [slice(None)] * labels.ndim
-            face[axis] = end
-            near = list(face)
-            near[axis] = inner
-            labels[tuple(face)] = labels[tuple(near)]
-
-
 def _detect(image: _Image, params: SegmentParams, *, noise: float, robust_range: float,
             spacing: np.ndarray, connectivity: int, roi: np.ndarray | None,
             tell: Callable[[str], None]):
@@ -360,13 +342,15 @@ def _detect(image: _Image, params: SegmentParams, *, noise: float, robust_range:
         order, tree = cubical.cavity_sweep(smoothed, walls="bright", connectivity=connectivity,
                                            mask=roi)
         pers = tree.persistence
+        # a breach on the closed faces: the specimen as a whole, not a cavity
+        face_breach = on_faces(tree.breach, smoothed.shape) if image.closed_border else None
         eligible = gap = None
         auto = None
         if params.automatic:
-            eligible = eligible_nodes(tree, smoothed, image.sampled(roi),
+            eligible = eligible_nodes(tree, smoothed, image.statistics_mask,
                                       _noise.smoothed_noise_sigma(noise, tuple(sig)))
-            if image.closed_border:  # a breach on the closed faces: the specimen as a whole
-                eligible &= ~on_faces(tree.breach, smoothed.shape)
+            if face_breach is not None:
+                eligible &= ~face_breach
             gap = find_gap(pers[eligible], floor)
             auto = gap if gap is not None else params.safety * floor
         tau = persistence_threshold(auto=auto, absolute=params.min_persistence,
@@ -382,7 +366,7 @@ def _detect(image: _Image, params: SegmentParams, *, noise: float, robust_range:
                 passing &= eligible
         passing[OUTSIDE] = False
         return Detection(sig, smoothed, order, tree, tau, gap, eligible,
-                         int(np.count_nonzero(passing)))
+                         int(np.count_nonzero(passing)), face_breach)
 
     # Two scales at a time in two threads (smoothing, sort and sweep release the GIL);
     # results are taken in scale order, so the choice is the same as one after the other.
@@ -441,8 +425,7 @@ def _delineate(params: SegmentParams, sweep: Sweep, hier, image: _Image,
         interior = interior_levels(
             below_levels(basins, sweep.values.reshape(basins.shape),
                          sweep.level_of_rank(close_rank)), fine, n_ch,
-            class_split(fine, image.sampled(None if outside is None else ~outside)).at(
-                cores, fine.shape))
+            class_split(fine, image.statistics_mask).at(cores, fine.shape))
     cleared, basin_levels = remove_walls(basins, fine, n_ch + 1, connectivity, cores=cores,
                                          interior=interior)
     del fine, basins  # memory: full-size arrays are dropped as soon as they are used up
@@ -486,56 +469,3 @@ def _delineate(params: SegmentParams, sweep: Sweep, hier, image: _Image,
             reopen_faces(enclosure_map)
         open_cut |= medium_at_faces(work, n_ch)
     return work, n_cut, open_cut, nested, used_level, enclosure_map
-
-
-#: Share of its boundary on the faces from which a region larger than every whole chamber
-#: is medium; with no whole chamber to compare with, the share alone decides at
-#: :data:`MEDIUM_FACE_SHARE_ALONE`.
-MEDIUM_FACE_SHARE = 0.25
-MEDIUM_FACE_SHARE_ALONE = 0.5
-
-
-def medium_at_faces(labels: np.ndarray, n_chambers: int) -> np.ndarray:
-    """Chambers on the closed faces that are the medium around the specimen, not cells.
-
-    With the faces closed (``keep_border``), the medium around a specimen (the empty
-    surround of an embryo, the liquid around a foam) is enclosed by the faces too. A cell
-    cut by the border is part of a cell, so at most about as large as a whole one, and
-    most of its boundary is wall (a cell cut in half: about 0.4 on the faces, a corner
-    piece about 0.5); the medium is larger and lines the faces. Medium: larger than every
-    whole chamber with more than :data:`MEDIUM_FACE_SHARE` of its boundary voxels on the
-    faces; with no whole chamber, more than :data:`MEDIUM_FACE_SHARE_ALONE` on the faces.
-
-    Examples
-    --------
-    >>> lab = np.zeros((12, 12), int); lab[:, 9:] = 5  # 5 lines the right face
-    >>> for i, (y, x) in enumerate([(1, 1), (1, 5), (5, 1), (5, 5)]):
-    ...     lab[y:y + 3, x:x + 3] = i + 1  # whole cells
-    >>> lab[10:, 1:5] = 6  # a cell cut by the bottom face
-    >>> medium_at_faces(lab, 6).tolist()
-    [False, False, False, False, True, False]
-    """
-    counts = label_counts(labels, n_chambers + 1)[1:n_chambers + 1]
-    face = np.zeros(labels.shape, bool)
-    edge = np.zeros(labels.shape, bool)
-    for axis in range(labels.ndim):
-        index = [slice(None)] * labels.ndim
-        for end in (0, -1):
-            index[axis] = end
-            face[tuple(index)] = True
-        lo, hi = list(index), list(index)
-        lo[axis], hi[axis] = slice(None, -1), slice(1, None)
-        differs = labels[tuple(lo)] != labels[tuple(hi)]
-        edge[tuple(lo)] |= differs
-        edge[tuple(hi)] |= differs
-    region = labels.ravel()
-    n_face = np.bincount(region[face.ravel()], minlength=n_chambers + 1)
-    edge &= ~face
-    n_edge = np.bincount(region[edge.ravel()], minlength=n_chambers + 1)
-    n_face, n_edge = n_face[1:n_chambers + 1], n_edge[1:n_chambers + 1]
-    on_faces = n_face > 0
-    share = n_face / np.maximum(n_face + n_edge, 1)
-    whole = counts[~on_faces & (counts > 0)]
-    if whole.size == 0:
-        return on_faces & (share > MEDIUM_FACE_SHARE_ALONE)
-    return on_faces & (counts > whole.max()) & (share > MEDIUM_FACE_SHARE)
