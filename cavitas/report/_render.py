@@ -115,7 +115,8 @@ def render_slice(plane: np.ndarray, label_plane: np.ndarray | None,
         Grey value index in ``[0, levels)``.
     outline : (h, w) uint8
         0 = no outline, 1 = light tone, 2 = dark tone. Each region's outline takes one
-        tone: light when the region's pixels are dark on average, dark when bright.
+        tone: light when the pixels under it are dark on average, dark when bright (an
+        outline lies on the flank of the wall, so the wall's tone decides, not the inside).
 
     Examples
     --------
@@ -132,12 +133,10 @@ def render_slice(plane: np.ndarray, label_plane: np.ndarray | None,
     code = np.zeros(scaled.shape, dtype=np.uint8)
     if label_plane is not None:
         edges = outline_mask(label_plane)
-        if edges.any():  # one tone per region, against the mean grey of its inside
-            inside = label_plane != 0
-            owners, which = np.unique(label_plane[inside], return_inverse=True)
-            mean = np.bincount(which, scaled[inside]) / np.bincount(which)
-            tone = np.where(mean < 0.5, 1, 2).astype(np.uint8)
-            code[edges] = tone[np.searchsorted(owners, label_plane[edges])]
+        if edges.any():  # one tone per region, against the mean grey under its outline
+            owners, which = np.unique(label_plane[edges], return_inverse=True)
+            mean = np.bincount(which, scaled[edges]) / np.bincount(which)
+            code[edges] = np.where(mean < 0.5, 1, 2).astype(np.uint8)[which]
     grey = block_reduce(scaled, factor)
     grey = np.clip(np.floor(grey * levels), 0, levels - 1).astype(np.uint8)
     return grey, block_reduce(code, factor, how="max")
