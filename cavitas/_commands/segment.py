@@ -184,7 +184,10 @@ def run(args: argparse.Namespace) -> int:
             print(f"  border-cut regions (listed in regions.csv, "
                   f"{'kept' if params.keep_border else 'not'} in labels): "
                   f"{summary['border_cut']}")
-        print(f"  noise σ {summary['noise']:.4g}, persistence threshold "
+        correlated = (f" (correlated: {summary['noise'] / summary['noise_pixel']:.2g}× the "
+                      f"pixel-level {summary['noise_pixel']:.4g})"
+                      if summary["noise"] > 1.001 * summary["noise_pixel"] else "")
+        print(f"  noise σ {summary['noise']:.4g}{correlated}, persistence threshold "
               f"{summary['threshold']:.4g} (intensity units), smoothing σ "
               f"{summary['smooth_sigma']:.3g} {unit}")
         for note in (summary["threshold_basis"], summary["border_note"]):
