@@ -14,6 +14,8 @@ atomically:
 ``run.json``          every parameter, chosen values, version, input SHA-256,
                       timings, the outputs and the research-only caution
 ``enclosures.<ext>``  enclosures label map (``enclosures=True``)
+``partition.<ext>``   every voxel of the specimen given to a region, walls split at
+                      their ridge line (``partition=True``)
 ``shells.<ext>``      shell label map (``shells`` given): walls near each region
 ``meshes/``           one surface mesh per chamber (``mesh="ply"|"stl"``, 3D)
 ===================== ========================================================
@@ -77,14 +79,16 @@ def _diagram_plot(seg: Any, path: Path, *, force: bool) -> None:
     save_figure(fig, path, force=force)
 
 
-def measured_regions(seg: Any, *, mask: np.ndarray | None = None,
-                     thickness: bool = True) -> tuple[Table, dict[str, Any]]:
+def measured_regions(seg: Any, *, mask: np.ndarray | None = None, thickness: bool = True,
+                     partition: bool = False) -> tuple[Table, dict[str, Any]]:
     """The regions table joined with measurements, and the global figures of the chambers.
 
     Chambers and border-cut regions are measured on the full label map
     (:func:`cavitas.measure.measure_regions`); enclosures keep their topological columns and
     have blanks for the measurements. Global figures (count, volumes, volume fraction =
     closed porosity) count the chambers only, and add the noise estimate and threshold.
+    ``partition`` adds ``volume_with_wall``: each region's volume in
+    :attr:`~cavitas.segment.Segmentation.partition` (its inside and its part of the walls).
     """
     from .measure import global_figures, measure_regions
 
@@ -108,6 +112,13 @@ def measured_regions(seg: Any, *, mask: np.ndarray | None = None,
         else:  # ints and flags stay exact; a blank where nothing was measured
             added[name] = np.array([values[r].item() if r >= 0 else None for r in rows],
                                    dtype=object)
+    if partition:
+        from .segment._regions import label_counts
+
+        counts = label_counts(seg.partition, len(regions) + 1)[regions["label"]]
+        shown = np.isin(regions["label"], np.unique(seg.labels))
+        added["volume_with_wall"] = np.where(shown, counts * volume.voxel_volume, np.nan)
+        measured.units["volume_with_wall"] = measured.units.get("volume", "voxel")
     # Global figures describe whole regions: those touching the border (kept with
     # keep_border) are listed and labelled but left out (border_note says so).
     chambers = regions["kind"] == "chamber"
@@ -205,7 +216,8 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
         seg = segment(volume, params=params, mask=mask,
                       stage=lambda text: steps.set_postfix_str(text))
         tick = done("segment", tick)
-        regions, figures = measured_regions(seg, mask=mask, thickness=thickness)
+        regions, figures = measured_regions(seg, mask=mask, thickness=thickness,
+                                            partition=params.partition)
         tick = done("measure", tick)
         written = _write_maps(seg, planned, params, force=force)
         regions.to_csv(planned["regions"], force=force)
@@ -265,6 +277,8 @@ def _planned_outputs(source: Path, outdir: Path, params: Any, *,
         planned["report"] = outdir / "report.html"
     if params.enclosures:
         planned["enclosures"] = outdir / f"enclosures{suffix}"
+    if params.partition:
+        planned["partition"] = outdir / f"partition{suffix}"
     if params.shells is not None:
         planned["shells"] = outdir / f"shells{suffix}"
     return planned
@@ -292,8 +306,12 @@ def _write_maps(seg: Any, planned: dict[str, Path], params: Any, *,
     if params.enclosures:
         written["enclosures"] = io.write(planned["enclosures"], seg.enclosure_labels(),
                                          like=volume, force=force)
+    if params.partition:
+        written["partition"] = io.write(planned["partition"], seg.partition, like=volume,
+                                        force=force)
     if params.shells is not None:
-        shells = shell_labels(seg.labels, volume.spacing, params.shells)
+        shells = shell_labels(seg.labels, volume.spacing, params.shells,
+                              walls=seg.all_labels == 0)
         written["shells"] = io.write(planned["shells"], shells, like=volume, force=force)
     return written
 

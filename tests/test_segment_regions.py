@@ -362,3 +362,93 @@ def test_stages_are_reported_in_order():
     assert stages == ["noise level", *[f"smoothing scale {i} of {n}" for i in range(1, n + 1)],
                       "regions"]
     assert n >= 2  # automatic mode tries several scales
+
+
+def _voronoi_scene(n=256, cells=60, half_wall=1.5, noise=0.15, seed=7):
+    """A Voronoi tessellation drawn with bright walls, and its cells (scipy's k-d tree)."""
+    from scipy.spatial import cKDTree
+
+    rng = np.random.default_rng(seed)
+    seeds = rng.uniform(0, n, (cells, 2))
+    grid = np.indices((n, n)).reshape(2, -1).T.astype(float)
+    dist, nearest = cKDTree(seeds).query(grid, k=2)
+    gap = np.linalg.norm(seeds[nearest[:, 0]] - seeds[nearest[:, 1]], axis=1)
+    # distance to the bisector of the two nearest seeds: (d2² - d1²) / (2 |s1 - s2|)
+    wall = ((dist[:, 1] ** 2 - dist[:, 0] ** 2) / (2 * gap) < half_wall).reshape(n, n)
+    image = wall + rng.normal(0, noise, (n, n))
+    return image, (nearest[:, 0] + 1).reshape(n, n)
+
+
+def test_partition_of_a_voronoi_foam_is_its_tessellation():
+    # Reference: the Voronoi tessellation of the seeds (nearest seed, scipy.spatial.cKDTree),
+    # drawn with walls 3 pixels wide centred on the cell edges (their ridge line is the
+    # edge) and noise 0.15 of the contrast. The partition gives each cell its half of every
+    # wall, so it should reproduce the tessellation; the label map (walls 0) cannot.
+    image, truth = _voronoi_scene()
+    seg = segment(image)
+    part = seg.partition
+    assert np.array_equal(part[seg.labels > 0], seg.labels[seg.labels > 0])
+    border = np.unique(np.concatenate([truth[0], truth[-1], truth[:, 0], truth[:, -1]]))
+    inner = np.setdiff1d(np.unique(truth), border)
+
+    def dice_of_best_match(labels, cell):
+        inside = truth == cell
+        found, count = np.unique(labels[inside], return_counts=True)
+        best = found[np.argmax(count)]
+        match = labels == best
+        return 0.0 if best == 0 else 2 * (inside & match).sum() / (inside.sum() + match.sum())
+
+    partition_dice = np.array([dice_of_best_match(part, c) for c in inner])
+    label_dice = np.array([dice_of_best_match(seg.labels, c) for c in inner])
+    assert len(inner) >= 30 and partition_dice.min() >= 0.93
+    assert np.median(partition_dice) >= 0.96 > np.median(label_dice)
+
+
+def test_partition_volume_with_wall_is_the_cell_area(tmp_path):
+    # Reference: the Voronoi cell areas (pixel counts of the nearest-seed map) of the
+    # scene above; the label map's volume leaves the walls out, the partition's includes
+    # each cell's half of them.
+    import tifffile
+
+    from cavitas.cli import main
+
+    image, truth = _voronoi_scene()
+    tifffile.imwrite(tmp_path / "foam.tif", (1000 + 500 * image).astype(np.uint16))
+    assert main(["segment", str(tmp_path / "foam.tif"), "-o", str(tmp_path / "out"),
+                 "--partition", "--no-report", "-q"]) == 0
+    part = tifffile.imread(tmp_path / "out" / "partition.tif")
+    labels = tifffile.imread(tmp_path / "out" / "labels.tif")
+    assert np.array_equal(part[labels > 0], labels[labels > 0])
+    from cavitas._table import Table
+
+    rows = Table.from_csv(tmp_path / "out" / "regions.csv")
+    chambers = rows.select(rows["kind"] == "chamber")
+    for label, area, with_wall in zip(chambers["label"], chambers["volume"],
+                                      chambers["volume_with_wall"], strict=True):
+        cells, count = np.unique(truth[part == label], return_counts=True)
+        cell = cells[np.argmax(count)]
+        if cell in np.concatenate([truth[0], truth[-1], truth[:, 0], truth[:, -1]]):
+            continue
+        assert with_wall == pytest.approx(np.count_nonzero(truth == cell), rel=0.08)
+        assert with_wall > area
+
+
+def test_one_shell_for_the_mask_the_map_and_the_table():
+    # Geometry: the wall voxels sharing a face with an 8 x 8 square are 4 · 8 = 32 (the
+    # corners' diagonal neighbours share no face). Thickened by one voxel: the 4 corners of
+    # that layer and the 4 · 8 voxels of the next layer facing it (the next layer's
+    # corners are √2 and more away): 32 + 4 + 32 = 68.
+    from cavitas.segment._shells import shell_labels
+    from cavitas.workflow import measured_regions
+
+    img = np.zeros((16, 16))
+    img[2:14, 2:14] = 1
+    img[4:12, 4:12] = 0
+    seg = segment(img, min_persistence=0.5, region="breach")
+    table, _ = measured_regions(seg, thickness=False)
+    row = table.select(table["label"] == 1)
+    walls = seg.all_labels == 0
+    assert int(seg.shell(1).sum()) == 32 == int(row["shell_voxel_count"][0])
+    assert int((shell_labels(seg.labels, (1.0, 1.0), 0.0, walls=walls) == 1).sum()) == 32
+    assert int(seg.shell(1, thickness=1.0).sum()) == 68
+    assert int((shell_labels(seg.labels, (1.0, 1.0), 1.0, walls=walls) == 1).sum()) == 68

@@ -137,6 +137,10 @@ def add_segment_options(p: argparse.ArgumentParser) -> None:
                         "by THICKNESS in physical units (default 0: touching voxels only)")
     g.add_argument("--enclosures", action="store_true", default=None,
                    help="write enclosures.<ext>: groups of chambers inside a common wall")
+    g.add_argument("--partition", action="store_true", default=None,
+                   help="write partition.<ext>: every voxel of the specimen given to a region, "
+                        "the walls split along their ridge line (cells that tile the tissue), "
+                        "and each region's volume with its part of the walls in regions.csv")
     g.add_argument("--mesh", choices=("ply", "stl"),
                    help="write a surface mesh per chamber into meshes/ (3D only)")
     g.add_argument("--label-format", metavar="EXT",
@@ -150,7 +154,8 @@ def add_segment_options(p: argparse.ArgumentParser) -> None:
 #: Command-line options that map one-to-one onto SegmentParams fields.
 _FIELDS = ("walls", "connectivity", "mask", "auto", "min_persistence", "relative_persistence",
            "top", "min_volume", "max_volume", "smooth", "safety", "split_fraction", "region",
-           "level_fraction", "keep_border", "shells", "enclosures", "mesh", "label_format")
+           "level_fraction", "keep_border", "shells", "enclosures", "partition", "mesh",
+           "label_format")
 
 
 def params_from_args(args: argparse.Namespace) -> Any:

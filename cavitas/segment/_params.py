@@ -70,6 +70,10 @@ class SegmentParams:
         Write shells, thickened by this physical distance (0 = touching wall voxels only).
     enclosures : bool
         Write the enclosures as a second label map.
+    partition : bool
+        Write the partition (:attr:`Segmentation.partition`: every voxel of the specimen
+        given to a region, walls split at their ridge line) and each region's volume
+        with its part of the walls.
     mesh : {"ply", "stl"} or None
         Write a surface mesh per region (3D only).
     label_format : str or None
@@ -104,6 +108,7 @@ class SegmentParams:
     keep_border: bool = False
     shells: float | None = None
     enclosures: bool = False
+    partition: bool = False
     mesh: str | None = None
     label_format: str | None = None
     mask: str | None = field(default=None)

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from functools import cached_property
 from typing import Any
 
 import numpy as np
@@ -58,7 +59,7 @@ class Segmentation:
     >>> seg.regions["kind"].tolist(), int(seg.labels.max())
     (['chamber', 'cut'], 1)
     >>> int(seg.shell(1).sum()), int((seg.three_class(1) == 1).sum())
-    (36, 64)
+    (32, 64)
     """
 
     labels: np.ndarray
@@ -72,9 +73,10 @@ class Segmentation:
     volume: Volume
     all_labels: np.ndarray = field(repr=False, default=None)
     enclosure_map: np.ndarray | None = field(repr=False, default=None)
+    background: np.ndarray | None = field(repr=False, default=None)
 
     @classmethod
-    def assemble(cls, parts: dict[str, Any], *, volume: Volume, params: Any,
+    def assemble(cls, parts: TableParts, *, volume: Volume, params: Any,
                  chosen: dict[str, Any], tree: Any) -> Segmentation:
         """Build the result from the pieces :func:`segment` computed."""
         sign = 1.0 if params.walls == "bright" else -1.0
@@ -87,14 +89,14 @@ class Segmentation:
         pairs["birth_voxel"] = tree.breach[rows]
         pairs["death_voxel"] = tree.core[rows]
         diagram = Diagram({volume.ndim - 1: pairs}, shape=volume.shape, walls=params.walls,
-                          connectivity=chosen["connectivity"], masked=parts["masked"])
+                          connectivity=chosen["connectivity"], masked=parts.masked)
         record = {**params.to_dict(), **chosen, "caution": RESEARCH_ONLY}
         return cls(
-            labels=parts["labels"], regions=parts["table"], diagram=diagram,
-            kept=np.isin(rows, parts["chamber_nodes"]), margin=pers[rows] - chosen["threshold"],
+            labels=parts.labels, regions=parts.table, diagram=diagram,
+            kept=np.isin(rows, parts.chamber_nodes), margin=pers[rows] - chosen["threshold"],
             threshold=chosen["threshold"], noise=chosen["noise_sigma"], params=record,
-            volume=volume, all_labels=parts["all_labels"],
-            enclosure_map=parts["enclosure_labels"],
+            volume=volume, all_labels=parts.all_labels,
+            enclosure_map=parts.enclosure_labels, background=parts.background,
         )
 
     @property
@@ -113,8 +115,31 @@ class Segmentation:
             return np.zeros(self.labels.shape, self.labels.dtype)
         return self.enclosure_map
 
+    @cached_property
+    def partition(self) -> np.ndarray:
+        """Every voxel of the specimen given to a region, walls split at their ridge line.
+
+        The regions of :attr:`labels` grown over the walls until they meet, along the line
+        of highest wall signal in the image smoothed at the delineation scale; 0 in the
+        background (the medium, border-cut regions, beyond the ROI). Computed on first use.
+        See :mod:`cavitas.segment._partition`.
+        """
+        from ._noise import smooth, work_dtype
+        from ._partition import partition_map
+
+        data = np.asarray(self.volume.data)
+        if data.dtype == np.bool_:
+            data = data.view(np.uint8)
+        sigma = float(self.params["delineation_sigma"]) / np.asarray(self.volume.spacing, float)
+        image = smooth(data, tuple(sigma), dtype=work_dtype(data.dtype),
+                       sign=1.0 if self.params["walls"] == "bright" else -1.0)
+        background = (np.zeros(self.labels.shape, bool) if self.background is None
+                      else self.background)
+        return partition_map(self.labels, image, background)
+
     def shell(self, label: int, thickness: float = 0.0) -> np.ndarray:
-        """Wall voxels touching region ``label``, thickened by ``thickness`` (physical units)."""
+        """Wall voxels sharing a face with region ``label``, thickened by ``thickness``
+        (physical units): the same shell as the shell map and the table's shell columns."""
         from ._shells import shell
 
         return shell(self, label, thickness=thickness)
@@ -157,19 +182,33 @@ def _depths(parent: np.ndarray) -> np.ndarray:
     return depth
 
 
+@dataclass
+class TableParts:
+    """What :func:`build_table` hands to :meth:`Segmentation.assemble`."""
+
+    labels: np.ndarray                  # the label map users get
+    all_labels: np.ndarray              # chambers and border-cut regions
+    table: Table                        # one row per region
+    chamber_nodes: np.ndarray           # cavity-tree node of each chamber row
+    enclosure_labels: np.ndarray | None
+    background: np.ndarray              # no region's and no wall: medium, cut, outside ROI
+    masked: bool                        # an ROI was given
+
+
 def build_table(*, vol: Volume, sign: float, tree: Any, hier: Any, sweep: Any,
-                work: np.ndarray, n_cut: int, dropped: np.ndarray,
-                enclosure_map: np.ndarray | None,
-                nested: dict[int, int], tau: float, used_level: np.ndarray,
-                params: Any) -> dict[str, Any]:
+                regions: Any, tau: float, params: Any) -> TableParts:
     """Apply the volume bounds, renumber, and build the regions table.
 
-    ``work`` holds chambers ``1..n_chambers`` and border-cut pieces after them; ``dropped``
-    marks chambers that became border-cut pieces. Final ids: chambers ``1..K``,
-    enclosures ``K+1..K+E``, border-cut regions after.
+    ``regions`` (a :class:`~cavitas.segment._segment.Delineation`) holds chambers
+    ``1..n_chambers`` and border-cut pieces after them; its ``open_to_border`` marks the
+    chambers that became border-cut pieces. Final ids: chambers ``1..K``, enclosures
+    ``K+1..K+E``, border-cut regions after.
     """
     from ._regions import face_labels, label_counts
 
+    work, n_cut, nested = regions.labels, regions.n_cut, regions.nested
+    dropped, enclosure_map, used_level = (regions.open_to_border, regions.enclosures,
+                                          regions.level)
     n_ch, n_enc = hier.n_chambers, hier.n_enclosures
     voxel = vol.voxel_volume
     counts = label_counts(work, n_ch + n_cut + 1)
@@ -273,5 +312,9 @@ def build_table(*, vol: Volume, sign: float, tree: Any, hier: Any, sweep: Any,
     )
     if params.keep_border:
         labels = all_labels
-    return {"labels": labels, "all_labels": all_labels, "table": table, "chamber_nodes": ch_nodes,
-            "enclosure_labels": enc_labels, "masked": sweep.outside.any()}
+    # neither a region of the label map nor a wall: the outside basin, regions not shown
+    # (border-cut pieces, the medium, chambers outside the volume bounds) and beyond the ROI
+    background = regions.outside_basin | ((work > 0) & (labels == 0))
+    background |= sweep.outside.reshape(work.shape)
+    return TableParts(labels, all_labels, table, ch_nodes, enc_labels, background,
+                      bool(sweep.outside.any()))

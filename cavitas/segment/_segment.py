@@ -190,30 +190,27 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
     fine_sigma = np.minimum(DELINEATION_SIGMA * spacing_arr.min() / spacing_arr, sig)
     t0 = time.perf_counter()
     tell("regions")
-    work, n_cut, open_cut, nested, used_level, enclosure_map = _delineate(
-        params, sweep, hier, image, fine_sigma, outside, connectivity, vol.voxel_volume)
+    regions = _delineate(params, sweep, hier, image, fine_sigma, outside, connectivity,
+                         vol.voxel_volume)
     perforated = np.zeros(len(keep), bool)
     if params.split_fraction > 0 and params.region == "basin" and hier.n_chambers > 1:
         # Walls with a hole that the detection smoothing closed. The delineation image is
         # smoothed again rather than kept from _delineate: one filter pass costs less than
         # holding 4 more bytes per voxel through the region steps, where memory peaks.
-        perforated = perforated_splits(work, image.smoothed(fine_sigma), used_level,
-                                       hier.node[:hier.n_chambers], tree.parent, keep)
+        perforated = perforated_splits(regions.labels, image.smoothed(fine_sigma),
+                                       regions.level, hier.node[:hier.n_chambers],
+                                       tree.parent, keep)
     if perforated.any():
         tell("regions, joined through perforated walls")
         keep &= ~perforated
         hier = prune(tree, keep, sweep.rank, sweep.level_of_rank, tau)
-        del work, enclosure_map
-        work, n_cut, open_cut, nested, used_level, enclosure_map = _delineate(
-            params, sweep, hier, image, fine_sigma, outside, connectivity, vol.voxel_volume)
+        del regions
+        regions = _delineate(params, sweep, hier, image, fine_sigma, outside, connectivity,
+                             vol.voxel_volume)
     timings["regions"] = time.perf_counter() - t0
 
-    seg = build_table(
-        vol=vol, sign=image.sign, tree=tree, hier=hier, sweep=sweep, work=work, n_cut=n_cut,
-        dropped=open_cut,
-        enclosure_map=enclosure_map, nested=nested, tau=tau, used_level=used_level,
-        params=params,
-    )
+    seg = build_table(vol=vol, sign=image.sign, tree=tree, hier=hier, sweep=sweep,
+                      regions=regions, tau=tau, params=params)
     timings["total"] = time.perf_counter() - started
     chosen = {
         "noise_sigma": noise,
@@ -392,15 +389,23 @@ def _detect(image: _Image, params: SegmentParams, *, noise: float, robust_range:
     return best, tried
 
 
+@dataclass
+class Delineation:
+    """The regions of one pruned tree, before the volume bounds and the final numbering."""
+
+    labels: np.ndarray               # chambers 1..n, border-cut pieces n+1..n+n_cut, walls 0
+    n_cut: int                       # border-cut pieces
+    open_to_border: np.ndarray       # per chamber: no wall between it and the border
+    nested: dict[int, int]           # {chamber: the chamber around it}
+    level: np.ndarray                # per chamber: the level its region was cut at (walls high)
+    enclosures: np.ndarray | None    # innermost enclosure per voxel (ids n+1...), if any
+    outside_basin: np.ndarray        # voxels of the outside basin below its walls
+
+
 def _delineate(params: SegmentParams, sweep: Sweep, hier, image: _Image,
                fine_sigma: np.ndarray, outside: np.ndarray | None, connectivity: int,
-               voxel_volume: float):
-    """Chamber regions (basin or breach), border-cut pieces, islands and enclosures.
-
-    Returns ``work`` (chambers ``1..n``, border-cut pieces ``n+1..n+m``), ``m``, the mask
-    of chambers found open to the border, ``{nested: host}``, each chamber's level (walls
-    high) and the enclosure map (or None).
-    """
+               voxel_volume: float) -> Delineation:
+    """Chamber regions (basin or breach), border-cut pieces, islands and enclosures."""
     tree = sweep.tree
     n_ch = hier.n_chambers
     ids = np.arange(1, len(hier.node) + 1)
@@ -458,14 +463,16 @@ def _delineate(params: SegmentParams, sweep: Sweep, hier, image: _Image,
     work[in_outside & (cut == 0)] = out_label
     del cut, labels, in_outside
     work, nested = fill_islands(work, connectivity, exclude=n_ch + 1)
-    work[work == out_label] = 0
+    outside_basin = work == out_label
+    work[outside_basin] = 0
 
     enclosure_map = None
     if hier.n_enclosures:
         enclosure_map = nested_map(sweep, hier.node[n_ch:], enclosure_rank, ids[n_ch:])
     if image.closed_border:
         reopen_faces(work)
+        reopen_faces(outside_basin)
         if enclosure_map is not None:
             reopen_faces(enclosure_map)
         open_cut |= medium_at_faces(work, n_ch)
-    return work, n_cut, open_cut, nested, used_level, enclosure_map
+    return Delineation(work, n_cut, open_cut, nested, used_level, enclosure_map, outside_basin)

@@ -8,9 +8,9 @@ import numpy as np
 from scipy import ndimage as ndi
 
 from .._errors import ParameterError
-from ..cubical._neighbors import dual_connectivity
 
-__all__ = ["INSIDE", "OUTSIDE", "SHELL", "region_mask", "shell", "shell_labels", "three_class"]
+__all__ = ["INSIDE", "OUTSIDE", "SHELL", "region_mask", "shell", "shell_labels", "three_class",
+           "touching_walls"]
 
 #: Values of :func:`three_class`.
 OUTSIDE, INSIDE, SHELL = 0, 1, 2
@@ -28,25 +28,45 @@ def region_mask(seg: Any, label: int) -> np.ndarray:
 
 
 def shell(seg: Any, label: int, *, thickness: float = 0.0) -> np.ndarray:
-    """Wall voxels touching region ``label``, then every voxel within ``thickness`` of them.
+    """The shell of region ``label``: wall voxels sharing a face with it, then every wall
+    voxel within ``thickness`` (physical units, spacing respected) of those.
 
-    "Touching" uses the region's own connectivity (the complement's rule). Thickening uses
-    the Euclidean distance in physical units (spacing respected) and never enters a region.
+    One definition for :meth:`Segmentation.shell`, the shell map (:func:`shell_labels`) and
+    the shell columns of the regions table (:func:`cavitas.measure.measure_regions`). Walls
+    are the voxels of no region (label 0 of the map of chambers and border-cut regions); a
+    chamber nested in another (a capsule in a capsule) has its wall in its host's label
+    (:func:`~cavitas.segment._regions.fill_islands`), and that counts as its wall here.
     """
     inside = region_mask(seg, label)
-    conn = int(seg.params["connectivity"])
-    ring = ndi.binary_dilation(inside, ndi.generate_binary_structure(
-        inside.ndim, dual_connectivity(inside.ndim, conn))) & ~inside
     wall = seg.all_labels == 0
     rows = seg.regions
     host = rows["parent"][rows["label"] == label][0]
     if host > 0 and rows["kind"][rows["label"] == host][0] == "chamber":
         wall |= seg.all_labels == host  # a nested chamber's wall was given to its host
-    ring &= wall
-    if thickness > 0 and ring.any():
-        dist = ndi.distance_transform_edt(~ring, sampling=seg.volume.spacing)
-        ring = (dist <= thickness) & wall & ~inside
-    return ring
+    return _thickened(touching_walls(inside, wall), wall & ~inside, seg.volume.spacing,
+                      thickness)
+
+
+def touching_walls(inside: np.ndarray, wall: np.ndarray) -> np.ndarray:
+    """Voxels of ``wall`` that share a face with ``inside``.
+
+    Examples
+    --------
+    >>> inside = np.zeros((3, 3), bool); inside[1, 1] = True
+    >>> touching_walls(inside, ~inside).astype(int).tolist()
+    [[0, 1, 0], [1, 0, 1], [0, 1, 0]]
+    """
+    faces = ndi.generate_binary_structure(inside.ndim, 1)
+    return ndi.binary_dilation(inside, faces) & wall & ~inside
+
+
+def _thickened(ring: np.ndarray, allowed: np.ndarray, spacing: tuple[float, ...],
+               thickness: float) -> np.ndarray:
+    """``ring`` and every ``allowed`` voxel within ``thickness`` of it."""
+    if thickness <= 0 or not ring.any():
+        return ring
+    dist = ndi.distance_transform_edt(~ring, sampling=spacing)
+    return ring | ((dist <= thickness) & allowed)
 
 
 def three_class(seg: Any, label: int, *, thickness: float = 0.0) -> np.ndarray:
@@ -61,19 +81,27 @@ def three_class(seg: Any, label: int, *, thickness: float = 0.0) -> np.ndarray:
     return out
 
 
-def shell_labels(labels: np.ndarray, spacing: tuple[float, ...],
-                 thickness: float) -> np.ndarray:
-    """A shell label map: every wall voxel within ``thickness`` (at least one voxel) of a
-    region gets the label of the nearest region; shared walls are split half-way.
+def shell_labels(labels: np.ndarray, spacing: tuple[float, ...], thickness: float,
+                 walls: np.ndarray | None = None) -> np.ndarray:
+    """The shell map: each region's shell (see :func:`shell`) in its label.
+
+    Wall voxels sharing a face with a region, and every wall voxel within ``thickness`` of
+    those, take the label of the nearest region. A wall voxel in two shells (a wall one
+    voxel thick between two regions) shows the nearer, or either at equal distance; the
+    regions table counts it for both. ``walls`` defaults to ``labels == 0``.
 
     Examples
     --------
     >>> lab = np.zeros((1, 7), np.int32); lab[0, 0] = 1; lab[0, 6] = 2
-    >>> shell_labels(lab, (1.0, 1.0), 2.0).tolist()
+    >>> shell_labels(lab, (1.0, 1.0), 0.0).tolist()
+    [[0, 1, 0, 0, 0, 2, 0]]
+    >>> shell_labels(lab, (1.0, 1.0), 1.0).tolist()
     [[0, 1, 1, 0, 2, 2, 0]]
     """
-    from skimage.segmentation import expand_labels
-
-    reach = max(float(thickness), float(max(spacing)))
-    grown = expand_labels(labels, distance=reach, spacing=spacing)
-    return np.where(labels == 0, grown, 0).astype(labels.dtype)
+    wall = labels == 0 if walls is None else walls & (labels == 0)
+    ring = _thickened(touching_walls(labels > 0, wall), wall, spacing, thickness)
+    if not ring.any():
+        return np.zeros_like(labels)
+    nearest = ndi.distance_transform_edt(labels == 0, sampling=spacing,
+                                         return_distances=False, return_indices=True)
+    return np.where(ring, labels[tuple(nearest)], 0).astype(labels.dtype)
