@@ -237,7 +237,8 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
                 spacing=volume.spacing, unit=volume.unit, regions=regions,
                 diagram=seg.diagram, kept=seg.kept, threshold=seg.threshold,
                 params=seg.params, figures=figures, title=source.name, source=source,
-                notes=[n for n in (threshold_basis(seg.params), border_note(seg.regions)) if n],
+                notes=[n for n in (seg.params.get("polarity_hint"), threshold_basis(seg.params),
+                                   border_note(seg.regions)) if n],
                 force=force)
         tick = done("report", tick)
         summary = _summary(seg, source, figures, written)
@@ -332,17 +333,24 @@ def _write_meshes(seg: Any, outdir: Path, kind: str, *, force: bool) -> Path:
 
 
 def threshold_basis(params: dict[str, Any]) -> str | None:
-    """One sentence on what set the automatic threshold (None for a hand threshold).
+    """One sentence on what set the threshold, and at which scale a hand threshold applies.
 
     Examples
     --------
     >>> threshold_basis({"automatic": True, "gap": 3.2}).startswith("The threshold lies in")
     True
-    >>> threshold_basis({"automatic": False}) is None
+    >>> threshold_basis({"automatic": False, "scale_basis": "none"})[:64]
+    'The persistence threshold was given by hand and applies to the i'
+    >>> threshold_basis({"automatic": False, "scale_basis": "given"}) is None
     True
     """
     if not params.get("automatic"):
-        return None
+        if params.get("scale_basis") != "none":
+            return None
+        return ("The persistence threshold was given by hand and applies to the image "
+                "without smoothing, as drawn in this run's diagram.png; a threshold read off "
+                "the diagram of an automatic run applies to that run's smoothing: give it "
+                "with --smooth (smooth_sigma in that run's run.json).")
     if params.get("gap") is not None:
         return ("The threshold lies in the gap of the persistence diagram, between the crowd "
                 "of small cavities (noise, texture) and the large ones.")
@@ -392,6 +400,7 @@ def _summary(seg: Any, source: Path, figures: dict[str, Any],
         "outputs": {k: str(v) for k, v in written.items()},
         "threshold_basis": threshold_basis(seg.params),
         "border_note": border_note(seg.regions),
+        "polarity_hint": seg.params.get("polarity_hint"),
         "message": ("no region passed the selection; empty outputs were written"
                     if n_regions == 0 else f"{n_regions} regions found"),
         "caution": RESEARCH_ONLY,

@@ -45,7 +45,9 @@ def test_segment_command_writes_every_output(scan, tmp_path, capsys):
     regions = Table.from_csv(out / "regions.csv")
     assert (regions["kind"] == "chamber").sum() == 4
     nested = regions["parent"][regions["kind"] == "chamber"]
-    assert sorted(nested.tolist()) == [0, 0, 0, 3]  # the small ring sits inside ring 3
+    small, host = np.asarray(labels.data)[29, 20], np.asarray(labels.data)[23, 10]
+    assert sorted(nested.tolist()) == [0, 0, 0, host]  # the small ring sits inside the big
+    assert regions["parent"][regions["label"] == small][0] == host
     diagram = Table.from_csv(out / "diagram.csv")
     assert diagram["kept"].sum() == 4
     record = json.loads((out / "run.json").read_text(encoding="utf-8"))
@@ -61,6 +63,11 @@ def test_summary_and_caution_are_printed(scan, tmp_path, capsys):
                  "50"]) == 0
     printed = capsys.readouterr().out
     assert "4 regions found" in printed and RESEARCH_ONLY in printed
+    # a hand threshold never changes the scale silently: the summary says where it applies
+    assert "given by hand and applies to the image without smoothing" in printed
+    record = json.loads((tmp_path / "o" / "run.json").read_text(encoding="utf-8"))
+    assert record["parameters"]["smooth_sigma"] == 0.0
+    assert record["parameters"]["scale_basis"] == "none"
 
 
 def test_existing_output_needs_force(scan, tmp_path, capsys):

@@ -210,3 +210,22 @@ def test_noise_levels_match_the_variance_of_filtered_white_noise(width):
     else:
         assert levels.ratio == pytest.approx(1.0, abs=0.03)
         assert levels.effective == levels.pixel
+
+
+def test_wrong_polarity_is_named_in_the_run_summary(tmp_path, capsys):
+    # Regression on an invented scene (cavitas.scenes.cell_sheet, bright membranes): run
+    # with the wrong polarity the summary names the right one; with the right one it is
+    # silent. The thresholds of the rule were measured on the shared real scans (see
+    # cavitas.segment._polarity).
+    from cavitas.cli import main
+    from cavitas.io import write
+    from cavitas.scenes import cell_sheet
+
+    sheet = cell_sheet()
+    write(tmp_path / "sheet.tif", sheet.image.astype(np.float32))
+    assert main(["segment", str(tmp_path / "sheet.tif"), "-o", str(tmp_path / "dark"),
+                 "--walls", "dark", "--no-report"]) == 0
+    assert "The walls may be bright rather than dark" in capsys.readouterr().out
+    assert main(["segment", str(tmp_path / "sheet.tif"), "-o", str(tmp_path / "bright"),
+                 "--no-report"]) == 0
+    assert "The walls may be" not in capsys.readouterr().out

@@ -358,9 +358,9 @@ def test_stages_are_reported_in_order():
     img = _nested_rings()
     stages = []
     segment(img, stage=stages.append)
-    n = len(stages) - 2
+    n = len(stages) - 3
     assert stages == ["noise level", *[f"smoothing scale {i} of {n}" for i in range(1, n + 1)],
-                      "regions"]
+                      "polarity check", "regions"]
     assert n >= 2  # automatic mode tries several scales
 
 

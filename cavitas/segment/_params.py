@@ -46,8 +46,11 @@ class SegmentParams:
     min_volume, max_volume : float or None
         Region volume bounds in physical units (area in 2D); need a known spacing.
     smooth : float or None
-        Gaussian σ in physical units. None: chosen from the data in automatic mode, none
-        otherwise; 0 disables smoothing.
+        Gaussian σ in physical units; 0 disables smoothing. None: chosen from the data in
+        automatic mode, none with a hand threshold (``min_persistence``,
+        ``relative_persistence``): a threshold read off the automatic run's diagram applies
+        at that run's scale only with the same ``smooth`` (its ``smooth_sigma``); the run
+        summary says so.
     safety : float
         Factor on the empirical noise null (automatic mode).
     split_fraction : float

@@ -24,6 +24,7 @@ from ._evidence import class_split, eligible_nodes, small_region_threshold
 from ._gap import find_gap
 from ._params import AUTO_SCALES, SegmentParams
 from ._perforation import perforated_splits
+from ._polarity import census, polarity_hint
 from ._regions import (
     Sweep,
     basin_map,
@@ -175,6 +176,11 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
         image, params, noise=noise, robust_range=robust_range, spacing=spacing_arr,
         connectivity=connectivity, roi=roi, tell=tell)
     sig, smoothed, order, tree, tau = det.sigma, det.smoothed, det.order, det.tree, det.threshold
+    hint = None
+    if params.automatic:
+        tell("polarity check")
+        hint = _polarity_check(det, image, params, noise=noise, robust_range=robust_range,
+                               spacing=spacing_arr, connectivity=connectivity, roi=roi)
     timings["detect"] = time.perf_counter() - started
     log.info("%s: noise σ %.4g, detection σ %.3g %s, persistence threshold %.4g (%s)",
              vol.name, noise, float((sig * spacing_arr).max()), vol.unit, tau,
@@ -219,9 +225,13 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
         "threshold": tau,
         "robust_range": robust_range,
         "smooth_sigma": float((sig * spacing_arr).max()),
+        # what set the detection scale: "given" (smooth), "data" (automatic), "none"
+        "scale_basis": ("given" if params.smooth is not None else
+                        "data" if params.automatic else "none"),
         "delineation_sigma": float((fine_sigma * spacing_arr).max()),
         "scales_tried": tried,
         "gap": det.gap,
+        "polarity_hint": hint,
         "splits_joined": int(np.count_nonzero(significant & ~keep)),
         "perforated_walls": int(np.count_nonzero(perforated)),
         "automatic": params.automatic,
@@ -243,8 +253,13 @@ class Detection:
     threshold: float             # persistence threshold
     gap: float | None            # persistence at the diagram's gap (automatic mode), if any
     eligible: np.ndarray | None  # per node: straddles the class split (automatic mode)
-    count: int                   # nodes passing every criterion
+    passing: np.ndarray          # per node: passes every criterion
     face_breach: np.ndarray | None = None  # per node: breach on the closed faces (keep_border)
+
+    @property
+    def count(self) -> int:
+        """Nodes passing every criterion."""
+        return int(np.count_nonzero(self.passing))
 
 
 class _Image(NamedTuple):
@@ -362,8 +377,7 @@ def _detect(image: _Image, params: SegmentParams, *, noise: float, robust_range:
                 eligible &= pers >= small_region_threshold(area, pers, passing)
                 passing &= eligible
         passing[OUTSIDE] = False
-        return Detection(sig, smoothed, order, tree, tau, gap, eligible,
-                         int(np.count_nonzero(passing)), face_breach)
+        return Detection(sig, smoothed, order, tree, tau, gap, eligible, passing, face_breach)
 
     # Two scales at a time in two threads (smoothing, sort and sweep release the GIL);
     # results are taken in scale order, so the choice is the same as one after the other.
@@ -400,6 +414,20 @@ class Delineation:
     level: np.ndarray                # per chamber: the level its region was cut at (walls high)
     enclosures: np.ndarray | None    # innermost enclosure per voxel (ids n+1...), if any
     outside_basin: np.ndarray        # voxels of the outside basin below its walls
+
+
+def _polarity_check(det: Detection, image: _Image, params: SegmentParams, *,
+                    spacing: np.ndarray, **detect_options: Any) -> str | None:
+    """:func:`polarity_hint` of the detection against the other polarity at its scale."""
+    other_walls = "dark" if params.walls == "bright" else "bright"
+    flipped = image._replace(sign=-image.sign)
+    other, _ = _detect(flipped, params.replace(walls=other_walls,
+                                               smooth=float((det.sigma * spacing).max())),
+                       spacing=spacing, tell=lambda text: None, **detect_options)
+    n = int(np.prod(image.data.shape))
+    return polarity_hint(census(det.tree.parent, det.tree.size, det.passing, n),
+                         census(other.tree.parent, other.tree.size, other.passing, n),
+                         other_walls, "pixels" if image.data.ndim == 2 else "voxels")
 
 
 def _delineate(params: SegmentParams, sweep: Sweep, hier, image: _Image,
