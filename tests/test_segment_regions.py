@@ -452,3 +452,22 @@ def test_one_shell_for_the_mask_the_map_and_the_table():
     assert int((shell_labels(seg.labels, (1.0, 1.0), 0.0, walls=walls) == 1).sum()) == 32
     assert int(seg.shell(1, thickness=1.0).sum()) == 68
     assert int((shell_labels(seg.labels, (1.0, 1.0), 1.0, walls=walls) == 1).sum()) == 68
+
+
+def test_nan_outside_the_mask_is_accepted_as_persistence_does():
+    # Reference: scipy.ndimage.label of the noise-free insides. A ring image whose right
+    # half is NaN (no data), masked out: the ring in the left half is found as on the
+    # clean image; NaN inside the mask is still an error naming the mask.
+    img = np.zeros((20, 40))
+    img[4:16, 2:14] = 1
+    img[6:14, 4:12] = 0
+    roi = np.ones(img.shape, bool)
+    roi[:, 20:] = False
+    holed = img.copy()
+    holed[:, 20:] = np.nan
+    seg = segment(holed, mask=roi, min_persistence=0.5)
+    inside, _ = ndi.label(img == 0)
+    assert np.array_equal(seg.labels > 0, inside == inside[10, 8])
+    holed[10, 8] = np.nan
+    with pytest.raises(ParameterError, match="inside the mask"):
+        segment(holed, mask=roi, min_persistence=0.5)

@@ -66,8 +66,8 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
     params : SegmentParams, optional
         All parameters at once; ``options`` override single fields.
     mask : array_like of bool, optional
-        Region of interest: voxels outside it count as outside the scan (default: the
-        file named by ``params.mask``, if any).
+        Region of interest: voxels outside it count as outside the scan, and may hold NaN
+        (the workflow reads the file named by ``params.mask`` and passes it here).
     stage : callable, optional
         Called with a few words on each stage as it starts (``"smoothing scale 2 of 6"``,
         ``"regions"`` ...), for a progress display.
@@ -144,16 +144,11 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
     raw = np.asarray(vol.data)
     if raw.dtype == np.bool_:
         raw = raw.view(np.uint8)
-    if raw.dtype.kind == "f" and not np.isfinite(raw).all():
-        raise ParameterError(f"Image {vol.name} holds NaN or infinite values; "
-                             "replace them (or mask them out) first.")
-    if mask is None and params.mask:
-        from ..io import read
-
-        mask = np.asarray(read(params.mask).data) != 0
     roi = None if mask is None else np.asarray(mask, bool)
     if roi is not None and roi.shape != raw.shape:
         raise ParameterError(f"mask has shape {roi.shape}; the image has {raw.shape}.")
+    if raw.dtype.kind == "f":
+        raw = _fill_outside(raw, roi, vol.name, walls=params.walls)
     image = _Image(raw, 1.0 if params.walls == "bright" else -1.0,
                    _noise.work_dtype(raw.dtype), closed_border=params.keep_border,
                    statistics_mask=_statistics_mask(roi, raw.shape, params.keep_border))
@@ -240,6 +235,27 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
         "timings_s": timings,
     }
     return Segmentation.assemble(seg, volume=vol, params=params, chosen=chosen, tree=tree)
+
+
+def _fill_outside(image: np.ndarray, roi: np.ndarray | None, name: str, *,
+                  walls: str) -> np.ndarray:
+    """``image`` with NaN and infinite values outside the ROI replaced, as ``persistence``
+    accepts them there; inside the ROI (or with no ROI) they are an error.
+
+    The replacement is the finite extreme on the regions' side (the minimum for bright
+    walls): the smoothing spreads no wall from beyond the ROI into it. A copy is made only
+    when there is something to replace.
+    """
+    finite = np.isfinite(image)
+    if finite.all():
+        return image
+    if roi is None or not finite[roi].all():
+        where = "" if roi is None else " inside the mask"
+        raise ParameterError(f"Image {name} holds NaN or infinite values{where}; "
+                             "replace them or leave them outside the mask.")
+    inside = image[roi]
+    fill = (inside.min() if walls == "bright" else inside.max()) if inside.size else 0
+    return np.where(finite, image, fill).astype(image.dtype, copy=False)
 
 
 @dataclass
