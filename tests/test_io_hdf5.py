@@ -109,11 +109,8 @@ def test_write_then_h5py_reads_data_spacing_and_caution(tmp_path):
     assert back.spacing == (2.0, 0.5, 0.25) and back.unit == "nm" and back.dtype == np.int32
 
 
-def test_segment_writes_hdf5_labels_when_asked(tmp_path):
-    img = np.zeros((24, 24), np.uint8)  # one square ring (hand-made geometry)
-    img[4:20, 4:20] = 200
-    img[7:17, 7:17] = 10
-    source = write(tmp_path / "ring.tif", img, spacing=(0.5, 0.5))
+def test_segment_writes_hdf5_labels_when_asked(tmp_path, square_ring):
+    source = write(tmp_path / "ring.tif", square_ring, spacing=(0.5, 0.5))
     out = tmp_path / "out"
     assert main(["segment", str(source), "-o", str(out), "--label-format", ".h5",
                  "--no-report", "--no-thickness", "-q"]) == 0
@@ -121,3 +118,21 @@ def test_segment_writes_hdf5_labels_when_asked(tmp_path):
         labels = f["image"][()]
         assert list(f["image"].attrs["element_size_um"]) == [0.5, 0.5]
     assert labels.max() == 1 and labels[12, 12] == 1 and labels[0, 0] == 0
+
+
+def test_without_h5py_reading_and_asking_for_hdf5_labels_say_how_to_install(
+        tmp_path, rng, monkeypatch, capsys):
+    # common practice: a missing optional package is named with the command that adds it
+    path = tmp_path / "scan.h5"
+    with h5py.File(path, "w") as f:
+        f.create_dataset("raw", data=_volume(rng))
+    np.save(tmp_path / "scan.npy", _volume(rng))
+    monkeypatch.setitem(__import__("sys").modules, "h5py", None)  # import h5py now fails
+    monkeypatch.setattr("cavitas.workflow.find_spec", lambda name: None)
+    with pytest.raises(InputFileError, match=r"scan\.h5.*cavitas\[hdf5\]"):
+        read(path)
+    out = tmp_path / "out"
+    assert main(["segment", str(tmp_path / "scan.npy"), "-o", str(out),
+                 "--label-format", ".h5", "-q"]) == EXIT_PARAMETER
+    assert "--label-format .h5 needs the h5py package" in capsys.readouterr().err
+    assert not (out / "run.json").exists()

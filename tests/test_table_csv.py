@@ -63,11 +63,8 @@ def test_round_trip_keeps_columns_and_units(tmp_path):
     assert back["label"].tolist() == [1, 2] and back["flag"].tolist() == [True, False]
 
 
-def test_regions_csv_of_a_run_opens_with_its_units(tmp_path):
-    img = np.zeros((24, 24), np.uint8)  # one square ring (hand-made geometry)
-    img[4:20, 4:20] = 200
-    img[7:17, 7:17] = 10
-    source = write(tmp_path / "ring.tif", img, spacing=(0.3, 0.3))
+def test_regions_csv_of_a_run_opens_with_its_units(tmp_path, square_ring):
+    source = write(tmp_path / "ring.tif", square_ring, spacing=(0.3, 0.3))
     out = tmp_path / "out"
     assert main(["segment", str(source), "-o", str(out), "--no-report", "-q"]) == 0
     header, *rows = _cells(out / "regions.csv")

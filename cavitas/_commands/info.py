@@ -168,8 +168,7 @@ def _progress(quiet: bool) -> Any:
 def run(args: argparse.Namespace) -> int:
     """Describe each file; carry on past failures; return the worst exit code."""
     options = dict(channel=args.channel, time=args.time, key=args.key, dataset=args.dataset,
-                   spacing=args.spacing,
-                   unit=args.unit, shape=args.shape, dtype=args.dtype,
+                   spacing=args.spacing, unit=args.unit, shape=args.shape, dtype=args.dtype,
                    byte_order=args.byte_order, offset=args.offset)
     failed = 0
     reader_log = logging.getLogger("cavitas.io")

@@ -23,10 +23,9 @@ def input_checksum(path: str | os.PathLike) -> str:
 
     A path that exists is that file, even when its name holds ``[``, ``*`` or ``?``. For a
     Zarr store the digest covers every file's relative path and bytes; for a folder or glob
-    of slices, the name and bytes of each slice stacked (the files
-    :func:`cavitas.io.read` reads), so renaming or changing any chunk or
-    slice changes it. ``run.json`` records it
-    and the batch runner compares it to decide whether an input must be done again.
+    of slices, the name and bytes of each slice :func:`cavitas.io.read` stacks, so renaming
+    or changing any chunk or slice changes it. ``run.json`` records it and the batch runner
+    compares it to decide whether an input must be done again.
 
     Examples
     --------

@@ -31,9 +31,9 @@ from typing import Any
 import numpy as np
 
 from .._caution import RESEARCH_ONLY
-from .._errors import CavitasError, InputFileError
+from .._errors import CavitasError, InputFileError, OutputError
 from ._assemble import Decoded
-from ._units import UNKNOWN, centimetres_per, has_named_unit
+from ._units import UNKNOWN, centimetres_per
 
 __all__ = ["read_hdf5", "write_hdf5"]
 
@@ -42,13 +42,14 @@ DATASET = "image"
 _MICRONS_PER_CM = 1e4
 
 
-def _h5py(path: Path) -> Any:
+def _h5py(path: Path, *, writing: bool = False) -> Any:
     try:
         import h5py
     except ImportError as exc:
-        raise InputFileError(
-            f"Reading '{path}' needs the h5py package, which is not installed; install the "
-            "optional extra with: pip install 'cavitas[hdf5]'."
+        error = OutputError if writing else InputFileError
+        raise error(
+            f"{'Writing' if writing else 'Reading'} '{path}' needs the h5py package, which "
+            "is not installed; install the optional extra with: pip install 'cavitas[hdf5]'."
         ) from exc
     return h5py
 
@@ -147,13 +148,14 @@ def read_hdf5(path: Path, *, dataset: str | None = None, mmap: bool = True) -> D
         raise InputFileError(
             f"'{path}' cannot be read as HDF5: {exc or type(exc).__name__}."
         ) from exc
-    return Decoded(data, spacing, unit, meta={"format": "HDF5", "dataset": name})
+    return Decoded(data, spacing, unit, meta={"format": f"HDF5 dataset {name}",
+                                              "dataset": name})
 
 
 def write_hdf5(target: Path, data: np.ndarray, *, spacing: Sequence[float] | None,
                unit: str | None, compress: bool = True) -> None:
     """Write ``data`` with its spacing, unit and the research-only caution as HDF5."""
-    h5py = _h5py(target)
+    h5py = _h5py(target, writing=True)
     with h5py.File(target, "w") as handle:
         node = handle.create_dataset(DATASET, data=np.asarray(data),
                                      compression="gzip" if compress else None)
@@ -161,7 +163,7 @@ def write_hdf5(target: Path, data: np.ndarray, *, spacing: Sequence[float] | Non
         if spacing is None:
             return
         node.attrs["spacing"] = np.asarray(spacing, dtype=np.float64)
-        node.attrs["unit"] = unit if has_named_unit(unit) else (unit or UNKNOWN)
+        node.attrs["unit"] = unit or UNKNOWN
         per_cm = centimetres_per(unit)
         if per_cm is not None:
             node.attrs["element_size_um"] = np.asarray(spacing, np.float64) * (
