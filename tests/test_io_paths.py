@@ -13,6 +13,7 @@ import json
 import numpy as np
 import pytest
 
+from cavitas._errors import InputFileError
 from cavitas.batch._inputs import expand_inputs
 from cavitas.cli import main
 from cavitas.io import read, write
@@ -69,3 +70,9 @@ def test_a_folder_with_brackets_is_a_folder_and_its_checksum_covers_the_slices(t
     assert input_checksum(folder) == before
     write(folder / "z1.tif", ring(50), force=True)
     assert input_checksum(folder) != before
+
+
+def test_a_missing_name_with_brackets_says_it_is_no_file(tmp_path):
+    with pytest.raises(InputFileError, match=r"scan\[2\]\.tif' is no file, and as a glob "
+                                             r"pattern matches no slice files"):
+        read(tmp_path / "scan[2].tif")

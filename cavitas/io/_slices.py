@@ -62,7 +62,7 @@ def slice_files(source: str) -> list[Path]:
         files = [p for p in Path(source).iterdir() if p.is_file()
                  and not p.name.startswith(".") and p.suffix.lower() in SLICE_SUFFIXES]
     if not files:
-        where = "matches" if pattern else "holds"
+        where = "is no file, and as a glob pattern matches" if pattern else "holds"
         raise InputFileError(
             f"'{source}' {where} no slice files ({', '.join(SLICE_SUFFIXES)})."
         )
