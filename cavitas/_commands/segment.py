@@ -141,7 +141,7 @@ def add_segment_options(p: argparse.ArgumentParser) -> None:
     g.add_argument("--mesh", choices=("ply", "stl"),
                    help="write a surface mesh per chamber into meshes/ (3D only)")
     g.add_argument("--label-format", metavar="EXT",
-                   help="file format of the label maps, e.g. .tif, .nii.gz, .npy "
+                   help="file format of the label maps, e.g. .tif, .ome.tif, .nii.gz, .h5 "
                         "(default: the input's; PNG and raw input give .tif)")
     g = p.add_argument_group("reading")
     g.add_argument("--channel", type=int, metavar="C", help="channel of a multichannel file")

@@ -227,7 +227,9 @@ def write(path: str | os.PathLike, array_or_volume: Any, *, like: Volume | None 
     ``.npz``), HDF5 (``.h5``, ``.hdf5``; needs ``h5py``). The write is
     atomic (temporary file, then rename): an existing file is replaced only with
     ``force=True`` and never when it is the volume's (or ``like``'s) own input file. The
-    data type is kept (labels stay integer; ``bool`` masks are written as ``uint8``).
+    data type is kept (labels stay integer; ``bool`` masks are written as ``uint8``); a
+    ``.tif`` stores types ImageJ cannot open (int32 labels) in one it can that holds every
+    value, notes the original type, and :func:`read` gives that type back.
     Written files carry the research-only caution in their metadata, except ``.npy``,
     which cannot hold any.
 
