@@ -11,7 +11,7 @@ STAMP  := $(VENV)/.installed
 $(STAMP): pyproject.toml
 	$(PYTHON) -m venv $(VENV)
 	$(PY) -m pip install --quiet --upgrade pip
-	$(PY) -m pip install --quiet -e ".[test,cluster,zarr]"
+	$(PY) -m pip install --quiet -e ".[test,cluster,zarr,hdf5]"
 	touch $(STAMP)
 
 demo: $(STAMP)

@@ -2,6 +2,15 @@
 
 Columns are numpy arrays of equal length. CSV headers carry the unit in brackets
 (``volume [µm³]``) so that a spreadsheet shows it; JSON keeps units in a separate map.
+
+CSV files are UTF-8 with a byte-order mark: spreadsheet programs read a CSV without one
+in the system's legacy code page, which turns ``µm³`` into ``ÂµmÂ³``; with the mark they
+read UTF-8 (common practice). Floating-point cells hold :data:`CSV_DIGITS` significant
+digits, written as the shortest decimal that reads back as that rounded value
+(``98.76``, not ``98.76000000000002``): the arithmetic noise of float64 (about 1e-16 per
+operation) goes, while far more digits stay than any voxel measurement carries; float32
+columns are written as the shortest decimal of the float32 value (``0.1``, not
+``0.100000001490116``). JSON keeps every digit.
 """
 
 from __future__ import annotations
@@ -18,7 +27,12 @@ import numpy as np
 from ._errors import InputFileError, ParameterError
 from .io._atomic import atomic_path
 
-__all__ = ["Table"]
+__all__ = ["CSV_DIGITS", "CSV_ENCODING", "Table"]
+
+#: Significant digits of floating-point CSV cells.
+CSV_DIGITS = 12
+#: UTF-8 with a byte-order mark, so spreadsheet programs read ``µ``, ``²`` and ``³`` right.
+CSV_ENCODING = "utf-8-sig"
 
 
 class Table:
@@ -101,13 +115,14 @@ class Table:
         return [f"{k} [{self.units[k]}]" if k in self.units else k for k in self._columns]
 
     def to_csv(self, path: str | os.PathLike, *, force: bool = False) -> None:
-        """Write the table as UTF-8 CSV (atomically); floats keep full precision."""
+        """Write the table as CSV (atomically), UTF-8 with a byte-order mark, floats to
+        :data:`CSV_DIGITS` significant digits (see the module notes)."""
         with atomic_path(path, force=force) as tmp, open(tmp, "w", newline="",
-                                                         encoding="utf-8") as fh:
+                                                         encoding=CSV_ENCODING) as fh:
             writer = csv.writer(fh)
             writer.writerow(self.header())
-            for row in self:
-                writer.writerow([_csv_cell(v) for v in row.values()])
+            for i in range(len(self)):
+                writer.writerow([_csv_cell(column[i]) for column in self._columns.values()])
 
     def to_dict(self) -> dict[str, Any]:
         """A JSON-ready dict: ``columns`` (lists), ``units`` and ``meta``."""
@@ -127,7 +142,7 @@ class Table:
     def from_csv(cls, path: str | os.PathLike) -> Table:
         """Read a CSV written by :meth:`to_csv` (numbers become int or float columns)."""
         try:
-            with open(path, newline="", encoding="utf-8") as fh:
+            with open(path, newline="", encoding=CSV_ENCODING) as fh:  # with or without BOM
                 rows = list(csv.reader(fh))
         except (OSError, UnicodeDecodeError) as exc:
             raise InputFileError(f"Cannot read table '{path}': {exc}.") from exc
@@ -149,10 +164,22 @@ def _scalar(value: Any) -> Any:
 
 
 def _csv_cell(value: Any) -> str:
+    """One CSV cell.
+
+    Examples
+    --------
+    >>> _csv_cell(98.76000000000002), _csv_cell(1 / 3), _csv_cell(3.0), _csv_cell(True)
+    ('98.76', '0.333333333333', '3.0', 'true')
+    >>> _csv_cell(np.float32(0.1))  # float32 data: its own shortest decimal
+    '0.1'
+    """
+    if isinstance(value, np.float32) and np.isfinite(value):
+        return repr(float(str(value)))
+    value = _scalar(value)
     if value is None:
         return ""
     if isinstance(value, float):
-        return "" if math.isnan(value) else repr(value)
+        return "" if math.isnan(value) else repr(float(f"{value:.{CSV_DIGITS}g}"))
     if isinstance(value, bool):
         return "true" if value else "false"
     return str(value)

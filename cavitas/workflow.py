@@ -26,6 +26,7 @@ from __future__ import annotations
 import json
 import os
 import time
+from importlib.util import find_spec
 from pathlib import Path
 from typing import Any
 
@@ -49,6 +50,9 @@ def _label_suffix(source: Path, wanted: str | None) -> str:
         if suffix.lower() not in WRITE_SUFFIXES:
             raise ParameterError(f"label_format must be one of {sorted(WRITE_SUFFIXES)}; "
                                  f"got {wanted!r}.")
+        if WRITE_SUFFIXES[suffix.lower()] == "hdf5" and find_spec("h5py") is None:
+            raise ParameterError(f"--label-format {wanted} needs the h5py package, which is "
+                                 "not installed; install it with: pip install 'cavitas[hdf5]'.")
         return suffix.lower()
     name = source.name.lower()
     for suffix in sorted(WRITE_SUFFIXES, key=len, reverse=True):

@@ -16,3 +16,13 @@ settings.load_profile("ci")
 def rng():
     """A fixed-seed random generator (common practice: reproducible tests)."""
     return np.random.default_rng(20261202)
+
+
+@pytest.fixture
+def square_ring():
+    """A 24 x 24 uint8 image of one bright square ring (wall 200) around a dark inside (10),
+    on a dark surround: one enclosed region of 10 x 10 pixels (hand-made geometry)."""
+    img = np.zeros((24, 24), np.uint8)
+    img[4:20, 4:20] = 200
+    img[7:17, 7:17] = 10
+    return img

@@ -99,7 +99,8 @@ def test_compare_command_prints_and_writes(tmp_path, capsys):
     assert code == 0
     out = capsys.readouterr().out
     assert '"found": 1' in out and '"reference_regions": 2' in out
-    assert (tmp_path / "scores.csv").read_text().startswith("truth_label,label,dice,found")
+    assert (tmp_path / "scores.csv").read_text(encoding="utf-8-sig").startswith(
+        "truth_label,label,dice,found")
     # an existing table needs --force: exit code 4 (output problem)
     assert main(["compare", str(tmp_path / "pred.tif"), str(tmp_path / "truth.tif"),
                  "-o", str(tmp_path / "scores.csv")]) == 4

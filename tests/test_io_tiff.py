@@ -117,15 +117,22 @@ def test_written_imagej_file_as_tifffile_sees_it(tmp_path, rng):
         assert page.compression == 8  # zlib / deflate (TIFF tag value 8)
 
 
-def test_written_label_tiff_keeps_int32_and_caution(tmp_path):
-    # ImageJ cannot hold int32 (tifffile refuses it); cavitas writes plain TIFF + JSON
+def test_labels_no_imagej_type_holds_are_plain_tiff_in_pixels_per_centimetre(tmp_path):
+    # source: TIFF 6.0 (ResolutionUnit 3 = centimetre, XResolution = pixels per unit);
+    # 2**24 + 1 is the first integer float32 cannot hold (IEEE 754 binary32)
     labels = np.arange(60, dtype=np.int32).reshape(3, 4, 5)
-    path = write(tmp_path / "labels.tif", labels, spacing=(2.0, 1.0, 1.0), unit="µm")
+    labels[0, 0, 0] = 2**24 + 1
+    path = write(tmp_path / "labels.tif", labels, spacing=(2.0, 0.25, 0.5), unit="µm")
     with tifffile.TiffFile(path) as tif:
         described = json.loads(tif.pages.first.description)
         assert described["caution"] == RESEARCH_ONLY
         assert tif.series[0].dtype == np.int32
-        assert tif.pages.first.tags["ResolutionUnit"].value == 3  # centimetre
+        tags = tif.pages.first.tags
+        assert tags["ResolutionUnit"].value == 3
+        x_per_cm = tags["XResolution"].value[0] / tags["XResolution"].value[1]
+        y_per_cm = tags["YResolution"].value[0] / tags["YResolution"].value[1]
+    assert x_per_cm == pytest.approx(1e4 / 0.5) and y_per_cm == pytest.approx(1e4 / 0.25)
+    assert read(path).spacing == (2.0, 0.25, 0.5)
 
 
 def test_written_ome_tiff_as_tifffile_sees_it(tmp_path):

@@ -13,6 +13,7 @@ from tqdm import tqdm
 from .._caution import RESEARCH_ONLY
 from .._errors import InputFileError, ParameterError
 from ..io._atomic import check_writable
+from ._reading import add_dataset_option
 
 __all__ = ["register", "run"]
 
@@ -65,6 +66,7 @@ def register(subparsers: Any, *, parents: list[argparse.ArgumentParser],
                         help="channel to analyse in a multichannel file (from 0)")
     parser.add_argument("--time", type=int, metavar="T",
                         help="time point to analyse in a time series (from 0)")
+    add_dataset_option(parser)
     parser.add_argument("--one-thread", action="store_true",
                         help="run the wall and cavity sweeps one after the other instead of "
                              "at the same time: 8 instead of 12 bytes per voxel beyond the "
@@ -97,7 +99,8 @@ def run(args: argparse.Namespace) -> int:
     inputs = tuple(p for p in (args.file, args.mask) if p)
     targets = [check_writable(args.out / name, force=args.force, inputs=inputs)
                for name in OUTPUTS]
-    options = {k: getattr(args, k) for k in ("channel", "time") if getattr(args, k) is not None}
+    options = {k: getattr(args, k) for k in ("channel", "time", "dataset")
+               if getattr(args, k) is not None}
     with tqdm(total=5, desc="diagram", unit="step", file=sys.stderr, disable=args.quiet,
               delay=1.0, leave=False) as bar:
         bar.set_postfix_str(f"reading {Path(args.file).name}")

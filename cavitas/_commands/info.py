@@ -10,6 +10,7 @@ from typing import Any
 
 from .._errors import CavitasError
 from ..io import Volume, estimate_memory_bytes, read, summarize
+from ._reading import add_dataset_option
 
 __all__ = ["describe", "register", "run"]
 
@@ -71,6 +72,7 @@ def register(subparsers: Any, *, parents: list[argparse.ArgumentParser],
     choice.add_argument("--time", type=int, metavar="T",
                         help="time point to read, counted from 0 (needed when there are several)")
     choice.add_argument("--key", help="array to read from a .npz file holding several")
+    add_dataset_option(choice)
     geometry = parser.add_argument_group("geometry (replaces what the file states)")
     geometry.add_argument("--spacing", type=_numbers(float, "2 or 3"), metavar="Z,Y,X",
                           help="voxel size in (z, y, x) order, e.g. 2,0.5,0.5")
@@ -165,8 +167,8 @@ def _progress(quiet: bool) -> Any:
 
 def run(args: argparse.Namespace) -> int:
     """Describe each file; carry on past failures; return the worst exit code."""
-    options = dict(channel=args.channel, time=args.time, key=args.key, spacing=args.spacing,
-                   unit=args.unit, shape=args.shape, dtype=args.dtype,
+    options = dict(channel=args.channel, time=args.time, key=args.key, dataset=args.dataset,
+                   spacing=args.spacing, unit=args.unit, shape=args.shape, dtype=args.dtype,
                    byte_order=args.byte_order, offset=args.offset)
     failed = 0
     reader_log = logging.getLogger("cavitas.io")

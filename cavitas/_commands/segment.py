@@ -7,6 +7,7 @@ from pathlib import Path
 from typing import Any
 
 from .._caution import RESEARCH_ONLY
+from ._reading import add_dataset_option
 
 __all__ = [
     "add_segment_options",
@@ -144,11 +145,12 @@ def add_segment_options(p: argparse.ArgumentParser) -> None:
     g.add_argument("--mesh", choices=("ply", "stl"),
                    help="write a surface mesh per chamber into meshes/ (3D only)")
     g.add_argument("--label-format", metavar="EXT",
-                   help="file format of the label maps, e.g. .tif, .nii.gz, .npy "
+                   help="file format of the label maps, e.g. .tif, .ome.tif, .nii.gz, .h5 "
                         "(default: the input's; PNG and raw input give .tif)")
     g = p.add_argument_group("reading")
     g.add_argument("--channel", type=int, metavar="C", help="channel of a multichannel file")
     g.add_argument("--time", type=int, metavar="T", help="time point of a time series")
+    add_dataset_option(g)
 
 
 #: Command-line options that map one-to-one onto SegmentParams fields.
@@ -168,8 +170,9 @@ def params_from_args(args: argparse.Namespace) -> Any:
 
 
 def read_options_from_args(args: argparse.Namespace) -> dict[str, Any]:
-    """The ``cavitas.io.read`` options given on the command line (channel, time)."""
-    return {k: getattr(args, k) for k in ("channel", "time") if getattr(args, k) is not None}
+    """The ``cavitas.io.read`` options given on the command line (channel, time, dataset)."""
+    return {k: getattr(args, k) for k in ("channel", "time", "dataset")
+            if getattr(args, k) is not None}
 
 
 def run(args: argparse.Namespace) -> int:

@@ -22,7 +22,7 @@ MEMORY_SHARE = 0.8
 #: Compressed formats hold several times less than they unpack to (rule of thumb, kept
 #: deliberately high so that the estimate errs on the safe side).
 _COMPRESSED_FACTOR = 4
-_COMPRESSED = (".gz", ".zarr")
+_COMPRESSED = (".gz", ".zarr", ".h5", ".hdf5")  # HDF5 datasets are often compressed
 #: Peak memory per stored byte when the header cannot be read: 8-bit data, the worst case
 #: of :func:`cavitas.io.estimate_memory_bytes` per stored byte.
 _BYTES_PER_INPUT_BYTE = estimate_memory_bytes((1,), np.uint8)

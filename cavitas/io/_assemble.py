@@ -16,7 +16,7 @@ from typing import Any
 import numpy as np
 
 from .._errors import InputFileError, ParameterError
-from ._units import normalise_unit
+from ._units import UNKNOWN, normalise_unit
 from ._volume import Volume
 
 __all__ = ["Decoded", "assemble", "check_spacing_option", "note"]
@@ -69,7 +69,9 @@ def assemble(source: str | Path, decoded: Decoded, *, spacing: Sequence[float] |
              unit: str | None = None) -> Volume:
     """Check decoded data and geometry and build the :class:`Volume`.
 
-    ``spacing`` and ``unit`` given by the user replace what the file says.
+    ``spacing`` and ``unit`` given by the user replace what the file says. A spacing the
+    file states without a unit keeps the unit ``"unknown"`` (with a warning); a ``spacing``
+    given without ``unit`` is in µm, as for :class:`Volume`.
     """
     name = str(source)
     data = decoded.data
@@ -103,8 +105,11 @@ def assemble(source: str | Path, decoded: Decoded, *, spacing: Sequence[float] |
         file_unit = "voxel"  # the file (or user) says "pixel", "voxel": no physical unit
     if file_spacing is None and file_unit is None:
         file_unit = "voxel"
-    elif file_spacing is not None and file_unit is None:
-        note(meta, name, "the file gives a voxel size but no unit; assuming µm")
-        file_unit = "µm"
+    elif option is not None and file_unit in (None, UNKNOWN):
+        file_unit = "µm"  # the documented default of spacing= given without unit=
+    elif file_spacing is not None and file_unit in (None, UNKNOWN):
+        note(meta, name, "the file gives a voxel size but no unit; the unit is unknown "
+                         "(give --unit to state it)")
+        file_unit = UNKNOWN
     return Volume(data, spacing=file_spacing, unit=file_unit, affine=decoded.affine,
                   source=name, meta=meta)

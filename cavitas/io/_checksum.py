@@ -9,6 +9,8 @@ from pathlib import Path
 from typing import Any
 
 from .._errors import InputFileError
+from ._slices import slice_files
+from ._zarr import is_zarr_store
 
 __all__ = ["input_checksum"]
 
@@ -16,11 +18,14 @@ _BLOCK = 1 << 20
 
 
 def input_checksum(path: str | os.PathLike) -> str:
-    """SHA-256 of an input file, of every file in an input folder, or of a glob's matches.
+    """SHA-256 of what is read from an input: a file, a Zarr store, or the slices of a
+    folder or glob.
 
-    For a folder or a glob the digest covers each file's relative path and bytes, in sorted
-    order, so renaming or changing any chunk or slice changes it. ``run.json`` records it
-    and the batch runner compares it to decide whether an input must be done again.
+    A path that exists is that file, even when its name holds ``[``, ``*`` or ``?``. For a
+    Zarr store the digest covers every file's relative path and bytes; for a folder or glob
+    of slices, the name and bytes of each slice :func:`cavitas.io.read` stacks, so renaming
+    or changing any chunk or slice changes it. ``run.json`` records it and the batch runner
+    compares it to decide whether an input must be done again.
 
     Examples
     --------
@@ -33,12 +38,12 @@ def input_checksum(path: str | os.PathLike) -> str:
     path = Path(path)
     digest = hashlib.sha256()
     try:
-        if path.is_dir():
+        if path.is_file() or not (path.is_dir() or glob.has_magic(str(path))):
+            files = [(path, None)]  # a path that exists is that file, whatever its name
+        elif is_zarr_store(path):
             files = [(p, p.relative_to(path)) for p in path.rglob("*") if p.is_file()]
-        elif path.exists() or not glob.has_magic(str(path)):
-            files = [(path, None)]
-        else:
-            files = [(Path(p), Path(p).name) for p in glob.glob(str(path)) if Path(p).is_file()]
+        else:  # the slices read_slices stacks, not every file the folder or pattern holds
+            files = [(p, Path(p.name)) for p in slice_files(str(path))]
         for file, name in sorted(files, key=lambda item: str(item[1] or "")):
             if name is not None:
                 digest.update(Path(name).as_posix().encode() + b"\0")

@@ -12,6 +12,7 @@ import numpy as np
 from .._errors import InputFileError, OutputError, ParameterError
 from ._assemble import Decoded, assemble, check_spacing_option
 from ._atomic import atomic_path
+from ._hdf5 import read_hdf5, write_hdf5
 from ._nifti import read_nifti, write_nifti
 from ._numpy import read_npy, read_npz, write_npy, write_npz
 from ._png import read_png
@@ -20,7 +21,7 @@ from ._slices import is_pattern, read_slices
 from ._tiff import read_tiff, write_tiff
 from ._units import normalise_unit
 from ._volume import Volume
-from ._zarr import read_zarr
+from ._zarr import is_zarr_store, read_zarr
 
 __all__ = ["READ_SUFFIXES", "WRITE_SUFFIXES", "read", "write"]
 
@@ -28,25 +29,20 @@ __all__ = ["READ_SUFFIXES", "WRITE_SUFFIXES", "read", "write"]
 READ_SUFFIXES = {
     ".ome.tiff": "tiff", ".ome.tif": "tiff", ".tiff": "tiff", ".tif": "tiff",
     ".nii.gz": "nifti", ".nii": "nifti", ".hdr": "nifti",
-    ".npy": "npy", ".npz": "npz", ".png": "png",
+    ".npy": "npy", ".npz": "npz", ".png": "png", ".h5": "hdf5", ".hdf5": "hdf5",
     ".raw": "raw", ".bin": "raw", ".img": "raw",
 }
 #: Extension -> format written.
 WRITE_SUFFIXES = {
     ".ome.tiff": "ome", ".ome.tif": "ome", ".tiff": "tiff", ".tif": "tiff",
     ".nii.gz": "nifti", ".nii": "nifti", ".npy": "npy", ".npz": "npz",
+    ".h5": "hdf5", ".hdf5": "hdf5",
 }
 
 
 def _suffix(path: Path, table: dict[str, str]) -> str | None:
     name = path.name.lower()
     return next((s for s in sorted(table, key=len, reverse=True) if name.endswith(s)), None)
-
-
-def _is_zarr(path: Path) -> bool:
-    """A Zarr store: a folder named ``*.zarr`` or holding Zarr's own metadata files."""
-    return path.is_dir() and (path.name.lower().endswith(".zarr") or any(
-        (path / marker).exists() for marker in (".zarray", ".zgroup", "zarr.json")))
 
 
 def _read_kind(path: Path) -> str:
@@ -63,7 +59,7 @@ def _read_kind(path: Path) -> str:
 
 
 def _check_options(text: str, kind: str, *, raw_options: bool, key: str | None,
-                   channel: int | None, time: int | None) -> None:
+                   dataset: str | None, channel: int | None, time: int | None) -> None:
     """Refuse options that do not apply to the format ``kind`` of ``text``."""
     if raw_options and kind != "raw":
         raise ParameterError(
@@ -72,6 +68,9 @@ def _check_options(text: str, kind: str, *, raw_options: bool, key: str | None,
         )
     if key is not None and kind != "npz":
         raise ParameterError(f"key= applies only to .npz files; '{text}' is read as {kind}.")
+    if dataset is not None and kind != "hdf5":
+        raise ParameterError(f"--dataset applies only to HDF5 files (.h5, .hdf5); '{text}' is "
+                             f"read as {kind}.")
     with_channels = kind in ("tiff", "nifti", "png", "slices", "zarr")
     with_times = kind in ("tiff", "nifti", "zarr")
     if (channel and not with_channels) or (time and not with_times):
@@ -82,7 +81,8 @@ def _check_options(text: str, kind: str, *, raw_options: bool, key: str | None,
 
 
 def read(path: str | os.PathLike, *, channel: int | None = None, time: int | None = None,
-         key: str | None = None, spacing: Sequence[float] | None = None,
+         key: str | None = None, dataset: str | None = None,
+         spacing: Sequence[float] | None = None,
          unit: str | None = None, shape: Sequence[int] | None = None,
          dtype: str | np.dtype | None = None, byte_order: str | None = None,
          offset: int = 0, mmap: bool = True) -> Volume:
@@ -90,19 +90,23 @@ def read(path: str | os.PathLike, *, channel: int | None = None, time: int | Non
 
     The format is chosen by the extension: TIFF / OME-TIFF (``.tif``, ``.tiff``), NIfTI
     (``.nii``, ``.nii.gz``, Analyze ``.hdr``/``.img``), NumPy (``.npy``, ``.npz``), PNG,
-    raw binary (``.raw``, ``.bin``, ``.img`` without ``.hdr``), a Zarr / OME-Zarr store
-    (folder; needs the optional ``zarr`` package), or a folder / glob pattern of 2D TIFF or
-    PNG slices.
+    HDF5 (``.h5``, ``.hdf5``; needs the optional ``h5py`` package), raw binary (``.raw``,
+    ``.bin``, ``.img`` without ``.hdr``), a Zarr / OME-Zarr store (folder; needs the
+    optional ``zarr`` package), or a folder / glob pattern of 2D TIFF or PNG slices.
 
     Parameters
     ----------
     path : str or path-like
-        File, Zarr store, folder of slices, or glob pattern (``"stack/z*.tif"``).
+        File, Zarr store, folder of slices, or glob pattern (``"stack/z*.tif"``). A path
+        that exists is always read as that file or folder, even when its name holds
+        ``*``, ``?`` or ``[``; only a path that does not exist may be a pattern.
     channel, time : int, optional
         Index (from 0) of the channel / time point to keep, required when the file holds
         more than one (ImageJ hyperstacks, OME-TIFF, RGB images, 4D/5D NIfTI).
     key : str, optional
         Which array of a ``.npz`` file holding several.
+    dataset : str, optional
+        Which dataset of an HDF5 file holding several image datasets (``"/volumes/raw"``).
     spacing : sequence of float, optional
         Voxel size in ``(z, y, x)`` order; replaces what the file states.
     unit : str, optional
@@ -141,12 +145,12 @@ def read(path: str | os.PathLike, *, channel: int | None = None, time: int | Non
     if unit is not None and not isinstance(unit, str):
         raise ParameterError(f"unit must be a text such as 'µm'; got {unit!r}.")
     raw_options = shape is not None or dtype is not None or byte_order is not None or offset
-    if _is_zarr(Path(text)):
-        kind, source = "zarr", Path(text)
-    elif is_pattern(text) or Path(text).is_dir():
-        kind = "slices"
+    source = Path(text)
+    if is_zarr_store(source):
+        kind = "zarr"
+    elif source.is_dir() or (is_pattern(text) and not source.exists()):
+        kind = "slices"  # a path that exists is that file, even named 'scan[1].tif'
     else:
-        source = Path(text)
         if not source.exists():
             raise InputFileError(f"File '{text}' does not exist.")
         if not source.is_file():
@@ -154,8 +158,8 @@ def read(path: str | os.PathLike, *, channel: int | None = None, time: int | Non
         kind = _read_kind(source)
         if os.path.getsize(source) == 0:
             raise InputFileError(f"'{text}' is empty (0 bytes).")
-    _check_options(text, kind, raw_options=bool(raw_options), key=key, channel=channel,
-                   time=time)
+    _check_options(text, kind, raw_options=bool(raw_options), key=key, dataset=dataset,
+                   channel=channel, time=time)
     decoded: Decoded
     if kind == "slices":
         decoded = read_slices(text, channel=channel)
@@ -171,6 +175,8 @@ def read(path: str | os.PathLike, *, channel: int | None = None, time: int | Non
         decoded = read_npy(source, mmap=mmap)
     elif kind == "npz":
         decoded = read_npz(source, key=key)
+    elif kind == "hdf5":
+        decoded = read_hdf5(source, dataset=dataset, mmap=mmap)
     else:
         decoded = read_raw(source, shape=shape, dtype=dtype, byte_order=byte_order,
                            offset=offset, mmap=mmap)
@@ -186,10 +192,13 @@ def _geometry(data: Any, volume: Volume | None, like: Volume | None,
               spacing: Sequence[float] | None, unit: str | None) -> tuple[Any, ...]:
     """Spacing, unit, affine and NIfTI details of a write.
 
-    By precedence: the options, then the volume written, then ``like`` (when its shape
-    matches). Affine and header come from the first of those that has an affine, unless
-    ``spacing`` is given (then the affine is built from it).
+    By precedence: the options, then the volume written (unless it has no geometry of its
+    own, unit "voxel"), then ``like`` (when its shape matches). Affine and header come from
+    the first of those that has an affine, unless ``spacing`` is given (then the affine is
+    built from it).
     """
+    if volume is not None and volume.unit == "voxel" and volume.affine is None and like is not None:
+        volume = None  # a bare Volume(labels): like= gives the geometry
     donors = [v for v in (volume, like) if v is not None and v.shape == tuple(data.shape)]
     given = check_spacing_option(spacing, data.ndim)
     donor_unit = donors[0].unit if donors else None
@@ -213,11 +222,14 @@ def write(path: str | os.PathLike, array_or_volume: Any, *, like: Volume | None 
           unit: str | None = None, compress: bool = True) -> Path:
     """Write a 2D image or 3D volume, choosing the format from the extension.
 
-    Formats: TIFF (``.tif``, ``.tiff``; ImageJ-compatible when the type allows), OME-TIFF
-    (``.ome.tif``), NIfTI (``.nii``, ``.nii.gz``), NumPy (``.npy``, ``.npz``). The write is
+    Formats: TIFF (``.tif``, ``.tiff``; an ImageJ hyperstack, labels stored in a type
+    ImageJ opens), OME-TIFF (``.ome.tif``), NIfTI (``.nii``, ``.nii.gz``), NumPy (``.npy``,
+    ``.npz``), HDF5 (``.h5``, ``.hdf5``; needs ``h5py``). The write is
     atomic (temporary file, then rename): an existing file is replaced only with
     ``force=True`` and never when it is the volume's (or ``like``'s) own input file. The
-    data type is kept (labels stay integer; ``bool`` masks are written as ``uint8``).
+    data type is kept (labels stay integer; ``bool`` masks are written as ``uint8``); a
+    ``.tif`` stores types ImageJ cannot open (int32 labels) in one it can that holds every
+    value, notes the original type, and :func:`read` gives that type back.
     Written files carry the research-only caution in their metadata, except ``.npy``,
     which cannot hold any.
 
@@ -235,7 +247,7 @@ def write(path: str | os.PathLike, array_or_volume: Any, *, like: Volume | None 
     spacing, unit : optional
         Voxel size ``(z, y, x)`` and unit; override those of the volume or ``like``.
     compress : bool
-        zlib-compress TIFF and ``.npz`` (NIfTI compression follows ``.nii.gz``).
+        zlib-compress TIFF, ``.npz`` and HDF5 (NIfTI compression follows ``.nii.gz``).
 
     Returns
     -------
@@ -285,6 +297,8 @@ def write(path: str | os.PathLike, array_or_volume: Any, *, like: Volume | None 
             write_nifti(tmp, data, spacing=given, unit=unit, affine=affine, nifti=nifti)
         elif kind == "npy":
             write_npy(tmp, data)
+        elif kind == "hdf5":
+            write_hdf5(tmp, data, spacing=given, unit=unit, compress=compress)
         else:
             write_npz(tmp, data, spacing=given, unit=unit, compress=compress)
     return target

@@ -8,7 +8,8 @@ length > 1 needs ``time=`` or ``channel=``; a z axis of length 1 gives a 2D imag
 ``vol.affine`` is the file's voxel-to-world matrix (``img.affine``: sform, else qform), in
 the file's ``(x, y, z)`` voxel order, float64. ``spacing`` is the header's zooms reversed;
 NIfTI-1 stores them as float32, so each is given as the shortest decimal that float32 reads
-back the same (0.1 and not 0.10000000149). The unit comes from ``xyzt_units``.
+back the same (0.1 and not 0.10000000149). The unit comes from ``xyzt_units``; a file
+without a unit code (``unknown``) gives the unit ``"unknown"``, not a guess.
 
 Intensity scaling: when ``scl_slope``/``scl_inter`` are unset or (1, 0) the stored values
 are returned with their stored type (label maps stay integer). A real scaling is applied,
@@ -99,7 +100,7 @@ def read_nifti(path: Path, *, channel: int | None = None, time: int | None = Non
     meta.update(chosen, format=kind, nifti={"version": 2 if kind == "NIfTI-2" else 1,
                                             "sform_code": codes[0], "qform_code": codes[1],
                                             "time_unit": time_unit})
-    return Decoded(data, spacing, None if unit == "unknown" else unit, affine, meta)
+    return Decoded(data, spacing, unit, affine, meta)
 
 
 def _affine_from_spacing(spacing: Sequence[float] | None, ndim: int) -> np.ndarray:

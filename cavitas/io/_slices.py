@@ -45,8 +45,12 @@ def natural_key(name: str) -> tuple[Any, ...]:
 
 
 def slice_files(source: str) -> list[Path]:
-    """The slice files of a folder or glob pattern, naturally sorted."""
-    if is_pattern(source):
+    """The slice files of a folder or glob pattern, naturally sorted.
+
+    An existing folder is a folder even when its name looks like a pattern.
+    """
+    pattern = is_pattern(source) and not Path(source).is_dir()
+    if pattern:
         files = [Path(p) for p in glob.glob(source) if Path(p).is_file()]
         odd = [p for p in files if p.suffix.lower() not in SLICE_SUFFIXES]
         if odd:
@@ -58,7 +62,7 @@ def slice_files(source: str) -> list[Path]:
         files = [p for p in Path(source).iterdir() if p.is_file()
                  and not p.name.startswith(".") and p.suffix.lower() in SLICE_SUFFIXES]
     if not files:
-        where = "matches" if is_pattern(source) else "holds"
+        where = "is no file, and as a glob pattern matches" if pattern else "holds"
         raise InputFileError(
             f"'{source}' {where} no slice files ({', '.join(SLICE_SUFFIXES)})."
         )

@@ -9,8 +9,11 @@ The first image series of the file is read with its axes (``'TZCYX'`` and the li
   ``ResolutionUnit`` (inch, centimetre), from the ImageJ ``unit`` entry, or from the OME
   ``PhysicalSize*Unit`` attributes;
 * Z from the ImageJ ``spacing`` entry or OME ``PhysicalSizeZ``;
-* files cavitas wrote without ImageJ support (int32, float64 ...) keep ``spacing`` and
-  ``unit`` in their JSON description.
+* files cavitas wrote as plain TIFF (see below) keep ``spacing`` and ``unit`` in their
+  JSON description.
+
+An ImageJ file cavitas wrote with an ``original_type`` entry is given back in that type
+(int32 labels stored as uint16 come back int32).
 
 A 72 pixels-per-inch resolution is the usual placeholder of programs that know no pixel
 size, and is ignored (with a warning). Data are memory-mapped when stored contiguously and
@@ -19,13 +22,24 @@ uncompressed, otherwise read into memory. Messages tifffile logs while reading a
 
 Writing
 -------
-uint8, uint16, int16 and float32 are written as ImageJ hyperstacks (axes ``ZYX`` or ``YX``)
-with the z step and unit in the description and X/Y in the resolution tags, so common
-viewers show the physical size. Other types (int32 labels, float64 ...) are not allowed by
-the ImageJ format; they are written as plain TIFF with ``spacing``, ``unit`` and ``axes`` in
-a JSON description and X/Y resolution in pixels per centimetre. ``.ome.tif`` writes OME-TIFF
-with physical sizes. Every written file holds the research-only caution. zlib compression
-(standard library) is used unless ``compress=False``.
+Every TIFF is written so that common viewers show its physical size:
+
+* ``.tif``: an ImageJ hyperstack (axes ``ZYX`` or ``YX``): X/Y in the resolution tags as
+  pixels per unit (``ResolutionUnit`` none), the unit (``unit=``, µm written ``um``) and
+  the z step (``spacing=``) in the ImageJ description. ImageJ opens uint8, uint16, int16
+  and float32 only, so other types are stored in the smallest of those that holds every
+  value exactly: integer labels in uint16 when they fit (0 to 65535), else int16, else
+  float32 (exact up to 2**24 = 16 777 216); float64 and float16 data in float32 when no
+  value changes. The original type is noted in the description (``original_type=int32``)
+  and :func:`read_tiff` gives it back. Only data no ImageJ type holds exactly (more than
+  2**24 labels, float64 that float32 would round) are written as plain TIFF: X/Y in
+  pixels per centimetre, and ``spacing``, ``unit`` and ``axes`` in a JSON description.
+* ``.ome.tif``: OME-TIFF in the data's own type (OME knows int32, uint32 and double),
+  with ``PhysicalSizeX/Y/Z`` and their units in the OME-XML.
+
+A spacing whose unit is ``"unknown"`` is written as numbers without a unit (no OME
+physical size, whose default unit would be µm). Every written file holds the research-only
+caution. zlib compression (standard library) is used unless ``compress=False``.
 """
 
 from __future__ import annotations
@@ -46,11 +60,16 @@ from .._errors import CavitasError, InputFileError
 from ._assemble import Decoded, note
 from ._axes import select_planes
 from ._logs import collect_log
-from ._units import centimetres_per, normalise_unit
+from ._units import centimetres_per, has_named_unit, normalise_unit
 
 __all__ = ["read_tiff", "write_tiff"]
 
-_IMAGEJ_TYPES = {np.dtype(t) for t in ("uint8", "uint16", "int16", "float32")}
+#: The types ImageJ opens, smallest first (the order :func:`_imagej_type` tries them in).
+_IMAGEJ_TYPES = tuple(np.dtype(t) for t in ("uint8", "uint16", "int16", "float32"))
+#: Types an ImageJ file may name as its ``original_type``.
+_ORIGINAL_TYPES = {np.dtype(t) for t in ("int8", "uint32", "int32", "uint64", "int64",
+                                         "float16", "float64")}
+_FLOAT32_EXACT = 2**24  # float32 holds every integer up to this
 _PLACEHOLDER_PPI = 72.0
 _OME_UNITS = {"inch": "in"}
 
@@ -187,6 +206,18 @@ def _kind(tif: Any) -> str:
     return "TIFF"
 
 
+def _original_type(tif: Any, data: Any) -> Any:
+    """The data in the type an ImageJ file cavitas wrote names as ``original_type``."""
+    if not tif.is_imagej:
+        return data
+    name = (tif.imagej_metadata or {}).get("original_type")
+    try:
+        wanted = np.dtype(str(name)) if name is not None else None
+    except TypeError:
+        return data
+    return data.astype(wanted) if wanted in _ORIGINAL_TYPES else data
+
+
 def read_tiff(path: Path, *, channel: int | None = None, time: int | None = None,
               mmap: bool = True) -> Decoded:
     """Read the first image series of a TIFF file; see the module notes."""
@@ -213,6 +244,7 @@ def read_tiff(path: Path, *, channel: int | None = None, time: int | None = None
                 raise _fail(path, f"{log.messages(logging.ERROR)[0]} (truncated or damaged)")
             data, chosen = select_planes(data, series.axes, channel=channel, time=time,
                                          name=str(path))
+            data = _original_type(tif, data)
             spacing, unit = _geometry(tif, series, path, data.ndim, meta)
             meta.update(chosen, format=_kind(tif))
             for message in log.messages():
@@ -231,41 +263,88 @@ def _ascii_unit(unit: str) -> str:
     return "".join(c if ord(c) < 128 else f"\\u{ord(c):04X}" for c in unit)
 
 
+def _imagej_type(data: np.ndarray) -> np.dtype | None:
+    """The first ImageJ type that holds every value of ``data`` exactly, or None.
+
+    Examples
+    --------
+    >>> _imagej_type(np.array([0, 70000], np.int32)), _imagej_type(np.array([0, 9], np.int64))
+    (dtype('float32'), dtype('uint16'))
+    """
+    if data.dtype in _IMAGEJ_TYPES:
+        return data.dtype
+    if data.dtype.kind in "iu":
+        low, high = int(data.min()), int(data.max())
+        for candidate in _IMAGEJ_TYPES[1:3]:  # uint16, int16 (uint8 would lose the label type)
+            limits = np.iinfo(candidate)
+            if limits.min <= low and high <= limits.max:
+                return candidate
+        if max(-low, high) <= _FLOAT32_EXACT:
+            return np.dtype("float32")
+        return None
+    if data.dtype.kind == "f":
+        with np.errstate(over="ignore"):
+            narrowed = data.astype(np.float32)
+        if np.array_equal(narrowed, data, equal_nan=True):
+            return np.dtype("float32")
+    return None
+
+
+def _write_ome(target: Path, data: np.ndarray, axes: str, spacing: Sequence[float] | None,
+               unit: str | None, options: dict[str, Any]) -> None:
+    metadata: dict[str, Any] = {"axes": axes, "Description": RESEARCH_ONLY}
+    if spacing is not None and has_named_unit(unit):
+        for axis, size in zip(axes, spacing, strict=True):
+            metadata[f"PhysicalSize{axis}"] = float(size)
+            metadata[f"PhysicalSize{axis}Unit"] = _OME_UNITS.get(unit, unit)
+    tifffile.imwrite(target, data, ome=True, metadata=metadata, **options)
+
+
+def _write_imagej(target: Path, data: np.ndarray, stored: np.dtype, axes: str,
+                  spacing: Sequence[float] | None, unit: str | None,
+                  options: dict[str, Any]) -> None:
+    metadata: dict[str, Any] = {"axes": axes, "caution": RESEARCH_ONLY, "Info": RESEARCH_ONLY}
+    if stored != data.dtype:
+        metadata["original_type"] = data.dtype.name
+    if spacing is not None:
+        options["resolution"] = (1.0 / spacing[-1], 1.0 / spacing[-2])  # pixels per unit
+        if data.ndim == 3:
+            metadata["spacing"] = float(spacing[0])
+        if has_named_unit(unit):
+            metadata["unit"] = _ascii_unit(unit)
+    tifffile.imwrite(target, data.astype(stored, copy=False), imagej=True, metadata=metadata,
+                     **options)
+
+
+def _write_plain(target: Path, data: np.ndarray, axes: str, spacing: Sequence[float] | None,
+                 unit: str | None, options: dict[str, Any]) -> None:
+    metadata: dict[str, Any] = {"axes": axes, "caution": RESEARCH_ONLY}
+    if spacing is not None:
+        metadata["spacing"] = [float(s) for s in spacing]
+        metadata["unit"] = unit
+        per_cm = centimetres_per(unit)
+        if per_cm is not None:  # pixels per centimetre: 1 / (pixel size in cm)
+            options["resolution"] = (1.0 / (spacing[-1] * per_cm),
+                                     1.0 / (spacing[-2] * per_cm))
+            options["resolutionunit"] = "CENTIMETER"
+    tifffile.imwrite(target, data, ome=False, metadata=metadata, **options)
+
+
 def write_tiff(target: Path, data: np.ndarray, *, spacing: Sequence[float] | None,
                unit: str | None, compress: bool = True, ome: bool = False) -> None:
-    """Write ``data`` (2D or 3D) to ``target`` as ImageJ TIFF, plain TIFF or OME-TIFF."""
+    """Write ``data`` (2D or 3D) to ``target`` as ImageJ TIFF, OME-TIFF or plain TIFF."""
     axes = "ZYX"[-data.ndim:]
-    physical = spacing is not None and unit not in (None, "voxel")
-    if not physical and spacing is not None and all(s == 1 for s in spacing):
+    if unit in (None, "voxel") and spacing is not None and all(s == 1 for s in spacing):
         spacing = None
     options: dict[str, Any] = dict(
         photometric="minisblack", software="cavitas",
         compression="zlib" if compress else None,
     )
     if ome:
-        metadata: dict[str, Any] = {"axes": axes, "Description": RESEARCH_ONLY}
-        if physical:
-            for axis, size in zip(axes, spacing, strict=True):
-                metadata[f"PhysicalSize{axis}"] = float(size)
-                metadata[f"PhysicalSize{axis}Unit"] = _OME_UNITS.get(unit, unit)
-        tifffile.imwrite(target, data, ome=True, metadata=metadata, **options)
+        _write_ome(target, data, axes, spacing, unit, options)
         return
-    if data.dtype in _IMAGEJ_TYPES:
-        metadata = {"axes": axes, "caution": RESEARCH_ONLY, "Info": RESEARCH_ONLY}
-        if spacing is not None:
-            options["resolution"] = (1.0 / spacing[-1], 1.0 / spacing[-2])
-            if data.ndim == 3:
-                metadata["spacing"] = float(spacing[0])
-            if physical:
-                metadata["unit"] = _ascii_unit(unit)
-        tifffile.imwrite(target, data, imagej=True, metadata=metadata, **options)
-        return
-    metadata = {"axes": axes, "caution": RESEARCH_ONLY}
-    if spacing is not None:
-        metadata["spacing"] = [float(s) for s in spacing]
-        metadata["unit"] = unit
-        per_cm = centimetres_per(unit)
-        if per_cm is not None:
-            options["resolution"] = (per_cm / spacing[-1], per_cm / spacing[-2])
-            options["resolutionunit"] = "CENTIMETER"
-    tifffile.imwrite(target, data, ome=False, metadata=metadata, **options)
+    stored = _imagej_type(data)
+    if stored is not None:
+        _write_imagej(target, data, stored, axes, spacing, unit, options)
+    else:
+        _write_plain(target, data, axes, spacing, unit, options)

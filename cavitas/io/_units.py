@@ -4,7 +4,11 @@ from __future__ import annotations
 
 import re
 
-__all__ = ["centimetres_per", "normalise_unit"]
+__all__ = ["UNKNOWN", "centimetres_per", "has_named_unit", "normalise_unit"]
+
+#: The unit of a spacing a file states without saying in what (a NIfTI file without a unit
+#: code, TIFF resolution tags without a unit): the numbers are kept, the unit is not guessed.
+UNKNOWN = "unknown"
 
 #: Spellings met in TIFF (ImageJ, OME), NIfTI and user options, mapped to one name.
 _ALIASES = {
@@ -17,10 +21,11 @@ _ALIASES = {
     "m": "m", "meter": "m", "metre": "m", "meters": "m", "metres": "m",
     "inch": "inch", "inches": "inch", "in": "inch",
     "å": "Å", "angstrom": "Å",
+    UNKNOWN: UNKNOWN,
 }
 
 #: Words that mean "no physical unit".
-_NO_UNIT = {"", "pixel", "pixels", "px", "voxel", "voxels", "none", "unknown"}
+_NO_UNIT = {"", "pixel", "pixels", "px", "voxel", "voxels", "none"}
 
 #: Length of one unit in centimetres (TIFF resolution tags count pixels per centimetre).
 _CENTIMETRES = {"nm": 1e-7, "Å": 1e-8, "µm": 1e-4, "mm": 0.1, "cm": 1.0, "m": 100.0,
@@ -36,6 +41,8 @@ def normalise_unit(unit: str | None) -> str | None:
     --------
     >>> normalise_unit("micron"), normalise_unit("\\\\u00B5m"), normalise_unit("pixel")
     ('µm', 'µm', None)
+    >>> normalise_unit("Unknown")
+    'unknown'
     """
     if unit is None:
         return None
@@ -55,3 +62,14 @@ def centimetres_per(unit: str | None) -> float | None:
     0.0001
     """
     return _CENTIMETRES.get(normalise_unit(unit) or "")
+
+
+def has_named_unit(unit: str | None) -> bool:
+    """True when ``unit`` names a physical unit (not "voxel", "unknown" or nothing).
+
+    Examples
+    --------
+    >>> has_named_unit("µm"), has_named_unit("voxel"), has_named_unit(UNKNOWN)
+    (True, False, False)
+    """
+    return normalise_unit(unit) not in (None, UNKNOWN)

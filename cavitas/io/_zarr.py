@@ -27,9 +27,15 @@ from ._assemble import Decoded
 from ._axes import select_planes
 from ._units import normalise_unit
 
-__all__ = ["read_zarr"]
+__all__ = ["is_zarr_store", "read_zarr"]
 
 _LETTERS = {"t": "T", "time": "T", "c": "C", "channel": "C", "z": "Z", "y": "Y", "x": "X"}
+
+
+def is_zarr_store(path: Path) -> bool:
+    """A Zarr store: a folder named ``*.zarr`` or holding Zarr's own metadata files."""
+    return path.is_dir() and (path.name.lower().endswith(".zarr") or any(
+        (path / marker).exists() for marker in (".zarray", ".zgroup", "zarr.json")))
 
 
 def _open(path: Path) -> Any:
