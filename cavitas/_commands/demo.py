@@ -89,7 +89,7 @@ def run(args: argparse.Namespace) -> int:
     samples = [s for s in SAMPLES if s.name in names]
     folder = sample_folder(args.out, names, force=args.force)
     rows = []
-    bar = tqdm(samples, desc="cavitas demo", unit="sample", disable=args.quiet)
+    bar = tqdm(samples, desc="cavitas demo", unit="sample", disable=not args.progress)
     for sample in bar:
         bar.set_postfix_str(sample.name)
         image_file, truth_file = (folder / f for f in sample.files)

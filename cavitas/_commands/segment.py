@@ -173,7 +173,7 @@ def run(args: argparse.Namespace) -> int:
 
     params, read_options = params_from_args(args), read_options_from_args(args)
     summary = segment_file(args.file, args.out, params, force=args.force,
-                           progress=not args.quiet, read_options=read_options,
+                           progress=args.progress, read_options=read_options,
                            report=not args.no_report, thickness=not args.no_thickness)
     if not args.quiet:
         unit = summary["unit"]

@@ -32,8 +32,8 @@ def check_writable(path: str | os.PathLike, *, force: bool = False,
         raise OutputError(f"Output '{path}' is a folder, expected a file path.")
     if path.exists() and not force:
         raise OutputError(
-            f"Output '{path}' already exists; use force=True (--force) to replace it."
-        )
+            f"Output '{path}' already exists; use force=True to replace it.",
+            parameters=("force",))
     try:
         path.parent.mkdir(parents=True, exist_ok=True)
     except OSError as exc:

@@ -15,8 +15,9 @@ from typing import Any, NamedTuple
 import numpy as np
 
 from .._cores import usable_cores
-from .._errors import ParameterError
+from .._errors import InputFileError, ParameterError
 from ..cubical._neighbors import check_connectivity
+from ..cubical._sort import engine_array
 from ..cubical._tree import OUTSIDE, CavityTree
 from ..io._volume import Volume
 from . import _noise
@@ -134,17 +135,18 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
         raise ParameterError("spacing= is for arrays; a Volume carries its own spacing.")
     if (params.min_volume is not None or params.max_volume is not None) and (
             vol.unit == "voxel"):
-        raise ParameterError("min_volume/max_volume are in physical units and need a known "
-                             "spacing; got an image without spacing (give spacing=).")
+        raise ParameterError(f"min_volume and max_volume are in physical units and need a "
+                             f"known spacing; '{vol.name}' has none (give spacing=).",
+                             parameters=("min_volume", "max_volume", "spacing"))
     ndim = vol.ndim
     connectivity = check_connectivity(ndim, params.connectivity or 1)
     # Memory: the input is read in place (a memory map stays one); every smoothed copy is
     # in the work type (float32 for <= 16-bit data) and only one or two live at a time.
-    raw = np.asarray(vol.data)
+    raw = engine_array(np.asarray(vol.data))
     if raw.dtype == np.bool_:
         raw = raw.view(np.uint8)
     if raw.dtype.kind == "f" and not np.isfinite(raw).all():
-        raise ParameterError(f"Image {vol.name} holds NaN or infinite values; "
+        raise InputFileError(f"Image {vol.name} holds NaN or infinite values; "
                              "replace them (or mask them out) first.")
     if mask is None and params.mask:
         from ..io import read
@@ -152,7 +154,8 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
         mask = np.asarray(read(params.mask).data) != 0
     roi = None if mask is None else np.asarray(mask, bool)
     if roi is not None and roi.shape != raw.shape:
-        raise ParameterError(f"mask has shape {roi.shape}; the image has {raw.shape}.")
+        raise ParameterError(f"mask has shape {roi.shape}; the image has {raw.shape}.",
+                             parameters=("mask",))
     image = _Image(raw, 1.0 if params.walls == "bright" else -1.0,
                    _noise.work_dtype(raw.dtype), closed_border=params.keep_border,
                    statistics_mask=_statistics_mask(roi, raw.shape, params.keep_border))
