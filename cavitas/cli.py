@@ -103,6 +103,10 @@ def _configure_logging(verbose: int, quiet: bool) -> None:
         min(verbose, 2)
     ]
     logging.basicConfig(level=level, format="cavitas: %(levelname)s: %(message)s", force=True)
+    # Dask's loggers keep their own level: set it here and, through its configuration
+    # variable, in the scheduler and worker processes a batch starts (which read it on import)
+    logging.getLogger("distributed").setLevel(level)
+    os.environ["DASK_LOGGING__DISTRIBUTED"] = logging.getLevelName(level).lower()
 
 
 def _subcommand(parser: argparse.ArgumentParser, name: str) -> _Parser:

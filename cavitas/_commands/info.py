@@ -3,12 +3,12 @@
 from __future__ import annotations
 
 import argparse
-import json
 import logging
 import sys
 from typing import Any
 
 from .._errors import EXIT_INTERNAL, CavitasError, ChoiceNeeded
+from .._json import dumps
 from ..io import Volume, estimate_memory_bytes, read, summarize
 from ._words import in_option_words
 
@@ -247,7 +247,7 @@ def run(args: argparse.Namespace) -> int:
         finally:
             reader_log.setLevel(level)
         if args.json:
-            print(json.dumps(facts, ensure_ascii=False, allow_nan=False), flush=True)
+            print(dumps(facts, ensure_ascii=False), flush=True)
         else:
             print(("\n" if shown else "") + _text(facts), flush=True)
         shown += 1

@@ -190,7 +190,7 @@ def run(args: argparse.Namespace) -> int:
         print(f"  noise σ {summary['noise']:.4g}{correlated}, persistence threshold "
               f"{summary['threshold']:.4g} (intensity units), smoothing σ "
               f"{summary['smooth_sigma']:.3g} {unit}")
-        for note in (summary["threshold_basis"], summary["border_note"]):
+        for note in (summary["threshold_basis"], summary["border_note"], summary["image_note"]):
             if note:
                 print(f"  {note}")
         if summary["porosity"] is not None and summary["regions"]:

@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import json
 import logging
 import os
 import sys
@@ -22,6 +21,7 @@ from .._errors import (
     OutputError,
     ParameterError,
 )
+from .._json import dumps
 from .._version import __version__
 from ..io._atomic import atomic_path
 from ._index import write_index
@@ -250,5 +250,5 @@ def _write_batch_files(root: Path, results: list[dict[str, Any]], record: dict[s
         "caution": RESEARCH_ONLY,
     }
     with atomic_path(files[RECORD_NAME], force=True) as tmp:
-        tmp.write_text(json.dumps(batch, indent=1, ensure_ascii=False), encoding="utf-8")
+        tmp.write_text(dumps(batch, indent=1, ensure_ascii=False), encoding="utf-8")
     return files

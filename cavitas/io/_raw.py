@@ -41,7 +41,7 @@ def _layout(path: Path, shape: Sequence[int] | None, dtype: str | np.dtype | Non
     try:
         kind = np.dtype(dtype)
     except TypeError as exc:
-        raise ParameterError(f"dtype {dtype!r} is not a NumPy data type name.",
+        raise ParameterError(f"dtype={dtype!r} is not a NumPy data type name.",
                              parameters=("dtype",)) from exc
     if kind.kind not in "biuf":
         raise ParameterError(f"dtype must be an integer or float type; got {kind}.",
