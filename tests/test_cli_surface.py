@@ -66,6 +66,7 @@ def _option_cases(tmp_path):
     tifffile.imwrite(tmp_path / "hyper.tif", np.zeros((3, 2, 16, 16), np.uint8), imagej=True,
                      metadata={"axes": "TCYX"})
     (tmp_path / "block.raw").write_bytes(bytes(64))
+    np.save(tmp_path / "labels.npy", np.arange(12, dtype=np.int32).reshape(3, 4))
     npy = str(tmp_path / "plain.npy")
     return [  # (arguments, exit code, words the message must hold)
         (["segment", npy, "--min-volume", "5"], 2, ["--min-volume", "--spacing"]),
@@ -84,12 +85,14 @@ def _option_cases(tmp_path):
          ["--dtype nonsense"]),
         (["info", npy, "--key", "a"], 2, ["--key applies only"]),
         (["diagram", npy, "--connectivity", "3"], 2, ["connectivity must be 1"]),
+        (["compare", str(tmp_path / "labels.npy"), str(tmp_path / "labels.npy"),
+          "--min-dice", "0.2"], 2, ["--min-dice must be in (2/3, 1]"]),
     ]
 
 
 def test_errors_name_the_options_never_python_arguments(tmp_path, capsys):
     for arguments, code, words in _option_cases(tmp_path):
-        out = ["-o", str(tmp_path / "out")] if arguments[0] != "info" else []
+        out = ["-o", str(tmp_path / "out")] if arguments[0] in ("segment", "diagram") else []
         assert main([*arguments, *out]) == code, arguments
         (line,) = _err_lines(capsys.readouterr().err, arguments[0])
         for word in words:
@@ -141,6 +144,21 @@ def test_console_exit_codes_for_input_problems(tmp_path):
     assert "gone.tif' does not exist" in proc.stderr
     rows = (tmp_path / "batch" / "summary.csv").read_text(encoding="utf-8")
     assert rows.count("done") == 1 and rows.count("failed") == 1
+
+
+def test_readme_exit_codes_and_options_are_the_real_ones():
+    import cavitas._errors as errors
+
+    readme = (Path(__file__).parents[1] / "README.md").read_text(encoding="utf-8")
+    table = readme.split("## Exit codes", 1)[1].split("\n## ", 1)[0]
+    listed = {int(code) for code in re.findall(r"^\| `(\d+)` \|", table, re.MULTILINE)}
+    assert listed == {getattr(errors, n) for n in dir(errors) if n.startswith("EXIT_")}
+    parser = build_parser()
+    known = {o for action in parser._actions for o in action.option_strings}
+    for sub in parser._subparsers._group_actions[0].choices.values():
+        known |= {o for action in sub._actions for o in action.option_strings}
+    named = set(re.findall(r"(?<![\w-])--[a-z][a-z-]*[a-z]", readme))
+    assert named <= known, sorted(named - known)
 
 
 # -- item 7: info past failures, with pipes, on multi-part files -----------------------
