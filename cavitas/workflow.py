@@ -103,6 +103,8 @@ def measured_regions(seg: Any, *, mask: np.ndarray | None = None,
         values = measured[name]
         if present.all():
             added[name] = values[rows]
+        elif not len(values):  # nothing in the label map was measured (a tiny image)
+            added[name] = np.full(len(rows), np.nan if values.dtype.kind == "f" else None)
         elif values.dtype.kind == "f":
             added[name] = np.where(present, values[np.maximum(rows, 0)], np.nan)
         else:  # ints and flags stay exact; a blank where nothing was measured

@@ -233,7 +233,11 @@ def test_degenerate_images_get_a_result_or_a_sentence(tmp_path, capsys, case):
     name, image, sentence = _degenerate_images()[case]
     np.save(tmp_path / name, image)
     out = tmp_path / "out"
-    assert main(["segment", str(tmp_path / name), "-o", str(out), "--no-thickness"]) == 0
+    # the report too where the image itself is degenerate (a plot of one value, one voxel)
+    report = [] if name in ("three.npy", "one.npy", "slice.npy", "constant.npy") else [
+        "--no-report"]
+    assert main(["segment", str(tmp_path / name), "-o", str(out), "--no-thickness",
+                 *report]) == 0
     captured = capsys.readouterr()
     assert captured.err == ""
     if sentence:
@@ -248,6 +252,18 @@ def test_degenerate_images_get_a_result_or_a_sentence(tmp_path, capsys, case):
         np.testing.assert_array_equal(np.load(out / "labels.npy"),
                                       np.load(reference / "labels.npy"))
         assert _strict_json(out / "run.json")["summary"]["regions"] == 4  # the 4 cells drawn
+
+
+def test_a_listed_region_with_nothing_labelled_is_listed_blank(tmp_path, capsys):
+    # regression: on this 5 x 5 image the only region listed is an enclosure with no
+    # chamber left in the label map; measuring nothing raised an IndexError (exit 5)
+    np.save(tmp_path / "tiny.npy", np.random.default_rng(1).integers(0, 255, (5, 5))
+            .astype(np.uint8))
+    assert main(["segment", str(tmp_path / "tiny.npy"), "-o", str(tmp_path / "out"), "-q",
+                 "--keep-border", "--no-auto", "--min-persistence", "1", "--no-report"]) == 0
+    assert capsys.readouterr().err == ""
+    regions = _strict_json(tmp_path / "out" / "regions.json")["columns"]
+    assert regions["kind"] == ["enclosure"] and regions["voxel_count"] == [None]
 
 
 def test_json_is_strict():
