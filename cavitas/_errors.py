@@ -4,6 +4,11 @@ Every user-facing error is one sentence that names the file or the parameter, wh
 expected and what came. They all derive from :class:`CavitasError`, itself a ``ValueError``,
 so library users can catch one class.
 
+A message names parameters in the words of the Python API (``spacing=``, ``force=True``,
+``min_volume``) and lists them in ``parameters``; the command line rewrites exactly those
+names into its options (``--spacing``, ``--force``, ``--min-volume``), so each message is
+written once and reads right in both places.
+
 Exit codes of the ``cavitas`` command
 -------------------------------------
 ==== =====================================================================
@@ -13,15 +18,20 @@ code meaning
 1    a batch finished, but some inputs failed (each failure is listed)
 2    bad command line or bad parameter value (:class:`ParameterError`)
 3    an input file is missing, unreadable or holds unusable data
-     (:class:`InputFileError`)
+     (:class:`InputFileError`); in a batch, an input named on the command line is
+     missing (the others still run)
 4    an output could not be written, or exists and ``--force`` was not given
      (:class:`OutputError`)
 5    an unexpected internal error (a bug: please report it with ``--debug``)
 130  interrupted by the user (Ctrl-C); nothing half-written is left behind
+141  the reader of the output went away (e.g. ``cavitas info *.tif | head -1``)
 ==== =====================================================================
 """
 
 from __future__ import annotations
+
+from collections.abc import Sequence
+from typing import Any
 
 EXIT_OK = 0
 EXIT_SOME_FAILED = 1
@@ -30,12 +40,32 @@ EXIT_INPUT = 3
 EXIT_OUTPUT = 4
 EXIT_INTERNAL = 5
 EXIT_INTERRUPTED = 130
+EXIT_BROKEN_PIPE = 141  # 128 + SIGPIPE, as for any command whose reader stopped reading
 
 
 class CavitasError(ValueError):
-    """Base class of every error cavitas raises on purpose."""
+    """Base class of every error cavitas raises on purpose.
+
+    Parameters
+    ----------
+    message : str
+        One sentence; parameters are named as in the Python API.
+    parameters : sequence of str
+        The Python names of the parameters the message mentions (``"min_volume"``), which
+        the command line rewrites into its option names.
+
+    Examples
+    --------
+    >>> err = ParameterError("min_volume must be >= 0; got -1.", parameters=["min_volume"])
+    >>> str(err), err.parameters, err.exit_code
+    ('min_volume must be >= 0; got -1.', ('min_volume',), 2)
+    """
 
     exit_code = EXIT_INTERNAL
+
+    def __init__(self, message: str, *, parameters: Sequence[str] = ()) -> None:
+        super().__init__(message)
+        self.parameters = tuple(parameters)
 
 
 class ParameterError(CavitasError):
@@ -54,3 +84,24 @@ class OutputError(CavitasError):
     """An output cannot be written or already exists (names the file)."""
 
     exit_code = EXIT_OUTPUT
+
+
+class ChoiceNeeded(InputFileError):
+    """A file holds several channels, time points or arrays, and none was chosen.
+
+    ``parameters`` names the one option that chooses; ``choices`` lists what it accepts
+    (indices from 0, or the names of the arrays), so a caller such as ``cavitas info`` can
+    describe the file instead of refusing it.
+
+    Examples
+    --------
+    >>> err = ChoiceNeeded("'a.tif' holds 3 channel(s); choose one with channel=N.",
+    ...                    parameter="channel", choices=range(3))
+    >>> err.parameters, err.choices
+    (('channel',), [0, 1, 2])
+    """
+
+    def __init__(self, message: str, *, parameter: str = "",
+                 choices: Sequence[Any] = ()) -> None:
+        super().__init__(message, parameters=[parameter] if parameter else [])
+        self.choices = list(choices)

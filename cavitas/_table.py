@@ -16,7 +16,6 @@ columns are written as the shortest decimal of the float32 value (``0.1``, not
 from __future__ import annotations
 
 import csv
-import json
 import math
 import os
 from collections.abc import Iterator, Mapping
@@ -25,6 +24,7 @@ from typing import Any
 import numpy as np
 
 from ._errors import InputFileError, ParameterError
+from ._json import dumps
 from .io._atomic import atomic_path
 
 __all__ = ["CSV_DIGITS", "CSV_ENCODING", "Table"]
@@ -135,7 +135,7 @@ class Table:
     def to_json(self, path: str | os.PathLike, *, force: bool = False) -> None:
         """Write :meth:`to_dict` as JSON (atomically). Non-finite numbers become null."""
         with atomic_path(path, force=force) as tmp:
-            tmp.write_text(json.dumps(self.to_dict(), indent=1, ensure_ascii=False),
+            tmp.write_text(dumps(self.to_dict(), indent=1, ensure_ascii=False),
                            encoding="utf-8")
 
     @classmethod

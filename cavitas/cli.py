@@ -7,13 +7,22 @@ which adds its parser and sets ``func(args) -> int``.
 from __future__ import annotations
 
 import argparse
+import difflib
 import importlib
 import logging
+import os
 import sys
 from collections.abc import Sequence
 
 from ._caution import RESEARCH_ONLY
-from ._errors import EXIT_INTERNAL, EXIT_INTERRUPTED, EXIT_PARAMETER, CavitasError
+from ._commands._words import in_option_words, option_names
+from ._errors import (
+    EXIT_BROKEN_PIPE,
+    EXIT_INTERNAL,
+    EXIT_INTERRUPTED,
+    EXIT_PARAMETER,
+    CavitasError,
+)
 from ._version import __version__
 
 #: Subcommands in the order ``--help`` lists them.
@@ -31,10 +40,31 @@ examples:
   cavitas info scan.tif                 what is in the file, and what a run would need
   cavitas COMMAND --help                options of one command, with examples
 
-exit codes: 0 ok, 1 some batch inputs failed, 2 bad parameter, 3 bad input file,
-            4 output problem (exists without --force, cannot write), 5 internal error,
-            130 interrupted.
+exit codes: 0 ok, 1 some batch inputs failed, 2 bad parameter, 3 bad or missing input
+            file, 4 output problem (exists without --force, cannot write), 5 internal
+            error, 130 interrupted, 141 the reader of the output went away.
 """
+
+
+class _Parser(argparse.ArgumentParser):
+    """A parser that takes no abbreviated options (``--wall`` is not ``--walls``)."""
+
+    def __init__(self, *args: object, **kwargs: object) -> None:
+        kwargs["allow_abbrev"] = False
+        super().__init__(*args, **kwargs)  # type: ignore[arg-type]
+
+    def unknown(self, extras: Sequence[str]) -> None:
+        """Exit with this parser's usage, naming the unknown options and the closest known."""
+        known = {o.lstrip("-"): o for action in self._actions for o in action.option_strings}
+        options = [e.split("=", 1)[0] for e in extras if e.startswith("-") and e != "-"]
+        sentences = []
+        for word in options:  # the values after an unknown option are not worth naming
+            close = difflib.get_close_matches(word.lstrip("-"), known, n=1, cutoff=0.6)
+            sentences.append(f"unknown option {word}" + (
+                f" (the closest is {known[close[0]]})" if close else ""))
+        if not options:
+            sentences.append(f"unexpected argument(s): {' '.join(extras)}")
+        self.error("; ".join(sentences))
 
 
 class _HelpFormatter(argparse.RawDescriptionHelpFormatter):
@@ -50,18 +80,18 @@ class _HelpFormatter(argparse.RawDescriptionHelpFormatter):
 
 def build_parser() -> argparse.ArgumentParser:
     """Return the parser of the ``cavitas`` command with every subcommand registered."""
-    parser = argparse.ArgumentParser(
+    parser = _Parser(
         prog="cavitas", description=DESCRIPTION, epilog=EPILOG, formatter_class=_HelpFormatter
     )
     parser.add_argument("--version", action="version", version=f"cavitas {__version__}")
-    common = argparse.ArgumentParser(add_help=False)
+    common = _Parser(add_help=False)
     common.add_argument("-v", "--verbose", action="count", default=0,
                         help="say more (repeat for debug messages)")
     common.add_argument("-q", "--quiet", action="store_true",
                         help="print only errors; no progress bars")
     common.add_argument("--debug", action="store_true",
                         help="show the full traceback of any error")
-    subparsers = parser.add_subparsers(dest="command", metavar="COMMAND")
+    subparsers = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
     for name in COMMANDS:
         module = importlib.import_module(f"cavitas._commands.{name}")
         module.register(subparsers, parents=[common], formatter_class=_HelpFormatter)
@@ -73,6 +103,27 @@ def _configure_logging(verbose: int, quiet: bool) -> None:
         min(verbose, 2)
     ]
     logging.basicConfig(level=level, format="cavitas: %(levelname)s: %(message)s", force=True)
+    # Dask's loggers keep their own level: set it here and, through its configuration
+    # variable, in the scheduler and worker processes a batch starts (which read it on import)
+    logging.getLogger("distributed").setLevel(level)
+    os.environ["DASK_LOGGING__DISTRIBUTED"] = logging.getLevelName(level).lower()
+
+
+def _subcommand(parser: argparse.ArgumentParser, name: str) -> _Parser:
+    """The parser of the subcommand ``name``."""
+    for action in parser._subparsers._group_actions if parser._subparsers else ():
+        if isinstance(action, argparse._SubParsersAction):
+            return action.choices[name]
+    raise KeyError(name)  # pragma: no cover - every command is registered
+
+
+def _reader_gone() -> int:
+    """The reader of stdout went away (``| head``): stop quietly, as other commands do."""
+    try:  # later writes, including the interpreter's last flush, go nowhere
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+    except (OSError, ValueError):  # stdout is not a real file (e.g. captured by a test)
+        pass
+    return EXIT_BROKEN_PIPE
 
 
 def main(argv: Sequence[str] | None = None) -> int:
@@ -85,24 +136,33 @@ def main(argv: Sequence[str] | None = None) -> int:
     """
     parser = build_parser()
     try:
-        args = parser.parse_args(argv)
+        args, extras = parser.parse_known_args(argv)
+        if extras:
+            (_subcommand(parser, args.command) if args.command else parser).unknown(extras)
     except SystemExit as exc:  # argparse exits 2 on usage errors, 0 on --help/--version
         return int(exc.code or 0)
     if args.command is None:
         parser.print_help()
         return EXIT_PARAMETER
     _configure_logging(args.verbose, args.quiet)
+    # progress bars only on a terminal: redirected to a file they are noise, and a bar
+    # left half-drawn there would run into the next message
+    args.progress = not args.quiet and sys.stderr.isatty()
+    args.options = option_names(_subcommand(parser, args.command))  # for messages
     try:
         return int(args.func(args) or 0)
     except CavitasError as exc:
         if args.debug:
             raise
-        print(f"cavitas {args.command}: error: {exc}", file=sys.stderr)
+        print(f"cavitas {args.command}: error: "
+              f"{in_option_words(str(exc), exc.parameters, args.options)}", file=sys.stderr)
         return exc.exit_code
     except KeyboardInterrupt:
         print(f"cavitas {args.command}: interrupted; nothing half-written was kept.",
               file=sys.stderr)
         return EXIT_INTERRUPTED
+    except BrokenPipeError:
+        return _reader_gone()
     except Exception as exc:  # a bug: say so plainly, the traceback on request
         if args.debug:
             raise

@@ -78,7 +78,7 @@ def compare_labels(labels: np.ndarray, truth: np.ndarray, *, min_dice: float = 0
         raise ParameterError(f"The label maps differ in shape: {labels.shape} vs {truth.shape}.")
     if not 2 / 3 < min_dice <= 1:
         raise ParameterError(f"min_dice must be in (2/3, 1] for a one-to-one match; "
-                             f"got {min_dice}.")
+                             f"got {min_dice}.", parameters=("min_dice",))
     for name, arr in (("labels", labels), ("truth", truth)):
         if arr.dtype.kind not in "iu" or (arr.size and arr.min() < 0):
             raise ParameterError(f"{name} must hold non-negative integers; got {arr.dtype}.")

@@ -23,7 +23,6 @@ atomically:
 
 from __future__ import annotations
 
-import json
 import os
 import time
 from importlib.util import find_spec
@@ -34,6 +33,7 @@ import numpy as np
 
 from ._caution import RESEARCH_ONLY
 from ._errors import InputFileError, ParameterError
+from ._json import dumps
 from ._table import Table
 from ._version import __version__
 from .io._atomic import atomic_path, check_writable
@@ -49,7 +49,7 @@ def _label_suffix(source: Path, wanted: str | None) -> str:
         suffix = wanted if wanted.startswith(".") else f".{wanted}"
         if suffix.lower() not in WRITE_SUFFIXES:
             raise ParameterError(f"label_format must be one of {sorted(WRITE_SUFFIXES)}; "
-                                 f"got {wanted!r}.")
+                                 f"got {wanted!r}.", parameters=("label_format",))
         if WRITE_SUFFIXES[suffix.lower()] == "hdf5" and find_spec("h5py") is None:
             raise ParameterError(f"--label-format {wanted} needs the h5py package, which is "
                                  "not installed; install it with: pip install 'cavitas[hdf5]'.")
@@ -111,6 +111,8 @@ def measured_regions(seg: Any, *, mask: np.ndarray | None = None, thickness: boo
         values = measured[name]
         if present.all():
             added[name] = values[rows]
+        elif not len(values):  # nothing in the label map was measured (a tiny image)
+            added[name] = np.full(len(rows), np.nan if values.dtype.kind == "f" else None)
         elif values.dtype.kind == "f":
             added[name] = np.where(present, values[np.maximum(rows, 0)], np.nan)
         else:  # ints and flags stay exact; a blank where nothing was measured
@@ -203,6 +205,9 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
                  desc=f"cavitas segment {source.name}", leave=False)
     timings: dict[str, float] = {}
 
+    def stage(text: str) -> None:
+        steps.set_postfix_str(text)
+
     def done(step: str, since: float) -> float:
         now = time.perf_counter()
         timings[step] = round(now - since, 3)
@@ -211,18 +216,24 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
 
     try:
         tick = started
+        stage("reading")
         volume = io.read(source, **dict(read_options or {}))
         mask = _read_mask(params.mask, volume, source)
         if params.mesh and volume.ndim != 3:
-            raise ParameterError(f"mesh needs a 3D volume; '{source}' is 2D.")
+            raise ParameterError(f"mesh needs a 3D volume; '{source}' is 2D.",
+                                 parameters=("mesh",))
         checksum = input_sha256 or input_checksum(source)
         tick = done("read", tick)
-        seg = segment(volume, params=params, mask=mask,
-                      stage=lambda text: steps.set_postfix_str(text))
+        if progress:
+            _prepare_kernels(stage)
+        seg = segment(volume, params=params, mask=mask, stage=stage)
         tick = done("segment", tick)
+        stage("measuring")
         regions, figures = measured_regions(seg, mask=mask, thickness=thickness,
                                             partition=params.partition)
+        notes = run_notes(seg)
         tick = done("measure", tick)
+        stage("writing")
         written = _write_maps(seg, planned, params, force=force)
         regions.to_csv(planned["regions"], force=force)
         regions.to_json(planned["regions_json"], force=force)
@@ -236,16 +247,16 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
         if report:
             from .report import write_report
 
+            stage("report")
             written["report"] = write_report(
                 planned["report"], image=np.asarray(volume.data), labels=seg.labels,
                 spacing=volume.spacing, unit=volume.unit, regions=regions,
                 diagram=seg.diagram, kept=seg.kept, threshold=seg.threshold,
                 params=seg.params, figures=figures, title=source.name, source=source,
-                notes=[n for n in (seg.params.get("polarity_hint"), threshold_basis(seg.params),
-                                   border_note(seg.regions)) if n],
+                notes=[note for note in notes.values() if note],
                 force=force)
         tick = done("report", tick)
-        summary = _summary(seg, source, figures, written)
+        summary = _summary(seg, source, figures, written, notes)
         record = {
             "cavitas_version": __version__,
             "input": str(source),
@@ -263,13 +274,29 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
             "caution": RESEARCH_ONLY,
         }
         with atomic_path(planned["run"], force=force) as tmp:
-            tmp.write_text(json.dumps(record, indent=1, ensure_ascii=False, default=_jsonable),
+            tmp.write_text(dumps(record, indent=1, ensure_ascii=False, default=str),
                            encoding="utf-8")
         summary["outputs"]["run"] = str(planned["run"])
         steps.update()
     finally:
         steps.close()
     return summary
+
+
+def _prepare_kernels(stage: Any) -> None:
+    """Build (or load from numba's cache) the compiled kernels under a label that says so.
+
+    They are compiled on their first use: the first run on a machine spends several
+    seconds building them, later runs load them. Done on a small image first, the wait
+    shows as what it is rather than as the first smoothing scale.
+    """
+    from .cubical._kernels import h0_sweep
+    from .segment import segment
+
+    if h0_sweep.signatures:  # already loaded in this process
+        return
+    stage("loading kernels (compiled on the first run)")
+    segment(np.random.default_rng(0).random((12, 12)).astype(np.float32))
 
 
 def _planned_outputs(source: Path, outdir: Path, params: Any, *,
@@ -384,8 +411,55 @@ def border_note(regions: Any) -> str | None:
             "global figures (porosity, count, mean size).")
 
 
+#: Voxels an axis needs for a region to be enclosed inside the scan: the scan's own edge,
+#: a wall, the inside, a wall and the other edge (the scan's faces are open, not walls).
+ENCLOSING_VOXELS = 5
+
+
+def image_note(image: np.ndarray, regions: int) -> str | None:
+    """One sentence on an image that holds no regions by its nature, or can only hold
+    regions of one persistence (None for an ordinary image).
+
+    Examples
+    --------
+    >>> image_note(np.full((8, 8), 7, np.uint8), 0)
+    'The image is constant (every voxel is 7): it has no walls, so it encloses no region.'
+    >>> image_note(np.zeros((1, 1)), 0).startswith("The image is too small")
+    True
+    >>> image_note(np.eye(9), 2).startswith("The image is binary")
+    True
+    """
+    shape = image.shape
+    if image.ndim == 3 and 1 in shape and regions == 0:
+        return (f"The volume has a single slice along one axis (shape {shape}): every "
+                "region touches the scan's faces there and counts as border-cut; analyse "
+                "it as a 2D image, or count the faces as walls (the keep-border option).")
+    if min(shape) < ENCLOSING_VOXELS and regions == 0:
+        return (f"The image is too small to enclose a region: that takes at least "
+                f"{ENCLOSING_VOXELS} voxels along every axis (edge, wall, inside, wall, "
+                f"edge); its shape is {shape}.")
+    low, high = image.min(), image.max()
+    if low == high:
+        return (f"The image is constant (every voxel is {low.item():g}): it has no walls, so "
+                "it encloses no region.")
+    if not np.any((image != low) & (image != high)):
+        return (f"The image is binary (values {low.item():g} and {high.item():g}): every "
+                "cavity has the same persistence, so persistence cannot tell cells from "
+                "specks; a minimum volume can drop the small ones.")
+    return None
+
+
+def run_notes(seg: Any) -> dict[str, str | None]:
+    """The sentences a run adds to its summary and report (None where there is nothing)."""
+    chambers = int(np.count_nonzero(seg.regions["kind"] == "chamber")) if len(seg.regions) else 0
+    return {"polarity_hint": seg.params.get("polarity_hint"),
+            "threshold_basis": threshold_basis(seg.params),
+            "border_note": border_note(seg.regions),
+            "image_note": image_note(np.asarray(seg.volume.data), chambers)}
+
+
 def _summary(seg: Any, source: Path, figures: dict[str, Any],
-             written: dict[str, Path]) -> dict[str, Any]:
+             written: dict[str, Path], notes: dict[str, str | None]) -> dict[str, Any]:
     kinds = seg.regions["kind"] if len(seg.regions) else np.array([], object)
     n_regions = int((kinds == "chamber").sum())
     return {
@@ -402,18 +476,9 @@ def _summary(seg: Any, source: Path, figures: dict[str, Any],
         "mean_volume": figures.get("mean_volume"),
         "unit": seg.volume.unit,
         "outputs": {k: str(v) for k, v in written.items()},
-        "threshold_basis": threshold_basis(seg.params),
-        "border_note": border_note(seg.regions),
-        "polarity_hint": seg.params.get("polarity_hint"),
+        **notes,
         "message": ("no region passed the selection; empty outputs were written"
                     if n_regions == 0 else f"{n_regions} regions found"),
         "caution": RESEARCH_ONLY,
     }
 
-
-def _jsonable(value: Any) -> Any:
-    if isinstance(value, np.generic):
-        return value.item()
-    if isinstance(value, (np.ndarray, tuple)):
-        return list(value)
-    return str(value)

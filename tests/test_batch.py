@@ -19,7 +19,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from cavitas._errors import OutputError, ParameterError
+from cavitas._errors import InputFileError, OutputError, ParameterError
 from cavitas._table import Table
 from cavitas.batch import _local, expand_inputs, output_name, run_batch
 from cavitas.batch._local import WORKER_BASE_BYTES, run_local
@@ -70,8 +70,11 @@ def test_expand_inputs_files_folders_globs(tmp_path):
     assert [i.path.name for i in found] == ["s1.nii.gz", "s2.tif", "s10.tif", "s3.tif",
                                             "vol.zarr"]
     assert len({i.name for i in found}) == len(found)
-    with pytest.raises(ParameterError, match="does not exist"):
+    with pytest.raises(InputFileError, match="does not exist"):
         expand_inputs([tmp_path / "missing.tif"])
+    missing: list[str] = []
+    assert expand_inputs([tmp_path / "s2.tif", tmp_path / "gone.tif"], missing=missing)
+    assert missing == [str(tmp_path / "gone.tif")]
     with pytest.raises(ParameterError, match="No input files"):
         expand_inputs([str(tmp_path / "*.png")])
 
@@ -218,7 +221,7 @@ def test_outputs_are_never_taken_as_inputs(tmp_path, good_inputs, standin_log):
 
 
 def test_jobs_must_be_positive(tmp_path, good_inputs):
-    with pytest.raises(ParameterError, match="--jobs"):
+    with pytest.raises(ParameterError, match="jobs must be a whole number"):
         run_batch(good_inputs, tmp_path / "out", jobs=0, worker=STANDIN)
 
 

@@ -89,11 +89,10 @@ def _bad_inputs(tmp_path):
     header["dim"][3] = 0
     (tmp_path / "dims.nii").write_bytes(header.binaryblock + bytes(4))
     cases.append(([str(tmp_path / "dims.nii")], 3, "impossible dimensions"))
-    cases.append(([str(Path(data_path) / "example4d.nii.gz")], 3, "--time"))
     (tmp_path / "a.raw").write_bytes(bytes(10))
     cases.append(([str(tmp_path / "a.raw"), "--shape", "2,3", "--dtype", "uint8"], 3,
                   "has 10 bytes"))
-    cases.append(([str(tmp_path / "a.raw")], 2, "shape="))
+    cases.append(([str(tmp_path / "a.raw")], 2, "give its --shape (z, y, x) and --dtype"))
     np.save(tmp_path / "empty.npy", np.zeros((3, 0), np.float32))
     cases.append(([str(tmp_path / "empty.npy")], 3, "holds no voxels"))
     np.save(tmp_path / "ok.npy", np.zeros((3, 4), np.float32))

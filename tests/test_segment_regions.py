@@ -9,7 +9,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy import ndimage as ndi
 
-from cavitas import ParameterError
+from cavitas import InputFileError, ParameterError
 from cavitas.segment import SegmentParams, segment
 
 
@@ -469,5 +469,5 @@ def test_nan_outside_the_mask_is_accepted_as_persistence_does():
     inside, _ = ndi.label(img == 0)
     assert np.array_equal(seg.labels > 0, inside == inside[10, 8])
     holed[10, 8] = np.nan
-    with pytest.raises(ParameterError, match="inside the mask"):
+    with pytest.raises(InputFileError, match="inside the mask"):
         segment(holed, mask=roi, min_persistence=0.5)

@@ -10,6 +10,7 @@ from typing import Any
 
 from .._caution import RESEARCH_ONLY
 from . import segment as _segment
+from ._words import in_option_words
 
 __all__ = ["register", "run"]
 
@@ -23,7 +24,8 @@ threshold, time, problem), regions.csv (every region of every input, with its so
 file), index.html (links to each report) and batch.json.
 
 An input that cannot be read or fails is recorded with one sentence and the others go on;
-the exit code is then 1. Running the same command again skips every input whose outputs
+the exit code is then 1 (3 when an input named on the command line does not exist).
+Running the same command again skips every input whose outputs
 are complete and whose parameters, file contents and cavitas version are unchanged, so an
 interrupted batch (Ctrl-C, a killed process) resumes where it stopped. Unfinished work is
 never left under a final name.
@@ -87,13 +89,14 @@ def run(args: argparse.Namespace) -> int:
         params = params.replace(mask=os.path.abspath(params.mask))
     result = run_batch(args.inputs, args.out, params, jobs=args.jobs,
                        scheduler=args.scheduler, dask=args.dask_local, force=args.force,
-                       progress=not args.quiet,
+                       progress=args.progress,
                        read_options=_segment.read_options_from_args(args))
     counts = {s: sum(r["status"] == s for r in result.results)
               for s in ("done", "reused", "failed")}
     for failure in result.failed:
         where = "" if failure["input"] in failure["error"] else f"{failure['input']}: "
-        print(f"cavitas batch: failed: {where}{failure['error']}", file=sys.stderr)
+        sentence = in_option_words(failure["error"], failure.get("parameters", ()), args.options)
+        print(f"cavitas batch: failed: {where}{sentence}", file=sys.stderr)
     if not args.quiet:
         print(f"{len(result.results)} inputs: {counts['done']} processed, {counts['reused']} "
               f"unchanged since an earlier run, {counts['failed']} failed.\n"

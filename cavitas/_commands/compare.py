@@ -3,11 +3,11 @@
 from __future__ import annotations
 
 import argparse
-import json
 from pathlib import Path
 from typing import Any
 
 from .._caution import RESEARCH_ONLY
+from .._json import dumps
 
 __all__ = ["register", "run"]
 
@@ -69,7 +69,7 @@ def run(args: argparse.Namespace) -> int:
     if args.out:
         table.to_csv(args.out, force=args.force)
     if args.json:
-        print(json.dumps(summary))
+        print(dumps(summary))
     elif not args.quiet:
         print(f"reference regions scored: {summary['reference_regions']}"
               f"{' (border-cut left out)' if args.ignore_border else ''}")

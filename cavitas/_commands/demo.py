@@ -89,7 +89,7 @@ def run(args: argparse.Namespace) -> int:
     samples = [s for s in SAMPLES if s.name in names]
     folder = sample_folder(args.out, names, force=args.force)
     rows = []
-    bar = tqdm(samples, desc="cavitas demo", unit="sample", disable=args.quiet)
+    bar = tqdm(samples, desc="cavitas demo", unit="sample", disable=not args.progress)
     for sample in bar:
         bar.set_postfix_str(sample.name)
         image_file, truth_file = (folder / f for f in sample.files)
@@ -110,15 +110,14 @@ def run(args: argparse.Namespace) -> int:
 def _write_record(rows: list[tuple[str, dict, dict, float]], path: Path, *,
                   force: bool) -> None:
     """``demo.json``: per sample, the run summary and the score against the ground truth."""
-    import json
-
+    from .._json import dumps
     from ..io._atomic import atomic_path
 
     record = {"samples": {name: {"summary": summary, "score": score, "seconds": seconds}
                           for name, summary, score, seconds in rows},
               "caution": RESEARCH_ONLY}
     with atomic_path(path, force=force) as tmp:
-        tmp.write_text(json.dumps(record, indent=1, ensure_ascii=False, default=str),
+        tmp.write_text(dumps(record, indent=1, ensure_ascii=False, default=str),
                        encoding="utf-8")
 
 

@@ -101,7 +101,7 @@ def run(args: argparse.Namespace) -> int:
                for name in OUTPUTS]
     options = {k: getattr(args, k) for k in ("channel", "time", "dataset")
                if getattr(args, k) is not None}
-    with tqdm(total=5, desc="diagram", unit="step", file=sys.stderr, disable=args.quiet,
+    with tqdm(total=5, desc="diagram", unit="step", file=sys.stderr, disable=not args.progress,
               delay=1.0, leave=False) as bar:
         bar.set_postfix_str(f"reading {Path(args.file).name}")
         vol = read(args.file, **options)

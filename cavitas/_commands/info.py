@@ -3,14 +3,15 @@
 from __future__ import annotations
 
 import argparse
-import json
 import logging
 import sys
 from typing import Any
 
-from .._errors import CavitasError
+from .._errors import EXIT_INTERNAL, CavitasError, ChoiceNeeded
+from .._json import dumps
 from ..io import Volume, estimate_memory_bytes, read, summarize
 from ._reading import add_dataset_option
+from ._words import in_option_words
 
 __all__ = ["describe", "register", "run"]
 
@@ -32,6 +33,8 @@ examples:
   cavitas info "stack/slice_*.png"                     a glob of 2D slices (quote it)
   cavitas info block.raw --shape 64,256,256 --dtype uint16 --byte-order big --offset 512
 
+A file with several channels, time points or arrays is described with the first of each
+(and what it holds); --channel, --time and --key choose others.
 Several files: one block each; a file that cannot be read is reported on stderr and the
 others go on. Exit code 0 if all were read, else that of the worst failure (3 for an
 unreadable file, 2 for a bad option).
@@ -65,12 +68,13 @@ def register(subparsers: Any, *, parents: list[argparse.ArgumentParser],
     parser.add_argument("--json", action="store_true",
                         help="print one JSON object per file (keys: source, shape, dtype, "
                              "spacing, unit, min, max, percentiles, nonfinite, memory_bytes, "
-                             "warnings ...)")
+                             "warnings, holds: the channels, time points or arrays of a file "
+                             "that has several ...)")
     choice = parser.add_argument_group("choosing in multi-channel / time-lapse files")
     choice.add_argument("--channel", type=int, metavar="C",
-                        help="channel to read, counted from 0 (needed when there are several)")
+                        help="channel to read, counted from 0 (default: the first)")
     choice.add_argument("--time", type=int, metavar="T",
-                        help="time point to read, counted from 0 (needed when there are several)")
+                        help="time point to read, counted from 0 (default: the first)")
     choice.add_argument("--key", help="array to read from a .npz file holding several")
     add_dataset_option(choice)
     geometry = parser.add_argument_group("geometry (replaces what the file states)")
@@ -131,6 +135,16 @@ def _number(value: Any) -> str:
     return "n/a" if value is None else f"{value:g}"
 
 
+#: Option -> what the file holds several of.
+_HELD = {"channel": "channels", "time": "time points", "key": "arrays"}
+
+
+def _listing(choices: list) -> str:
+    if all(isinstance(c, int) for c in choices):
+        return f"{choices[0]} to {choices[-1]}"
+    return ", ".join(map(str, choices))
+
+
 def _text(facts: dict[str, Any]) -> str:
     axes = "(z, y, x)" if len(facts["shape"]) == 3 else "(y, x)"
     voxels = 1
@@ -151,6 +165,9 @@ def _text(facts: dict[str, Any]) -> str:
         f"  NaN / Inf   {facts['nonfinite']:,} voxels",
         f"  memory      about {_size(facts['memory_bytes'])} for a segmentation",
     ]
+    lines[2:2] = [f"  {_HELD[option]:<11} {len(choices)}: {_listing(choices)}; shown: "
+                  f"{choices[0]} (--{option} to choose)"
+                  for option, choices in facts.get("holds", {}).items()]
     lines += [f"  warning     {w}" for w in facts["warnings"]] or ["  warnings    none"]
     return "\n".join(lines)
 
@@ -165,6 +182,40 @@ def _progress(quiet: bool) -> Any:
     return wrap
 
 
+def read_first_choice(name: str, options: dict[str, Any]) -> tuple[Volume, dict[str, list]]:
+    """Read ``name``, taking the first channel, time point or array where none was chosen.
+
+    Returns the volume and, per option the file needed but was not given (``"channel"``,
+    ``"time"``, ``"key"``), the choices the file holds.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib, numpy as np
+    >>> target = pathlib.Path(tempfile.mkdtemp()) / "two.npz"
+    >>> np.savez(target, a=np.zeros((2, 3)), b=np.ones((4, 5)))
+    >>> volume, held = read_first_choice(str(target), {})
+    >>> volume.shape, held
+    ((2, 3), {'key': ['a', 'b']})
+    """
+    options, held = dict(options), {}
+    while True:
+        try:
+            return read(name, **options), held
+        except ChoiceNeeded as exc:
+            option = exc.parameters[0] if exc.parameters else None
+            if option is None or not exc.choices or options.get(option) is not None:
+                raise
+            held[option] = exc.choices
+            options[option] = exc.choices[0]
+
+
+def _describe_file(name: str, options: dict[str, Any], quiet: bool) -> dict[str, Any]:
+    volume, held = read_first_choice(name, options)
+    facts = describe(volume, progress=_progress(quiet))
+    facts["holds"] = held
+    return facts
+
+
 def run(args: argparse.Namespace) -> int:
     """Describe each file; carry on past failures; return the worst exit code."""
     options = dict(channel=args.channel, time=args.time, key=args.key, dataset=args.dataset,
@@ -173,21 +224,33 @@ def run(args: argparse.Namespace) -> int:
     failed = 0
     reader_log = logging.getLogger("cavitas.io")
     level = reader_log.level
-    for index, name in enumerate(args.files):
+    shown = 0
+    for name in args.files:
         reader_log.setLevel(logging.ERROR)  # metadata warnings are shown in the block
         try:
-            facts = describe(read(name, **options), progress=_progress(args.quiet))
+            facts = _describe_file(name, options, not args.progress)
         except CavitasError as exc:
             if args.debug:
                 raise
-            print(f"cavitas info: error: {exc}", file=sys.stderr)
+            print(f"cavitas info: error: "
+                  f"{in_option_words(str(exc), exc.parameters, args.options)}", file=sys.stderr)
             failed = max(failed, exc.exit_code)
+            continue
+        except (KeyboardInterrupt, BrokenPipeError):
+            raise
+        except Exception as exc:  # a bug on one file: say so, and describe the others
+            if args.debug:
+                raise
+            print(f"cavitas info: internal error on '{name}': {type(exc).__name__}: {exc} "
+                  "(run again with --debug for the traceback, and please report it)",
+                  file=sys.stderr)
+            failed = max(failed, EXIT_INTERNAL)
             continue
         finally:
             reader_log.setLevel(level)
         if args.json:
-            print(json.dumps(facts, ensure_ascii=False))
+            print(dumps(facts, ensure_ascii=False), flush=True)
         else:
-            print(("\n" if index else "") + _text(facts))
+            print(("\n" if shown else "") + _text(facts), flush=True)
+        shown += 1
     return failed
-

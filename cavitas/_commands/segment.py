@@ -181,7 +181,7 @@ def run(args: argparse.Namespace) -> int:
 
     params, read_options = params_from_args(args), read_options_from_args(args)
     summary = segment_file(args.file, args.out, params, force=args.force,
-                           progress=not args.quiet, read_options=read_options,
+                           progress=args.progress, read_options=read_options,
                            report=not args.no_report, thickness=not args.no_thickness)
     if not args.quiet:
         unit = summary["unit"]
@@ -199,7 +199,7 @@ def run(args: argparse.Namespace) -> int:
               f"{summary['threshold']:.4g} (intensity units), smoothing σ "
               f"{summary['smooth_sigma']:.3g} {unit}")
         for note in (summary["polarity_hint"], summary["threshold_basis"],
-                     summary["border_note"]):
+                     summary["border_note"], summary["image_note"]):
             if note:
                 print(f"  {note}")
         if summary["porosity"] is not None and summary["regions"]:

@@ -10,10 +10,10 @@ import re
 from dataclasses import dataclass
 from pathlib import Path
 
-from .._errors import ParameterError
+from .._errors import InputFileError, ParameterError
 from ..io import READ_SUFFIXES
 
-__all__ = ["BatchInput", "expand_inputs", "natural_key", "output_name"]
+__all__ = ["BatchInput", "expand_inputs", "missing_sentence", "natural_key", "output_name"]
 
 log = logging.getLogger(__name__)
 
@@ -94,18 +94,27 @@ def _folder_members(folder: Path) -> list[Path]:
     return found
 
 
-def expand_inputs(items: list[str | os.PathLike]) -> list[BatchInput]:
+def missing_sentence(text: str) -> str:
+    """The sentence for an input named on the command line that does not exist."""
+    return f"Input '{text}' does not exist (expected a file, folder or glob pattern)."
+
+
+def expand_inputs(items: list[str | os.PathLike], *,
+                  missing: list[str] | None = None) -> list[BatchInput]:
     """Expand files, folders and glob patterns into a sorted list of unique inputs.
 
     A folder contributes the image files directly inside it (hidden files and files of
     unknown type are skipped); a Zarr store, although a folder, is one input. Glob patterns
     (``*``, ``?``, ``[...]``; ``**`` for any depth) are expanded. Each file appears once
     even if several items name it. The result is in natural order of the paths.
+    An item that names nothing that exists is added to ``missing`` when that list is given.
 
     Raises
     ------
+    InputFileError
+        If an item names nothing that exists and ``missing`` is not given.
     ParameterError
-        If an item names nothing that exists, or nothing at all is found.
+        If nothing at all is found.
 
     Examples
     --------
@@ -126,9 +135,11 @@ def expand_inputs(items: list[str | os.PathLike]) -> list[BatchInput]:
         elif _GLOB_CHARS.search(text):
             members = [Path(p) for p in glob.glob(text, recursive=True)]
             members = [p for p in members if p.is_file() or _is_zarr_store(p)]
+        elif missing is not None:
+            missing.append(text)
+            continue
         else:
-            raise ParameterError(f"Input '{text}' does not exist (expected a file, folder or "
-                                 "glob pattern).")
+            raise InputFileError(missing_sentence(text))
         if not members:
             log.warning("Input '%s' matched no image file.", text)
         for member in members:

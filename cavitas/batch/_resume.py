@@ -18,6 +18,7 @@ from typing import Any
 
 from .._caution import RESEARCH_ONLY
 from .._errors import OutputError
+from .._json import dumps
 from ..io._atomic import atomic_path
 from ..io._checksum import input_checksum
 
@@ -47,7 +48,7 @@ def json_ready(value: Any) -> Any:
     >>> json_ready({"spacing": (1, 2.5), "walls": "bright"})
     {'spacing': [1, 2.5], 'walls': 'bright'}
     """
-    return json.loads(json.dumps(value, sort_keys=True, default=str))
+    return json.loads(dumps(value, sort_keys=True, default=str))
 
 
 def write_record(folder: Path, *, input_path: str, checksum: str, params: Mapping[str, Any],
@@ -69,7 +70,7 @@ def write_record(folder: Path, *, input_path: str, checksum: str, params: Mappin
     }
     target = folder / DONE_NAME
     with atomic_path(target, force=True) as tmp:
-        tmp.write_text(json.dumps(record, indent=1, ensure_ascii=False), encoding="utf-8")
+        tmp.write_text(dumps(record, indent=1, ensure_ascii=False), encoding="utf-8")
     return target
 
 

@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import json
 import logging
 import os
 import sys
@@ -14,11 +13,19 @@ from typing import Any
 
 from .._caution import RESEARCH_ONLY
 from .._cores import usable_cores
-from .._errors import EXIT_OK, EXIT_SOME_FAILED, OutputError, ParameterError
+from .._errors import (
+    EXIT_INPUT,
+    EXIT_OK,
+    EXIT_SOME_FAILED,
+    InputFileError,
+    OutputError,
+    ParameterError,
+)
+from .._json import dumps
 from .._version import __version__
 from ..io._atomic import atomic_path
 from ._index import write_index
-from ._inputs import expand_inputs
+from ._inputs import expand_inputs, missing_sentence
 from ._lock import folder_lock
 from ._memory import MEMORY_SHARE, available_memory, estimate_task_bytes
 from ._resume import json_ready, remove_stale
@@ -48,8 +55,15 @@ class BatchResult:
         return [r for r in self.results if r["status"] == FAILED]
 
     @property
+    def missing(self) -> list[dict[str, Any]]:
+        """Results of the inputs named on the command line that do not exist."""
+        return [r for r in self.failed if r.get("missing")]
+
+    @property
     def exit_code(self) -> int:
-        """0 if every input is complete, 1 if some failed."""
+        """0 if every input is complete, 3 if a named input is missing, else 1 if some failed."""
+        if self.missing:
+            return EXIT_INPUT
         return EXIT_SOME_FAILED if self.failed else EXIT_OK
 
 
@@ -148,9 +162,17 @@ def run_batch(inputs: Sequence[str | os.PathLike], outdir: str | os.PathLike,
     """
     jobs = default_jobs() if jobs is None else jobs
     if not isinstance(jobs, int) or jobs < 1:
-        raise ParameterError(f"--jobs must be a whole number >= 1; got {jobs!r}.")
+        raise ParameterError(f"jobs must be a whole number >= 1; got {jobs!r}.",
+                             parameters=("jobs",))
     root = Path(os.path.abspath(outdir))
-    items = [i for i in expand_inputs(list(inputs)) if root not in i.path.parents]
+    missing: list[str] = []
+    try:
+        found = expand_inputs(list(inputs), missing=missing)
+    except ParameterError:  # nothing found: name what is missing, if something is
+        if missing:
+            raise InputFileError(missing_sentence(missing[0])) from None
+        raise
+    items = [i for i in found if root not in i.path.parents]
     if not items:  # e.g. a glob that only matched earlier outputs
         raise ParameterError(f"Every input found lies inside the output folder '{root}'.")
     if root.exists() and not root.is_dir():
@@ -167,8 +189,15 @@ def run_batch(inputs: Sequence[str | os.PathLike], outdir: str | os.PathLike,
         remove_stale(root)
         results = _execute(tasks, jobs=jobs, scheduler=scheduler, dask=dask,
                            progress=progress, memory_budget=memory_budget)
+        results += [_missing_result(text) for text in missing]
         files = _write_batch_files(root, results, record, started)
     return BatchResult(results, root, files)
+
+
+def _missing_result(text: str) -> dict[str, Any]:
+    """The failed result of an input named on the command line that does not exist."""
+    return {"input": text, "name": "", "status": FAILED, "missing": True, "seconds": 0.0,
+            "summary": {}, "parameters": [], "error": missing_sentence(text)}
 
 
 def _execute(tasks: list[Task], *, jobs: int, scheduler: str | None, dask: bool,
@@ -221,5 +250,5 @@ def _write_batch_files(root: Path, results: list[dict[str, Any]], record: dict[s
         "caution": RESEARCH_ONLY,
     }
     with atomic_path(files[RECORD_NAME], force=True) as tmp:
-        tmp.write_text(json.dumps(batch, indent=1, ensure_ascii=False), encoding="utf-8")
+        tmp.write_text(dumps(batch, indent=1, ensure_ascii=False), encoding="utf-8")
     return files

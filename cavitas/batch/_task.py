@@ -113,7 +113,8 @@ def run_task(task: Task) -> dict[str, Any]:
 
     The result has ``input``, ``name``, ``status`` (``"done"``, ``"reused"`` or
     ``"failed"``), ``error`` (one sentence or ``""``), ``seconds`` and ``summary`` (the
-    worker's figures).
+    worker's figures); a failure also has ``parameters``, those its sentence names (see
+    :class:`cavitas._errors.CavitasError`).
     """
     start = time.perf_counter()
     result: dict[str, Any] = {"input": task.path, "name": task.name, "status": FAILED,
@@ -131,7 +132,8 @@ def run_task(task: Task) -> dict[str, Any]:
                               seconds=record.get("seconds", 0.0))
                 return result
             result["error"] = (f"Output folder '{final}' exists but {why}; "
-                               "use --force to replace it.")
+                               "use force=True to replace it.")
+            result["parameters"] = ["force"]
             return result
         staging = new_staging(root, task.name)
         worker = resolve_worker(task.worker)
@@ -151,6 +153,7 @@ def run_task(task: Task) -> dict[str, Any]:
         result.update(status=DONE, summary=summary, seconds=round(seconds, 3))
     except Exception as exc:  # one failing input must not stop the others
         result["error"] = failure_sentence(exc, task.path)
+        result["parameters"] = list(getattr(exc, "parameters", ()))
     finally:
         if staging is not None:
             shutil.rmtree(staging, ignore_errors=True)

@@ -9,12 +9,12 @@ from typing import Any
 import numpy as np
 
 from .._cores import usable_cores
-from .._errors import ParameterError
+from .._errors import InputFileError, ParameterError
 from ..io._volume import Volume
 from ._diagram import PAIR_DTYPE, Diagram
 from ._kernels import cavity_sweep_kernel, h0_sweep, neighbor_chain
 from ._neighbors import check_connectivity, dual_connectivity, grid_shape3
-from ._sort import index_dtype, sort_voxels, supported
+from ._sort import engine_array, index_dtype, sort_voxels
 from ._tree import CavityTree
 
 __all__ = ["cavity_sweep", "persistence"]
@@ -37,14 +37,7 @@ class _Prepared:
             )
         if arr.size == 0:
             raise ParameterError(f"image must hold at least one voxel; got shape {arr.shape}.")
-        if arr.dtype == np.float16:
-            arr = arr.astype(np.float32)
-        elif not arr.dtype.isnative:  # e.g. big-endian data from a file: one converted copy
-            arr = arr.astype(arr.dtype.newbyteorder("="))
-        if not supported(arr.dtype):
-            raise ParameterError(
-                f"image must have an integer or float dtype; got {arr.dtype}."
-            )
+        arr = engine_array(arr)
         if walls not in ("bright", "dark"):
             raise ParameterError(f"walls must be 'bright' or 'dark'; got {walls!r}.")
         self.shape = tuple(arr.shape)
@@ -68,7 +61,7 @@ class _Prepared:
         self.order, nonfinite = sort_voxels(self.flat, self.mask, descending=not self.bright)
         if nonfinite:
             where = "inside the mask" if self.mask is not None else "(mask them out to skip them)"
-            raise ParameterError(
+            raise InputFileError(
                 f"image holds {nonfinite} NaN or infinite value(s) {where}; expected finite "
                 "intensities."
             )

@@ -22,7 +22,7 @@ from numba import njit
 
 from .._errors import ParameterError
 
-__all__ = ["index_dtype", "sort_voxels", "supported"]
+__all__ = ["engine_array", "index_dtype", "sort_voxels", "supported"]
 
 # dtype -> (unsigned view, key mode: 0 unsigned, 1 signed integer, 2 IEEE float)
 _VIEWS = {
@@ -48,6 +48,29 @@ def index_dtype(size: int) -> type:
 def supported(dtype: np.dtype) -> bool:
     """Whether :func:`sort_voxels` reads ``dtype`` without conversion."""
     return np.dtype(dtype) in _VIEWS
+
+
+def engine_array(arr: np.ndarray, name: str = "image") -> np.ndarray:
+    """``arr`` in a type every stage reads: itself when possible, else one converted copy.
+
+    Non-native byte order becomes native, float16 becomes float32 (exactly) and wider
+    floats (long double) become float64, rounded to its 53-bit precision. Anything else
+    that is not an integer or float type is refused with a :class:`ParameterError`.
+
+    Examples
+    --------
+    >>> engine_array(np.ones(2, np.float16)).dtype, engine_array(np.ones(2, np.longdouble)).dtype
+    (dtype('float32'), dtype('float64'))
+    """
+    if arr.dtype.kind == "f" and arr.dtype.itemsize > 8:
+        return arr.astype(np.float64)
+    if arr.dtype == np.float16:
+        return arr.astype(np.float32)
+    if not arr.dtype.isnative:  # e.g. big-endian data from a file
+        arr = arr.astype(arr.dtype.newbyteorder("="))
+    if not supported(arr.dtype):
+        raise ParameterError(f"{name} must have an integer or float dtype; got {arr.dtype}.")
+    return arr
 
 
 @njit(cache=True, inline="always")

@@ -54,14 +54,15 @@ def check_spacing_option(spacing: Any, ndim: int | None = None) -> tuple[float, 
     try:
         values = tuple(float(s) for s in np.ravel(np.asarray(spacing, dtype=float)))
     except (TypeError, ValueError) as exc:
-        raise ParameterError(f"spacing must be numbers; got {spacing!r}.") from exc
+        raise ParameterError(f"spacing must be numbers; got {spacing!r}.",
+                             parameters=("spacing",)) from exc
     if not values or not all(np.isfinite(v) and v > 0 for v in values):
-        raise ParameterError(f"spacing must be finite and > 0 on every axis; got {values}.")
+        raise ParameterError(f"spacing must be finite and > 0 on every axis; got {values}.",
+                             parameters=("spacing",))
     if ndim is not None and len(values) != ndim:
         raise ParameterError(
             f"spacing must have one value per axis ({ndim}, in (z, y, x) order); "
-            f"got {len(values)}: {values}."
-        )
+            f"got {len(values)}: {values}.", parameters=("spacing",))
     return values
 
 
@@ -97,8 +98,8 @@ def assemble(source: str | Path, decoded: Decoded, *, spacing: Sequence[float] |
         ):
             raise InputFileError(
                 f"'{name}' states a voxel spacing of {file_spacing} for an array of shape "
-                f"{shape}; expected one finite value > 0 per axis (give spacing= to replace it)."
-            )
+                f"{shape}; expected one finite value > 0 per axis (give spacing= to replace it).",
+                parameters=("spacing",))
     stated = unit if unit is not None else decoded.unit
     file_unit = normalise_unit(stated)
     if file_unit is None and stated is not None and str(stated).strip():

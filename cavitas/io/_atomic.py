@@ -17,6 +17,10 @@ def check_writable(path: str | os.PathLike, *, force: bool = False,
                    inputs: tuple[str | os.PathLike, ...] = ()) -> Path:
     """Check that ``path`` may be written: not an input, and not existing unless ``force``.
 
+    Nothing is created: a missing folder is made by :func:`atomic_path` when the file is
+    written, so a run that fails earlier (an unreadable input, a bad option) leaves no
+    empty folder behind.
+
     Raises
     ------
     OutputError
@@ -32,12 +36,15 @@ def check_writable(path: str | os.PathLike, *, force: bool = False,
         raise OutputError(f"Output '{path}' is a folder, expected a file path.")
     if path.exists() and not force:
         raise OutputError(
-            f"Output '{path}' already exists; use force=True (--force) to replace it."
-        )
-    try:
-        path.parent.mkdir(parents=True, exist_ok=True)
-    except OSError as exc:
-        raise OutputError(f"Cannot create the folder of '{path}': {exc.strerror or exc}.") from exc
+            f"Output '{path}' already exists; use force=True to replace it.",
+            parameters=("force",))
+    folder = path.parent.absolute()
+    while not folder.exists() and folder != folder.parent:
+        folder = folder.parent  # the nearest folder that exists: the others will be made
+    if not folder.is_dir():
+        raise OutputError(f"Cannot create the folder of '{path}': '{folder}' is a file.")
+    if not os.access(folder, os.W_OK | os.X_OK):
+        raise OutputError(f"Cannot write '{path}': the folder '{folder}' is not writable.")
     return path
 
 
@@ -70,6 +77,10 @@ def atomic_path(path: str | os.PathLike, *, force: bool = False,
     'a,b\\n1,2\\n'
     """
     path = check_writable(path, force=force, inputs=inputs)
+    try:
+        path.parent.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise OutputError(f"Cannot create the folder of '{path}': {exc.strerror or exc}.") from exc
     suffix = "".join(path.suffixes[-2:]) if path.suffixes else ""
     fd, tmp_name = tempfile.mkstemp(prefix=f".{path.name}.", suffix=f".part{suffix}",
                                     dir=path.parent)

@@ -12,7 +12,7 @@ from typing import Any
 
 import numpy as np
 
-from .._errors import InputFileError, ParameterError
+from .._errors import ChoiceNeeded, InputFileError, ParameterError
 
 __all__ = ["select_planes"]
 
@@ -35,18 +35,17 @@ def _pick(data: Any, axes: str, letter: str, choice: int | None, name: str,
     size = data.shape[axes.index(letter)] if letter in axes else 1
     if choice is None:
         if size > 1:
-            raise InputFileError(
+            raise ChoiceNeeded(
                 f"'{name}' holds {size} {plural} (axes {original}, shape {shape}); "
-                f"choose one with {option}= (--{option} N, counted from 0)."
-            )
+                f"choose one with {option}=N (counted from 0).",
+                parameter=option, choices=range(size))
         choice = 0 if letter in axes else None
     elif isinstance(choice, bool) or not isinstance(choice, (int, np.integer)) or not (
         0 <= choice < size
     ):
         raise ParameterError(
             f"{option}={choice!r} is out of range for '{name}', which holds {size} {plural} "
-            f"(0 to {size - 1})."
-        )
+            f"(0 to {size - 1}).", parameters=(option,))
     if letter not in axes:
         return data, axes, None
     index = axes.index(letter)

@@ -64,20 +64,22 @@ def _check_options(text: str, kind: str, *, raw_options: bool, key: str | None,
     if raw_options and kind != "raw":
         raise ParameterError(
             f"shape=, dtype=, byte_order= and offset= apply only to raw files; '{text}' is "
-            f"read as {kind}."
-        )
+            f"read as {kind}.", parameters=("shape", "dtype", "byte_order", "offset"))
     if key is not None and kind != "npz":
-        raise ParameterError(f"key= applies only to .npz files; '{text}' is read as {kind}.")
+        raise ParameterError(f"key= applies only to .npz files; '{text}' is read as {kind}.",
+                             parameters=("key",))
     if dataset is not None and kind != "hdf5":
-        raise ParameterError(f"--dataset applies only to HDF5 files (.h5, .hdf5); '{text}' is "
-                             f"read as {kind}.")
+        raise ParameterError(f"dataset= applies only to HDF5 files (.h5, .hdf5); '{text}' is "
+                             f"read as {kind}.", parameters=("dataset",))
     with_channels = kind in ("tiff", "nifti", "png", "slices", "zarr")
     with_times = kind in ("tiff", "nifti", "zarr")
-    if (channel and not with_channels) or (time and not with_times):
-        raise ParameterError(
-            f"channel={channel} / time={time} cannot be chosen in '{text}': a {kind} input "
-            "holds " + ("one time point." if with_channels else "one channel at one time point.")
-        )
+    for name, value, possible in (("channel", channel, with_channels),
+                                  ("time", time, with_times)):
+        if value and not possible:
+            raise ParameterError(
+                f"{name}={value} cannot be chosen in '{text}': a {kind} input holds "
+                + ("one time point." if with_channels else "one channel at one time point."),
+                parameters=(name,))
 
 
 def read(path: str | os.PathLike, *, channel: int | None = None, time: int | None = None,
@@ -143,7 +145,8 @@ def read(path: str | os.PathLike, *, channel: int | None = None, time: int | Non
     text = os.fspath(path)
     check_spacing_option(spacing)
     if unit is not None and not isinstance(unit, str):
-        raise ParameterError(f"unit must be a text such as 'µm'; got {unit!r}.")
+        raise ParameterError(f"unit must be a text such as 'µm'; got {unit!r}.",
+                             parameters=("unit",))
     raw_options = shape is not None or dtype is not None or byte_order is not None or offset
     source = Path(text)
     if is_zarr_store(source):

@@ -19,7 +19,7 @@ from typing import Any
 import numpy as np
 
 from .._caution import RESEARCH_ONLY
-from .._errors import CavitasError, InputFileError, ParameterError
+from .._errors import CavitasError, ChoiceNeeded, InputFileError, ParameterError
 from ._assemble import Decoded
 
 __all__ = ["read_npy", "read_npz", "write_npy", "write_npz"]
@@ -44,15 +44,14 @@ def read_npz(path: Path, *, key: str | None = None) -> Decoded:
             names = [k for k in archive.files if k not in METADATA_KEYS]
             if key is None:
                 if len(names) != 1:
-                    raise InputFileError(
+                    raise ChoiceNeeded(
                         f"'{path}' holds {len(names)} arrays ({', '.join(names) or 'none'}); "
-                        "choose one with key=."
-                    )
+                        "choose one with key=.", parameter="key", choices=names)
                 key = names[0]
             elif key not in archive.files:
                 raise ParameterError(
-                    f"key={key!r} is not in '{path}', which holds: {', '.join(names)}."
-                )
+                    f"key={key!r} is not in '{path}', which holds: {', '.join(names)}.",
+                    parameters=("key",))
             data = archive[key]
             spacing = archive["spacing"] if "spacing" in archive.files else None
             unit = str(archive["unit"]) if "unit" in archive.files else None

@@ -27,28 +27,34 @@ def _layout(path: Path, shape: Sequence[int] | None, dtype: str | np.dtype | Non
     if shape is None or dtype is None:
         raise ParameterError(
             f"'{path}' is a raw file without a header; give its shape= (z, y, x) and dtype= "
-            "(and byte_order=, offset= if needed)."
+            "(and byte_order=, offset= if needed).",
+            parameters=("shape", "dtype", "byte_order", "offset"),
         )
     try:
         dims = tuple(int(n) for n in shape)
     except (TypeError, ValueError) as exc:
-        raise ParameterError(f"shape must be 2 or 3 whole numbers; got {shape!r}.") from exc
+        raise ParameterError(f"shape must be 2 or 3 whole numbers; got {shape!r}.",
+                             parameters=("shape",)) from exc
     if len(dims) not in (2, 3) or min(dims) < 1:
-        raise ParameterError(f"shape must be 2 or 3 numbers >= 1, in (z, y, x) order; got {dims}.")
+        raise ParameterError(f"shape must be 2 or 3 numbers >= 1, in (z, y, x) order; got {dims}.",
+                             parameters=("shape",))
     try:
         kind = np.dtype(dtype)
     except TypeError as exc:
-        raise ParameterError(f"dtype={dtype!r} is not a NumPy data type name.") from exc
+        raise ParameterError(f"dtype={dtype!r} is not a NumPy data type name.",
+                             parameters=("dtype",)) from exc
     if kind.kind not in "biuf":
-        raise ParameterError(f"dtype must be an integer or float type; got {kind}.")
+        raise ParameterError(f"dtype must be an integer or float type; got {kind}.",
+                             parameters=("dtype",))
     if byte_order is not None:
         if byte_order not in BYTE_ORDERS:
             raise ParameterError(
-                f"byte_order must be one of {', '.join(BYTE_ORDERS)}; got {byte_order!r}."
-            )
+                f"byte_order must be one of {', '.join(BYTE_ORDERS)}; got {byte_order!r}.",
+                parameters=("byte_order",))
         kind = kind.newbyteorder(BYTE_ORDERS[byte_order])
     if isinstance(offset, bool) or not isinstance(offset, (int, np.integer)) or offset < 0:
-        raise ParameterError(f"offset must be a whole number of bytes >= 0; got {offset!r}.")
+        raise ParameterError(f"offset must be a whole number of bytes >= 0; got {offset!r}.",
+                             parameters=("offset",))
     return dims, kind
 
 

@@ -9,12 +9,12 @@ until they fit a byte budget, so a 512³ scan gives a page of about 12 MB.
 from __future__ import annotations
 
 import html
-import json
 from collections.abc import Sequence
 from dataclasses import dataclass, field
 
 import numpy as np
 
+from .._json import dumps
 from ._encode import data_uri, grey_png, outline_png
 from ._render import intensity_window, render_slice, take_slice
 
@@ -105,7 +105,7 @@ def build_frames(image: np.ndarray, labels: np.ndarray | None, *, max_frames: in
 
 def _json_for_script(value: object) -> str:
     """JSON that cannot end the ``<script>`` element it sits in."""
-    text = json.dumps(value, ensure_ascii=True, separators=(",", ":"))
+    text = dumps(value, ensure_ascii=True, separators=(",", ":"))
     return text.replace("<", "\\u003c").replace(">", "\\u003e").replace("&", "\\u0026")
 
 

@@ -86,8 +86,14 @@ def estimate_noise(image: np.ndarray) -> float:
 
 
 def _haar_mad(values: np.ndarray) -> float:
-    """MAD / 0.6745 of the finest all-high-pass Haar details of ``values`` (float64)."""
-    detail = values
+    """MAD / 0.6745 of the finest all-high-pass Haar details of ``values`` (float64).
+
+    Axes of length 1 (the one slice of a one-slice volume) hold no detail and are left
+    out; an image of one voxel has no detail at all, and no measurable noise (0).
+    """
+    detail = values.reshape([n for n in values.shape if n > 1])
+    if detail.ndim == 0:
+        return 0.0
     for axis in range(detail.ndim):
         detail = np.diff(detail, axis=axis)
     detail /= 2.0 ** (detail.ndim / 2.0)
@@ -152,10 +158,11 @@ def noise_level(image: np.ndarray, floor: float = 0.0) -> NoiseLevel:
     True
     """
     crop = _central_crop(np.asarray(image), _NOISE_VOXELS).astype(np.float64)
+    crop = crop.reshape([n for n in crop.shape if n > 1])  # one-slice axes hold no detail
     pixel = max(_haar_mad(crop), floor)
     blocks = _block_means(crop, 2)
-    two_pixel = (_haar_mad(blocks) * 2.0 ** (blocks.ndim / 2.0) if min(blocks.shape) >= 2
-                 else pixel)
+    two_pixel = (_haar_mad(blocks) * 2.0 ** (blocks.ndim / 2.0)
+                 if min(blocks.shape, default=0) >= 2 else pixel)
     return NoiseLevel(pixel, two_pixel)
 
 

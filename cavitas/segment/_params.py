@@ -118,53 +118,64 @@ class SegmentParams:
 
     def __post_init__(self) -> None:
         if self.walls not in ("bright", "dark"):
-            raise ParameterError(f"walls must be 'bright' or 'dark'; got {self.walls!r}.")
+            raise ParameterError(f"walls must be 'bright' or 'dark'; got {self.walls!r}.",
+                                 parameters=("walls",))
         if self.region not in ("basin", "breach"):
-            raise ParameterError(f"region must be 'basin' or 'breach'; got {self.region!r}.")
+            raise ParameterError(f"region must be 'basin' or 'breach'; got {self.region!r}.",
+                                 parameters=("region",))
         if self.mesh is not None and self.mesh not in ("ply", "stl"):
-            raise ParameterError(f"mesh must be 'ply', 'stl' or None; got {self.mesh!r}.")
+            raise ParameterError(f"mesh must be 'ply' or 'stl'; got {self.mesh!r}.",
+                                 parameters=("mesh",))
         for name in ("min_persistence", "min_volume", "max_volume", "smooth", "shells"):
             value = getattr(self, name)
             if value is not None:
                 value = _number(name, value)
                 if value < 0:
-                    raise ParameterError(f"{name} must be >= 0; got {value}.")
+                    raise ParameterError(f"{name} must be >= 0; got {value}.",
+                                         parameters=(name,))
                 setattr(self, name, value)
         self.safety = _number("safety", self.safety)
         if self.safety <= 0:
-            raise ParameterError(f"safety must be > 0; got {self.safety}.")
+            raise ParameterError(f"safety must be > 0; got {self.safety}.",
+                                 parameters=("safety",))
         self.split_fraction = _number("split_fraction", self.split_fraction)
         if not 0 <= self.split_fraction <= 1:
             raise ParameterError(
-                f"split_fraction must be in [0, 1]; got {self.split_fraction}.")
+                f"split_fraction must be in [0, 1]; got {self.split_fraction}.",
+                parameters=("split_fraction",))
         if self.relative_persistence is not None:
             self.relative_persistence = _number("relative_persistence",
                                                 self.relative_persistence)
             if not 0 < self.relative_persistence <= 1:
                 raise ParameterError("relative_persistence must be in (0, 1]; got "
-                                     f"{self.relative_persistence}.")
+                                     f"{self.relative_persistence}.",
+                                     parameters=("relative_persistence",))
         if self.level_fraction is not None:
             self.level_fraction = _number("level_fraction", self.level_fraction)
             if not 0 <= self.level_fraction <= 1:
                 raise ParameterError(
-                    f"level_fraction must be in [0, 1]; got {self.level_fraction}.")
+                    f"level_fraction must be in [0, 1]; got {self.level_fraction}.",
+                    parameters=("level_fraction",))
             if self.region != "breach":
                 raise ParameterError(
                     "level_fraction applies to breach regions only; got it with "
-                    f"region={self.region!r} (use region='breach').")
+                    f"region={self.region!r} (use region='breach').",
+                    parameters=("level_fraction", "region"))
         if self.top is not None:
             if isinstance(self.top, bool) or int(self.top) != self.top or self.top < 1:
-                raise ParameterError(f"top must be an integer >= 1; got {self.top!r}.")
+                raise ParameterError(f"top must be an integer >= 1; got {self.top!r}.",
+                                     parameters=("top",))
             self.top = int(self.top)
         if (self.min_volume is not None and self.max_volume is not None
                 and self.min_volume > self.max_volume):
             raise ParameterError(f"min_volume ({self.min_volume}) must not exceed "
-                                 f"max_volume ({self.max_volume}).")
+                                 f"max_volume ({self.max_volume}).",
+                                 parameters=("min_volume", "max_volume"))
         if self.connectivity is not None and (
                 isinstance(self.connectivity, bool) or self.connectivity not in (1, 2, 3)):
             raise ParameterError(
                 f"connectivity must be 1 (faces) or the number of axes (full); "
-                f"got {self.connectivity!r}.")
+                f"got {self.connectivity!r}.", parameters=("connectivity",))
         if self.auto is False and self.smooth is None:
             self.smooth = 0.0
 
@@ -230,11 +241,12 @@ class SegmentParams:
 
 def _number(name: str, value: Any) -> float:
     if isinstance(value, bool):
-        raise ParameterError(f"{name} must be a number; got {value!r}.")
+        raise ParameterError(f"{name} must be a number; got {value!r}.", parameters=(name,))
     try:
         value = float(value)
     except (TypeError, ValueError):
-        raise ParameterError(f"{name} must be a number; got {value!r}.") from None
+        raise ParameterError(f"{name} must be a number; got {value!r}.",
+                             parameters=(name,)) from None
     if not math.isfinite(value):
-        raise ParameterError(f"{name} must be finite; got {value}.")
+        raise ParameterError(f"{name} must be finite; got {value}.", parameters=(name,))
     return value

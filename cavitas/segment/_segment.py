@@ -15,8 +15,9 @@ from typing import Any, NamedTuple
 import numpy as np
 
 from .._cores import usable_cores
-from .._errors import ParameterError
+from .._errors import InputFileError, ParameterError
 from ..cubical._neighbors import check_connectivity
+from ..cubical._sort import engine_array
 from ..cubical._tree import OUTSIDE, CavityTree
 from ..io._volume import Volume
 from . import _noise
@@ -135,18 +136,20 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
         raise ParameterError("spacing= is for arrays; a Volume carries its own spacing.")
     if (params.min_volume is not None or params.max_volume is not None) and (
             vol.unit == "voxel"):
-        raise ParameterError("min_volume/max_volume are in physical units and need a known "
-                             "spacing; got an image without spacing (give spacing=).")
+        raise ParameterError(f"min_volume and max_volume are in physical units and need a "
+                             f"known spacing; '{vol.name}' has none (give spacing=).",
+                             parameters=("min_volume", "max_volume", "spacing"))
     ndim = vol.ndim
     connectivity = check_connectivity(ndim, params.connectivity or 1)
     # Memory: the input is read in place (a memory map stays one); every smoothed copy is
     # in the work type (float32 for <= 16-bit data) and only one or two live at a time.
-    raw = np.asarray(vol.data)
+    raw = engine_array(np.asarray(vol.data))
     if raw.dtype == np.bool_:
         raw = raw.view(np.uint8)
     roi = None if mask is None else np.asarray(mask, bool)
     if roi is not None and roi.shape != raw.shape:
-        raise ParameterError(f"mask has shape {roi.shape}; the image has {raw.shape}.")
+        raise ParameterError(f"mask has shape {roi.shape}; the image has {raw.shape}.",
+                             parameters=("mask",))
     if raw.dtype.kind == "f":
         raw = _fill_outside(raw, roi, vol.name, walls=params.walls)
     image = _Image(raw, 1.0 if params.walls == "bright" else -1.0,
@@ -251,7 +254,7 @@ def _fill_outside(image: np.ndarray, roi: np.ndarray | None, name: str, *,
         return image
     if roi is None or not finite[roi].all():
         where = "" if roi is None else " inside the mask"
-        raise ParameterError(f"Image {name} holds NaN or infinite values{where}; "
+        raise InputFileError(f"Image {name} holds NaN or infinite values{where}; "
                              "replace them or leave them outside the mask.")
     inside = image[roi]
     fill = (inside.min() if walls == "bright" else inside.max()) if inside.size else 0
