@@ -229,3 +229,20 @@ def test_wrong_polarity_is_named_in_the_run_summary(tmp_path, capsys):
     assert main(["segment", str(tmp_path / "sheet.tif"), "-o", str(tmp_path / "bright"),
                  "--no-report"]) == 0
     assert "The walls may be" not in capsys.readouterr().out
+
+
+def test_empty_stretch_below_the_null_sets_the_threshold():
+    # Constructed candidates (in units of the noise null): a population of cells from 0.5
+    # up with a few noise cavities under 0.1. The threshold lies in the empty stretch
+    # between (geometric middle); a crowd that runs on up to the cells, too many cavities
+    # below the stretch, or a stretch under 0.3 of the null give none.
+    from cavitas.segment._gap import find_empty_stretch
+
+    rng = np.random.default_rng(3)
+    cells = rng.uniform(0.5, 2.0, 300)
+    few = np.array([0.01, 0.04, 0.08])
+    t = find_empty_stretch(np.r_[few, cells], floor=1.0, top=1.25)
+    assert 0.08 < t < cells.min() and t == pytest.approx(np.sqrt(0.08 * cells.min()))
+    assert find_empty_stretch(np.r_[rng.uniform(0.01, 0.5, 200), cells], 1.0, 1.25) is None
+    assert find_empty_stretch(np.r_[rng.uniform(0.01, 0.08, 40), cells], 1.0, 1.25) is None
+    assert find_empty_stretch(np.r_[few, rng.uniform(0.2, 2.0, 300)], 1.0, 1.25) is None

@@ -27,7 +27,7 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["BANDWIDTH", "find_gap"]
+__all__ = ["BANDWIDTH", "find_empty_stretch", "find_gap"]
 
 #: Smallest kernel bandwidth of the density of log10(persistence), in decades.
 BANDWIDTH = 0.06
@@ -88,4 +88,50 @@ def find_gap(persistence: np.ndarray, floor: float) -> float | None:
         if density[valley] <= MAX_VALLEY_RATIO * density[top]:
             return float(10 ** centres[valley])
         return None
+    return None
+
+
+#: An empty stretch of the diagram below the noise null counts when its ends differ by at
+#: least this factor ...
+EMPTY_FACTOR = 2.5
+#: ... its upper end lies at least this fraction of the null ...
+EMPTY_LOW = 0.3
+#: ... and at most this share of the candidates (and MIN_MODE_COUNT) lies below it.
+EMPTY_BELOW_SHARE = 0.05
+
+
+def find_empty_stretch(persistence: np.ndarray, floor: float, top: float) -> float | None:
+    """A threshold below the noise null where the image's diagram is empty, or None.
+
+    Among the candidates (cavities that straddle the image's two intensity classes,
+    :mod:`cavitas.segment._evidence`), noise leaves few: the class test removes most of
+    its crowd. When the candidates between ``EMPTY_LOW · floor`` and ``top`` (the null
+    times the safety factor) form one population whose lower edge is separated from the
+    few below by an empty stretch (a factor :data:`EMPTY_FACTOR`), that stretch is the
+    image's own threshold: it lies at the stretch's geometric middle. Measured on the
+    invented small-cell sheets (400 cells of 10-16 pixels, walls 2 pixels) at noise 0.3 of
+    the contrast: 4 candidates under 0.1 of the null, none between 0.1 and 0.5, 286 cells
+    from 0.5 up; on the EM slices, the confocal membranes and embryo and the concrete the
+    candidates below the null run on without such a stretch (the rule does not apply).
+
+    Examples
+    --------
+    >>> cells = np.linspace(0.5, 2.0, 200)
+    >>> round(find_empty_stretch(np.r_[0.02, 0.05, 0.08, cells], 1.0, 1.25), 2)
+    0.2
+    >>> find_empty_stretch(np.r_[np.linspace(0.01, 0.5, 40), cells], 1.0, 1.25) is None
+    True
+    """
+    p = np.sort(np.asarray(persistence, np.float64))
+    p = p[np.isfinite(p) & (p > 0)]
+    above_top = np.count_nonzero(p >= top)
+    for i in range(len(p) - 1):
+        low, high = p[i], p[i + 1]
+        if high >= top:
+            break
+        if high < EMPTY_LOW * floor or high < EMPTY_FACTOR * low:
+            continue
+        below, above = i + 1, len(p) - i - 1
+        if above - above_top >= MIN_MODE_COUNT and below <= EMPTY_BELOW_SHARE * above:
+            return float(np.sqrt(low * high))
     return None

@@ -22,7 +22,7 @@ from ..cubical._tree import OUTSIDE, CavityTree
 from ..io._volume import Volume
 from . import _noise
 from ._evidence import class_split, eligible_nodes, small_region_threshold
-from ._gap import find_gap
+from ._gap import find_empty_stretch, find_gap
 from ._params import AUTO_SCALES, SegmentParams
 from ._perforation import perforated_splits
 from ._polarity import census, polarity_hint
@@ -383,6 +383,8 @@ def _detect(image: _Image, params: SegmentParams, *, noise: float, robust_range:
             if face_breach is not None:
                 eligible &= ~face_breach
             gap = find_gap(pers[eligible], floor)
+            if gap is None:
+                gap = find_empty_stretch(pers[eligible], floor, params.safety * floor)
             auto = gap if gap is not None else params.safety * floor
         tau = persistence_threshold(auto=auto, absolute=params.min_persistence,
                                     relative=params.relative_persistence,
