@@ -368,8 +368,8 @@ def threshold_basis(params: dict[str, Any]) -> str | None:
 
     Examples
     --------
-    >>> threshold_basis({"automatic": True, "gap": 3.2}).startswith("The threshold lies in")
-    True
+    >>> threshold_basis({"automatic": True, "threshold_rule": "gap"})[:30]
+    'The threshold lies in the gap '
     >>> threshold_basis({"automatic": False, "scale_basis": "none"})[:64]
     'The persistence threshold was given by hand and applies to the i'
     >>> threshold_basis({"automatic": False, "scale_basis": "given"}) is None
@@ -382,12 +382,25 @@ def threshold_basis(params: dict[str, Any]) -> str | None:
                 "without smoothing, as drawn in this run's diagram.png; a threshold read off "
                 "the diagram of an automatic run applies to that run's smoothing: give it "
                 "with --smooth (smooth_sigma in that run's run.json).")
-    if params.get("gap") is not None:
-        return ("The threshold lies in the gap of the persistence diagram, between the crowd "
-                "of small cavities (noise, texture) and the large ones.")
-    return ("The persistence diagram shows no gap between noise and cavities: the threshold "
-            "is the noise-only level times the safety factor, and regions near it are "
-            "uncertain (see their margin).")
+    return _RULE_SENTENCES.get(params.get("threshold_rule") or "noise null",
+                               _RULE_SENTENCES["noise null"])
+
+
+#: The sentence of each automatic threshold rule (cavitas.segment THRESHOLD_RULES).
+_RULE_SENTENCES = {
+    "gap": ("The threshold lies in the gap of the persistence diagram, between the crowd of "
+            "small cavities (noise, texture) and the large ones."),
+    "empty stretch": ("The threshold lies in an empty stretch of the persistence diagram "
+                      "below the noise-only level: the cavities above it form one population "
+                      "with almost nothing beneath."),
+    "false discovery rate": ("The threshold keeps the expected share of noise among the "
+                             "regions at 1 % (many cavities stand a little above the noise, "
+                             "whose level is uniform): a few regions near it may be noise "
+                             "(see their margin)."),
+    "noise null": ("The persistence diagram shows no gap between noise and cavities: the "
+                   "threshold is the noise-only level times the safety factor, and regions "
+                   "near it are uncertain (see their margin)."),
+}
 
 
 def border_note(regions: Any) -> str | None:

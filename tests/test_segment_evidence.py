@@ -246,3 +246,24 @@ def test_empty_stretch_below_the_null_sets_the_threshold():
     assert find_empty_stretch(np.r_[rng.uniform(0.01, 0.5, 200), cells], 1.0, 1.25) is None
     assert find_empty_stretch(np.r_[rng.uniform(0.01, 0.08, 40), cells], 1.0, 1.25) is None
     assert find_empty_stretch(np.r_[few, rng.uniform(0.2, 2.0, 300)], 1.0, 1.25) is None
+
+
+def test_false_discovery_threshold_is_the_benjamini_hochberg_cut():
+    # Reference: scipy.stats.false_discovery_control (Benjamini & Hochberg 1995). With the
+    # null's survival function as p-value, every noise cavity one test (those that are not
+    # candidates never rejected: p = 1), the cavities BH rejects at rate q are exactly the
+    # candidates at or above the threshold.
+    from scipy.stats import false_discovery_control
+
+    from cavitas.segment._discovery import FALSE_DISCOVERY_RATE, false_discovery_threshold
+    from cavitas.segment._noise import NullDistribution
+
+    rng = np.random.default_rng(5)
+    null = NullDistribution(np.sort(rng.exponential(1.0, 20000)), 5000, 12.0)
+    candidates = np.r_[rng.exponential(1.0, 300), rng.normal(11.0, 1.5, 150)]
+    candidates = candidates[candidates > 0]
+    t = false_discovery_threshold(candidates, null, noise=1.0, voxels=5000, top=np.inf)
+    survival = np.array([null.expected_above(x, 5000) for x in candidates]) / null.values.size
+    p = np.r_[survival, np.ones(null.values.size - candidates.size)]
+    rejected = false_discovery_control(p, method="bh")[:candidates.size] <= FALSE_DISCOVERY_RATE
+    assert rejected.any() and np.array_equal(rejected, candidates >= t)

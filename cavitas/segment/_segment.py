@@ -21,6 +21,7 @@ from ..cubical._sort import engine_array
 from ..cubical._tree import OUTSIDE, CavityTree
 from ..io._volume import Volume
 from . import _noise
+from ._discovery import false_discovery_threshold
 from ._evidence import class_split, eligible_nodes, small_region_threshold
 from ._gap import find_empty_stretch, find_gap
 from ._params import AUTO_SCALES, SegmentParams
@@ -170,20 +171,21 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
                            [0.5, 99.5])
     robust_range = float(hi - lo)
     spacing_arr = np.asarray(vol.spacing, float)
+    white_noise = _noise.correlation_factor(levels.ratio) == 1.0
     det, tried = _detect(
         image, params, noise=noise, robust_range=robust_range, spacing=spacing_arr,
-        connectivity=connectivity, roi=roi, tell=tell)
+        connectivity=connectivity, roi=roi, tell=tell, white_noise=white_noise)
     sig, smoothed, order, tree, tau = det.sigma, det.smoothed, det.order, det.tree, det.threshold
     hint = None
     if params.automatic:
         tell("polarity check")
         hint = _polarity_check(det, image, params, noise=noise, robust_range=robust_range,
-                               spacing=spacing_arr, connectivity=connectivity, roi=roi)
+                               spacing=spacing_arr, connectivity=connectivity, roi=roi,
+                               white_noise=white_noise)
     timings["detect"] = time.perf_counter() - started
     log.info("%s: noise σ %.4g, detection σ %.3g %s, persistence threshold %.4g (%s)",
              vol.name, noise, float((sig * spacing_arr).max()), vol.unit, tau,
-             "at the diagram's gap" if det.gap is not None else
-             "no gap in the diagram: noise null times the safety factor")
+             det.rule or "given")
     sweep = Sweep(smoothed, order, tree, connectivity, outside)
     significant = select_nodes(tree.persistence, tree.parent, tau, params.top,
                                eligible=det.eligible)
@@ -229,6 +231,7 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
         "delineation_sigma": float((fine_sigma * spacing_arr).max()),
         "scales_tried": tried,
         "gap": det.gap,
+        "threshold_rule": det.rule,
         "polarity_hint": hint,
         "splits_joined": int(np.count_nonzero(significant & ~keep)),
         "perforated_walls": int(np.count_nonzero(perforated)),
@@ -274,6 +277,7 @@ class Detection:
     eligible: np.ndarray | None  # per node: straddles the class split (automatic mode)
     passing: np.ndarray          # per node: passes every criterion
     face_breach: np.ndarray | None = None  # per node: breach on the closed faces (keep_border)
+    rule: str | None = None      # what set the automatic threshold (THRESHOLD_RULES)
 
     @property
     def count(self) -> int:
@@ -344,7 +348,7 @@ def on_faces(flat_index: np.ndarray, shape: tuple[int, ...]) -> np.ndarray:
 
 def _detect(image: _Image, params: SegmentParams, *, noise: float, robust_range: float,
             spacing: np.ndarray, connectivity: int, roi: np.ndarray | None,
-            tell: Callable[[str], None]):
+            tell: Callable[[str], None], white_noise: bool = False):
     """Detection scale, its sweep and threshold: the candidate with most significant cavities.
 
     Candidates are :data:`AUTO_SCALES` (in voxels of the finest axis, the same physical σ on
@@ -365,27 +369,29 @@ def _detect(image: _Image, params: SegmentParams, *, noise: float, robust_range:
     else:
         scales = [np.zeros(len(spacing))]
 
+    analysed = int(np.count_nonzero(roi)) if roi is not None else image.data.size
+
     def candidate(sig: np.ndarray) -> Detection:
         # the null first: its simulation (first use per shape and scale) then peaks alone
-        floor = (noise * _noise.null_persistence(image.data.shape, tuple(sig), connectivity)
-                 if params.automatic else 0.0)
+        null = (_noise.null_distribution(image.data.shape, tuple(sig), connectivity)
+                if params.automatic else None)
         smoothed = image.smoothed(sig)
         order, tree = cubical.cavity_sweep(smoothed, walls="bright", connectivity=connectivity,
                                            mask=roi)
         pers = tree.persistence
         # a breach on the closed faces: the specimen as a whole, not a cavity
         face_breach = on_faces(tree.breach, smoothed.shape) if image.closed_border else None
-        eligible = gap = None
+        eligible = gap = rule = None
         auto = None
         if params.automatic:
             eligible = eligible_nodes(tree, smoothed, image.statistics_mask,
                                       _noise.smoothed_noise_sigma(noise, tuple(sig)))
             if face_breach is not None:
                 eligible &= ~face_breach
-            gap = find_gap(pers[eligible], floor)
-            if gap is None:
-                gap = find_empty_stretch(pers[eligible], floor, params.safety * floor)
-            auto = gap if gap is not None else params.safety * floor
+            rule, auto = _automatic_threshold(pers[eligible], null, noise=noise,
+                                              voxels=analysed, safety=params.safety,
+                                              white_noise=white_noise)
+            gap = auto if rule == "gap" else None
         tau = persistence_threshold(auto=auto, absolute=params.min_persistence,
                                     relative=params.relative_persistence,
                                     robust_range=robust_range)
@@ -398,7 +404,8 @@ def _detect(image: _Image, params: SegmentParams, *, noise: float, robust_range:
                 eligible &= pers >= small_region_threshold(area, pers, passing)
                 passing &= eligible
         passing[OUTSIDE] = False
-        return Detection(sig, smoothed, order, tree, tau, gap, eligible, passing, face_breach)
+        return Detection(sig, smoothed, order, tree, tau, gap, eligible, passing, face_breach,
+                         rule)
 
     # Two scales at a time in two threads (smoothing, sort and sweep release the GIL);
     # results are taken in scale order, so the choice is the same as one after the other.
@@ -412,7 +419,7 @@ def _detect(image: _Image, params: SegmentParams, *, noise: float, robust_range:
             result = running.popleft().result()
             tried.append({"sigma": float((result.sigma * spacing).max()),
                           "threshold": result.threshold, "count": result.count,
-                          "gap": result.gap})
+                          "gap": result.gap, "rule": result.rule})
             if best is None or result.count > best.count:
                 best = result
             del result  # a losing candidate is freed before the next scale starts
@@ -435,6 +442,32 @@ class Delineation:
     level: np.ndarray                # per chamber: the level its region was cut at (walls high)
     enclosures: np.ndarray | None    # innermost enclosure per voxel (ids n+1...), if any
     outside_basin: np.ndarray        # voxels of the outside basin below its walls
+
+
+#: What sets the automatic threshold, in the order tried: the valley between two populations
+#: above the noise null (:func:`find_gap`), an empty stretch below it
+#: (:func:`find_empty_stretch`), the false discovery rate (white noise only,
+#: :mod:`cavitas.segment._discovery`), else the null times the safety factor.
+THRESHOLD_RULES = ("gap", "empty stretch", "false discovery rate", "noise null")
+
+
+def _automatic_threshold(candidates: np.ndarray, null: _noise.NullDistribution, *,
+                         noise: float, voxels: int, safety: float,
+                         white_noise: bool) -> tuple[str, float]:
+    """The rule of :data:`THRESHOLD_RULES` that applies to ``candidates``, and its threshold."""
+    floor = noise * null.largest
+    top = safety * floor
+    found = find_gap(candidates, floor)
+    if found is not None:
+        return "gap", found
+    found = find_empty_stretch(candidates, floor, top)
+    if found is not None:
+        return "empty stretch", found
+    if white_noise:
+        found = false_discovery_threshold(candidates, null, noise, voxels, top)
+        if found is not None:
+            return "false discovery rate", found
+    return "noise null", top
 
 
 def _polarity_check(det: Detection, image: _Image, params: SegmentParams, *,
