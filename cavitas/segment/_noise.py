@@ -23,9 +23,11 @@ The automatic significance rule
    is measured once on white noise of unit variance, smoothed the same way, of the same
    shape (or of a crop of it, scaled up by ``sqrt(log N / log N_crop)``, the growth of the
    maximum of Gaussian-tailed variables), over :data:`NULL_SEEDS` seeds (the maximum).
-3. **Threshold**: ``safety · s · P(σ)``, ``safety = 1.25`` by default, when the diagram
-   shows no gap (otherwise the gap decides, :mod:`cavitas.segment._gap`; and only cavities
-   that straddle the image's two classes count, :mod:`cavitas.segment._evidence`). The
+3. **Threshold**: ``safety · s · P(σ)``, ``safety = 1.25`` by default, when nothing in the
+   diagram says better (a gap or an empty stretch, :mod:`cavitas.segment._gap`; with white
+   noise the false discovery rate over the null's whole distribution,
+   :mod:`cavitas.segment._discovery`; and only cavities that straddle the image's two
+   classes count, :mod:`cavitas.segment._evidence`). The
    stability theorem (Cohen-Steiner, Edelsbrunner & Harer 2007) gives the cruder bound ``2
    ε`` for noise bounded by ``ε`` in sup norm (unbounded for Gaussian noise); the empirical
    null is sharper because it uses the noise's actual law. The factor covers the maximum's

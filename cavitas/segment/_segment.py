@@ -88,8 +88,10 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
     Steps: (1) noise level and empirical null (:mod:`cavitas.segment._noise`); (2) at each
     candidate smoothing, the image's own evidence: cavities whose inside lies in the
     image's interior class and whose wall reaches its wall class, large enough for their
-    persistence (:mod:`cavitas.segment._evidence`), above the gap of their diagram when it
-    has one, else above the null times ``safety`` (:mod:`cavitas.segment._gap`); the
+    persistence (:mod:`cavitas.segment._evidence`), above the threshold of the first rule of
+    :data:`THRESHOLD_RULES` that applies (the diagram's gap or an empty stretch under the
+    null, :mod:`cavitas.segment._gap`; with white noise the false discovery rate,
+    :mod:`cavitas.segment._discovery`; else the null times ``safety``); the
     detection scale is the candidate with most such cavities (:func:`_detect`); (3)
     selection on the cavity tree of that scale, then the split rule (an inner wall must
     close at least ``split_fraction`` of the way up the local wall contrast,
