@@ -468,6 +468,11 @@ def test_nan_outside_the_mask_is_accepted_as_persistence_does():
     seg = segment(holed, mask=roi, min_persistence=0.5)
     inside, _ = ndi.label(img == 0)
     assert np.array_equal(seg.labels > 0, inside == inside[10, 8])
+    # the partition (smoothed again from the NaN image) grows the ring's inside over part of
+    # its wall and no further than the ring's outer edge
+    grown = seg.partition > 0
+    assert grown[seg.labels > 0].all() and grown.sum() > (seg.labels > 0).sum()
+    assert not grown[:4].any() and not grown[16:].any() and not grown[:, 14:].any()
     holed[10, 8] = np.nan
     with pytest.raises(InputFileError, match="inside the mask"):
         segment(holed, mask=roi, min_persistence=0.5)

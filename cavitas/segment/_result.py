@@ -130,9 +130,14 @@ class Segmentation:
         data = np.asarray(self.volume.data)
         if data.dtype == np.bool_:
             data = data.view(np.uint8)
+        bright = self.params["walls"] == "bright"
+        if data.dtype.kind == "f" and not np.isfinite(data).all():  # only beyond the ROI
+            finite = np.isfinite(data)
+            fill = data[finite].min() if bright else data[finite].max()
+            data = np.where(finite, data, fill).astype(data.dtype, copy=False)
         sigma = float(self.params["delineation_sigma"]) / np.asarray(self.volume.spacing, float)
         image = smooth(data, tuple(sigma), dtype=work_dtype(data.dtype),
-                       sign=1.0 if self.params["walls"] == "bright" else -1.0)
+                       sign=1.0 if bright else -1.0)
         background = (np.zeros(self.labels.shape, bool) if self.background is None
                       else self.background)
         return partition_map(self.labels, image, background)
