@@ -50,6 +50,9 @@ class Task:
         The batch output folder.
     params : object
         Segmentation parameters handed to the worker function unchanged.
+    options : object
+        The run's options (mask file, extra outputs), handed to the worker as
+        ``options=`` when given.
     record : mapping
         The same parameters as a JSON-ready dict, compared on resume.
     force : bool
@@ -66,6 +69,7 @@ class Task:
     name: str
     root: str
     params: Any
+    options: Any = None
     record: Mapping[str, Any] = field(default_factory=dict)
     force: bool = False
     worker: str = DEFAULT_WORKER
@@ -137,13 +141,15 @@ def run_task(task: Task) -> dict[str, Any]:
             return result
         staging = new_staging(root, task.name)
         worker = resolve_worker(task.worker)
-        options: dict[str, Any] = {}
+        extra: dict[str, Any] = {}
+        if task.options is not None:
+            extra["options"] = task.options
         if task.read_options:
-            options["read_options"] = dict(task.read_options)
+            extra["read_options"] = dict(task.read_options)
         if _accepts(worker, "input_sha256"):  # spare the worker a second pass over the input
-            options["input_sha256"] = checksum
+            extra["input_sha256"] = checksum
         figures = worker(task.path, staging, task.params, force=True, progress=False,
-                         **options)
+                         **extra)
         seconds = time.perf_counter() - start
         summary = _plain_figures(figures or {})
         write_record(staging, input_path=task.path, checksum=checksum, params=task.record,
