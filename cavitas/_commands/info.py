@@ -164,7 +164,7 @@ def read_first_choice(name: str, options: dict[str, Any]) -> tuple[Volume, dict[
     >>> volume.shape, held
     ((2, 3), {'key': ['a', 'b']})
     """
-    options, held = dict(options), {}
+    options, held = dict(options), dict[str, list]()
     while True:
         try:
             return read(name, **options), held
