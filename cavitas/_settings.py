@@ -83,13 +83,6 @@ class Settings:
             changed[attribute] = dataclasses.replace(group, **given) if given else group
         return Settings(**changed)
 
-    def record(self) -> dict[str, Any]:
-        """The segmentation parameters and run options as one flat JSON-ready dict.
-
-        Reading options are recorded on their own (``read_options``), as given.
-        """
-        return {**self.params.to_dict(), **self.options.to_dict()}
-
     @classmethod
     def from_toml(cls, path: str | os.PathLike) -> Settings:
         """Read a parameter file (see the module notes).

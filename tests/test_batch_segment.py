@@ -70,7 +70,8 @@ def test_batch_equals_single_segment_runs_file_by_file(tmp_path, folder, capsys)
     assert code == 0
     batch = json.loads((tmp_path / "out" / "batch.json").read_text())
     settings = Settings.from_toml(toml)
-    assert batch["params"] == json.loads(json.dumps(settings.record()))
+    flat = {**settings.params.to_dict(), **settings.options.to_dict()}  # one namespace
+    assert batch["params"] == json.loads(json.dumps(flat))
     regions = 0
     for item in batch["inputs"]:
         single = tmp_path / "single" / item["name"]

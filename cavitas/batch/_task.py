@@ -59,8 +59,9 @@ class Task:
         Redo the input even if its outputs are complete.
     worker : str
         ``"module:function"`` called as ``worker(path, outdir, params, force=True,
-        progress=False)``; it must write its outputs into ``outdir`` and return a dict.
-        A worker that takes an ``input_sha256`` keyword also gets the input's checksum.
+        progress=False)``, plus ``options=`` and ``read_options=`` when the task has them;
+        it must write its outputs into ``outdir`` and return a dict. A worker that takes
+        an ``input_sha256`` keyword also gets the input's checksum.
     read_options : mapping
         Options for reading the input (channel, time); passed to the worker when given.
     """
