@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import json
 import pickle
+import sys
 from pathlib import Path
 
 import numpy as np
@@ -25,6 +26,11 @@ from cavitas.cli import main
 from cavitas.io import read, write
 from cavitas.segment import SegmentParams
 from cavitas.workflow import ReadOptions, RunOptions, Settings, segment_file
+
+if sys.version_info >= (3, 11):
+    import tomllib
+else:  # pragma: no cover
+    import tomli as tomllib
 
 FAST = ["-q", "--no-report", "--no-thickness"]
 
@@ -97,6 +103,26 @@ def test_parameter_file_types_are_strict(tmp_path, capsys, content, code, words)
     for word in words:
         assert word in line, line
     assert not out.exists()  # nothing created before the options are checked
+
+
+#: One value of every TOML 1.0.0 type (boolean, integer, float incl. nan/inf, string,
+#: array, inline table, offset-free date and time) and edge values of each.
+TOML_VALUES = ["true", "0", "-1", "3", "99999999999999999999", "1.5", "nan", "-inf",
+               "1e308", '""', '"x"', '"uint16, uint8"', '"i99999999999999999999"', '"M8"',
+               "[]", "[1, 2]", "[0, 0]", "[[1]]", "[true, 1]", "{a = 1}", "1979-05-27",
+               "07:32:00"]
+
+
+def test_every_name_with_every_type_is_a_sentence_or_a_value():
+    # the fuzzing of issue 14 turned into a test: no value of any type, under any name,
+    # escapes as anything but one sentence (never an internal error); parsed by the
+    # standard library's TOML reader, checked as a parameter file's values are
+    for name in sorted(Settings.names()):
+        for value in TOML_VALUES:
+            try:
+                Settings().replace(**tomllib.loads(f"{name} = {value}\n"))
+            except cavitas.CavitasError as exc:
+                assert "\n" not in str(exc) and str(exc).endswith("."), (name, value, exc)
 
 
 def test_binary_missing_and_huge_parameter_files_are_input_errors(tmp_path, capsys):
@@ -234,11 +260,9 @@ def test_raw_files_are_segmented_as_numpy_reads_them(tmp_path, capsys):
 
 
 def test_batch_takes_the_reading_options(tmp_path, capsys):
-    for name in ("a", "b"):
-        np.save(tmp_path / f"{name}.npy", _cells())
-    assert main(["batch", str(tmp_path / "a.npy"), str(tmp_path / "b.npy"), "-o",
-                 str(tmp_path / "out"), "--spacing", "0.5,0.5", "--min-volume", "50",
-                 "--jobs", "1", "-q"]) == 0
+    np.save(tmp_path / "a.npy", _cells())
+    assert main(["batch", str(tmp_path / "a.npy"), "-o", str(tmp_path / "out"), "--spacing",
+                 "0.5,0.5", "--min-volume", "50", "--jobs", "1", "-q"]) == 0
     batch = json.loads((tmp_path / "out" / "batch.json").read_text(encoding="utf-8"))
     assert batch["params"]["read_options"] == {"spacing": [0.5, 0.5]}
     assert batch["params"]["min_volume"] == 50 and batch["params"]["shells"] is None
