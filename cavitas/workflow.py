@@ -232,6 +232,7 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
         tick = started
         stage("reading")
         volume = io.read(source, **dict(read_options or {}))
+        params.check_image(volume)  # before the kernels are loaded: fail fast
         options.check_image(volume)
         mask = _read_mask(options.mask, volume, source)
         checksum = input_sha256 or input_checksum(source)
