@@ -78,7 +78,7 @@ class _HelpFormatter(argparse.RawDescriptionHelpFormatter):
         return text
 
 
-def build_parser() -> argparse.ArgumentParser:
+def build_parser() -> _Parser:
     """Return the parser of the ``cavitas`` command with every subcommand registered."""
     parser = _Parser(
         prog="cavitas", description=DESCRIPTION, epilog=EPILOG, formatter_class=_HelpFormatter

@@ -19,41 +19,42 @@ atomically:
 ``shells.<ext>``      shell label map (``shells`` given): walls near each region
 ``meshes/``           one surface mesh per chamber (``mesh="ply"|"stl"``, 3D)
 ===================== ========================================================
+
+The last four are asked for with :class:`RunOptions`, which also names the mask file;
+:class:`~cavitas.segment.SegmentParams` decides the regions and :class:`ReadOptions`
+(or a plain mapping of :func:`cavitas.io.read` options) how the input is read.
+:class:`Settings` bundles the three and reads them from a TOML parameter file.
 """
 
 from __future__ import annotations
 
 import os
 import time
-from importlib.util import find_spec
+from collections.abc import Mapping
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
 from ._caution import RESEARCH_ONLY
-from ._errors import InputFileError, ParameterError
+from ._errors import InputFileError
 from ._json import dumps
+from ._run_options import ReadOptions, RunOptions
+from ._settings import Settings
 from ._table import Table
 from ._version import __version__
 from .io._atomic import atomic_path, check_writable
 from .io._checksum import input_checksum
 
-__all__ = ["segment_file"]
+__all__ = ["ReadOptions", "RunOptions", "Settings", "segment_file"]
 
 
 def _label_suffix(source: Path, wanted: str | None) -> str:
+    """The label maps' suffix: the one asked for (checked by RunOptions), else the input's."""
     from .io import WRITE_SUFFIXES
 
     if wanted:
-        suffix = wanted if wanted.startswith(".") else f".{wanted}"
-        if suffix.lower() not in WRITE_SUFFIXES:
-            raise ParameterError(f"label_format must be one of {sorted(WRITE_SUFFIXES)}; "
-                                 f"got {wanted!r}.", parameters=("label_format",))
-        if WRITE_SUFFIXES[suffix.lower()] == "hdf5" and find_spec("h5py") is None:
-            raise ParameterError(f"--label-format {wanted} needs the h5py package, which is "
-                                 "not installed; install it with: pip install 'cavitas[hdf5]'.")
-        return suffix.lower()
+        return wanted
     name = source.name.lower()
     for suffix in sorted(WRITE_SUFFIXES, key=len, reverse=True):
         if name.endswith(suffix):
@@ -145,9 +146,10 @@ def measured_regions(seg: Any, *, mask: np.ndarray | None = None, thickness: boo
 
 
 def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any = None, *,
-                 force: bool = False, progress: bool = True,
-                 read_options: dict[str, Any] | None = None, report: bool = True,
-                 thickness: bool = True, input_sha256: str | None = None) -> dict[str, Any]:
+                 options: RunOptions | None = None, force: bool = False, progress: bool = True,
+                 read_options: ReadOptions | Mapping[str, Any] | None = None,
+                 report: bool = True, thickness: bool = True,
+                 input_sha256: str | None = None) -> dict[str, Any]:
     """Segment one file and write every output into ``outdir``; return a summary dict.
 
     Parameters
@@ -158,12 +160,16 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
         Output folder (created if needed).
     params : SegmentParams, optional
         Segmentation parameters (defaults: automatic significance, basin regions).
+    options : RunOptions, optional
+        The mask file and the outputs beside labels and tables (shells, enclosures,
+        partition, meshes, the label format).
     force : bool
         Replace existing outputs.
     progress : bool
         Show a progress bar on stderr.
-    read_options : dict, optional
-        Passed to :func:`cavitas.io.read` (``channel``, ``time``, ``spacing`` ...).
+    read_options : ReadOptions or mapping, optional
+        How to read the input: the options of :func:`cavitas.io.read` (``channel``,
+        ``time``, ``spacing``, ``unit``, raw ``shape`` and ``dtype`` ...).
     report : bool
         Write ``report.html``.
     thickness : bool
@@ -189,19 +195,27 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
     ...                        report=False)
     >>> summary["regions"], round(summary["porosity"], 3)
     (1, 0.174)
+    >>> np.save(f"{folder}/ring.npy", img)  # no calibration: give it while reading
+    >>> summary = segment_file(f"{folder}/ring.npy", f"{folder}/npy", progress=False,
+    ...                        report=False, options=RunOptions(shells=0.5),
+    ...                        read_options=ReadOptions(spacing=(0.5, 0.5)))
+    >>> summary["unit"], "shells" in summary["outputs"]
+    ('µm', True)
     """
     from tqdm import tqdm
 
     from . import io
     from .segment import SegmentParams, segment
 
-    params = params or SegmentParams()
+    params, options = params or SegmentParams(), options or RunOptions()
+    if isinstance(read_options, ReadOptions):
+        read_options = read_options.kwargs()
     source, outdir = Path(path), Path(outdir)
     started = time.perf_counter()
-    planned = _planned_outputs(source, outdir, params, report=report)
+    planned = _planned_outputs(source, outdir, options, report=report)
     for target in planned.values():  # fail before computing, not half-way through writing
         check_writable(target, force=force, inputs=(source,))
-    steps = tqdm(total=5 + bool(params.mesh), disable=not progress, unit="step",
+    steps = tqdm(total=5 + bool(options.mesh), disable=not progress, unit="step",
                  desc=f"cavitas segment {source.name}", leave=False)
     timings: dict[str, float] = {}
 
@@ -218,10 +232,9 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
         tick = started
         stage("reading")
         volume = io.read(source, **dict(read_options or {}))
-        mask = _read_mask(params.mask, volume, source)
-        if params.mesh and volume.ndim != 3:
-            raise ParameterError(f"mesh needs a 3D volume; '{source}' is 2D.",
-                                 parameters=("mesh",))
+        params.check_image(volume)  # before the kernels are loaded: fail fast
+        options.check_image(volume)
+        mask = _read_mask(options.mask, volume, source)
         checksum = input_sha256 or input_checksum(source)
         tick = done("read", tick)
         if progress:
@@ -230,19 +243,19 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
         tick = done("segment", tick)
         stage("measuring")
         regions, figures = measured_regions(seg, mask=mask, thickness=thickness,
-                                            partition=params.partition)
+                                            partition=options.partition)
         notes = run_notes(seg)
         tick = done("measure", tick)
         stage("writing")
-        written = _write_maps(seg, planned, params, force=force)
+        written = _write_maps(seg, planned, options, force=force)
         regions.to_csv(planned["regions"], force=force)
         regions.to_json(planned["regions_json"], force=force)
         _diagram_table(seg).to_csv(planned["diagram"], force=force)
         _diagram_plot(seg, planned["diagram_plot"], force=force)
         for key in ("regions", "regions_json", "diagram", "diagram_plot"):
             written[key] = planned[key]
-        if params.mesh:
-            written["meshes"] = _write_meshes(seg, outdir, params.mesh, force=force)
+        if options.mesh:
+            written["meshes"] = _write_meshes(seg, outdir, options.mesh, force=force)
         tick = done("write", tick)
         if report:
             from .report import write_report
@@ -266,6 +279,7 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
             "unit": volume.unit,
             "read_options": dict(read_options or {}),
             "parameters": seg.params,
+            "options": options.to_dict(),
             "summary": {k: v for k, v in summary.items() if k != "outputs"},
             "global_figures": figures,
             "outputs": summary["outputs"],
@@ -299,19 +313,19 @@ def _prepare_kernels(stage: Any) -> None:
     segment(np.random.default_rng(0).random((12, 12)).astype(np.float32))
 
 
-def _planned_outputs(source: Path, outdir: Path, params: Any, *,
+def _planned_outputs(source: Path, outdir: Path, options: RunOptions, *,
                      report: bool) -> dict[str, Path]:
-    suffix = _label_suffix(source, params.label_format)
+    suffix = _label_suffix(source, options.label_format)
     planned = {"labels": outdir / f"labels{suffix}", "regions": outdir / "regions.csv",
                "regions_json": outdir / "regions.json", "diagram": outdir / "diagram.csv",
                "diagram_plot": outdir / "diagram.png", "run": outdir / "run.json"}
     if report:
         planned["report"] = outdir / "report.html"
-    if params.enclosures:
+    if options.enclosures:
         planned["enclosures"] = outdir / f"enclosures{suffix}"
-    if params.partition:
+    if options.partition:
         planned["partition"] = outdir / f"partition{suffix}"
-    if params.shells is not None:
+    if options.shells is not None:
         planned["shells"] = outdir / f"shells{suffix}"
     return planned
 
@@ -328,21 +342,21 @@ def _read_mask(mask_path: str | None, volume: Any, source: Path) -> np.ndarray |
     return mask
 
 
-def _write_maps(seg: Any, planned: dict[str, Path], params: Any, *,
+def _write_maps(seg: Any, planned: dict[str, Path], options: RunOptions, *,
                 force: bool) -> dict[str, Path]:
     from . import io
     from .segment._shells import shell_labels
 
     volume = seg.volume
     written = {"labels": io.write(planned["labels"], seg.labels, like=volume, force=force)}
-    if params.enclosures:
+    if options.enclosures:
         written["enclosures"] = io.write(planned["enclosures"], seg.enclosure_labels(),
                                          like=volume, force=force)
-    if params.partition:
+    if options.partition:
         written["partition"] = io.write(planned["partition"], seg.partition, like=volume,
                                         force=force)
-    if params.shells is not None:
-        shells = shell_labels(seg.labels, volume.spacing, params.shells,
+    if options.shells is not None:
+        shells = shell_labels(seg.labels, volume.spacing, options.shells,
                               walls=seg.all_labels == 0)
         written["shells"] = io.write(planned["shells"], shells, like=volume, force=force)
     return written

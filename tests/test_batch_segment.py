@@ -18,7 +18,7 @@ import tifffile
 from cavitas._table import Table
 from cavitas.cli import main
 from cavitas.segment import SegmentParams
-from cavitas.workflow import segment_file
+from cavitas.workflow import Settings, segment_file
 
 
 def _boxes(rng, ndim, dtype):
@@ -69,12 +69,14 @@ def test_batch_equals_single_segment_runs_file_by_file(tmp_path, folder, capsys)
                  "--config", str(toml), "--jobs", "2", "-q"])
     assert code == 0
     batch = json.loads((tmp_path / "out" / "batch.json").read_text())
-    params = SegmentParams.from_toml(toml)
-    assert batch["params"] == json.loads(json.dumps(params.to_dict()))
+    settings = Settings.from_toml(toml)
+    flat = {**settings.params.to_dict(), **settings.options.to_dict()}  # one namespace
+    assert batch["params"] == json.loads(json.dumps(flat))
     regions = 0
     for item in batch["inputs"]:
         single = tmp_path / "single" / item["name"]
-        summary = segment_file(item["input"], single, params, progress=False)
+        summary = segment_file(item["input"], single, settings.params,
+                               options=settings.options, progress=False)
         _same_files(tmp_path / "out" / item["name"], single)
         record = json.loads((tmp_path / "out" / item["name"] / "done.json").read_text())
         assert record["params"] == batch["params"]  # exact parameters recorded per input

@@ -118,7 +118,7 @@ def test_parameter_file_errors_keep_the_file_s_names(tmp_path, capsys):
     assert main(["segment", str(tmp_path / "cells.npy"), "-o", str(tmp_path / "out"),
                  "--params", str(tmp_path / "p.toml")]) == 2
     (line,) = _err_lines(capsys.readouterr().err, "segment")
-    assert "p.toml': min_volume must be >= 0" in line and "--min-volume" not in line
+    assert "p.toml': min_volume must be a number >= 0" in line and "--min-volume" not in line
 
 
 def _console(*arguments, **options):

@@ -128,7 +128,7 @@ def test_without_h5py_reading_and_asking_for_hdf5_labels_say_how_to_install(
         f.create_dataset("raw", data=_volume(rng))
     np.save(tmp_path / "scan.npy", _volume(rng))
     monkeypatch.setitem(__import__("sys").modules, "h5py", None)  # import h5py now fails
-    monkeypatch.setattr("cavitas.workflow.find_spec", lambda name: None)
+    monkeypatch.setattr("cavitas._run_options.find_spec", lambda name: None)
     with pytest.raises(InputFileError, match=r"scan\.h5.*cavitas\[hdf5\]"):
         read(path)
     out = tmp_path / "out"

@@ -10,7 +10,7 @@ from cavitas._table import Table
 from cavitas.cli import main
 from cavitas.io import read, write
 from cavitas.segment import SegmentParams
-from cavitas.workflow import segment_file
+from cavitas.workflow import RunOptions, segment_file
 
 
 def _rings():
@@ -107,8 +107,8 @@ def test_mask_makes_the_roi_border_an_outside(scan, tmp_path):
     roi = np.ones((40, 40), np.uint8)
     roi[:, :10] = 0  # cuts the first ring open
     write(tmp_path / "roi.tif", roi)
-    params = SegmentParams(min_persistence=50.0, mask=str(tmp_path / "roi.tif"))
-    summary = segment_file(scan, tmp_path / "o", params, progress=False)
+    summary = segment_file(scan, tmp_path / "o", SegmentParams(min_persistence=50.0),
+                           options=RunOptions(mask=str(tmp_path / "roi.tif")), progress=False)
     # The ROI's edge cuts the first ring and the big one open; the second ring and the
     # small ring inside the big one stay enclosed.
     assert summary["regions"] == 2
@@ -123,8 +123,8 @@ def test_mesh_option_writes_one_file_per_chamber(tmp_path):
     vol[4:12, 4:12, 4:12] = 0
     path = tmp_path / "box.npy"
     np.save(path, vol)
-    segment_file(path, tmp_path / "o", SegmentParams(min_persistence=0.5, mesh="stl"),
-                 progress=False)
+    segment_file(path, tmp_path / "o", SegmentParams(min_persistence=0.5),
+                 options=RunOptions(mesh="stl"), progress=False)
     assert len(list((tmp_path / "o" / "meshes").glob("*.stl"))) == 1
 
 

@@ -11,6 +11,7 @@ from scipy import ndimage as ndi
 
 from cavitas import InputFileError, ParameterError
 from cavitas.segment import SegmentParams, segment
+from cavitas.workflow import Settings
 
 
 def test_shepp_logan_2d_regions_contrasts_and_areas():
@@ -183,10 +184,10 @@ def test_params_toml_round_trip(tmp_path):
     f.write_text("[segment]\n" + "\n".join(
         f"{k} = {v!r}".replace("'", '"') for k, v in p.to_dict().items()
         if v is not None and not isinstance(v, bool)) + "\n")
-    assert SegmentParams.from_toml(f) == p
+    assert Settings.from_toml(f).params == p
     f.write_text("colour = 3\n")
     with pytest.raises(ParameterError, match="colour"):
-        SegmentParams.from_toml(f)
+        Settings.from_toml(f)
 
 
 def test_shell_and_three_class():
@@ -317,7 +318,7 @@ def test_enclosure_holds_its_chambers_and_inner_walls():
     img[2:18, 2:28] = 1.0
     img[4:16, 4:26] = 0.0
     img[4:16, 14:16] = 0.4
-    seg = segment(img, min_persistence=0.2, region="breach", enclosures=True)
+    seg = segment(img, min_persistence=0.2, region="breach")
     rows = seg.regions
     enc = rows.select(rows["kind"] == "enclosure")
     assert len(enc) == 1 and enc["level"][0] == pytest.approx(1.0)

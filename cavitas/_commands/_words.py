@@ -63,8 +63,11 @@ def in_option_words(message: str, parameters: Iterable[str],
         option = options.get(name) or "--" + name.replace("_", "-")
         word = rf"(?<![\w\-'./]){re.escape(name)}"
         message = re.sub(rf"{word}=True\b", option, message)
-        message = re.sub(rf"{word}=(['\"]?)([^\s,;)'\"]*)\1",
-                         lambda m, o=option: f"{o} {m.group(2)}" if m.group(2) else o, message)
+
+        def as_option(match: re.Match[str], option: str = option) -> str:
+            return f"{option} {match.group(2)}" if match.group(2) else option
+
+        message = re.sub(rf"{word}=(['\"]?)([^\s,;)'\"]*)\1", as_option, message)
         bare = rf"{word}(?![\w=/]|\.\w)"
         if "_" in name:
             message = re.sub(bare, option, message)

@@ -84,13 +84,14 @@ def run(args: argparse.Namespace) -> int:
     """Run the batch described by ``args``; return 0, or 1 if some inputs failed."""
     from ..batch import run_batch
 
-    params = _segment.params_from_args(args)
-    if params.mask:  # workers may run elsewhere: name the mask by its full path
-        params = params.replace(mask=os.path.abspath(params.mask))
-    result = run_batch(args.inputs, args.out, params, jobs=args.jobs,
-                       scheduler=args.scheduler, dask=args.dask_local, force=args.force,
-                       progress=args.progress,
-                       read_options=_segment.read_options_from_args(args))
+    settings = _segment.settings_from_args(args)
+    options = settings.options
+    if options.mask:  # workers may run elsewhere: name the mask by its full path
+        options = options.replace(mask=os.path.abspath(options.mask))
+    result = run_batch(args.inputs, args.out, settings.params, options=options,
+                       jobs=args.jobs, scheduler=args.scheduler, dask=args.dask_local,
+                       force=args.force, progress=args.progress,
+                       read_options=settings.reading.kwargs())
     counts = {s: sum(r["status"] == s for r in result.results)
               for s in ("done", "reused", "failed")}
     for failure in result.failed:

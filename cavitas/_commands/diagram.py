@@ -13,7 +13,7 @@ from tqdm import tqdm
 from .._caution import RESEARCH_ONLY
 from .._errors import InputFileError, ParameterError
 from ..io._atomic import check_writable
-from ._reading import add_dataset_option
+from ._reading import add_reading_options, reading_from_args
 
 __all__ = ["register", "run"]
 
@@ -38,6 +38,8 @@ examples:
       dark walls, fully connected (voxels touching at corners join); cavities by faces only
   cavitas diagram cells.ome.tif -o out --channel 1 --time 0 --mask roi.tif --force
       one channel and time point, inside a region of interest, replacing earlier output
+  cavitas diagram block.raw -o out --shape 64,256,256 --dtype uint16 --byte-order big
+      a raw volume without a header: its layout
 """
 
 
@@ -62,11 +64,6 @@ def register(subparsers: Any, *, parents: list[argparse.ArgumentParser],
     parser.add_argument("--mask", metavar="MASKFILE",
                         help="region of interest, same shape as the image: nonzero voxels "
                              "are analysed, the rest counts as outside")
-    parser.add_argument("--channel", type=int, metavar="C",
-                        help="channel to analyse in a multichannel file (from 0)")
-    parser.add_argument("--time", type=int, metavar="T",
-                        help="time point to analyse in a time series (from 0)")
-    add_dataset_option(parser)
     parser.add_argument("--one-thread", action="store_true",
                         help="run the wall and cavity sweeps one after the other instead of "
                              "at the same time: 8 instead of 12 bytes per voxel beyond the "
@@ -75,6 +72,7 @@ def register(subparsers: Any, *, parents: list[argparse.ArgumentParser],
                         help="number of cavity bars drawn in barcode.png, longest first")
     parser.add_argument("--force", action="store_true",
                         help="replace output files that already exist")
+    add_reading_options(parser)
     parser.set_defaults(func=run)
     return parser
 
@@ -99,8 +97,7 @@ def run(args: argparse.Namespace) -> int:
     inputs = tuple(p for p in (args.file, args.mask) if p)
     targets = [check_writable(args.out / name, force=args.force, inputs=inputs)
                for name in OUTPUTS]
-    options = {k: getattr(args, k) for k in ("channel", "time", "dataset")
-               if getattr(args, k) is not None}
+    options = reading_from_args(args).kwargs()
     with tqdm(total=5, desc="diagram", unit="step", file=sys.stderr, disable=not args.progress,
               delay=1.0, leave=False) as bar:
         bar.set_postfix_str(f"reading {Path(args.file).name}")

@@ -10,7 +10,7 @@ from typing import Any
 from .._errors import EXIT_INTERNAL, CavitasError, ChoiceNeeded
 from .._json import dumps
 from ..io import Volume, estimate_memory_bytes, read, summarize
-from ._reading import add_dataset_option
+from ._reading import add_reading_options, reading_from_args
 from ._words import in_option_words
 
 __all__ = ["describe", "register", "run"]
@@ -41,21 +41,6 @@ unreadable file, 2 for a bad option).
 """
 
 
-def _numbers(kind: type, count: str) -> Any:
-    def parse(text: str) -> tuple[Any, ...]:
-        try:
-            values = tuple(kind(part) for part in text.replace("x", ",").split(",") if part)
-        except ValueError as exc:
-            raise argparse.ArgumentTypeError(
-                f"expected {count} comma-separated numbers, got {text!r}"
-            ) from exc
-        if len(values) not in (2, 3):
-            raise argparse.ArgumentTypeError(f"expected {count} numbers, got {text!r}")
-        return values
-
-    return parse
-
-
 def register(subparsers: Any, *, parents: list[argparse.ArgumentParser],
              formatter_class: type[argparse.HelpFormatter]) -> argparse.ArgumentParser:
     """Add the ``info`` subcommand to ``subparsers``."""
@@ -70,25 +55,7 @@ def register(subparsers: Any, *, parents: list[argparse.ArgumentParser],
                              "spacing, unit, min, max, percentiles, nonfinite, memory_bytes, "
                              "warnings, holds: the channels, time points or arrays of a file "
                              "that has several ...)")
-    choice = parser.add_argument_group("choosing in multi-channel / time-lapse files")
-    choice.add_argument("--channel", type=int, metavar="C",
-                        help="channel to read, counted from 0 (default: the first)")
-    choice.add_argument("--time", type=int, metavar="T",
-                        help="time point to read, counted from 0 (default: the first)")
-    choice.add_argument("--key", help="array to read from a .npz file holding several")
-    add_dataset_option(choice)
-    geometry = parser.add_argument_group("geometry (replaces what the file states)")
-    geometry.add_argument("--spacing", type=_numbers(float, "2 or 3"), metavar="Z,Y,X",
-                          help="voxel size in (z, y, x) order, e.g. 2,0.5,0.5")
-    geometry.add_argument("--unit", help="unit of the spacing, e.g. um, nm, mm")
-    raw = parser.add_argument_group("raw binary files (.raw, .bin, .img without .hdr)")
-    raw.add_argument("--shape", type=_numbers(int, "2 or 3 whole"), metavar="Z,Y,X",
-                     help="array shape in (z, y, x) order, e.g. 64,256,256")
-    raw.add_argument("--dtype", help="voxel type as a NumPy name, e.g. uint8, uint16, float32")
-    raw.add_argument("--byte-order", choices=["little", "big", "native"],
-                     help="byte order of multi-byte voxels (default: native)")
-    raw.add_argument("--offset", type=int, default=0, metavar="BYTES",
-                     help="header bytes to skip before the voxels")
+    add_reading_options(parser)
     parser.set_defaults(func=run)
     return parser
 
@@ -197,7 +164,7 @@ def read_first_choice(name: str, options: dict[str, Any]) -> tuple[Volume, dict[
     >>> volume.shape, held
     ((2, 3), {'key': ['a', 'b']})
     """
-    options, held = dict(options), {}
+    options, held = dict(options), dict[str, list]()
     while True:
         try:
             return read(name, **options), held
@@ -218,9 +185,7 @@ def _describe_file(name: str, options: dict[str, Any], quiet: bool) -> dict[str,
 
 def run(args: argparse.Namespace) -> int:
     """Describe each file; carry on past failures; return the worst exit code."""
-    options = dict(channel=args.channel, time=args.time, key=args.key, dataset=args.dataset,
-                   spacing=args.spacing, unit=args.unit, shape=args.shape, dtype=args.dtype,
-                   byte_order=args.byte_order, offset=args.offset)
+    options = reading_from_args(args).kwargs()
     failed = 0
     reader_log = logging.getLogger("cavitas.io")
     level = reader_log.level

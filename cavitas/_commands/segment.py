@@ -7,15 +7,9 @@ from pathlib import Path
 from typing import Any
 
 from .._caution import RESEARCH_ONLY
-from ._reading import add_dataset_option
+from ._reading import add_reading_options
 
-__all__ = [
-    "add_segment_options",
-    "params_from_args",
-    "read_options_from_args",
-    "register",
-    "run",
-]
+__all__ = ["add_segment_options", "register", "run", "settings_from_args"]
 
 DESCRIPTION = f"""\
 Find the enclosed regions (cells, pores, vesicles, capsules, bubbles) of a 2D image or 3D
@@ -50,8 +44,23 @@ examples:
       the ten most persistent chambers, the enclosures map, one PLY surface per chamber
   cavitas segment scan.tif -o out --min-persistence 40 --region breach --level-fraction 0.8
       a fixed threshold in intensity units; strict regions cut at 80 % of their level
+  cavitas segment cells.png -o out --spacing 0.2,0.2 --unit um --min-volume 5
+      a file without calibration: give the pixel size to select by area in µm²
+  cavitas segment block.raw -o out --shape 64,256,256 --dtype uint16 --spacing 2,1,1
+      a raw volume: its layout (and --byte-order, --offset if needed) and voxel size
   cavitas segment scan.tif -o out --params settings.toml --force
       parameters from a TOML file (options on the command line win), replacing output
+
+parameter file (--params): the options' names with underscores, at the top level or in
+tables; types are strict (true/false, quoted texts, numbers, [lists] of numbers):
+  walls = "dark"            # or in a [segment] table, with every other name
+  min_volume = 20
+  [reading]                 # reading options and the mask (relative to this file)
+  spacing = [2.0, 0.5, 0.5]
+  mask = "roi.tif"
+  [outputs]                 # shells, enclosures, partition, mesh, label_format
+  shells = 0.5
+  partition = true
 """
 
 
@@ -79,8 +88,8 @@ def register(subparsers: Any, *, parents: list[argparse.ArgumentParser],
 def add_segment_options(p: argparse.ArgumentParser) -> None:
     """Add the segmentation and reading options (shared by ``segment`` and ``batch``)."""
     p.add_argument("--params", metavar="FILE.toml",
-                   help="read parameters from a TOML file (top level or a [segment] table; "
-                        "names as in the Python API, e.g. min_volume = 20)")
+                   help="read parameters, reading options and outputs from a TOML file "
+                        "(see below; options given here win)")
     g = p.add_argument_group("what a wall is")
     g.add_argument("--walls", choices=("bright", "dark"),
                    help="polarity of the walls around the regions (default: bright)")
@@ -147,42 +156,30 @@ def add_segment_options(p: argparse.ArgumentParser) -> None:
     g.add_argument("--label-format", metavar="EXT",
                    help="file format of the label maps, e.g. .tif, .ome.tif, .nii.gz, .h5 "
                         "(default: the input's; PNG and raw input give .tif)")
-    g = p.add_argument_group("reading")
-    g.add_argument("--channel", type=int, metavar="C", help="channel of a multichannel file")
-    g.add_argument("--time", type=int, metavar="T", help="time point of a time series")
-    add_dataset_option(g)
+    add_reading_options(p)
 
 
-#: Command-line options that map one-to-one onto SegmentParams fields.
-_FIELDS = ("walls", "connectivity", "mask", "auto", "min_persistence", "relative_persistence",
-           "top", "min_volume", "max_volume", "smooth", "safety", "split_fraction", "region",
-           "level_fraction", "keep_border", "shells", "enclosures", "partition", "mesh",
-           "label_format")
+def settings_from_args(args: argparse.Namespace) -> Any:
+    """The :class:`~cavitas.workflow.Settings` of ``args``: the ``--params`` file, then
+    every option given on the command line on top (its destination is the setting's name)."""
+    from ..workflow import Settings
 
-
-def params_from_args(args: argparse.Namespace) -> Any:
-    """The SegmentParams of ``args``: the ``--params`` file, then options given on top."""
-    from ..segment import SegmentParams
-
-    base = SegmentParams.from_toml(args.params) if args.params else SegmentParams()
-    given = {name: getattr(args, name) for name in _FIELDS if getattr(args, name) is not None}
+    base = Settings.from_toml(args.params) if args.params else Settings()
+    given = {name: getattr(args, name) for name in sorted(Settings.names())
+             if getattr(args, name, None) is not None}
     return base.replace(**given)
-
-
-def read_options_from_args(args: argparse.Namespace) -> dict[str, Any]:
-    """The ``cavitas.io.read`` options given on the command line (channel, time, dataset)."""
-    return {k: getattr(args, k) for k in ("channel", "time", "dataset")
-            if getattr(args, k) is not None}
 
 
 def run(args: argparse.Namespace) -> int:
     """Run ``cavitas segment`` and print a short summary."""
     from ..workflow import segment_file
 
-    params, read_options = params_from_args(args), read_options_from_args(args)
-    summary = segment_file(args.file, args.out, params, force=args.force,
-                           progress=args.progress, read_options=read_options,
-                           report=not args.no_report, thickness=not args.no_thickness)
+    settings = settings_from_args(args)
+    params = settings.params
+    summary = segment_file(args.file, args.out, params, options=settings.options,
+                           force=args.force, progress=args.progress,
+                           read_options=settings.reading, report=not args.no_report,
+                           thickness=not args.no_thickness)
     if not args.quiet:
         unit = summary["unit"]
         enclosures = summary["enclosures"]

@@ -67,22 +67,26 @@ class BatchResult:
         return EXIT_SOME_FAILED if self.failed else EXIT_OK
 
 
-def params_record(params: Any) -> dict[str, Any]:
-    """The parameters as a JSON-ready dict (``to_dict()`` of a params object, or a mapping).
+def params_record(*groups: Any) -> dict[str, Any]:
+    """Parameter groups as one flat JSON-ready dict (``to_dict()`` of each, or mappings).
 
     Examples
     --------
-    >>> params_record({"walls": "dark", "spacing": (1, 2)})
+    >>> params_record({"walls": "dark", "spacing": (1, 2)}, None)
     {'spacing': [1, 2], 'walls': 'dark'}
     """
-    if params is None:
-        return {}
-    if hasattr(params, "to_dict"):
-        return json_ready(params.to_dict())
-    if isinstance(params, Mapping):
-        return json_ready(dict(params))
-    raise ParameterError(f"params must be a parameters object or a mapping; got "
-                         f"{type(params).__name__}.")
+    record: dict[str, Any] = {}
+    for params in groups:
+        if params is None:
+            continue
+        if hasattr(params, "to_dict"):
+            record.update(json_ready(params.to_dict()))
+        elif isinstance(params, Mapping):
+            record.update(json_ready(dict(params)))
+        else:
+            raise ParameterError(f"params must be a parameters object or a mapping; got "
+                                 f"{type(params).__name__}.")
+    return record
 
 
 def default_jobs() -> int:
@@ -100,10 +104,10 @@ def _check_owned(root: Path, force: bool) -> None:
 
 
 def run_batch(inputs: Sequence[str | os.PathLike], outdir: str | os.PathLike,
-              params: Any = None, *, jobs: int | None = None, scheduler: str | None = None,
-              dask: bool = False, force: bool = False, progress: bool = True,
-              read_options: Mapping[str, Any] | None = None, worker: str = DEFAULT_WORKER,
-              memory_budget: int | None = None) -> BatchResult:
+              params: Any = None, *, options: Any = None, jobs: int | None = None,
+              scheduler: str | None = None, dask: bool = False, force: bool = False,
+              progress: bool = True, read_options: Mapping[str, Any] | None = None,
+              worker: str = DEFAULT_WORKER, memory_budget: int | None = None) -> BatchResult:
     """Process many inputs into ``outdir``: one folder per input plus batch-wide tables.
 
     Each input gets ``outdir/<name>-<hash>/`` (its segmentation outputs and a ``done.json``
@@ -121,6 +125,9 @@ def run_batch(inputs: Sequence[str | os.PathLike], outdir: str | os.PathLike,
         The batch output folder (created if needed).
     params : SegmentParams or mapping, optional
         Segmentation parameters, passed to the worker and recorded with every output.
+    options : RunOptions, optional
+        The mask file (give its full path when workers run elsewhere) and the extra
+        outputs; passed to the worker as ``options=`` and recorded like the parameters.
     jobs : int, optional
         Most inputs processed at once (default: the usable cores). Locally, fewer run
         together when their estimated memory would exceed what is available.
@@ -178,11 +185,11 @@ def run_batch(inputs: Sequence[str | os.PathLike], outdir: str | os.PathLike,
     if root.exists() and not root.is_dir():
         raise OutputError(f"Output '{root}' is a file; expected a folder for the batch.")
     _check_owned(root, force)
-    record = params_record(params)
+    record = params_record(params, options)
     if read_options:
         record["read_options"] = json_ready(dict(read_options))
     tasks = [Task(path=str(item.path), name=item.name, root=str(root), params=params,
-                  record=record, force=force, worker=worker,
+                  options=options, record=record, force=force, worker=worker,
                   read_options=dict(read_options or {})) for item in items]
     started = datetime.now(timezone.utc)
     with folder_lock(root):

@@ -50,14 +50,18 @@ class Task:
         The batch output folder.
     params : object
         Segmentation parameters handed to the worker function unchanged.
+    options : object
+        The run's options (mask file, extra outputs), handed to the worker as
+        ``options=`` when given.
     record : mapping
         The same parameters as a JSON-ready dict, compared on resume.
     force : bool
         Redo the input even if its outputs are complete.
     worker : str
         ``"module:function"`` called as ``worker(path, outdir, params, force=True,
-        progress=False)``; it must write its outputs into ``outdir`` and return a dict.
-        A worker that takes an ``input_sha256`` keyword also gets the input's checksum.
+        progress=False)``, plus ``options=`` and ``read_options=`` when the task has them;
+        it must write its outputs into ``outdir`` and return a dict. A worker that takes
+        an ``input_sha256`` keyword also gets the input's checksum.
     read_options : mapping
         Options for reading the input (channel, time); passed to the worker when given.
     """
@@ -66,6 +70,7 @@ class Task:
     name: str
     root: str
     params: Any
+    options: Any = None
     record: Mapping[str, Any] = field(default_factory=dict)
     force: bool = False
     worker: str = DEFAULT_WORKER
@@ -137,13 +142,15 @@ def run_task(task: Task) -> dict[str, Any]:
             return result
         staging = new_staging(root, task.name)
         worker = resolve_worker(task.worker)
-        options: dict[str, Any] = {}
+        extra: dict[str, Any] = {}
+        if task.options is not None:
+            extra["options"] = task.options
         if task.read_options:
-            options["read_options"] = dict(task.read_options)
+            extra["read_options"] = dict(task.read_options)
         if _accepts(worker, "input_sha256"):  # spare the worker a second pass over the input
-            options["input_sha256"] = checksum
+            extra["input_sha256"] = checksum
         figures = worker(task.path, staging, task.params, force=True, progress=False,
-                         **options)
+                         **extra)
         seconds = time.perf_counter() - start
         summary = _plain_figures(figures or {})
         write_record(staging, input_path=task.path, checksum=checksum, params=task.record,

@@ -14,6 +14,8 @@ Theory of Computing 8, 415–428. doi:10.4086/toc.2012.v008a019
 
 from __future__ import annotations
 
+from collections.abc import Sequence
+
 import numba
 import numpy as np
 
@@ -100,7 +102,7 @@ def _edt_kernel(mask, s2z, s2y, s2x):  # pragma: no cover - compiled
     return dist
 
 
-def squared_edt(mask: np.ndarray, spacing: tuple[float, float, float]) -> np.ndarray:
+def squared_edt(mask: np.ndarray, spacing: Sequence[float]) -> np.ndarray:
     """Squared distance from each ``True`` voxel of a 3D mask to the nearest ``False`` one.
 
     ``inf`` where the mask holds no ``False`` voxel at all.

@@ -237,7 +237,7 @@ def thickness_3d(mask: np.ndarray, spacing: tuple[float, ...],
     norms, reach = _ball_table(float(np.sqrt(dt2.max())), sp3, ndim, offsets)
     centres = _ridge_kernel(dt2, offsets, *sp3, delta, norms, reach)
     use_where = where is not None
-    layer = float(np.sqrt(dt2[where].max())) if use_where and where.any() else 0.0
+    layer = float(np.sqrt(dt2[where].max())) if where is not None and where.any() else 0.0
     target = where if use_where else np.zeros((1, 1, 1), bool)
     return _paint_kernel(dt2, centres, target, use_where, layer, *sp3, delta)
 

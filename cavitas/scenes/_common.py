@@ -7,7 +7,7 @@ models a real instrument closely enough to serve as a check value.
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -115,7 +115,7 @@ def check_imaging(*, noise: float, ramp: float, blur: float, walls: str) -> None
         raise ParameterError(f"walls must be 'bright' or 'dark'; got {walls!r}.")
 
 
-def fmt_extent(extent: Sequence[float]) -> str:
+def fmt_extent(extent: Iterable[float]) -> str:
     """A physical extent as ``"a x b x c"`` for messages."""
     return " x ".join(f"{v:.4g}" for v in extent)
 
@@ -128,7 +128,8 @@ def physical_grid(shape: tuple[int, ...], spacing: tuple[float, ...]) -> np.ndar
     return np.stack(np.meshgrid(*axes, indexing="ij"), axis=-1).reshape(-1, len(shape))
 
 
-def soft_wall(distance: np.ndarray, half_thickness: float, step: float) -> np.ndarray:
+def soft_wall(distance: np.ndarray, half_thickness: float | np.ndarray,
+              step: float | np.floating) -> np.ndarray:
     """Partial-volume wall profile: 1 inside the wall, 0 outside, a linear ramp one voxel
     (``step``, physical units) wide centred on the wall surface ``distance == half_thickness``.
     """
@@ -221,7 +222,7 @@ def illumination(shape: tuple[int, ...], ramp: float) -> np.ndarray:
             [-1 if a == axis else 1 for a in range(len(shape))])
         for axis, n in enumerate(shape)
     ) / len(shape)
-    return (1.0 + (ramp - 1.0) * t).astype(np.float32)
+    return np.asarray(1.0 + (ramp - 1.0) * t, dtype=np.float32)
 
 
 def render(clean: np.ndarray, rng: np.random.Generator, *, blur: float, walls: str,

@@ -19,6 +19,7 @@ from __future__ import annotations
 from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 
@@ -47,9 +48,9 @@ class Sample:
 
 # -- the foam: micro-CT-like counts ----------------------------------------------------
 
-FOAM = dict(shape=(96, 128, 128), cells=200, wall_thickness=2.5, thickness_spread=0.2,
-            noise=0.04, ramp=1.25, broken_walls=4, blur=1.0, spacing=(4.0, 2.5, 2.5),
-            seed=7)
+FOAM: dict[str, Any] = dict(
+    shape=(96, 128, 128), cells=200, wall_thickness=2.5, thickness_spread=0.2, noise=0.04,
+    ramp=1.25, broken_walls=4, blur=1.0, spacing=(4.0, 2.5, 2.5), seed=7)
 #: Expected counts are PHOTONS * (OFFSET + image): 30 in a pore, 180 in a wall.
 FOAM_PHOTONS, FOAM_OFFSET, FOAM_COUNT_SEED = 150.0, 0.2, 1007
 
@@ -63,10 +64,12 @@ def _foam_counts(scene: Scene) -> np.ndarray:
 
 # -- capsules and the cell sheet: 8-bit fluorescence -----------------------------------
 
-CAPSULES = dict(shape=(48, 128, 128), count=10, nested=3, touching=2, shell_thickness=2.0,
-                noise=0.12, ramp=1.5, blur=1.0, spacing=(0.4, 0.25, 0.25), seed=11)
-SHEET = dict(shape=(512, 512), cells=150, wall_thickness=2.5, noise=0.1, ramp=2.0, blur=1.2,
-             spacing=(0.2, 0.2), seed=5)
+CAPSULES: dict[str, Any] = dict(
+    shape=(48, 128, 128), count=10, nested=3, touching=2, shell_thickness=2.0, noise=0.12,
+    ramp=1.5, blur=1.0, spacing=(0.4, 0.25, 0.25), seed=11)
+SHEET: dict[str, Any] = dict(
+    shape=(512, 512), cells=150, wall_thickness=2.5, noise=0.1, ramp=2.0, blur=1.2,
+    spacing=(0.2, 0.2), seed=5)
 #: 8-bit grey values are DARK + GAIN * image, rounded and clipped to 0..255 (DARK is
 #: about 3 noise σ above 0, so fewer than 0.1 % of the voxels clip).
 DARK, GAIN = 40.0, 100.0

@@ -1,15 +1,20 @@
-"""Every segmentation parameter, its default, and the checks of contradictions."""
+"""The segmentation's own parameters, their defaults, and the checks of contradictions.
+
+What a run writes (shells, enclosures, partition, meshes, the label format) and which files
+it reads (the image, the mask) are the workflow's options, not the algorithm's:
+:class:`cavitas.workflow.RunOptions` and :class:`cavitas.workflow.ReadOptions`.
+"""
 
 from __future__ import annotations
 
 import dataclasses
-import math
-import os
-import sys
-from dataclasses import dataclass, field, fields
+from dataclasses import dataclass, fields
 from typing import Any
 
-from .._errors import InputFileError, ParameterError
+import numpy as np
+
+from .._checks import choice, flag, number, whole
+from .._errors import ParameterError
 from ._select import SPLIT_FRACTION
 
 __all__ = ["SegmentParams"]
@@ -25,6 +30,8 @@ class SegmentParams:
     """Parameters of :func:`cavitas.segment.segment` and ``cavitas segment``.
 
     Selection criteria combine: a feature is kept when it passes every criterion given.
+    Types are strict: numbers are numbers (not texts, not booleans), switches are
+    booleans, names are texts.
 
     Parameters
     ----------
@@ -46,13 +53,13 @@ class SegmentParams:
     min_volume, max_volume : float or None
         Region volume bounds in physical units (area in 2D); need a known spacing.
     smooth : float or None
-        Gaussian σ in physical units; 0 disables smoothing. None: chosen from the data in
-        automatic mode, none with a hand threshold (``min_persistence``,
-        ``relative_persistence``): a threshold read off the automatic run's diagram applies
-        at that run's scale only with the same ``smooth`` (its ``smooth_sigma``); the run
-        summary says so.
+        Gaussian σ in physical units, at most the image's longest side; 0 disables
+        smoothing. None: chosen from the data in automatic mode, none with a hand
+        threshold (``min_persistence``, ``relative_persistence``): a threshold read off
+        the automatic run's diagram applies at that run's scale only with the same
+        ``smooth`` (its ``smooth_sigma``); the run summary says so.
     safety : float
-        Factor on the empirical noise null (automatic mode).
+        Factor (> 0) on the empirical noise null (automatic mode).
     split_fraction : float
         In [0, 1]. An inner wall splits an enclosure into two chambers only when it closes
         at least this fraction of the way from the shallower side's core level up to the
@@ -69,20 +76,6 @@ class SegmentParams:
         cells are detected and delineated like whole ones; their rows have
         ``touches_border`` set (the workflow leaves them out of the global figures). The
         medium lining the faces is not labelled. Pieces cut by an ROI border stay ``cut``.
-    shells : float or None
-        Write shells, thickened by this physical distance (0 = touching wall voxels only).
-    enclosures : bool
-        Write the enclosures as a second label map.
-    partition : bool
-        Write the partition (:attr:`Segmentation.partition`: every voxel of the specimen
-        given to a region, walls split at their ridge line) and each region's volume
-        with its part of the walls.
-    mesh : {"ply", "stl"} or None
-        Write a surface mesh per region (3D only).
-    label_format : str or None
-        File suffix of the label map (e.g. ".tif", ".nii.gz"); None = the input's.
-    mask : str or None
-        ROI mask file (nonzero = inside), same shape as the input.
 
     Examples
     --------
@@ -93,6 +86,10 @@ class SegmentParams:
     Traceback (most recent call last):
     ...
     cavitas._errors.ParameterError: min_volume (10.0) must not exceed max_volume (5.0).
+    >>> SegmentParams(auto="yes")
+    Traceback (most recent call last):
+    ...
+    cavitas._errors.ParameterError: auto must be true or false; got 'yes'.
     """
 
     walls: str = "bright"
@@ -109,75 +106,69 @@ class SegmentParams:
     region: str = "basin"
     level_fraction: float | None = None
     keep_border: bool = False
-    shells: float | None = None
-    enclosures: bool = False
-    partition: bool = False
-    mesh: str | None = None
-    label_format: str | None = None
-    mask: str | None = field(default=None)
 
     def __post_init__(self) -> None:
-        if self.walls not in ("bright", "dark"):
-            raise ParameterError(f"walls must be 'bright' or 'dark'; got {self.walls!r}.",
-                                 parameters=("walls",))
-        if self.region not in ("basin", "breach"):
-            raise ParameterError(f"region must be 'basin' or 'breach'; got {self.region!r}.",
-                                 parameters=("region",))
-        if self.mesh is not None and self.mesh not in ("ply", "stl"):
-            raise ParameterError(f"mesh must be 'ply' or 'stl'; got {self.mesh!r}.",
-                                 parameters=("mesh",))
-        for name in ("min_persistence", "min_volume", "max_volume", "smooth", "shells"):
-            value = getattr(self, name)
-            if value is not None:
-                value = _number(name, value)
-                if value < 0:
-                    raise ParameterError(f"{name} must be >= 0; got {value}.",
-                                         parameters=(name,))
-                setattr(self, name, value)
-        self.safety = _number("safety", self.safety)
-        if self.safety <= 0:
-            raise ParameterError(f"safety must be > 0; got {self.safety}.",
-                                 parameters=("safety",))
-        self.split_fraction = _number("split_fraction", self.split_fraction)
-        if not 0 <= self.split_fraction <= 1:
-            raise ParameterError(
-                f"split_fraction must be in [0, 1]; got {self.split_fraction}.",
-                parameters=("split_fraction",))
+        self.walls = choice("walls", self.walls, ("bright", "dark"))
+        self.region = choice("region", self.region, ("basin", "breach"))
+        for name in ("min_persistence", "min_volume", "max_volume", "smooth"):
+            if getattr(self, name) is not None:
+                setattr(self, name, number(name, getattr(self, name), low=0))
+        self.safety = number("safety", self.safety, low=0, low_open=True)
+        self.split_fraction = number("split_fraction", self.split_fraction, low=0, high=1)
         if self.relative_persistence is not None:
-            self.relative_persistence = _number("relative_persistence",
-                                                self.relative_persistence)
-            if not 0 < self.relative_persistence <= 1:
-                raise ParameterError("relative_persistence must be in (0, 1]; got "
-                                     f"{self.relative_persistence}.",
-                                     parameters=("relative_persistence",))
+            self.relative_persistence = number("relative_persistence",
+                                               self.relative_persistence, low=0, high=1,
+                                               low_open=True)
         if self.level_fraction is not None:
-            self.level_fraction = _number("level_fraction", self.level_fraction)
-            if not 0 <= self.level_fraction <= 1:
-                raise ParameterError(
-                    f"level_fraction must be in [0, 1]; got {self.level_fraction}.",
-                    parameters=("level_fraction",))
+            self.level_fraction = number("level_fraction", self.level_fraction, low=0, high=1)
             if self.region != "breach":
                 raise ParameterError(
                     "level_fraction applies to breach regions only; got it with "
                     f"region={self.region!r} (use region='breach').",
                     parameters=("level_fraction", "region"))
         if self.top is not None:
-            if isinstance(self.top, bool) or int(self.top) != self.top or self.top < 1:
-                raise ParameterError(f"top must be an integer >= 1; got {self.top!r}.",
-                                     parameters=("top",))
-            self.top = int(self.top)
+            self.top = whole("top", self.top, low=1)
         if (self.min_volume is not None and self.max_volume is not None
                 and self.min_volume > self.max_volume):
             raise ParameterError(f"min_volume ({self.min_volume}) must not exceed "
                                  f"max_volume ({self.max_volume}).",
                                  parameters=("min_volume", "max_volume"))
-        if self.connectivity is not None and (
-                isinstance(self.connectivity, bool) or self.connectivity not in (1, 2, 3)):
-            raise ParameterError(
-                f"connectivity must be 1 (faces) or the number of axes (full); "
-                f"got {self.connectivity!r}.", parameters=("connectivity",))
+        if self.connectivity is not None:
+            self.connectivity = whole("connectivity", self.connectivity, low=1)
+            if self.connectivity > 3:
+                raise ParameterError(
+                    f"connectivity must be 1 (faces) or the number of axes (full); "
+                    f"got {self.connectivity}.", parameters=("connectivity",))
+        if self.auto is not None:
+            self.auto = flag("auto", self.auto)
+        self.keep_border = flag("keep_border", self.keep_border)
         if self.auto is False and self.smooth is None:
             self.smooth = 0.0
+
+    def check_image(self, volume: Any) -> None:
+        """Check the parameters that depend on the image: its spacing and its size.
+
+        Volume bounds need a known spacing; the smoothing σ may not exceed the image's
+        longest side (a larger one flattens the image and only costs time and memory).
+
+        Examples
+        --------
+        >>> from cavitas.io import Volume
+        >>> SegmentParams(smooth=50).check_image(Volume(np.zeros((8, 8)), spacing=(2, 2)))
+        Traceback (most recent call last):
+        ...
+        cavitas._errors.ParameterError: smooth (50 µm) exceeds the image's longest side (16 µm).
+        """
+        if (self.min_volume is not None or self.max_volume is not None) and (
+                volume.unit == "voxel"):
+            raise ParameterError(f"min_volume and max_volume are in physical units and need a "
+                                 f"known spacing; '{volume.name}' has none (give spacing=).",
+                                 parameters=("min_volume", "max_volume", "spacing"))
+        longest = float(np.max(np.multiply(volume.shape, volume.spacing)))
+        if self.smooth is not None and self.smooth > longest:
+            raise ParameterError(f"smooth ({self.smooth:g} {volume.unit}) exceeds the image's "
+                                 f"longest side ({longest:g} {volume.unit}).",
+                                 parameters=("smooth",))
 
     @property
     def automatic(self) -> bool:
@@ -207,46 +198,3 @@ class SegmentParams:
             raise ParameterError(f"Unknown segmentation parameter(s): {sorted(unknown)}; "
                                  f"known: {sorted(known)}.")
         return cls(**values)
-
-    @classmethod
-    def from_toml(cls, path: str | os.PathLike) -> SegmentParams:
-        """Read parameters from a TOML file (top level or a ``[segment]`` table).
-
-        Examples
-        --------
-        >>> import tempfile, pathlib
-        >>> f = pathlib.Path(tempfile.mkdtemp()) / "p.toml"
-        >>> _ = f.write_text('[segment]\\nwalls = "dark"\\ntop = 3\\n')
-        >>> SegmentParams.from_toml(f).top
-        3
-        """
-        if sys.version_info >= (3, 11):
-            import tomllib
-        else:  # pragma: no cover
-            import tomli as tomllib
-        try:
-            with open(path, "rb") as fh:
-                data = tomllib.load(fh)
-        except OSError as exc:
-            raise InputFileError(f"Cannot read parameter file '{path}': "
-                                 f"{exc.strerror or exc}.") from exc
-        except tomllib.TOMLDecodeError as exc:
-            raise InputFileError(f"Parameter file '{path}' is not valid TOML: {exc}.") from exc
-        data = data.get("segment", data)
-        try:
-            return cls.from_dict(data)
-        except ParameterError as exc:
-            raise ParameterError(f"In parameter file '{path}': {exc}") from None
-
-
-def _number(name: str, value: Any) -> float:
-    if isinstance(value, bool):
-        raise ParameterError(f"{name} must be a number; got {value!r}.", parameters=(name,))
-    try:
-        value = float(value)
-    except (TypeError, ValueError):
-        raise ParameterError(f"{name} must be a number; got {value!r}.",
-                             parameters=(name,)) from None
-    if not math.isfinite(value):
-        raise ParameterError(f"{name} must be finite; got {value}.", parameters=(name,))
-    return value

@@ -5,6 +5,7 @@ from __future__ import annotations
 import itertools
 import logging
 import math
+import os
 import time
 from collections import deque
 from collections.abc import Callable
@@ -69,7 +70,7 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
         All parameters at once; ``options`` override single fields.
     mask : array_like of bool, optional
         Region of interest: voxels outside it count as outside the scan, and may hold NaN
-        (the workflow reads the file named by ``params.mask`` and passes it here).
+        (the workflow reads the mask file named by its options and passes it here).
     stage : callable, optional
         Called with a few words on each stage as it starts (``"smoothing scale 2 of 6"``,
         ``"regions"`` ...), for a progress display.
@@ -137,11 +138,7 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
     vol = volume if isinstance(volume, Volume) else Volume(np.asarray(volume), spacing=spacing)
     if isinstance(volume, Volume) and spacing is not None:
         raise ParameterError("spacing= is for arrays; a Volume carries its own spacing.")
-    if (params.min_volume is not None or params.max_volume is not None) and (
-            vol.unit == "voxel"):
-        raise ParameterError(f"min_volume and max_volume are in physical units and need a "
-                             f"known spacing; '{vol.name}' has none (give spacing=).",
-                             parameters=("min_volume", "max_volume", "spacing"))
+    params.check_image(vol)
     ndim = vol.ndim
     connectivity = check_connectivity(ndim, params.connectivity or 1)
     # Memory: the input is read in place (a memory map stays one); every smoothed copy is
@@ -149,6 +146,9 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
     raw = engine_array(np.asarray(vol.data))
     if raw.dtype == np.bool_:
         raw = raw.view(np.uint8)
+    if isinstance(mask, (str, os.PathLike)):
+        raise ParameterError(f"mask must be an array; got the file name {str(mask)!r} (read "
+                             "it with cavitas.read).", parameters=("mask",))
     roi = None if mask is None else np.asarray(mask, bool)
     if roi is not None and roi.shape != raw.shape:
         raise ParameterError(f"mask has shape {roi.shape}; the image has {raw.shape}.",
