@@ -32,6 +32,7 @@ from cavitas.report import (
 )
 from cavitas.report._browser import embed_scan
 from cavitas.report._findings import gather_findings
+from cavitas.report._overview import plot_overview
 from cavitas.report._params_html import parameter_lists
 from cavitas.report._regions import pick_region, region_centroids
 from cavitas.report._render import OUTLINE_DARK, OUTLINE_LIGHT, intensity_window, render_slice
@@ -239,7 +240,7 @@ def test_report_escapes_hostile_names(tmp_path):
     assert html.escape(hostile) in source
     assert "évil" in "".join(page.text)
     assert "&lt;b&gt;odd&lt;/b&gt; [&lt;u&gt;]" in source
-    assert sum(tag == "script" for tag, _ in page.tags) == 3  # frames JSON + two scripts
+    assert sum(tag == "script" for tag, _ in page.tags) == 4  # scan JSON + three scripts
 
 
 def test_report_with_no_region_still_shows_the_diagram(tmp_path):
@@ -323,3 +324,36 @@ def test_parameters_set_by_hand_are_told_from_defaults():
                                     "noise_pixel_sigma": 3.0}, "µm", element="pixel")
     assert mine == [("smallest region kept", "20")]
     assert ("noise σ of single pixels", "3") in chosen and ("wall connectivity", "1") in chosen
+
+
+def _text_boxes(fig):
+    """Window extents of every visible, non-empty title, axis label and figure text."""
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+    canvas = FigureCanvasAgg(fig)  # as figure_png renders
+    canvas.draw()
+    renderer = canvas.get_renderer()
+    texts = list(fig.texts)
+    for ax in fig.axes:
+        texts += [ax.title, ax._left_title, ax._right_title, ax.xaxis.label, ax.yaxis.label]
+    return [(t.get_text(), t.get_window_extent(renderer)) for t in texts
+            if t.get_visible() and t.get_text()]
+
+
+@pytest.mark.parametrize(("ndim", "spacing"), [(2, (0.5, 0.5)), (3, (2.0, 0.5, 0.5)),
+                                               (3, (4.0, 2.5, 2.5)), (3, (5.0, 2.5, 2.5))])
+def test_figure_titles_do_not_overlap(ndim, spacing):
+    # Common practice: no two titles or axis labels of a figure share pixels (Matplotlib's
+    # own window extents after drawing, as the report's PNGs are drawn). Tall volumes
+    # (thick z slices) once pushed the figure title into the panel titles.
+    image, labels = scene(ndim)
+    regions = regions_of(labels, spacing=spacing)
+    figures = [plot_region_slices(image, labels, regions, which=w, spacing=spacing, unit="µm")
+               for w in ("largest", "least_certain")]
+    figures.append(plot_overview(image, labels, spacing=spacing, unit="µm", border=[1])[0])
+    figures.append(plot_histograms(regions, ndim=ndim))
+    for fig in figures:
+        boxes = _text_boxes(fig)
+        for i, (a, box_a) in enumerate(boxes):
+            for b, box_b in boxes[i + 1:]:
+                assert not box_a.overlaps(box_b), (a, b)

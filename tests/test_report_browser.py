@@ -268,3 +268,31 @@ def test_empty_report_runs_without_errors(browser, tmp_path):
     images = browser.execute_script("return Array.from(document.images).map(i => i.naturalWidth);")
     assert len(images) >= 2 and min(images) > 0
     assert [e for e in browser.get_log("browser") if e["level"] == "SEVERE"] == []
+
+
+def test_batch_index_sorts_and_reads_plainly(browser, tmp_path):
+    from cavitas.batch._index import index_html
+    from cavitas.batch._summary import summary_table
+
+    rows = [{"input": f"/d/{name}.tif", "name": name, "status": "done", "seconds": 1.0,
+             "error": "", "summary": {"regions": count, "porosity": fraction}}
+            for name, count, fraction in (("a", 12, 0.25), ("b", 3, 0.5), ("c", 40, 0.125))]
+    out = tmp_path / "index.html"
+    out.write_text(index_html(summary_table(rows), root=tmp_path, version="0",
+                              params={"walls": "dark", "min_volume": None, "smooth": None},
+                              tables={}), encoding="utf-8")
+    browser.get(out.resolve().as_uri())
+    heads = browser.find_elements("css selector", "#inputs th button")
+    names = [h.text for h in heads]
+    heads[names.index("regions wholly inside")].click()
+    order = browser.execute_script(
+        "return Array.from(document.querySelectorAll('#inputs tbody tr'))"
+        ".map(r => r.cells[0].textContent);")
+    assert order == ["/d/b.tif", "/d/a.tif", "/d/c.tif"]
+    cells = browser.execute_script(
+        "return Array.from(document.querySelectorAll('#inputs tbody tr'))"
+        ".map(r => r.cells[arguments[0]].textContent);", names.index("filled fraction [%]"))
+    assert cells == ["50", "25", "12.5"]  # percent, the unit said once in the header
+    text = browser.find_element("tag name", "body").text
+    assert "null" not in text and "walls are" in text and "{" not in text
+    assert RESEARCH_ONLY in text

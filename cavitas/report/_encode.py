@@ -24,5 +24,6 @@ def data_uri(png: bytes) -> str:
 def figure_png(fig: Figure, *, dpi: int = 100) -> bytes:
     """Render a Matplotlib figure to PNG bytes (Agg, no display needed)."""
     buf = io.BytesIO()
-    fig.savefig(buf, format="png", dpi=dpi, metadata={"Software": None})
+    fig.savefig(buf, format="png", dpi=dpi, metadata={"Software": None},
+                pil_kwargs={"compress_level": 2})  # plots compress well anyway; saves time
     return buf.getvalue()

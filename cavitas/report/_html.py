@@ -25,7 +25,7 @@ from ._overview import plot_overview
 from ._params_html import parameters_html, plain_value
 from ._regions import region_centroids
 from ._slices import plot_region_slices
-from ._table_html import TABLE_SCRIPT, region_table_html
+from ._table_html import SORT_SCRIPT, TABLE_SCRIPT, region_table_html
 from ._words import Words
 from .diagram_plots import plot_barcode, plot_diagram
 
@@ -294,7 +294,7 @@ def write_report(path: str | os.PathLike, *, image: np.ndarray, labels: np.ndarr
     if n and labels.any():
         fig, where = plot_overview(image, labels, spacing=spacing, unit=unit, border=border)
         overview = _figure(fig, f"Overview. {where} Each region is filled and carries its "
-                                "number in the table; hatched regions are cut by the scan "
+                                "number in the table; striped regions are cut by the scan "
                                 "border.",
                            alt=f"Overview: {where} {found.whole} regions filled in "
                                "distinct colours and numbered, with a scale bar.")
@@ -309,8 +309,10 @@ def write_report(path: str | os.PathLike, *, image: np.ndarray, labels: np.ndarr
                                    spacing=spacing, unit=unit),
                 "The least certain region (its wall stands least above the threshold), "
                 "drawn dashed with a plus at its centre."),
+        # in 2D the overview shows the largest region whole already
         _figure(plot_region_slices(image, labels, shown, which="largest", spacing=spacing,
-                                   unit=unit), "The largest region."),
+                                   unit=unit), "The largest region.") if image.ndim == 3
+        else "",
         _figure(plot_histograms(shown, columns=("sphericity", "circularity"),
                                 ndim=image.ndim),
                 f"How round the regions are ({words.shape_name}: 1 for a perfect "
@@ -348,7 +350,8 @@ def write_report(path: str | os.PathLike, *, image: np.ndarray, labels: np.ndarr
 <section id="plots"><h2>Closer looks</h2><div class="plots">{"".join(closer)}</div></section>
 </main>
 <footer><p>{_esc(RESEARCH_ONLY)}</p></footer>
-<script>{BROWSER_SCRIPT}</script><script>{TABLE_SCRIPT}</script>
+<script>{BROWSER_SCRIPT}</script><script>{SORT_SCRIPT}</script>
+<script>{TABLE_SCRIPT}</script>
 </body></html>
 """
     with atomic_path(path, force=force) as tmp:

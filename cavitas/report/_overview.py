@@ -1,7 +1,7 @@
 """The overview picture: one representative slice, every region filled and numbered.
 
 Regions are filled with colours that differ in lightness as well as hue, each carries its
-table number (dark text on a light halo), regions cut by the scan border are hatched and
+table number (dark text on a light halo), regions cut by the scan border are striped and
 left unnumbered, and a scale bar gives the physical size, so the picture reads in grey print.
 """
 
@@ -64,7 +64,7 @@ def _palette(count: int) -> np.ndarray:
 
 
 def plot_overview(image: np.ndarray, labels: np.ndarray, *, spacing: Sequence[float],
-                  unit: str, border: Sequence[int] = (), max_side: int = 768,
+                  unit: str, border: Sequence[int] = (), max_side: int = 640,
                   max_numbers: int = 400) -> tuple[Figure, str]:
     """The overview figure and a sentence saying which slice it shows.
 
@@ -75,7 +75,7 @@ def plot_overview(image: np.ndarray, labels: np.ndarray, *, spacing: Sequence[fl
     spacing, unit : sequence of float, str
         Voxel size in ``(z, y, x)`` order and its unit (for the axes and the scale bar).
     border : sequence of int
-        Labels of regions cut by the scan border: hatched, not numbered.
+        Labels of regions cut by the scan border: pale with dark stripes, not numbered.
     max_side : int
         Larger slices are reduced by a whole factor for drawing.
     max_numbers : int
@@ -105,7 +105,10 @@ def plot_overview(image: np.ndarray, labels: np.ndarray, *, spacing: Sequence[fl
     is_border = np.isin(small, np.asarray(border, dtype=small.dtype))
     fill = inside & ~is_border
     rgb[fill] = 0.35 * rgb[fill] + 0.65 * colours[where[fill]]
-    rgb[is_border] = 0.4 * rgb[is_border] + 0.6 * 0.85  # pale, so the hatching shows
+    rgb[is_border] = 0.4 * rgb[is_border] + 0.6 * 0.85  # pale, with dark diagonal stripes
+    rows, cols = np.indices(small.shape)
+    stripes = is_border & (((rows + cols) // max(2, small.shape[1] // 120)) % 3 == 0)
+    rgb[stripes] = 0.2
     edge = outline_mask(small)
     rgb[edge] = 0.08
     height, width = grey.shape[0] * factor * dy, grey.shape[1] * factor * dx
@@ -113,12 +116,7 @@ def plot_overview(image: np.ndarray, labels: np.ndarray, *, spacing: Sequence[fl
     fig = Figure(figsize=(7.2, min(max(7.2 * aspect, 3.0), 9.0) + 0.6), layout="constrained")
     ax = fig.add_subplot()
     ax.imshow(rgb, extent=(0, width, height, 0), interpolation="nearest")
-    if is_border.any():
-        ax.contourf((np.arange(grey.shape[1]) + 0.5) * factor * dx,
-                    (np.arange(grey.shape[0]) + 0.5) * factor * dy, is_border.astype(float),
-                    levels=[0.5, 1.5], colors="none", hatches=["////"])
     sizes = np.bincount(np.searchsorted(ids, small[fill]), minlength=len(ids))
-    rows, cols = np.indices(small.shape)
     sum_r = np.bincount(where[fill], rows[fill], minlength=len(ids))
     sum_c = np.bincount(where[fill], cols[fill], minlength=len(ids))
     font = 9 if len(ids) < 60 else 7

@@ -107,13 +107,21 @@ def _rows(pairs: list[tuple[str, str]]) -> str:
     return f'<table class="kv">{body}</table>'
 
 
-def parameters_html(params: Mapping[str, Any], unit: str, *, element: str = "voxel") -> str:
-    """Two short lists and the full record (every key as in run.json) behind a fold."""
+def parameters_html(params: Mapping[str, Any], unit: str, *, element: str = "voxel",
+                    batch: bool = False) -> str:
+    """Two short lists and the full record (every key as in run.json) behind a fold.
+
+    For a ``batch``, the values chosen from the data differ per input: the page says where
+    to find them instead of listing them.
+    """
     mine, chosen = parameter_lists(params, unit, element=element)
     full = [(k, plain_value(v)) for k, v in params.items() if k not in _HIDDEN]
-    return (f'<div class="facts"><div><h3>Set for this run</h3>{_rows(mine)}</div>'
-            f'<div><h3>Chosen from the data</h3>'
-            f'{_rows(chosen) if chosen else "<p>Nothing: every value was given.</p>"}</div>'
+    if batch:
+        chosen_html = ("<p>Chosen for each input from its own data (smoothing, noise, "
+                       "threshold): see its report.</p>")
+    else:
+        chosen_html = _rows(chosen) if chosen else "<p>Nothing: every value was given.</p>"
+    return (f'<div class="facts"><div><h3>Set for this {"batch" if batch else "run"}</h3>'
+            f'{_rows(mine)}</div><div><h3>Chosen from the data</h3>{chosen_html}</div>'
             f'</div><details class="record"><summary>Full parameter record (names as in '
-            f'run.json)</summary>'
-            f'{_rows(full)}</details>')
+            f'{"batch.json" if batch else "run.json"})</summary>{_rows(full)}</details>')

@@ -13,7 +13,7 @@ import numpy as np
 from .._table import Table
 from ._words import MISSING, Words, column_order, missing_mask, round_number
 
-__all__ = ["TABLE_SCRIPT", "format_value", "region_table_html"]
+__all__ = ["SORT_SCRIPT", "TABLE_SCRIPT", "format_value", "region_table_html"]
 
 
 def format_value(value: Any) -> tuple[str, str]:
@@ -84,12 +84,41 @@ def region_table_html(regions: Table, centroids: np.ndarray, *, ndim: int,
                 "the regions.csv file written with this report lists them all.</p>")
     return (f'{note}<p><button type="button" id="csv">Download this table as CSV</button> '
             f'<span class="note">{MISSING} marks a value that does not apply or could not '
-            f'be measured.</span></p><div class="table-wrap"><table id="regions"><thead><tr>'
+            f'be measured.</span></p><div class="table-wrap">'
+            f'<table id="regions" class="sortable"><thead><tr>'
             f'{"".join(heads)}</tr></thead><tbody>{"".join(body)}</tbody></table></div>')
 
 
-#: Inline script: a click on a header sorts by that column (again: reverse); numbers sort
-#: as numbers and empty cells go last. A click (or Enter) on a row picks that region in
+#: Inline script for every ``table.sortable``: a click on a header button sorts by that
+#: column (again: reverse) on the cells' ``data-v``; numbers sort as numbers, empty cells last.
+SORT_SCRIPT = """
+(function () {
+  Array.prototype.forEach.call(document.querySelectorAll('table.sortable'), function (table) {
+    var body = table.tBodies[0], heads = table.tHead.rows[0].cells;
+    function key(row, k) { return row.cells[k].getAttribute('data-v'); }
+    Array.prototype.forEach.call(heads, function (th, k) {
+      th.querySelector('button').addEventListener('click', function () {
+        var up = th.getAttribute('aria-sort') !== 'ascending';
+        var rows = Array.prototype.slice.call(body.rows);
+        var numeric = rows.every(function (r) {
+          var v = key(r, k); return v === '' || !isNaN(+v);
+        });
+        rows.sort(function (a, b) {
+          var x = key(a, k), y = key(b, k);
+          if (x === '' || y === '') { return (x === '') - (y === ''); }
+          var d = numeric ? (+x) - (+y) : (x < y ? -1 : x > y ? 1 : 0);
+          return up ? d : -d;
+        });
+        rows.forEach(function (r) { body.appendChild(r); });
+        Array.prototype.forEach.call(heads, function (h) { h.setAttribute('aria-sort', 'none'); });
+        th.setAttribute('aria-sort', up ? 'ascending' : 'descending');
+      });
+    });
+  });
+})();
+"""
+
+#: Inline script of the region table: a click (or Enter) on a row picks that region in
 #: the slice browser (``cavitas:goto``); a region picked in the browser (``cavitas:picked``)
 #: picks its row. The CSV button downloads the rows in their current order, full precision.
 TABLE_SCRIPT = """
@@ -98,23 +127,6 @@ TABLE_SCRIPT = """
   if (!table) { return; }
   var body = table.tBodies[0];
   var heads = table.tHead.rows[0].cells;
-  function key(row, k) { return row.cells[k].getAttribute('data-v'); }
-  Array.prototype.forEach.call(heads, function (th, k) {
-    th.querySelector('button').addEventListener('click', function () {
-      var up = th.getAttribute('aria-sort') !== 'ascending';
-      var rows = Array.prototype.slice.call(body.rows);
-      var numeric = rows.every(function (r) { var v = key(r, k); return v === '' || !isNaN(+v); });
-      rows.sort(function (a, b) {
-        var x = key(a, k), y = key(b, k);
-        if (x === '' || y === '') { return (x === '') - (y === ''); }
-        var d = numeric ? (+x) - (+y) : (x < y ? -1 : x > y ? 1 : 0);
-        return up ? d : -d;
-      });
-      rows.forEach(function (r) { body.appendChild(r); });
-      Array.prototype.forEach.call(heads, function (h) { h.setAttribute('aria-sort', 'none'); });
-      th.setAttribute('aria-sort', up ? 'ascending' : 'descending');
-    });
-  });
   function mark(row) {
     Array.prototype.forEach.call(body.rows, function (r) { r.classList.remove('picked'); });
     if (row) { row.classList.add('picked'); }
