@@ -101,12 +101,11 @@ def embed_scan(image: np.ndarray, labels: np.ndarray | None, *,
     top = 0 if labels is None else int(np.asarray(labels).max(initial=0))
     label_bytes = 1 if top < 2**8 else 2 if top < 2**16 else 4
     kind = {1: np.uint8, 2: np.uint16, 4: np.uint32}[label_bytes]
-    # start where the raw grid is about 3 bytes per voxel under the budget
+    # start at a grid of about 1.25 voxels per byte of budget (a noisy scan's 64 grey
+    # levels compress to about 0.8 byte per voxel), then grow the factor until it fits
     factor = max(1, int(np.ceil((image.size / budget * 0.8) ** (1 / image.ndim))))
     while True:
         grey, lab = _reduce(image, labels, factor, window)
-        if image.ndim == 2:
-            grey, lab = grey[:1], lab[:1]
         scan = EmbeddedScan(
             shape=tuple(grey.shape[1:]) if image.ndim == 2 else tuple(grey.shape),
             factor=factor, grey=zlib.compress(grey.tobytes(), 6),
@@ -177,6 +176,8 @@ BROWSER_SCRIPT = """
   var G = null, L = null, picked = 0, border = {};
   D.border.forEach(function (b) { border[b] = true; });
   var outlines = true;
+  var near = [[0, 1], [0, -1], [1, 0], [-1, 0]];
+  var far = [[0, 2], [0, -2], [2, 0], [-2, 0], [1, 1], [1, -1], [-1, 1], [-1, -1]];
   function fmt(x) { return Number(x.toPrecision(4)).toString(); }
   function unpack(text) {
     var raw = atob(text), bytes = new Uint8Array(raw.length);
@@ -208,8 +209,6 @@ BROWSER_SCRIPT = """
     var g = 255 / (D.levels - 1);
     function lab(r, c) { return r < 0 || c < 0 || r >= rows || c >= cols ? -1 : L[idx(r, c)]; }
     function ring(r, c, m) {  // 0: on the region's edge, 1: next to it, 2: inside
-      var near = [[0, 1], [0, -1], [1, 0], [-1, 0]], far = [[0, 2], [0, -2], [2, 0], [-2, 0],
-                  [1, 1], [1, -1], [-1, 1], [-1, -1]];
       for (var a = 0; a < 4; a++) {
         var o = lab(r + near[a][0], c + near[a][1]);
         if (o !== m && o !== -1) { return 0; }
