@@ -98,7 +98,8 @@ def gather_findings(regions: Table, *, ndim: int, unit: str, params: Mapping[str
         enclosures=int(_count(regions, "enclosure").sum()), sizes=sizes,
         size_unit=regions.units.get(size_col, "") if size_col else "",
         fraction=_number(figures.get("volume_fraction")),
-        noise=_number(params.get("noise_sigma", figures.get("noise_sigma"))),
+        noise=_number(params.get("noise_pixel_sigma", params.get(
+            "noise_sigma", figures.get("noise_sigma")))),
         threshold=_number(params.get("threshold", figures.get("persistence_threshold"))),
         smoothing=_number(params.get("smooth_sigma")), unit=unit,
         least_certain=least, warnings=tuple(warnings))

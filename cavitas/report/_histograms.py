@@ -78,7 +78,8 @@ def plot_histograms(regions: Table, *, columns: Sequence[str] | None = None,
             ax.set_xscale("log")
         else:
             ax.xaxis.set_major_locator(MaxNLocator(5))
-        ax.xaxis.set_major_formatter(EngFormatter(sep=""))
+        if values.max() >= 1e4:  # 20k rather than an offset or exponent on the axis
+            ax.xaxis.set_major_formatter(EngFormatter(sep=""))
         unit = regions.units.get(name)
         word = Words(ndim).column(name)
         ax.set_xlabel(f"{word} [{unit}]" if unit else word)

@@ -27,7 +27,7 @@ _SETTINGS = {
 }
 #: Values the run chose from the data, in the reader's words.
 _CHOSEN = {
-    "smooth_sigma": "smoothing σ", "noise_sigma": "noise σ after smoothing",
+    "smooth_sigma": "smoothing σ", "noise_sigma": "noise σ the threshold is scaled by",
     "noise_pixel_sigma": "noise σ of single {element}s", "threshold": "persistence threshold",
     "gap": "gap in the diagram", "delineation_sigma": "smoothing of the region borders",
     "connectivity": "wall connectivity", "scales_tried": "smoothing scales tried",
