@@ -291,11 +291,15 @@ def write_report(path: str | os.PathLike, *, image: np.ndarray, labels: np.ndarr
     # Pictures of single regions and histograms show whole regions only.
     shown = regions.select(regions["kind"] == "chamber") if "kind" in regions else regions
     overview = ""
+    doubt = found.least_certain[0] if found.least_certain and image.ndim == 2 else None
     if n and labels.any():
-        fig, where = plot_overview(image, labels, spacing=spacing, unit=unit, border=border)
+        fig, where = plot_overview(image, labels, spacing=spacing, unit=unit, border=border,
+                                   highlight=doubt)
+        dashed = (f" The least certain region, number {doubt}, is outlined dashed."
+                  if doubt is not None else "")
         overview = _figure(fig, f"Overview. {where} Each region is filled and carries its "
                                 "number in the table; striped regions are cut by the scan "
-                                "border.",
+                                f"border.{dashed}",
                            alt=f"Overview: {where} {found.whole} regions filled in "
                                "distinct colours and numbered, with a scale bar.")
     size_col = "volume" if "volume" in shown else "area"
@@ -304,12 +308,11 @@ def write_report(path: str | os.PathLike, *, image: np.ndarray, labels: np.ndarr
                         "median.") if n else ""
     centroids = region_centroids(labels, regions.select(slice(0, max_rows)))
     scan = embed_scan(image, labels if n else None, border=border, budget=scan_budget)
-    closer = [
+    closer = [  # in 2D the overview shows the whole image, least certain region marked
         _figure(plot_region_slices(image, labels, shown, which="least_certain",
                                    spacing=spacing, unit=unit),
                 "The least certain region (its wall stands least above the threshold), "
-                "drawn dashed with a plus at its centre."),
-        # in 2D the overview shows the largest region whole already
+                "drawn dashed with a plus at its centre.") if image.ndim == 3 else "",
         _figure(plot_region_slices(image, labels, shown, which="largest", spacing=spacing,
                                    unit=unit), "The largest region.") if image.ndim == 3
         else "",

@@ -12,6 +12,7 @@ from collections.abc import Sequence
 import numpy as np
 from matplotlib import patheffects
 from matplotlib.figure import Figure
+from matplotlib.lines import Line2D
 from matplotlib.patches import Patch, Rectangle
 
 from ._render import block_reduce, intensity_window, outline_mask, take_slice
@@ -64,8 +65,8 @@ def _palette(count: int) -> np.ndarray:
 
 
 def plot_overview(image: np.ndarray, labels: np.ndarray, *, spacing: Sequence[float],
-                  unit: str, border: Sequence[int] = (), max_side: int = 640,
-                  max_numbers: int = 400) -> tuple[Figure, str]:
+                  unit: str, border: Sequence[int] = (), highlight: int | None = None,
+                  max_side: int = 640, max_numbers: int = 400) -> tuple[Figure, str]:
     """The overview figure and a sentence saying which slice it shows.
 
     Parameters
@@ -76,6 +77,9 @@ def plot_overview(image: np.ndarray, labels: np.ndarray, *, spacing: Sequence[fl
         Voxel size in ``(z, y, x)`` order and its unit (for the axes and the scale bar).
     border : sequence of int
         Labels of regions cut by the scan border: pale with dark stripes, not numbered.
+    highlight : int, optional
+        A label outlined with a thick dashed line (the report marks the least certain
+        region this way in 2D).
     max_side : int
         Larger slices are reduced by a whole factor for drawing.
     max_numbers : int
@@ -138,6 +142,13 @@ def plot_overview(image: np.ndarray, labels: np.ndarray, *, spacing: Sequence[fl
     ax.set_ylabel(f"y [{unit}]")
     handles = [Patch(facecolor="#c9b26b", edgecolor="black",
                      label="enclosed region (number = table label)")]
+    if highlight is not None and (small == highlight).any():
+        ax.contour((np.arange(small.shape[1]) + 0.5) * factor * dx,
+                   (np.arange(small.shape[0]) + 0.5) * factor * dy,
+                   (small == highlight).astype(np.float32), levels=[0.5], colors="black",
+                   linestyles="--", linewidths=2.2).set(path_effects=_HALO)
+        handles.append(Line2D([], [], color="black", ls="--", lw=2.2,
+                              label=f"least certain region ({highlight})"))
     if is_border.any():
         handles.append(Patch(facecolor="none", edgecolor="black", hatch="////",
                              label="cut by the scan border"))
