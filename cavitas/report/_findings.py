@@ -119,8 +119,8 @@ def findings_html(f: Findings) -> str:
                      + " kept although they touch the scan border (left out of the figures)"))
     if f.cut:
         rows.append(("Cut by the border", _plural(f.cut, "region", "regions")
-                     + " cut open by the scan border (listed, drawn dashed, not measured "
-                       "as whole)"))
+                     + " cut open by the scan border (listed, striped or dashed in the "
+                       "pictures, not measured as whole)"))
     if f.enclosures:
         rows.append(("Enclosures", _plural(f.enclosures, "group", "groups")
                      + " of regions inside a common wall"))
