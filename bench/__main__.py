@@ -14,6 +14,7 @@ MODULES = [
     "bench.batch",
     "bench.segment_scale",
     "bench.real_scans",
+    "bench.report",
 ]
 
 

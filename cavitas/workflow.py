@@ -262,7 +262,8 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
 
             stage("report")
             written["report"] = write_report(
-                planned["report"], image=np.asarray(volume.data), labels=seg.labels,
+                planned["report"], image=np.asarray(volume.data),
+                labels=seg.labels if seg.all_labels is None else seg.all_labels,
                 spacing=volume.spacing, unit=volume.unit, regions=regions,
                 diagram=seg.diagram, kept=seg.kept, threshold=seg.threshold,
                 params=seg.params, figures=figures, title=source.name, source=source,

@@ -12,6 +12,7 @@ from __future__ import annotations
 import base64
 import html
 import io
+import zlib
 from html.parser import HTMLParser
 
 import numpy as np
@@ -29,9 +30,12 @@ from cavitas.report import (
     plot_slices,
     write_report,
 )
-from cavitas.report._browser import build_frames
+from cavitas.report._browser import embed_scan
+from cavitas.report._findings import gather_findings
+from cavitas.report._overview import plot_overview
+from cavitas.report._params_html import parameter_lists
 from cavitas.report._regions import pick_region, region_centroids
-from cavitas.report._render import OUTLINE_DARK, OUTLINE_LIGHT, render_slice
+from cavitas.report._render import OUTLINE_DARK, OUTLINE_LIGHT, intensity_window, render_slice
 from cavitas.report._table_html import format_value
 from tests.report_scene import diagram, regions_of, scene
 
@@ -76,14 +80,14 @@ def _report(tmp_path, ndim, *, empty=False, with_diagram=True, **kw):
     return out, regions
 
 
-FRAME_BUDGET = 300_000
+SCAN_BUDGET = 300_000
 
 
 @pytest.fixture(scope="module", params=[2, 3])
 def written(request, tmp_path_factory):
     """One full report per ndim, shared by the page tests (rendering is the slow part)."""
     out, regions = _report(tmp_path_factory.mktemp("report"), request.param,
-                           frame_budget=FRAME_BUDGET)
+                           scan_budget=SCAN_BUDGET)
     return out, regions
 
 
@@ -175,17 +179,21 @@ def test_sort_keys_read_back_as_the_value(value):
     assert float(key.replace("Infinity", "inf")) == value
 
 
-def test_frames_fit_the_budget():
+def test_embedded_scan_holds_every_voxel_and_label():
+    # Reference: the standard library's zlib (the page unpacks the same deflate stream
+    # with the browser's DecompressionStream), and the display window of the other plots.
     image, labels = scene(3)
-    full = build_frames(image, labels, budget=10**9)
-    assert [len(v.indices) for v in full] == list(image.shape)
-    small = sum(v.nbytes for v in full) // 3
-    thin = build_frames(image, labels, budget=small)
-    assert sum(v.nbytes for v in thin) <= small
-    assert all(len(v.indices) >= 1 for v in thin)
-    for view in thin:  # every frame is a PNG of the capped size
-        img = Image.open(io.BytesIO(view.base[0]))
-        assert img.format == "PNG" and max(img.size) <= 256
+    scan = embed_scan(image, labels, border=[3])
+    assert scan.factor == 1 and scan.shape == image.shape and scan.border == (3,)
+    grey = np.frombuffer(zlib.decompress(scan.grey), np.uint8).reshape(image.shape)
+    lab = np.frombuffer(zlib.decompress(scan.labels), "<u1").reshape(image.shape)
+    np.testing.assert_array_equal(lab, labels)
+    lo, hi = intensity_window(image)
+    expected = np.clip(np.floor((image.astype(np.float64) - lo) / (hi - lo) * 64), 0, 63)
+    assert np.mean(grey == expected) > 0.999  # float32 rounding at level edges only
+    small = embed_scan(image, labels, budget=scan.nbytes // 4)
+    assert small.factor >= 2 and small.nbytes <= scan.nbytes // 4
+    assert small.shape == tuple(-(-n // small.factor) for n in image.shape)
 
 
 # --- the page ----------------------------------------------------------------------------------
@@ -203,12 +211,13 @@ def test_report_is_self_contained(written):
         png = Image.open(io.BytesIO(base64.b64decode(a["src"].split(",", 1)[1])))
         assert png.format == "PNG" and png.size[0] > 0 and png.size[1] > 0
     alts = " ".join(a.get("alt", "") for a in images)
-    assert "Persistence diagram" in alts and "Barcode" in alts
+    assert "Persistence diagram" in alts and "Barcode" in alts and "Overview" in alts
+    assert all(a.get("alt") for a in images)  # every picture says what it shows
     # one table row per region, each with its centroid for the slice browser
     rows = [a for tag, a in page.tags if tag == "tr" and "data-c" in a]
     assert len(rows) == len(regions)
-    # units in the headers
-    assert "volume [µm³]" in source or "volume [µm²]" in source
+    # units in the headers, in the image's own words
+    assert "volume [µm³]" in source or "area [µm²]" in source
 
 
 def test_report_shows_the_caution_prominently(written):
@@ -231,7 +240,7 @@ def test_report_escapes_hostile_names(tmp_path):
     assert html.escape(hostile) in source
     assert "évil" in "".join(page.text)
     assert "&lt;b&gt;odd&lt;/b&gt; [&lt;u&gt;]" in source
-    assert sum(tag == "script" for tag, _ in page.tags) == 3  # frames JSON + two scripts
+    assert sum(tag == "script" for tag, _ in page.tags) == 4  # scan JSON + three scripts
 
 
 def test_report_with_no_region_still_shows_the_diagram(tmp_path):
@@ -250,10 +259,10 @@ def test_report_caps_the_table_rows(tmp_path):
 
 
 def test_report_size_within_budget(written):
-    # A moderate input: the frame budget bounds the page (base64 adds a third), plus the
+    # A moderate input: the scan budget bounds the page (base64 adds a third), plus the
     # static plots (well under 1 MB here).
     out, _ = written
-    assert out.stat().st_size < FRAME_BUDGET * 4 / 3 + 1_000_000
+    assert out.stat().st_size < SCAN_BUDGET * 4 / 3 + 1_000_000
 
 
 def test_report_needs_force_and_matching_shapes(tmp_path):
@@ -269,17 +278,82 @@ def test_report_needs_force_and_matching_shapes(tmp_path):
 
 def test_parameters_read_as_plain_text(tmp_path):
     # Common practice for reports: no JSON syntax in what a reader sees; unset values are a
-    # dash, nested records become "name value" pairs, numbers keep 4 significant digits.
+    # dash, nested records become "name value" pairs, numbers keep 3 significant digits.
     image, labels = scene(2)
     out = tmp_path / "report.html"
     write_report(out, image=image, labels=labels, spacing=(0.5, 0.5), unit="µm",
                  regions=regions_of(labels, spacing=(0.5, 0.5)),
-                 params={"min_persistence": None,
+                 params={"walls": "dark", "safety": 1.25, "min_persistence": None,
+                         "smooth_sigma": 1.25,
                          "scales_tried": [{"sigma": 1.25, "threshold": 49.0963062882},
                                           {"sigma": 2.5, "threshold": 16.4514426773}]},
                  figures={}, source="scan.tif")
     source = out.read_text(encoding="utf-8")
-    table = source.split("<h3>Parameters</h3>", 1)[1].split("</table>", 1)[0]
-    assert "null" not in table and '{"sigma"' not in table
-    assert "sigma 1.25, threshold 49.1; sigma 2.5, threshold 16.45" in table
-    assert "<th>min_persistence</th><td>–</td>" in table
+    mine = source.split("<h3>Set for this run</h3>", 1)[1].split("</table>", 1)[0]
+    assert "<th>walls are</th><td>dark</td>" in mine and "safety" not in mine  # a default
+    chosen = source.split("<h3>Chosen from the data</h3>", 1)[1].split("</table>", 1)[0]
+    assert "<th>smoothing σ</th><td>1.25 µm</td>" in chosen
+    assert "<th>smoothing scales tried</th><td>1.25, 2.5 µm</td>" in chosen
+    record = source.split('<details class="record">', 1)[1].split("</details>", 1)[0]
+    assert "null" not in record and '{"sigma"' not in record
+    assert "sigma 1.25, threshold 49.1; sigma 2.5, threshold 16.5" in record
+    assert "<th>min_persistence</th><td>—</td>" in record
+
+
+def test_findings_count_whole_regions_and_warn_on_the_border():
+    # Hand-made table (invented values): 3 whole regions, 1 on the border, 4 cut open.
+    kinds = np.array(["chamber"] * 4 + ["cut"] * 4 + ["enclosure"], object)
+    table = Table({"label": np.arange(1, 10), "kind": kinds,
+                   "touches_border": np.r_[False, False, False, True, [True] * 4, False],
+                   "volume": [10.0, 30.0, 20.0, 99.0, 1, 1, 1, 1, np.nan],
+                   "margin": [0.5, 0.2, 0.9, 0.01, 0, 0, 0, 0, np.nan]},
+                  units={"volume": "µm³"})
+    found = gather_findings(table, ndim=3, unit="µm", params={"threshold": 2.0},
+                            figures={"volume_fraction": 0.3}, notes=["A note.", None])
+    assert (found.whole, found.touching, found.cut, found.enclosures) == (3, 1, 4, 1)
+    assert sorted(found.sizes.tolist()) == [10.0, 20.0, 30.0]  # whole regions only
+    assert found.least_certain == (2, 0.2)  # the border region's 0.01 does not count
+    assert found.warnings[0] == "A note."
+    assert "50% of the regions found are cut by the scan border" in found.warnings[1]
+
+
+def test_parameters_set_by_hand_are_told_from_defaults():
+    # The defaults are SegmentParams' own (the reference); connectivity resolved from
+    # "unset" counts as chosen, not set.
+    mine, chosen = parameter_lists({"walls": "bright", "min_volume": 20, "connectivity": 1,
+                                    "noise_pixel_sigma": 3.0}, "µm", element="pixel")
+    assert mine == [("smallest region kept", "20")]
+    assert ("noise σ of single pixels", "3") in chosen and ("wall connectivity", "1") in chosen
+
+
+def _text_boxes(fig):
+    """Window extents of every visible, non-empty title, axis label and figure text."""
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+    canvas = FigureCanvasAgg(fig)  # as figure_png renders
+    canvas.draw()
+    renderer = canvas.get_renderer()
+    texts = list(fig.texts)
+    for ax in fig.axes:
+        texts += [ax.title, ax._left_title, ax._right_title, ax.xaxis.label, ax.yaxis.label]
+    return [(t.get_text(), t.get_window_extent(renderer)) for t in texts
+            if t.get_visible() and t.get_text()]
+
+
+@pytest.mark.parametrize(("ndim", "spacing"), [(2, (0.5, 0.5)), (3, (2.0, 0.5, 0.5)),
+                                               (3, (4.0, 2.5, 2.5)), (3, (5.0, 2.5, 2.5))])
+def test_figure_titles_do_not_overlap(ndim, spacing):
+    # Common practice: no two titles or axis labels of a figure share pixels (Matplotlib's
+    # own window extents after drawing, as the report's PNGs are drawn). Tall volumes
+    # (thick z slices) once pushed the figure title into the panel titles.
+    image, labels = scene(ndim)
+    regions = regions_of(labels, spacing=spacing)
+    figures = [plot_region_slices(image, labels, regions, which=w, spacing=spacing, unit="µm")
+               for w in ("largest", "least_certain")]
+    figures.append(plot_overview(image, labels, spacing=spacing, unit="µm", border=[1])[0])
+    figures.append(plot_histograms(regions, ndim=ndim))
+    for fig in figures:
+        boxes = _text_boxes(fig)
+        for i, (a, box_a) in enumerate(boxes):
+            for b, box_b in boxes[i + 1:]:
+                assert not box_a.overlaps(box_b), (a, b)

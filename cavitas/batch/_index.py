@@ -3,8 +3,6 @@
 from __future__ import annotations
 
 import html
-import json
-import math
 from collections.abc import Mapping
 from datetime import datetime, timezone
 from pathlib import Path
@@ -14,33 +12,55 @@ from urllib.parse import quote
 from .._caution import RESEARCH_ONLY
 from .._table import Table
 from ..io._atomic import atomic_path
+from ..report._params_html import parameters_html
+from ..report._table_html import SORT_SCRIPT, format_value
 
 __all__ = ["index_html", "write_index"]
 
 _STYLE = """
 body{font:14px/1.45 system-ui,sans-serif;margin:2em auto;max-width:75em;padding:0 1em;color:#1d2329}
-.caution{border-left:4px solid #b35c00;background:#fff4e5;padding:.6em 1em;margin:1em 0}
-table{border-collapse:collapse;width:100%}th,td{padding:.3em .6em;border-bottom:1px solid #d5dbe1;
-text-align:left;vertical-align:top}td.n{text-align:right;font-variant-numeric:tabular-nums}
-tr.failed td{background:#fdeeee}.status{font-weight:600}pre{background:#f3f5f7;padding:.8em;
-overflow:auto}
+.caution{border:3px solid #8a3b12;background:#fff4e8;padding:.6em 1em;margin:1em 0}
+.caution strong{color:#8a3b12;text-transform:uppercase;letter-spacing:.04em}
+.wrap{overflow:auto}table{border-collapse:collapse;width:100%}
+th,td{padding:.3em .6em;border-bottom:1px solid #d5dbe1;text-align:left;vertical-align:top}
+td.n{text-align:right;font-variant-numeric:tabular-nums}
+th button{font:inherit;font-weight:600;border:0;background:none;padding:0;cursor:pointer}
+th[aria-sort=ascending] button::after{content:" \\25B2"}
+th[aria-sort=descending] button::after{content:" \\25BC"}
+tr.failed td{background:#fdeeee}.status{font-weight:600}
+.facts{display:flex;flex-wrap:wrap;gap:1rem 2.5rem}table.kv{width:auto}
+table.kv th{white-space:nowrap}summary{cursor:pointer;color:#5b6570}
 """
+
+#: Figures of the index: (summary column, header with its unit, factor to that unit).
+_COLUMNS = (
+    ("regions", "regions wholly inside", 1.0),
+    ("border_cut", "cut by the border", 1.0),
+    ("enclosures", "enclosures", 1.0),
+    ("porosity", "filled fraction [%]", 100.0),
+    ("noise", "noise σ [intensity]", 1.0),
+    ("threshold", "threshold [intensity]", 1.0),
+    ("seconds", "time [s]", 1.0),
+)
 
 
 def _esc(value: Any) -> str:
     return html.escape(str(value), quote=True)
 
 
-def _number(value: Any, digits: int = 4) -> str:
-    if isinstance(value, float):
-        return "" if math.isnan(value) else f"{value:.{digits}g}"
-    return _esc(value)
+def _cell(value: Any, scale: float) -> str:
+    if isinstance(value, (int, float)) and not isinstance(value, bool):
+        value = value * scale if scale != 1.0 else value
+    text, key = format_value(value)
+    return f'<td class="n" data-v="{_esc(key)}">{_esc(text)}</td>'
 
 
 def index_html(summary: Table, *, root: Path, params: Mapping[str, Any], version: str,
                tables: Mapping[str, str]) -> str:
     """HTML text of the batch index for the rows of ``summary`` (see ``summary_table``).
 
+    One sortable row per input with its key figures (units once, in the headers) and a
+    link to its report; the parameters as a short list, the full record behind a fold.
     Every value from a file name or an error is escaped; links are relative, so the
     folder can be moved or shared as a whole.
 
@@ -60,20 +80,20 @@ def index_html(summary: Table, *, root: Path, params: Mapping[str, Any], version
         name = row["output"]
         report = root / name / "report.html" if name else None
         links = []
-        if name:
-            links.append(f'<a href="{quote(name)}/">folder</a>')
         if report is not None and report.is_file():
             links.append(f'<a href="{quote(name)}/report.html">report</a>')
+        if name:
+            links.append(f'<a href="{quote(name)}/">folder</a>')
+        figures = "".join(_cell(row[key], scale) for key, _, scale in _COLUMNS)
         rows.append(
-            f'<tr class="{_esc(row["status"])}"><td>{_esc(row["input"])}</td>'
-            f'<td class="status">{_esc(row["status"])}</td>'
-            f'<td class="n">{_number(row["regions"])}</td>'
-            f'<td class="n">{_number(row["porosity"])}</td>'
-            f'<td class="n">{_number(row["noise"])}</td>'
-            f'<td class="n">{_number(row["threshold"])}</td>'
-            f'<td class="n">{_number(row["seconds"], 3)}</td>'
-            f'<td>{" · ".join(links)}</td><td>{_esc(row["error"])}</td></tr>'
+            f'<tr class="{_esc(row["status"])}"><td data-v="{_esc(row["input"])}">'
+            f'{_esc(row["input"])}</td><td class="status" data-v="{_esc(row["status"])}">'
+            f'{_esc(row["status"])}</td>{figures}<td data-v="">{" · ".join(links)}</td>'
+            f'<td data-v="{_esc(row["error"])}">{_esc(row["error"])}</td></tr>'
         )
+    heads = ["input", "status", *(head for _, head, _ in _COLUMNS), "outputs", "problem"]
+    head_html = "".join(f'<th scope="col" aria-sort="none"><button type="button">'
+                        f"{_esc(h)}</button></th>" for h in heads)
     table_links = " · ".join(f'<a href="{quote(f)}">{_esc(label)}</a>'
                              for label, f in tables.items())
     when = datetime.now(timezone.utc).strftime("%Y-%m-%d %H:%M UTC")
@@ -83,17 +103,21 @@ def index_html(summary: Table, *, root: Path, params: Mapping[str, Any], version
 <title>cavitas batch: {len(summary)} inputs</title><style>{_STYLE}</style></head>
 <body>
 <h1>Batch of {len(summary)} inputs</h1>
-<p class="caution" role="note"><strong>Caution.</strong> {_esc(RESEARCH_ONLY)}</p>
+<p class="caution" role="note"><strong>Caution:</strong> {_esc(RESEARCH_ONLY)}</p>
 <p>{counts["done"]} processed, {counts["reused"]} unchanged since an earlier run,
 {counts["failed"]} failed. cavitas {_esc(version)}, {when}.</p>
 <p>Tables: {table_links}</p>
-<table><thead><tr><th>input</th><th>status</th><th>regions</th><th>porosity</th>
-<th>noise</th><th>threshold</th><th>time [s]</th><th>outputs</th><th>problem</th></tr></thead>
+<p>Click a column name to sort. Regions cut by the scan border are listed in each report
+but left out of the count and of the filled fraction (the share of the image inside whole
+regions: area fraction in 2D, closed porosity in 3D). Noise and threshold are in the
+input's intensity units.</p>
+<div class="wrap"><table class="sortable" id="inputs"><thead><tr>{head_html}</tr></thead>
 <tbody>
 {chr(10).join(rows)}
-</tbody></table>
+</tbody></table></div>
 <h2>Parameters</h2>
-<pre>{_esc(json.dumps(dict(params), indent=1, sort_keys=True, default=str))}</pre>
+{parameters_html(params, "", batch=True)}
+<script>{SORT_SCRIPT}</script>
 </body></html>
 """
 

@@ -1,106 +1,119 @@
-"""The slice browser: downsampled frames along each axis, embedded in the page, and its script.
+"""The slice browser: the scan and its label map embedded once, every slice drawn in the page.
 
-Each frame is two PNGs stacked: the grey image, and a transparent layer with the region
-outlines (tiny, since it is almost all transparent), so outlines can be switched off without
-storing every frame twice. Frame count and size are capped, and frames are thinned further
-until they fit a byte budget, so a 512³ scan gives a page of about 12 MB.
+Instead of one picture per slice, the page carries the grey image (64 levels) and the label
+map as two deflate-compressed arrays; its script unpacks them once and draws any slice
+along any axis on a canvas: the grey image, a dark and a light line around every region
+(visible on any background), dashes for regions cut by the scan border, the picked region
+filled. Pointing at a region names it, clicking it picks its table row. Large scans are
+block-averaged by a whole factor until the arrays fit a byte budget (a 512³ scan is shown
+on a 171³ grid, every slider position still names its own slice).
 """
 
 from __future__ import annotations
 
+import base64
 import html
+import zlib
 from collections.abc import Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import numpy as np
 
 from .._json import dumps
-from ._encode import data_uri, grey_png, outline_png
-from ._render import intensity_window, render_slice, take_slice
+from ._render import block_reduce, intensity_window
 
-__all__ = ["BROWSER_SCRIPT", "Frames", "browser_html", "build_frames"]
+__all__ = ["BROWSER_SCRIPT", "EmbeddedScan", "browser_html", "embed_scan"]
 
 _AXES = ("z", "y", "x")
+_LEVELS = 64
 
 
-@dataclass
-class Frames:
-    """Encoded frames of one view (one sliced axis; ``axis`` is ``None`` for a 2D image)."""
+@dataclass(frozen=True)
+class EmbeddedScan:
+    """The compressed grey image and label map the browser draws from.
 
-    axis: int | None
-    rows: int
-    cols: int
-    indices: list[int]
-    base: list[bytes] = field(default_factory=list)
-    overlay: list[bytes] = field(default_factory=list)
-    cover: tuple[int, int] = (0, 0)
+    ``factor`` is the block size of the reduction (1 = every voxel); ``shape`` the reduced
+    grid; ``border`` the labels drawn as cut by the scan border.
+    """
+
+    shape: tuple[int, ...]
+    factor: int
+    grey: bytes
+    labels: bytes
+    label_bytes: int
+    border: tuple[int, ...]
 
     @property
     def nbytes(self) -> int:
-        """Encoded size of all frames of this view (before base64)."""
-        return sum(map(len, self.base)) + sum(map(len, self.overlay))
-
-    def keep(self, count: int) -> None:
-        """Keep ``count`` evenly spaced frames (at least one)."""
-        count = max(1, min(count, len(self.indices)))
-        picks = np.unique(np.linspace(0, len(self.indices) - 1, count).round().astype(int))
-        self.indices = [self.indices[k] for k in picks]
-        self.base = [self.base[k] for k in picks]
-        self.overlay = [self.overlay[k] for k in picks]
+        """Compressed size of both arrays (before base64)."""
+        return len(self.grey) + len(self.labels)
 
 
-def build_frames(image: np.ndarray, labels: np.ndarray | None, *, max_frames: int = 64,
-                 max_side: int | None = None, levels: int = 64,
-                 budget: int = 7_000_000) -> list[Frames]:
-    """Render and encode the browser frames of every view.
+def _reduce(image: np.ndarray, labels: np.ndarray | None, factor: int,
+            window: tuple[float, float]) -> tuple[np.ndarray, np.ndarray]:
+    """Grey levels (block means) and labels (block centres) on the reduced grid."""
+    lo, hi = window
+    planes = range(0, image.shape[0], factor) if image.ndim == 3 else [None]
+    grey, lab = [], []
+    for start in planes:
+        if start is None:
+            block = np.asarray(image, dtype=np.float32)[None]
+            labs = None if labels is None else np.asarray(labels)[None]
+        else:
+            block = np.asarray(image[start:start + factor], dtype=np.float32)
+            labs = None if labels is None else np.asarray(labels[start + min(factor // 2,
+                                                                             len(block) - 1)])
+            labs = None if labs is None else labs[None]
+        mean = block_reduce(block.mean(axis=0), factor)
+        scaled = np.nan_to_num((mean - lo) / (hi - lo), nan=0.0)
+        grey.append(np.clip(np.floor(scaled * _LEVELS), 0, _LEVELS - 1).astype(np.uint8))
+        if labs is None:
+            lab.append(np.zeros(grey[-1].shape, np.uint32))
+        else:
+            half = factor // 2
+            lab.append(np.ascontiguousarray(labs[0][half::factor, half::factor]
+                                            [:grey[-1].shape[0], :grey[-1].shape[1]]))
+    return np.stack(grey), np.stack(lab)
+
+
+def embed_scan(image: np.ndarray, labels: np.ndarray | None, *,
+               border: Sequence[int] = (), budget: int = 9_000_000) -> EmbeddedScan:
+    """Reduce and compress the scan and its labels for the browser.
 
     Parameters
     ----------
     image, labels : array
-        The scan and its region labels (or ``None``), same shape, 2D or 3D.
-    max_frames : int
-        Most frames per axis (evenly spaced slices; all slices when fewer).
-    max_side : int, optional
-        Frames are block-averaged until no side exceeds this (default 256 in 3D,
-        1024 in 2D).
-    levels : int
-        Grey levels kept in the frames (fewer compress better; 64 looks smooth).
+        The scan and its label map (or ``None``), same 2D or 3D shape.
+    border : sequence of int
+        Labels of regions cut by the scan border (drawn dashed).
     budget : int
-        Most bytes of encoded frames in all; past it, each axis keeps fewer, evenly
-        spaced frames.
+        Most bytes of both compressed arrays; past it, the scan is reduced by a larger
+        whole factor per axis.
 
     Examples
     --------
     >>> import numpy as np
-    >>> views = build_frames(np.zeros((10, 8, 6)), None, max_frames=4)
-    >>> [(v.axis, v.indices) for v in views]
-    [(0, [0, 3, 6, 9]), (1, [0, 2, 5, 7]), (2, [0, 2, 3, 5])]
+    >>> scan = embed_scan(np.zeros((10, 8, 6)), np.ones((10, 8, 6), int))
+    >>> scan.shape, scan.factor, scan.label_bytes
+    ((10, 8, 6), 1, 1)
     """
-    ndim = image.ndim
-    max_side = max_side or (256 if ndim == 3 else 1024)
     window = intensity_window(image)
-    views = []
-    specs = [(None, 0, 1)] if ndim == 2 else [(0, 1, 2), (1, 0, 2), (2, 0, 1)]
-    for axis, r, c in specs:
-        count = 1 if axis is None else image.shape[axis]
-        picks = np.unique(np.linspace(0, count - 1, min(count, max_frames)).round().astype(int))
-        factor = max(1, int(np.ceil(max(image.shape[r], image.shape[c]) / max_side)))
-        view = Frames(axis, r, c, [int(i) for i in picks])
-        for i in view.indices:
-            plane = take_slice(image, axis or 0, i)
-            lab = None if labels is None else take_slice(labels, axis or 0, i)
-            grey, code = render_slice(plane, lab, window, factor=factor, levels=levels)
-            view.base.append(grey_png(grey, levels=levels))
-            view.overlay.append(outline_png(code))
-        view.cover = (grey.shape[0] * factor, grey.shape[1] * factor)
-        views.append(view)
-    total = sum(v.nbytes for v in views)
-    while total > budget and any(len(v.indices) > 1 for v in views):
-        share = min(budget / total, 0.95)  # frames are alike in size: drop the excess share
-        for view in views:
-            view.keep(int(len(view.indices) * share))
-        total = sum(v.nbytes for v in views)
-    return views
+    top = 0 if labels is None else int(np.asarray(labels).max(initial=0))
+    label_bytes = 1 if top < 2**8 else 2 if top < 2**16 else 4
+    kind = {1: np.uint8, 2: np.uint16, 4: np.uint32}[label_bytes]
+    # start at a grid of about 1.25 voxels per byte of budget (a noisy scan's 64 grey
+    # levels compress to about 0.8 byte per voxel), then grow the factor until it fits
+    factor = max(1, int(np.ceil((image.size / budget * 0.8) ** (1 / image.ndim))))
+    while True:
+        grey, lab = _reduce(image, labels, factor, window)
+        scan = EmbeddedScan(
+            shape=tuple(grey.shape[1:]) if image.ndim == 2 else tuple(grey.shape),
+            factor=factor, grey=zlib.compress(grey.tobytes(), 6),
+            labels=zlib.compress(lab.astype(np.dtype(kind).newbyteorder("<")).tobytes(), 6),
+            label_bytes=label_bytes, border=tuple(int(b) for b in border))
+        if scan.nbytes <= budget or max(scan.shape) <= 16:
+            return scan
+        factor += 1
 
 
 def _json_for_script(value: object) -> str:
@@ -109,94 +122,214 @@ def _json_for_script(value: object) -> str:
     return text.replace("<", "\\u003c").replace(">", "\\u003e").replace("&", "\\u0026")
 
 
-def browser_html(views: list[Frames], *, spacing: Sequence[float], unit: str,
-                 target_px: int | None = None) -> str:
-    """The browser's HTML: one panel per view with a slider, and the frames as JSON."""
-    ndim = len(spacing)
-    names = _AXES[3 - ndim:]
-    target_px = target_px or (360 if ndim == 3 else 640)
-    extents = [(v.cover[0] * spacing[v.rows], v.cover[1] * spacing[v.cols]) for v in views]
-    scale = target_px / max(max(e) for e in extents)
-    data, panels = [], []
-    for k, (view, (height, width)) in enumerate(zip(views, extents, strict=True)):
-        middle = len(view.indices) // 2
-        name = "plane" if view.axis is None else f"{names[view.axis]} slice"
-        positions = [i * spacing[view.axis] for i in view.indices] if view.axis is not None else []
-        data.append({
-            "axis": view.axis, "rows": view.rows, "cols": view.cols, "cover": view.cover,
-            "idx": view.indices, "pos": positions,
-            "base": [data_uri(b) for b in view.base],
-            "over": [data_uri(b) for b in view.overlay],
-        })
+def browser_html(scan: EmbeddedScan, *, image_shape: Sequence[int],
+                 spacing: Sequence[float], unit: str) -> str:
+    """The browser's HTML: a canvas per view (one in 2D, three in 3D), a slider per axis
+    over every slice of the input, and the embedded arrays as JSON."""
+    ndim = len(image_shape)
+    names = list(_AXES[3 - ndim:])
+    specs = [(None, 0, 1)] if ndim == 2 else [(0, 1, 2), (1, 0, 2), (2, 0, 1)]
+    target = 800 if ndim == 2 else 380
+    extents = [(image_shape[r] * spacing[r], image_shape[c] * spacing[c]) for _, r, c in specs]
+    scale = target / max(max(e) for e in extents)
+    panels = []
+    for k, ((axis, _, _), (height, width)) in enumerate(zip(specs, extents, strict=True)):
+        name = "the image" if axis is None else f"slices across {names[axis]}"
         slider = ""
-        if view.axis is not None:
-            slider = (f'<input type="range" class="slider" min="0" max="{len(view.indices) - 1}"'
-                      f' value="{middle}" aria-label="{html.escape(name)}">')
-        style = f"width:{width * scale:.0f}px;height:{height * scale:.0f}px"
+        if axis is not None:
+            count = image_shape[axis]
+            slider = (f'<input type="range" class="slider" min="0" max="{count - 1}" '
+                      f'value="{count // 2}" aria-label="{html.escape(name)}: slice number">')
         panels.append(
-            f'<figure class="view" data-view="{k}" style="width:{max(width * scale, 220):.0f}px">'
-            f'<div class="stage" style="{style}">'
-            f'<img class="base" alt="{html.escape(name)} of the image" '
-            f'src="{data[-1]["base"][middle]}">'
-            f'<img class="overlay" alt="region outlines" src="{data[-1]["over"][middle]}">'
-            f'<span class="marker" hidden></span></div>{slider}'
-            f'<figcaption class="where"></figcaption></figure>'
+            f'<figure class="view" data-view="{k}" style="width:{max(width * scale, 240):.0f}px">'
+            f'<div class="stage" style="width:{width * scale:.0f}px;'
+            f'aspect-ratio:{width:.6g}/{height:.6g}"><canvas role="img" '
+            f'aria-label="{html.escape(name)} with region outlines; point at a region to '
+            f'read its number, click it to pick its table row"></canvas>'
+            f'<div class="scalebar"><span class="bar"></span><span class="text"></span>'
+            f'</div></div>{slider}<figcaption class="where"></figcaption>'
+            f'<p class="hover" aria-live="polite">&nbsp;</p></figure>'
         )
-    payload = {"views": data, "unit": unit, "names": list(names)}
+    payload = {
+        "ndim": ndim, "shape": list(scan.shape), "full": list(image_shape),
+        "factor": scan.factor, "spacing": list(spacing), "unit": unit, "names": names,
+        "views": [{"axis": a, "rows": r, "cols": c} for a, r, c in specs],
+        "labelBytes": scan.label_bytes, "border": list(scan.border), "levels": _LEVELS,
+        "grey": base64.b64encode(scan.grey).decode("ascii"),
+        "labels": base64.b64encode(scan.labels).decode("ascii"),
+    }
     return (
         '<div class="views">' + "".join(panels) + "</div>"
-        f'<script type="application/json" id="frames">{_json_for_script(payload)}</script>'
+        f'<script type="application/json" id="scan">{_json_for_script(payload)}</script>'
     )
 
 
-#: Inline script: sliders swap frames, the checkbox hides outlines, and a
-#: ``cavitas:goto`` event (detail = voxel centroid) moves every slider and the markers.
+#: Inline script. Unpacks the arrays (DecompressionStream, no network), draws each view,
+#: names the region under the pointer, and picks a region on click: it fires
+#: ``cavitas:picked`` (detail = label) for the table, and listens to ``cavitas:goto``
+#: (detail = {c: voxel centroid, label}) from the table. ``document.body.dataset.browser``
+#: becomes "ready" once drawn.
 BROWSER_SCRIPT = """
 (function () {
-  var D = JSON.parse(document.getElementById('frames').textContent);
-  var panels = document.querySelectorAll('#browser .view');
+  var D = JSON.parse(document.getElementById('scan').textContent);
+  var panels = Array.prototype.slice.call(document.querySelectorAll('#browser .view'));
+  var G = null, L = null, picked = 0, border = {};
+  D.border.forEach(function (b) { border[b] = true; });
+  var outlines = true;
+  var near = [[0, 1], [0, -1], [1, 0], [-1, 0]];
+  var far = [[0, 2], [0, -2], [2, 0], [-2, 0], [1, 1], [1, -1], [-1, 1], [-1, -1]];
   function fmt(x) { return Number(x.toPrecision(4)).toString(); }
-  function show(k, i) {
-    var v = D.views[k], p = panels[k];
-    p.querySelector('img.base').src = v.base[i];
-    p.querySelector('img.overlay').src = v.over[i];
-    var cap = p.querySelector('.where');
-    if (v.axis === null) { cap.textContent = ''; return; }
-    cap.textContent = D.names[v.axis] + ' = ' + fmt(v.pos[i]) + ' ' + D.unit +
-      ' (slice ' + v.idx[i] + ', frame ' + (i + 1) + ' of ' + v.idx.length + ')';
+  function unpack(text) {
+    var raw = atob(text), bytes = new Uint8Array(raw.length);
+    for (var i = 0; i < raw.length; i++) { bytes[i] = raw.charCodeAt(i); }
+    var stream = new Blob([bytes]).stream().pipeThrough(new DecompressionStream('deflate'));
+    return new Response(stream).arrayBuffer();
   }
-  panels.forEach(function (p, k) {
-    var s = p.querySelector('input.slider');
-    if (s) {
-      s.addEventListener('input', function () {  // the ring marks the region's own slice only
-        show(k, +s.value); p.querySelector('.marker').hidden = true;
-      });
-      show(k, +s.value);
-    }
-    else { show(k, 0); }
-  });
-  var box = document.getElementById('outlines');
-  if (box) {
-    box.addEventListener('change', function () {
-      document.getElementById('browser').classList.toggle('no-outlines', !box.checked);
-    });
+  var S = D.shape.length === 2 ? [1, D.shape[0], D.shape[1]] : D.shape;
+  function at(z, y, x) { return (z * S[1] + y) * S[2] + x; }
+  // view k, slice i (input index) -> function (row, col) giving the flat index on the grid
+  function plane(v, i) {
+    var s = Math.min(Math.floor(i / D.factor), (v.axis === null ? 0 : D.shape[v.axis] - 1));
+    if (D.ndim === 2) { return function (r, c) { return at(0, r, c); }; }
+    if (v.axis === 0) { return function (r, c) { return at(s, r, c); }; }
+    if (v.axis === 1) { return function (r, c) { return at(r, s, c); }; }
+    return function (r, c) { return at(r, c, s); };
   }
-  document.addEventListener('cavitas:goto', function (e) {
-    var c = e.detail;
-    panels.forEach(function (p, k) {
-      var v = D.views[k], s = p.querySelector('input.slider');
-      if (s) {
-        var best = 0;
-        for (var i = 1; i < v.idx.length; i++) {
-          if (Math.abs(v.idx[i] - c[v.axis]) < Math.abs(v.idx[best] - c[v.axis])) { best = i; }
-        }
-        s.value = best; show(k, best);
+  function dims(v) { return D.ndim === 2 ? [S[1], S[2]] : [D.shape[v.rows], D.shape[v.cols]]; }
+  function draw(k) {
+    var v = D.views[k], p = panels[k], s = p.querySelector('input.slider');
+    var i = s ? +s.value : 0, idx = plane(v, i), d = dims(v), rows = d[0], cols = d[1];
+    var shown = p.querySelector('.stage').clientWidth * (window.devicePixelRatio || 1);
+    // canvas pixels per grid pixel: at most the displayed size (only ever enlarged, so
+    // no line is lost), and a line is about a screen pixel
+    var up = Math.max(1, Math.min(8, Math.floor(shown / cols)));
+    var cv = p.querySelector('canvas'), W = cols * up, H = rows * up;
+    if (cv.width !== W || cv.height !== H) { cv.width = W; cv.height = H; }
+    var ctx = cv.getContext('2d'), img = ctx.createImageData(W, H), px = img.data;
+    var g = 255 / (D.levels - 1);
+    function lab(r, c) { return r < 0 || c < 0 || r >= rows || c >= cols ? -1 : L[idx(r, c)]; }
+    function ring(r, c, m) {  // 0: on the region's edge, 1: next to it, 2: inside
+      for (var a = 0; a < 4; a++) {
+        var o = lab(r + near[a][0], c + near[a][1]);
+        if (o !== m && o !== -1) { return 0; }
       }
-      var m = p.querySelector('.marker');
-      m.style.top = (100 * (c[v.rows] + 0.5) / v.cover[0]) + '%';
-      m.style.left = (100 * (c[v.cols] + 0.5) / v.cover[1]) + '%';
-      m.hidden = false;
+      for (var b = 0; b < 8; b++) {
+        var q = lab(r + far[b][0], c + far[b][1]);
+        if (q !== m && q !== -1) { return 1; }
+      }
+      return 2;
+    }
+    for (var r = 0; r < rows; r++) {
+      for (var c = 0; c < cols; c++) {
+        var m = L[idx(r, c)], grey = G[idx(r, c)] * g, coarse = 2;
+        var nb = [lab(r, c - 1), lab(r, c + 1), lab(r - 1, c), lab(r + 1, c)];
+        if (m !== 0 && outlines && up < 4) { coarse = ring(r, c, m); }
+        for (var v2 = 0; v2 < up; v2++) {
+          for (var u = 0; u < up; u++) {
+            var R = grey, Gc = grey, B = grey, e = 2;
+            if (m !== 0 && m === picked) {  // picked: a warm tint
+              R = 0.55 * grey + 115; Gc = 0.55 * grey + 79; B = 0.55 * grey + 18;
+            }
+            if (outlines && m !== 0) {
+              if (up < 4) { e = coarse; }
+              else {  // rings of a quarter grid pixel inside the shared edge
+                var t = up, w = Math.floor(up / 4);
+                if (nb[0] !== m && nb[0] !== -1) { t = Math.min(t, u); }
+                if (nb[1] !== m && nb[1] !== -1) { t = Math.min(t, up - 1 - u); }
+                if (nb[2] !== m && nb[2] !== -1) { t = Math.min(t, v2); }
+                if (nb[3] !== m && nb[3] !== -1) { t = Math.min(t, up - 1 - v2); }
+                e = t < w ? 0 : t < 2 * w ? 1 : 2;
+              }
+              var X = c * up + u, Y = r * up + v2;
+              if (border[m] && ((Math.floor((X + Y) / Math.max(4, 2 * up)) & 1) === 1)) { e = 2; }
+              if (e === 0) { R = 15; Gc = 18; B = 22; }
+              else if (e === 1) { R = 255; Gc = 255; B = 255; }
+            }
+            var o = 4 * ((r * up + v2) * W + c * up + u);
+            px[o] = R; px[o + 1] = Gc; px[o + 2] = B; px[o + 3] = 255;
+          }
+        }
+      }
+    }
+    ctx.putImageData(img, 0, 0);
+    var cap = p.querySelector('.where');
+    if (v.axis !== null) {
+      var n = D.full[v.axis];
+      cap.textContent = D.names[v.axis] + ' = ' + fmt(i * D.spacing[v.axis]) + ' ' + D.unit +
+        ' (slice ' + (i + 1) + ' of ' + n + (D.factor > 1 ? '; shown as the average of ' +
+        D.factor + ' slices' : '') + ')';
+    }
+    scalebar(k);
+  }
+  function scalebar(k) {
+    var v = D.views[k], p = panels[k], stage = p.querySelector('.stage');
+    var width = D.full[v.cols] * D.spacing[v.cols], px = stage.clientWidth || 1;
+    var want = width / 4, step = Math.pow(10, Math.floor(Math.log10(want)));
+    var nice = [1, 2, 5, 10].map(function (m) { return m * step; })
+      .filter(function (m) { return m <= want; }).pop() || step;
+    p.querySelector('.scalebar .bar').style.width = (px * nice / width) + 'px';
+    p.querySelector('.scalebar .text').textContent = fmt(nice) + ' ' + D.unit;
+  }
+  function labelAt(k, ev) {
+    var v = D.views[k], p = panels[k], s = p.querySelector('input.slider');
+    var box = p.querySelector('canvas').getBoundingClientRect(), d = dims(v);
+    var r = Math.floor((ev.clientY - box.top) / box.height * d[0]);
+    var c = Math.floor((ev.clientX - box.left) / box.width * d[1]);
+    if (r < 0 || c < 0 || r >= d[0] || c >= d[1]) { return 0; }
+    return L[plane(v, s ? +s.value : 0)(r, c)];
+  }
+  function describe(lab) {
+    if (!lab) { return 'no region here'; }
+    return 'region ' + lab + (border[lab] ? ' (cut by the scan border)' : '');
+  }
+  function pick(lab) { picked = lab; panels.forEach(function (p, k) { draw(k); }); }
+  function ready() {
+    panels.forEach(function (p, k) {
+      var s = p.querySelector('input.slider'), cv = p.querySelector('canvas');
+      if (s) { s.addEventListener('input', function () { draw(k); }); }
+      cv.addEventListener('mousemove', function (ev) {
+        var lab = labelAt(k, ev);
+        p.querySelector('.hover').textContent = describe(lab);
+        cv.title = describe(lab);
+      });
+      cv.addEventListener('click', function (ev) {
+        var lab = labelAt(k, ev);
+        pick(lab);
+        document.dispatchEvent(new CustomEvent('cavitas:picked', { detail: lab }));
+      });
+      draw(k);
+    });
+    var box = document.getElementById('outlines');
+    if (box) {
+      box.addEventListener('change', function () { outlines = box.checked; pick(picked); });
+    }
+    document.addEventListener('cavitas:goto', function (e) {
+      var c = e.detail.c;
+      panels.forEach(function (p, k) {
+        var v = D.views[k], s = p.querySelector('input.slider');
+        if (s && isFinite(c[v.axis])) {
+          s.value = Math.max(0, Math.min(D.full[v.axis] - 1, Math.round(c[v.axis])));
+        }
+      });
+      pick(e.detail.label);
+    });
+    window.addEventListener('resize', function () {
+      panels.forEach(function (p, k) { scalebar(k); });
+    });
+    document.body.dataset.browser = 'ready';
+  }
+  Promise.all([unpack(D.grey), unpack(D.labels)]).then(function (parts) {
+    G = new Uint8Array(parts[0]);
+    L = D.labelBytes === 1 ? new Uint8Array(parts[1]) :
+      D.labelBytes === 2 ? new Uint16Array(parts[1]) : new Uint32Array(parts[1]);
+    ready();
+  }).catch(function (err) {
+    document.body.dataset.browser = 'failed';
+    panels.forEach(function (p) {
+      p.querySelector('.where').textContent =
+        'This browser cannot unpack the slices (' + err + ').';
     });
   });
 })();
 """
+

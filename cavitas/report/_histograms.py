@@ -6,8 +6,10 @@ from collections.abc import Sequence
 
 import numpy as np
 from matplotlib.figure import Figure
+from matplotlib.ticker import EngFormatter, MaxNLocator
 
 from .._table import Table
+from ._words import Words
 
 __all__ = ["DEFAULT_HISTOGRAMS", "plot_histograms"]
 
@@ -28,7 +30,8 @@ def _bins(values: np.ndarray) -> tuple[np.ndarray, bool]:
     return np.linspace(lo, hi, count + 1), False
 
 
-def plot_histograms(regions: Table, *, columns: Sequence[str] | None = None) -> Figure | None:
+def plot_histograms(regions: Table, *, columns: Sequence[str] | None = None,
+                    ndim: int = 3) -> Figure | None:
     """One histogram per measurement column that the table has.
 
     Parameters
@@ -37,6 +40,8 @@ def plot_histograms(regions: Table, *, columns: Sequence[str] | None = None) -> 
         The region table; units come from ``regions.units``.
     columns : sequence of str, optional
         Columns to draw (default :data:`DEFAULT_HISTOGRAMS`); absent ones are skipped.
+    ndim : int
+        Dimension of the image: 2 names the columns in 2D words (area, circularity).
 
     Returns
     -------
@@ -68,13 +73,18 @@ def plot_histograms(regions: Table, *, columns: Sequence[str] | None = None) -> 
         ax.hist(values, bins=edges, color=_FILL[k % 4], edgecolor="black", linewidth=0.6,
                 hatch=_HATCHES[k % 4])
         median = float(np.median(values))
-        ax.axvline(median, color="black", ls="--", lw=1.2, label=f"median {median:.4g}")
+        ax.axvline(median, color="black", ls="--", lw=1.2, label=f"median {median:.3g}")
         if log:
             ax.set_xscale("log")
+        else:
+            ax.xaxis.set_major_locator(MaxNLocator(5))
+        if values.max() >= 1e4:  # 20k rather than an offset or exponent on the axis
+            ax.xaxis.set_major_formatter(EngFormatter(sep=""))
         unit = regions.units.get(name)
-        ax.set_xlabel(f"{name} [{unit}]" if unit else name)
-        ax.set_ylabel("regions")
+        word = Words(ndim).column(name)
+        ax.set_xlabel(f"{word} [{unit}]" if unit else word)
+        ax.set_ylabel("number of regions")
         note = f", {dropped} not finite (left out)" if dropped else ""
-        ax.set_title(f"{name}: n = {values.size}{note}", fontsize=10)
+        ax.set_title(f"{word}: {values.size} regions{note}", fontsize=10)
         ax.legend(fontsize=8, frameon=False)
     return fig

@@ -17,12 +17,16 @@ from .._table import Table
 from .._version import __version__
 from ..cubical._diagram import Diagram
 from ..io._atomic import atomic_path, check_writable
-from ._browser import BROWSER_SCRIPT, browser_html, build_frames
+from ._browser import BROWSER_SCRIPT, browser_html, embed_scan
 from ._encode import data_uri, figure_png
+from ._findings import findings_html, gather_findings
 from ._histograms import plot_histograms
+from ._overview import plot_overview
+from ._params_html import parameters_html, plain_value
 from ._regions import region_centroids
-from ._slices import plot_region_slices, plot_slices
-from ._table_html import TABLE_SCRIPT, format_value, region_table_html
+from ._slices import plot_region_slices
+from ._table_html import SORT_SCRIPT, TABLE_SCRIPT, region_table_html
+from ._words import Words
 from .diagram_plots import plot_barcode, plot_diagram
 
 __all__ = ["write_report"]
@@ -49,15 +53,32 @@ table.kv th { font-weight: 600; white-space: nowrap; }
 .plots img { max-width: 100%; height: auto; border: 1px solid var(--line); }
 figcaption { color: var(--muted); font-size: .9rem; }
 #browser .views { display: flex; flex-wrap: wrap; gap: 1rem; }
-#browser .view { margin: 0; }
-#browser .stage { position: relative; background: #000; }
-#browser .stage img { position: absolute; inset: 0; width: 100%; height: 100%;
-                      image-rendering: pixelated; }
-#browser.no-outlines img.overlay { visibility: hidden; }
+#browser .view { margin: 0; max-width: 100%; }
+#browser .stage { position: relative; background: #000; max-width: 100%; }
+#browser .stage canvas { position: absolute; inset: 0; width: 100%; height: 100%;
+                         image-rendering: pixelated; cursor: crosshair; }
 #browser .slider { width: 100%; margin: .4rem 0 0; }
-#browser .marker { position: absolute; width: 22px; height: 22px; margin: -11px 0 0 -11px;
-                   border: 2px dashed #fff; border-radius: 50%; outline: 2px solid #000;
-                   pointer-events: none; }
+#browser .hover { margin: 0; font-weight: 600; min-height: 1.4em; }
+.scalebar { position: absolute; left: 8px; bottom: 8px; pointer-events: none;
+            display: flex; flex-direction: column; align-items: flex-start; gap: 2px; }
+.scalebar .bar { display: block; height: 6px; background: #fff; border: 1.5px solid #000; }
+.scalebar .text { font-size: .8rem; background: rgba(255,255,255,.85); color: #000;
+                  padding: 0 .3rem; border-radius: 2px; }
+.top { display: flex; flex-wrap: wrap; gap: 1.5rem; align-items: flex-start; }
+.top .answer { flex: 1 1 28rem; min-width: 0; }
+.top .overview { flex: 1 1 30rem; min-width: 0; }
+.top figure { margin: 0; }
+.top img { max-width: 100%; height: auto; border: 1px solid var(--line); }
+dl.findings { margin: 0 0 1rem; }
+dl.findings div { display: grid; grid-template-columns: 11rem 1fr; gap: .8rem;
+                  padding: .3rem 0; border-bottom: 1px solid #e6e8ea; }
+dl.findings dt { font-weight: 600; }
+dl.findings dd { margin: 0; }
+.warnings { border-left: 6px solid var(--warn); background: #fff8f0; padding: .3rem 1rem;
+            margin: 0 0 1rem; }
+.warnings h3 { margin: .4rem 0; font-size: 1rem; }
+details { margin: .6rem 0; }
+summary { cursor: pointer; color: var(--muted); }
 .table-wrap { max-height: 70vh; overflow: auto; border: 1px solid var(--line); }
 #regions { border-collapse: collapse; font-variant-numeric: tabular-nums; font-size: .9rem; }
 #regions th { position: sticky; top: 0; z-index: 2; background: var(--panel); }
@@ -75,6 +96,7 @@ figcaption { color: var(--muted); font-size: .9rem; }
 #regions tbody tr:hover td:first-child { background: #eef3f6; }
 #regions tbody tr.picked, #regions tbody tr.picked td:first-child { background: #fbe9c8; }
 #regions tbody tr.picked { outline: 2px dashed var(--ink); outline-offset: -2px; }
+#csv { font: inherit; padding: .25rem .7rem; cursor: pointer; }
 .note { color: var(--muted); }
 footer { margin-top: 2.5rem; color: var(--muted); font-size: .9rem; }
 """
@@ -87,87 +109,76 @@ def _esc(value: Any) -> str:
     return html.escape(str(value), quote=True)
 
 
-def _plain(value: Any) -> str:
-    """A value as a reader would write it: numbers to 4 digits, "–" for unset, records
-    as ``name value`` pairs, lists joined by semicolons.
-
-    Examples
-    --------
-    >>> _plain([{"sigma": 1.25, "count": 53}, {"sigma": 2.5, "count": 54}])
-    'sigma 1.25, count 53; sigma 2.5, count 54'
-    >>> _plain(None), _plain(0.123456789), _plain(True)
-    ('–', '0.1235', 'yes')
-    """
-    if isinstance(value, np.generic):
-        value = value.item()
-    if value is None or isinstance(value, (bool, float, int)):
-        return format_value(value)[0]
-    if isinstance(value, Mapping):
-        return ", ".join(f"{key} {_plain(item)}" for key, item in value.items())
-    if isinstance(value, (list, tuple)):
-        return "; ".join(_plain(item) for item in value)
-    return str(value)
-
-
-def _kv_table(items: Mapping[str, Any]) -> str:
-    """Name–value rows; a ``"units"`` mapping among the items gives units to the others."""
-    units = items.get("units") if isinstance(items.get("units"), Mapping) else {}
-    rows = []
-    for key, value in items.items():
-        if key == "units" and units:
-            continue
-        if key in units and not isinstance(value, tuple):
-            value = (value, str(units[key]))
-        if isinstance(value, tuple) and len(value) == 2 and isinstance(value[1], str):
-            text = f"{format_value(value[0])[0]} {value[1]}"  # (value, unit)
-        else:
-            text = _plain(value)
-        rows.append(f"<tr><th>{_esc(key)}</th><td>{_esc(text)}</td></tr>")
-    return f'<table class="kv">{"".join(rows)}</table>' if rows else "<p>None.</p>"
-
-
-def _figure(fig: Any, caption: str) -> str:
+def _figure(fig: Any, caption: str, *, alt: str | None = None) -> str:
     if fig is None:
         return ""
-    return (f'<figure><img src="{data_uri(figure_png(fig))}" alt="{_esc(caption)}">'
+    return (f'<figure><img src="{data_uri(figure_png(fig))}" alt="{_esc(alt or caption)}">'
             f"<figcaption>{_esc(caption)}</figcaption></figure>")
 
 
-def _diagram_figures(diagram: Diagram | None, kept: Any, threshold: float | None) -> str:
+_HOW_TO_READ = (
+    "How to read this: every point is one dark pocket of the image. It appears (birth) at "
+    "the intensity of its darkest inside point and merges with a neighbour (death) at the "
+    "intensity of the lowest point of its wall; the farther a point lies from the diagonal, "
+    "the higher its wall stands above its inside. Points inside the shaded band along the "
+    "diagonal are shallower than the threshold and count as noise; filled points are the "
+    "regions kept. Hollow points outside the band were refused for another reason: their "
+    "inside is not as dark as the image's inside class, their wall not as bright as its "
+    "wall class, or they are too small for their depth.")
+
+
+def _diagram_figures(diagram: Diagram | None, kept: Any, threshold: float | None,
+                     smoothing: float | None, unit: str) -> str:
     if diagram is None:
         return "<p>No persistence diagram was given to the report.</p>"
     if kept is not None and not isinstance(kept, Mapping):
         kept = {diagram.cavity_dim: kept}
-    parts = [_figure(plot_diagram(diagram, highlight=kept, threshold=threshold),
-                     "Persistence diagram: kept features filled, the others hollow; the "
-                     "shaded band lies below the persistence threshold. In automatic mode, "
-                     "hollow points above the band failed the image's own evidence (inside "
-                     "not darker than the image's wall class, wall not reaching it, or too "
-                     "small for their persistence).")]
+    at = (f"after smoothing with σ = {smoothing:g} {unit}" if smoothing
+          else "on the image without smoothing" if smoothing is not None else "")
+    fig = plot_diagram(diagram, highlight=kept, threshold=threshold)
+    fig.axes[0].set_title(f"Persistence diagram {at}".strip(), fontsize=10)
+    parts = [_figure(fig, _HOW_TO_READ,
+                     alt=f"Persistence diagram {at}: birth against death level of every "
+                         "pocket, the kept ones filled, the threshold band shaded.")]
     if diagram.cavity_dim in diagram.dims:
+        bars = plot_barcode(diagram, dim=diagram.cavity_dim, top=50, highlight=kept,
+                            threshold=threshold)
+        bars.axes[0].set_title(f"The 50 deepest pockets {at}".strip(), fontsize=10)
         parts.append(_figure(
-            plot_barcode(diagram, dim=diagram.cavity_dim, top=50, highlight=kept,
-                         threshold=threshold),
-            "Barcode of the cavities, longest bars first (at most 50)."))
+            bars, "Barcode: the same pockets as bars from birth to death, deepest first (at "
+                  "most 50); solid bars are kept regions, dashed ones were refused, the "
+                  "dashed line marks the threshold."))
     return "".join(parts)
 
 
-def _count_sentence(regions: Table) -> str:
-    """"13 chambers, 2 enclosures and 1 region cut by the border." (or "N regions kept.")."""
-    if "kind" not in regions:
-        n = len(regions)
-        return f"{n:,} region{'s' if n != 1 else ''} kept."
-    kinds = regions["kind"]
-    words = {"chamber": ("chamber", "chambers"), "enclosure": ("enclosure", "enclosures"),
-             "cut": ("region cut by the scan border (listed, not in the label map)",
-                     "regions cut by the scan border (listed, not in the label map)")}
-    parts = []
-    for kind, (one, many) in words.items():
-        count = int((kinds == kind).sum())
-        if count or kind == "chamber":
-            parts.append(f"{count:,} {one if count == 1 else many}")
-    text = parts[0] if len(parts) == 1 else ", ".join(parts[:-1]) + " and " + parts[-1]
-    return _esc(text[0].upper() + text[1:] + ".")
+def _border_labels(regions: Table) -> list[int]:
+    """Labels drawn as cut by the scan border (cut regions and kept ones touching it)."""
+    if "label" not in regions or not len(regions):
+        return []
+    cut = np.zeros(len(regions), bool)
+    if "kind" in regions:
+        cut |= np.asarray(regions["kind"] == "cut")
+    if "touches_border" in regions:
+        cut |= np.asarray(regions["touches_border"], bool)
+    return [int(v) for v in np.asarray(regions["label"])[cut]]
+
+
+def _figures_html(figures: Mapping[str, Any], words: Words) -> str:
+    """Every global figure, in the reader's words with its unit, behind a fold."""
+    units = figures.get("units") if isinstance(figures.get("units"), Mapping) else {}
+    rows = []
+    for key, value in figures.items():
+        if key == "units":
+            continue
+        unit = units.get(key, "")
+        if isinstance(value, tuple) and len(value) == 2 and isinstance(value[1], str):
+            value, unit = value
+        text = f"{plain_value(value)} {unit}".strip()
+        rows.append(f"<tr><th>{_esc(words.column(key))}</th><td>{_esc(text)}</td></tr>")
+    if not rows:
+        return ""
+    return (f'<details><summary>Every global figure</summary><table class="kv">'
+            f'{"".join(rows)}</table></details>')
 
 
 def write_report(path: str | os.PathLike, *, image: np.ndarray, labels: np.ndarray,
@@ -176,23 +187,29 @@ def write_report(path: str | os.PathLike, *, image: np.ndarray, labels: np.ndarr
                  threshold: float | None = None, params: Mapping[str, Any],
                  figures: Mapping[str, Any], title: str | None = None,
                  source: str | os.PathLike | None = None, force: bool = False,
-                 max_rows: int = 5000, frame_budget: int = 7_000_000,
+                 max_rows: int = 5000, scan_budget: int = 9_000_000,
                  notes: Sequence[str] = ()) -> Path:
     """Write a single self-contained HTML page that shows a segmentation.
 
-    The page holds the research-only caution, the parameters and global figures, the
-    persistence diagram (kept features marked, threshold drawn) and the cavity barcode,
-    a slice browser (a slider per axis over the image with region outlines), a sortable
-    region table whose rows move the browser to the region, and static plots (orthogonal
-    slices, the largest and the least certain region, histograms of volume and sphericity).
-    Pictures are inlined as PNG; the page loads nothing else and works offline.
+    The page opens with what was found (counts, the size distribution, the filled
+    fraction, noise and threshold in plain words, every warning of the run) beside an
+    overview picture (the slice crossing most regions, each region filled and numbered,
+    a scale bar). Then a slice browser over every slice along every axis (the region
+    under the pointer is named, a click picks its table row), the region table (sortable,
+    downloadable as CSV), the persistence diagram with a caption on how to read it, the
+    parameters (set by hand / chosen from the data, the full record behind a fold) and
+    closer looks at the least certain and the largest region. 2D images are described in
+    2D words (area, perimeter, circularity, pixels). The research-only caution stays at
+    the top and the bottom. Pictures are inlined; the page loads nothing and works offline.
 
     Parameters
     ----------
     path : path
         The ``.html`` file to write (atomically; an existing file needs ``force``).
     image, labels : array
-        The scan and its label image (0 = no region), same 2D or 3D shape.
+        The scan and its label image (0 = no region), same 2D or 3D shape. Regions cut by
+        the scan border may be in it too: they are drawn dashed (``kind`` = ``"cut"`` or
+        ``touches_border`` in ``regions``).
     spacing, unit : sequence of float, str
         Voxel size in ``(z, y, x)`` order and its unit.
     regions : Table
@@ -213,11 +230,12 @@ def write_report(path: str | os.PathLike, *, image: np.ndarray, labels: np.ndarr
     force : bool
         Replace an existing file.
     max_rows : int
-        Most table rows written (the CSV export holds them all).
-    frame_budget : int
-        Most bytes of slice-browser frames (before base64); frames are thinned to fit.
+        Most table rows written (the regions.csv file holds them all).
+    scan_budget : int
+        Most bytes of the compressed scan and labels the slice browser embeds; larger
+        scans are shown block-averaged.
     notes : sequence of str
-        Sentences shown under the summary (e.g. what set the threshold).
+        Warnings and remarks of the run, listed at the top (e.g. what set the threshold).
 
     Returns
     -------
@@ -250,43 +268,67 @@ def write_report(path: str | os.PathLike, *, image: np.ndarray, labels: np.ndarr
         raise ParameterError(
             f"spacing must have one value per axis ({image.ndim}); got {len(spacing)}."
         )
+    words = Words(image.ndim)
     name = Path(source).name if source else None
     title = title or (f"cavitas report: {name}" if name else "cavitas report")
     geometry = " × ".join(map(str, image.shape))
-    sizes = ", ".join(f"{s:g}" for s in spacing)
+    sizes = " × ".join(f"{s:g}" for s in spacing)
     stamp = datetime.datetime.now(datetime.timezone.utc).strftime("%Y-%m-%d %H:%M UTC")
-    meta = (f"{f'Input {_esc(source)} · ' if source else ''}{_esc(geometry)} voxels, "
-            f"spacing ({_esc(sizes)}) {_esc(unit)} · cavitas {_esc(__version__)} · {stamp}")
+    meta = (f"{f'Input {_esc(source)} · ' if source else ''}{_esc(geometry)} "
+            f"{words.element}s of {_esc(sizes)} {_esc(unit)} · cavitas {_esc(__version__)}"
+            f" · {stamp}")
 
     n = len(regions)
-    if n:
-        summary = f"<p>{_count_sentence(regions)}</p>"
-    else:
+    smoothing = params.get("smooth_sigma")
+    found = gather_findings(regions, ndim=image.ndim, unit=unit, params=params,
+                            figures=figures, notes=notes)
+    summary = findings_html(found)
+    if not n:
         summary = ('<p class="empty" id="no-regions">No region was kept: no enclosed region '
                    "passed the selection. The persistence diagram below still shows every "
-                   "feature that was found.</p>")
-    summary += "".join(f'<p class="note">{_esc(note)}</p>' for note in notes)
-    centroids = region_centroids(labels, regions.select(slice(0, max_rows)))
-    views = build_frames(image, labels if n else None, budget=frame_budget)
-    # Pictures of single regions and histograms show the regions of the label map only
-    # (chambers), not enclosures or border-cut regions listed in the table.
+                   "pocket that was found.</p>") + summary
+    border = _border_labels(regions)
+    # Pictures of single regions and histograms show whole regions only.
     shown = regions.select(regions["kind"] == "chamber") if "kind" in regions else regions
-    plots = [
-        _figure(plot_slices(image, labels, spacing=spacing, unit=unit),
-                "Orthogonal slices through the centre with region outlines."),
-        _figure(plot_region_slices(image, labels, shown, which="largest", spacing=spacing,
-                                   unit=unit), "Slices through the largest region."),
+    overview = ""
+    doubt = found.least_certain[0] if found.least_certain and image.ndim == 2 else None
+    if n and labels.any():
+        fig, where = plot_overview(image, labels, spacing=spacing, unit=unit, border=border,
+                                   highlight=doubt)
+        dashed = (f" The least certain region, number {doubt}, is outlined dashed."
+                  if doubt is not None else "")
+        overview = _figure(fig, f"Overview. {where} Each region is filled and carries its "
+                                "number in the table; striped regions are cut by the scan "
+                                f"border.{dashed}",
+                           alt=f"Overview: {where} {found.whole} regions filled in "
+                               "distinct colours and numbered, with a scale bar.")
+    size_col = "volume" if "volume" in shown else "area"
+    size_hist = _figure(plot_histograms(shown, columns=(size_col,), ndim=image.ndim),
+                        f"How many regions have each {words.size}; the dashed line is the "
+                        "median.") if n else ""
+    centroids = region_centroids(labels, regions.select(slice(0, max_rows)))
+    scan = embed_scan(image, labels if n else None, border=border, budget=scan_budget)
+    closer = [  # in 2D the overview shows the whole image, least certain region marked
         _figure(plot_region_slices(image, labels, shown, which="least_certain",
                                    spacing=spacing, unit=unit),
-                "Slices through the least certain region (smallest margin above the "
-                "threshold)."),
-        _figure(plot_histograms(shown), "Histograms of region measurements."),
+                "The least certain region (its wall stands least above the threshold), "
+                "drawn dashed with a plus at its centre.") if image.ndim == 3 else "",
+        _figure(plot_region_slices(image, labels, shown, which="largest", spacing=spacing,
+                                   unit=unit), "The largest region.") if image.ndim == 3
+        else "",
+        _figure(plot_histograms(shown, columns=("sphericity", "circularity"),
+                                ndim=image.ndim),
+                f"How round the regions are ({words.shape_name}: 1 for a perfect "
+                f"{'circle' if image.ndim == 2 else 'sphere'})."),
     ]
     hint = " ".join(filter(None, [
-        "Move a slider to go through the volume along that axis." if image.ndim == 3 else "",
-        "Click a row of the table below to go to that region (a dashed ring marks its "
-        "centroid)." if n else ""]))
-    table = region_table_html(regions, centroids, max_rows=max_rows) if n else ""
+        "Move a slider to go through every slice along that axis." if image.ndim == 3
+        else "",
+        "Point at a region to read its number; click it to pick its row in the table, or "
+        "click a row to find the region here. A dark and a light line outline each region; "
+        "dashed outlines mark regions cut by the scan border." if n else ""]))
+    table = region_table_html(regions, centroids, ndim=image.ndim, max_rows=max_rows) if n \
+        else ""
     page = f"""<!DOCTYPE html>
 <html lang="en"><head><meta charset="utf-8">
 <meta http-equiv="Content-Security-Policy" content="{_CSP}">
@@ -297,19 +339,22 @@ def write_report(path: str | os.PathLike, *, image: np.ndarray, labels: np.ndarr
 <div class="caution" role="note" id="caution"><strong>Caution:</strong>
 {_esc(RESEARCH_ONLY)}</div></header>
 <main>
-<section id="summary"><h2>Summary</h2>{summary}
-<div class="facts"><div><h3>Parameters</h3>{_kv_table(params)}</div>
-<div><h3>Global figures</h3>{_kv_table(figures)}</div></div></section>
-<section id="persistence"><h2>Persistence</h2><div class="plots">
-{_diagram_figures(diagram, kept, threshold)}</div></section>
-<section id="browser"><h2>Slice browser</h2><p>{hint}
+<section id="summary"><h2>What was found</h2><div class="top">
+<div class="answer">{summary}{size_hist}{_figures_html(figures, words)}</div>
+<div class="overview">{overview}</div></div></section>
+<section id="browser"><h2>Every slice</h2><p>{hint}
 <label><input type="checkbox" id="outlines" checked> show region outlines</label></p>
-{browser_html(views, spacing=spacing, unit=unit)}</section>
+{browser_html(scan, image_shape=image.shape, spacing=spacing, unit=unit)}</section>
 <section id="table"><h2>Regions</h2>{table or "<p>No region to list.</p>"}</section>
-<section id="plots"><h2>Plots</h2><div class="plots">{"".join(plots)}</div></section>
+<section id="persistence"><h2>How regions were told from noise</h2><div class="plots">
+{_diagram_figures(diagram, kept, threshold, smoothing, unit)}</div></section>
+<section id="parameters"><h2>Parameters</h2>
+{parameters_html(params, unit, element=words.element)}</section>
+<section id="plots"><h2>Closer looks</h2><div class="plots">{"".join(closer)}</div></section>
 </main>
 <footer><p>{_esc(RESEARCH_ONLY)}</p></footer>
-<script>{BROWSER_SCRIPT}</script><script>{TABLE_SCRIPT}</script>
+<script>{BROWSER_SCRIPT}</script><script>{SORT_SCRIPT}</script>
+<script>{TABLE_SCRIPT}</script>
 </body></html>
 """
     with atomic_path(path, force=force) as tmp:

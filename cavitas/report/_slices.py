@@ -83,8 +83,11 @@ def plot_slices(image: np.ndarray, labels: np.ndarray | None = None, *,
     heights = [shape[r] * spacing[r] for _, r, _ in views]
     widths = [shape[c] * spacing[c] for _, _, c in views]
     inch = min(3.6 / max(heights), 12.0 / sum(widths))  # inches per physical unit
+    # room beside the pictures: tick labels and axis labels per panel, then the panel
+    # titles, the figure title and the legend row (too little and constrained layout lets
+    # the figure title run into the panel titles)
     fig = Figure(figsize=(sum(widths) * inch + 1.0 * len(views) + 0.4,
-                          max(heights) * inch + (1.6 if title else 1.3)), layout="constrained")
+                          max(heights) * inch + (2.3 if title else 1.9)), layout="constrained")
     grid = fig.add_gridspec(1, len(views), width_ratios=widths)
     for k, (axis, r, c) in enumerate(views):
         ax = fig.add_subplot(grid[0, k])
