@@ -5,13 +5,14 @@ from __future__ import annotations
 import argparse
 import logging
 import sys
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from .._errors import EXIT_INTERNAL, CavitasError, ChoiceNeeded
-from .._json import dumps
-from ..io import Volume, estimate_memory_bytes, read, summarize
 from ._reading import add_dataset_option
 from ._words import in_option_words
+
+if TYPE_CHECKING:  # numpy and the readers are imported when a file is read (fast --help)
+    from ..io import Volume
 
 __all__ = ["describe", "register", "run"]
 
@@ -99,10 +100,13 @@ def describe(volume: Volume, *, progress: Any = None) -> dict[str, Any]:
     Examples
     --------
     >>> import numpy as np
+    >>> from cavitas.io import Volume
     >>> facts = describe(Volume(np.arange(8, dtype=np.uint8).reshape(2, 4)))
     >>> facts["shape"], facts["min"], facts["max"], facts["memory_bytes"]
     ([2, 4], 0, 7, 424)
     """
+    from ..io import estimate_memory_bytes, summarize
+
     stats = summarize(volume.data, progress=progress)
     return {
         "source": volume.source,
@@ -197,6 +201,8 @@ def read_first_choice(name: str, options: dict[str, Any]) -> tuple[Volume, dict[
     >>> volume.shape, held
     ((2, 3), {'key': ['a', 'b']})
     """
+    from ..io import read
+
     options, held = dict(options), {}
     while True:
         try:
@@ -218,6 +224,8 @@ def _describe_file(name: str, options: dict[str, Any], quiet: bool) -> dict[str,
 
 def run(args: argparse.Namespace) -> int:
     """Describe each file; carry on past failures; return the worst exit code."""
+    from .._json import dumps
+
     options = dict(channel=args.channel, time=args.time, key=args.key, dataset=args.dataset,
                    spacing=args.spacing, unit=args.unit, shape=args.shape, dtype=args.dtype,
                    byte_order=args.byte_order, offset=args.offset)
