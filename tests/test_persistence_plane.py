@@ -19,7 +19,7 @@ from hypothesis import given
 from hypothesis import strategies as st
 from hypothesis.extra.numpy import arrays
 
-from cavitas.cubical._persistence import _Prepared
+from cavitas.cubical._persistence import _cavity_rows, _Prepared
 from cavitas.cubical._plane import plane_critical, plane_links
 from cavitas.cubical._ring import ring_tables
 from tests.oracle_reduction import oracle_pairs
@@ -147,3 +147,30 @@ def test_ring_tables_count_pieces_by_hand():
     count, _ = ring_tables(2)
     assert count[0b1010_1010] == 4  # four corners, none touching
     assert count[0b0101_0101] == 1  # N, E, S, W touch diagonally
+
+
+@pytest.mark.parametrize("walls", WALLS)
+@pytest.mark.parametrize("conn", [1, 2])
+def test_same_diagram_as_gudhi(rng, walls, conn):
+    # Reference: gudhi's CubicalComplex (a general-purpose computational-topology library,
+    # optional: the "bench" extra), voxels as vertices for connectivity 1 and as top cells
+    # for 2, sublevel filtration (bright walls: of the negated image, values negated back).
+    gudhi = pytest.importorskip("gudhi")
+    from scipy import ndimage as ndi
+
+    image = np.round(ndi.gaussian_filter(rng.standard_normal((60, 70)), 2.0) * 40)
+    sign = 1.0 if walls == "dark" else -1.0
+    cells = {"vertices" if conn == 1 else "top_dimensional_cells": sign * image}
+    complex_ = gudhi.CubicalComplex(**cells)
+    complex_.compute_persistence(min_persistence=0.0)
+    dgm = _Prepared(image, walls, conn, None)
+    for dim, rows in ((0, dgm.h0()), (1, _cavity_rows(dgm.tree()))):
+        ours = _by_rows(np.stack([rows["birth"], rows["death"]], 1))
+        theirs = _by_rows(sign * complex_.persistence_intervals_in_dimension(dim))
+        assert len(ours) > 20
+        np.testing.assert_array_equal(ours, theirs)
+
+
+def _by_rows(pairs):
+    """(birth, death) rows in lexicographic order (a multiset compared as an array)."""
+    return pairs[np.lexsort((pairs[:, 1], pairs[:, 0]))]
