@@ -131,8 +131,11 @@ def test_int64_index_path_agrees(rng):
     for dtype in (np.int32, np.int64):
         parent = np.empty(image.size + 1, dtype)
         args = (image.ravel(), mask, False, True, False, *image.shape)
-        critical, _ = plane_critical(*args, count, reps, parent, False)
-        results.append((critical, *plane_links(*args, True, count, reps, parent, critical)))
+        critical, codes, max_links, _ = plane_critical(*args, count, reps, parent, False)
+        start = np.empty(len(critical) + 1, dtype)
+        links = np.empty(max_links, dtype)
+        nl = plane_links(*args, True, count, reps, parent, critical, codes, start, links)
+        results.append((critical, start, links[:nl]))
     for a, b in zip(*results, strict=True):
         np.testing.assert_array_equal(a, b)
     assert results[1][0].dtype == np.int64

@@ -113,9 +113,14 @@ class _Prepared:
             parent = self.new_parent()  # freed when this method returns
         ny, nx = self.shape
         args = (values, mask_u8, use_mask, self.bright, for_h0, ny, nx)
-        pixels, nonfinite = plane_critical(*args, count, reps, parent, values.dtype.kind == "f")
+        pixels, codes, max_links, nonfinite = plane_critical(*args, count, reps, parent,
+                                                             values.dtype.kind == "f")
         self._reject_nonfinite(nonfinite)
-        start, links = plane_links(*args, conn == 2, count, reps, parent, pixels)
+        start = np.empty(len(pixels) + 1, index_dtype(max_links + 1))
+        links = np.empty(max_links, pixels.dtype)
+        links = links[:plane_links(*args, conn == 2, count, reps, parent, pixels, codes, start,
+                                   links)]
+        del codes
         pixel_values = values[pixels]
         order, _ = sort_voxels(pixel_values, descending=not self.bright)
         return _CriticalPixels(pixels, pixel_values, order, start, links)
@@ -283,6 +288,12 @@ def persistence(
     data briefly needs a second 4-byte buffer). Pairs and tree nodes come on top (40 bytes
     per tree node). A non-C-contiguous input is copied once. The kernels release the GIL,
     so several images can also be processed in threads.
+
+    A 2D image takes a shorter way to the same pairs (:mod:`._plane`): one pass in raster
+    order settles every pixel whose earlier neighbours form one piece of its 8-pixel ring
+    (most pixels), and only the others (about 4 % of a smooth image, up to half of white
+    noise) are sorted and go through the union-find. Memory per sweep: one 4-byte array
+    per pixel and about 16 bytes per such critical pixel.
 
     The cavity diagram follows from Alexander duality: cavities of the wall set are the
     components of the complement that do not reach the outside.

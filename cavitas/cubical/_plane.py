@@ -68,45 +68,13 @@ def _cavity_earlier(values, w, v, bright):
 
 
 @njit(cache=True, inline="always")
-def _ring_code(values, mask, use_mask, bright, for_h0, p, nx):
-    """Bit k set if ring pixel k of interior pixel ``p`` comes earlier in the sweep.
-
-    Cavity sweep: increasing (value, index) for bright walls, pixels outside the mask
-    first of all. H0 sweep: the reverse, pixels outside the mask never.
-    """
-    vp = values[p]
-    a = p - nx
-    b = p + nx
-    code = (
-        np.int64(_before(values[a], vp, bright))
-        | np.int64(_before(values[a + 1], vp, bright)) << 1
-        | np.int64(_before_later(values[p + 1], vp, bright)) << 2
-        | np.int64(_before_later(values[b + 1], vp, bright)) << 3
-        | np.int64(_before_later(values[b], vp, bright)) << 4
-        | np.int64(_before_later(values[b - 1], vp, bright)) << 5
-        | np.int64(_before(values[p - 1], vp, bright)) << 6
-        | np.int64(_before(values[a - 1], vp, bright)) << 7
-    )
-    if use_mask:
-        code |= (
-            np.int64(not mask[a])
-            | np.int64(not mask[a + 1]) << 1
-            | np.int64(not mask[p + 1]) << 2
-            | np.int64(not mask[b + 1]) << 3
-            | np.int64(not mask[b]) << 4
-            | np.int64(not mask[b - 1]) << 5
-            | np.int64(not mask[p - 1]) << 6
-            | np.int64(not mask[a - 1]) << 7
-        )
-    if for_h0:
-        return ~code & 0xFF
-    return code
-
-
-@njit(cache=True, inline="always")
 def _row_codes(up, mid, down, bright, codes):
-    """:func:`_ring_code` of every interior pixel of a row, from the rows above and below
-    (row slices, so that the loop compiles to vector instructions)."""
+    """The ring code of every interior pixel of a row: bit k set if ring pixel k comes
+    earlier in the cavity sweep (increasing (value, index) for bright walls).
+
+    From slices of the rows above and below, so that the loop compiles to vector
+    instructions.
+    """
     if bright:
         for x in range(1, mid.shape[0] - 1):
             vp = mid[x]
@@ -129,7 +97,8 @@ def _row_codes(up, mid, down, bright, codes):
 
 @njit(cache=True, inline="always")
 def _row_mask_codes(up, mid, down, codes):
-    """Set the bits of the ring pixels outside the mask (uint8 rows)."""
+    """Set the bits of the ring pixels outside the mask (uint8 rows): in the cavity sweep
+    they are earlier than every pixel (the outside); flipped for the H0 sweep, never."""
     for x in range(1, mid.shape[0] - 1):
         codes[x] |= (
             np.uint8(up[x] == 0) | np.uint8(up[x + 1] == 0) << 1
@@ -141,25 +110,29 @@ def _row_mask_codes(up, mid, down, codes):
 
 @njit(cache=True, nogil=True)
 def _classify_row(codes, mask, use_mask, row, nx, interior_row, count, reps, off, parent,
-                  critical, ncrit, masked_out):
-    """Pointers and critical numbers of one row; the new number of critical pixels.
-
-    (A separate function: an array that may be reallocated inside a loop slows it down.)
-    """
+                  critical, critical_codes, ncrit, masked_out):
+    """Pointers and critical numbers of one row; the new number of critical pixels and
+    of the pieces they may link to. (A function of its own: an array that may be
+    reallocated inside a loop slows the loop down.)"""
+    pieces = 0
     for x in range(nx):
         p = row + x
         if use_mask and not mask[p]:
             parent[p] = masked_out
             continue
+        code = codes[x]
         if interior_row and x > 0 and x < nx - 1:  # the border meets the outside
-            code = codes[x]
             if count[code] == 1:
                 parent[p] = p + off[reps[code, 0]]
                 continue
+            pieces += count[code]
+        else:
+            pieces += 6  # at most 5 neighbours in the image, and the outside
         parent[p] = -(ncrit + 2)
         critical[ncrit] = p
+        critical_codes[ncrit] = code
         ncrit += 1
-    return ncrit
+    return ncrit, pieces
 
 
 @njit(cache=True, nogil=True)
@@ -190,15 +163,22 @@ def plane_critical(values, mask, use_mask, bright, for_h0, ny, nx, count, reps, 
     -------
     critical : int array of ``parent``'s dtype
         Flat index of each critical pixel (inside the mask), in raster order.
+    critical_codes : uint8 array
+        The ring code of each (bit k set if ring pixel k, clockwise from N, comes earlier
+        in the sweep); meaningless on the image border.
+    max_links : int
+        An upper bound of the number of links :func:`plane_links` finds.
     nonfinite : int
         Pixels inside the mask holding NaN or +-inf.
     """
     n = ny * nx
     off = _ring_offsets(nx)
     masked_out = -1 if for_h0 else n
-    critical = np.empty(max(1024, n // 16), parent.dtype)
     codes = np.zeros(nx, np.uint8)
+    critical = np.empty(max(1024, n // 16), parent.dtype)
+    critical_codes = np.empty(critical.shape[0], np.uint8)
     ncrit = 0
+    max_links = 0
     nonfinite = 0
     for y in range(ny):
         row = y * nx
@@ -218,10 +198,13 @@ def plane_critical(values, mask, use_mask, bright, for_h0, ny, nx, count, reps, 
                     nonfinite += 1
         if critical.shape[0] < ncrit + nx:
             critical = _grow(critical, ncrit + nx)
-        ncrit = _classify_row(codes, mask, use_mask, row, nx, interior_row, count, reps, off,
-                              parent, critical, ncrit, masked_out)
+            critical_codes = _grow(critical_codes, critical.shape[0])
+        ncrit, pieces = _classify_row(codes, mask, use_mask, row, nx, interior_row, count,
+                                      reps, off, parent, critical, critical_codes, ncrit,
+                                      masked_out)
+        max_links += pieces
     parent[n] = -(ncrit + 2)
-    return critical[:ncrit].copy(), nonfinite
+    return critical[:ncrit], critical_codes[:ncrit], max_links, nonfinite
 
 
 @njit(cache=True, inline="always")
@@ -269,29 +252,8 @@ def _border_links(values, mask, use_mask, bright, for_h0, ny, nx, full, parent, 
 
 
 @njit(cache=True, nogil=True)
-def _links_block(values, mask, use_mask, bright, for_h0, ny, nx, full, count, reps, parent,
-                 critical, c0, c1, start, links, nl):
-    """:func:`plane_links` for critical pixels ``c0`` to ``c1 - 1``; the new length."""
-    off = _ring_offsets(nx)
-    for c in range(c0, c1):
-        start[c] = nl
-        v = critical[c]
-        y = v // nx
-        x = v - y * nx
-        if y > 0 and y < ny - 1 and x > 0 and x < nx - 1:
-            code = _ring_code(values, mask, use_mask, bright, for_h0, v, nx)
-            first = nl
-            for i in range(count[code]):  # one neighbour per piece of the earlier ring
-                nl = _append_new(links, first, nl, _critical_of(parent, v + off[reps[code, i]]))
-        else:
-            nl = _border_links(values, mask, use_mask, bright, for_h0, ny, nx, full, parent,
-                               off, v, y, x, links, nl)
-    return nl
-
-
-@njit(cache=True, nogil=True)
 def plane_links(values, mask, use_mask, bright, for_h0, ny, nx, full, count, reps, parent,
-                critical):
+                critical, critical_codes, start, links):
     """The critical pixels that each critical pixel's earlier neighbours lead to.
 
     Parameters
@@ -300,30 +262,47 @@ def plane_links(values, mask, use_mask, bright, for_h0, ny, nx, full, count, rep
         As for :func:`plane_critical`.
     full : bool
         The sweep's connectivity is full (8 neighbours) rather than faces (4).
-    parent, critical
+    parent, critical, critical_codes
         As left and returned by :func:`plane_critical`; pointers may be shortened.
+    start : (m + 1,) int array
+        Filled: critical pixel ``c`` is linked to ``links[start[c]:start[c + 1]]``.
+    links : (max_links,) int array, ``max_links`` from :func:`plane_critical`
+        Filled with distinct critical numbers (``m`` is the outside), each for a component
+        that ``c`` joins on arrival.
 
     Returns
     -------
-    start : (m + 1,) int64
-        Critical pixel ``c`` is linked to ``links[start[c]:start[c + 1]]``.
-    links : int array of ``critical``'s dtype
-        Distinct critical numbers (``m`` is the outside), each for a component that ``c``
-        joins on arrival.
+    int
+        The number of links (``start[m]``).
     """
     m = critical.shape[0]
-    block = 4096
-    start = np.empty(m + 1, np.int64)
-    links = np.empty(max(8 * block, 2 * m), critical.dtype)
+    off = _ring_offsets(nx)
     nl = 0
-    for c0 in range(0, m, block):
-        c1 = min(m, c0 + block)
-        if links.shape[0] < nl + 8 * (c1 - c0):  # at most 8 links per pixel
-            links = _grow(links, nl + 8 * (c1 - c0))
-        nl = _links_block(values, mask, use_mask, bright, for_h0, ny, nx, full, count, reps,
-                          parent, critical, c0, c1, start, links, nl)
+    for c in range(m):
+        start[c] = nl
+        v = critical[c]
+        y = v // nx
+        x = v - y * nx
+        if y > 0 and y < ny - 1 and x > 0 and x < nx - 1:
+            code = critical_codes[c]
+            first = nl
+            for i in range(count[code]):  # one neighbour per piece of the earlier ring
+                nl = _append_new(links, first, nl, _critical_of(parent, v + off[reps[code, i]]))
+        else:
+            nl = _border_links(values, mask, use_mask, bright, for_h0, ny, nx, full, parent,
+                               off, v, y, x, links, nl)
     start[m] = nl
-    return start, links[:nl].copy()
+    return nl
+
+
+@njit(cache=True, inline="always")
+def _minima(start, m):
+    """Critical pixels without links: each starts a component."""
+    count = 0
+    for c in range(m):
+        if start[c + 1] == start[c]:
+            count += 1
+    return count
 
 
 @njit(cache=True, nogil=True)
@@ -343,17 +322,17 @@ def plane_h0_merges(order, start, links, critical_values, uf):
 
     Returns
     -------
-    births, deaths : int64 arrays
+    births, deaths : arrays of ``order``'s dtype
         Critical numbers of the birth and death pixel of each finite pair with nonzero
         persistence.
-    essential : int64 array
+    essential : array of ``order``'s dtype
         Critical number of the birth pixel of each class that never dies.
     """
     m = order.shape[0]
     uf[:] = -1
     roots = np.empty(8, uf.dtype)
-    births = np.empty(m, np.int64)  # each pixel dies at most once
-    deaths = np.empty(m, np.int64)
+    births = np.empty(_minima(start, m), order.dtype)  # a minimum dies at most once
+    deaths = np.empty(births.shape[0], order.dtype)
     npairs = 0
     for j in range(m - 1, -1, -1):
         v = order[j]
@@ -381,13 +360,13 @@ def plane_h0_merges(order, start, links, critical_values, uf):
     for c in range(m):
         if uf[c] < -1:
             nroots += 1
-    essential = np.empty(nroots, np.int64)
+    essential = np.empty(nroots, order.dtype)
     nroots = 0
     for c in range(m):
         if uf[c] < -1:
             essential[nroots] = c
             nroots += 1
-    return births[:npairs].copy(), deaths[:npairs].copy(), essential
+    return births[:npairs], deaths[:npairs], essential
 
 
 @njit(cache=True, nogil=True)
@@ -411,9 +390,10 @@ def plane_cavity_merges(order, start, links, uf):
     uf[:] = -1
     uf[m] = -2  # the outside is node 0
     roots = np.empty(8, uf.dtype)
-    core = np.empty(m + 1, np.int64)  # a node per minimum at most
-    breach = np.empty(m + 1, np.int64)
-    tparent = np.empty(m + 1, np.int64)
+    nodes = 1 + _minima(start, m)  # the outside and a node per minimum
+    core = np.empty(nodes, np.int64)
+    breach = np.empty(nodes, np.int64)
+    tparent = np.empty(nodes, np.int64)
     core[0] = -1
     breach[0] = -1
     tparent[0] = -1
@@ -443,4 +423,4 @@ def plane_cavity_merges(order, start, links, uf):
                 breach[node] = v
                 uf[r] = best
         uf[v] = best
-    return core[:nnodes].copy(), breach[:nnodes].copy(), tparent[:nnodes].copy()
+    return core, breach, tparent
