@@ -108,6 +108,19 @@ def _row_mask_codes(up, mid, down, codes):
         )
 
 
+@njit(cache=True, inline="always")
+def _row_nonfinite(values, mask, use_mask):
+    """NaN and +-inf values in a row (inside the mask)."""
+    count = 0
+    if use_mask:
+        for x in range(values.shape[0]):
+            count += np.int64(mask[x] != 0) & np.int64(not np.isfinite(values[x]))
+    else:
+        for x in range(values.shape[0]):
+            count += np.int64(not np.isfinite(values[x]))
+    return count
+
+
 @njit(cache=True, nogil=True)
 def _classify_row(codes, mask, use_mask, row, nx, interior_row, count, reps, off, parent,
                   critical, critical_codes, ncrit, masked_out):
@@ -193,9 +206,7 @@ def plane_critical(values, mask, use_mask, bright, for_h0, ny, nx, count, reps, 
                 for x in range(nx):
                     codes[x] = ~codes[x]
         if check_finite:
-            for x in range(row, row + nx):
-                if not np.isfinite(values[x]) and not (use_mask and not mask[x]):
-                    nonfinite += 1
+            nonfinite += _row_nonfinite(values[row:row + nx], mask[row:row + nx], use_mask)
         if critical.shape[0] < ncrit + nx:
             critical = _grow(critical, ncrit + nx)
             critical_codes = _grow(critical_codes, critical.shape[0])
