@@ -188,9 +188,13 @@ class _Prepared:
 
 
 def _sorted_rows(rows: np.ndarray) -> np.ndarray:
-    """Rows by decreasing persistence, ties by birth voxel (deterministic)."""
-    pers = np.abs(rows["birth"] - rows["death"])
-    return rows[np.lexsort((rows["birth_voxel"], -pers))]
+    """Rows by decreasing persistence, ties by birth voxel (deterministic).
+
+    Two stable radix sorts (birth voxel, then persistence), as a lexicographic sort.
+    """
+    by_voxel = sort_voxels(np.ascontiguousarray(rows["birth_voxel"]))[0]
+    pers = np.abs(rows["birth"] - rows["death"])[by_voxel]
+    return rows[by_voxel[sort_voxels(pers, descending=True)[0]]]
 
 
 def _cavity_rows(tree: CavityTree) -> np.ndarray:
