@@ -32,7 +32,7 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
-from ._kernels import _find_neg, _grow, add_distinct
+from ._kernels import _find_neg, _grow, add_distinct, eldest_root
 from ._ring import RING_DX, RING_DY
 
 __all__ = ["plane_cavity_merges", "plane_critical", "plane_h0_merges", "plane_links"]
@@ -421,10 +421,7 @@ def plane_cavity_merges(order, start, links, uf):
             uf[v] = -(nnodes + 2)
             nnodes += 1
             continue
-        best = roots[0]
-        for q in range(1, nr):
-            if uf[roots[q]] > uf[best]:
-                best = roots[q]
+        best = eldest_root(uf, roots, nr)
         eldest = -uf[best] - 2
         for q in range(nr):
             r = roots[q]
