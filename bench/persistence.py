@@ -1,10 +1,20 @@
-"""Persistence engine (H0 + cavities) against sorting, labelling and watershed.
+"""Persistence engine (H0 + cavities) against sorting, labelling, watershed and gudhi (2D).
 
 Input (invented, for this measurement only): Gaussian-smoothed white noise, scaled to the
-full uint16 range, 128^3 and 256^3 voxels (512^3 with ``--large``).
+full uint16 range: 1024^2 and 2048^2 pixels, 128^3 and 256^3 voxels (512^3 with
+``--large``).
 
-Targets: ours / numpy stable argsort <= 8 at 256^3; ours / skimage watershed <= 0.2 at
-128^3; extra memory <= 12 bytes per voxel beyond the input; 512^3 / 256^3 time <= 10.
+Targets: 2D, ours / gudhi's 2D path <= 1 at 1024^2 and 2048^2; 3D, ours / numpy stable
+argsort <= 8 at 256^3; ours / skimage watershed <= 0.2 at 128^3; extra memory <= 12 bytes
+per voxel beyond the input; 512^3 / 256^3 time <= 10.
+
+2D reference: gudhi (the general-purpose computational-topology library, an optional
+extra: ``pip install cavitas[bench]``; without it those rows say so) computes H0 and H1 of
+a 2D image of top-dimensional cells with a dedicated path, the one
+``gudhi.sklearn.CubicalPersistence`` runs for 2D input. That is our ``walls="dark",
+connectivity=2``; both diagrams are compared before timing. "general kernels" is the
+2D path before the local pairing (every pixel through the union-find), kept for the
+cavity tree with sizes.
 
 Times are the best of three runs (one at 512^3). "ours" is one ``persistence(image)`` call
 as a user makes it: on a machine with two or more cores its two sweeps run in parallel
@@ -40,6 +50,89 @@ def smoothed_noise(side: int, *, seed: int = 1) -> np.ndarray:
     field -= lo
     field *= 65535.0 / (hi - lo)
     return field.astype(np.uint16)
+
+
+def smoothed_noise_2d(side: int, *, seed: int = 1) -> np.ndarray:
+    """Invented test image: smoothed noise in uint16 (sigma 2 pixels)."""
+    rng = np.random.default_rng(seed)
+    field = ndi.gaussian_filter(rng.standard_normal((side, side), dtype=np.float32), 2.0)
+    field -= field.min()
+    field *= 65535.0 / field.max()
+    return field.astype(np.uint16)
+
+
+def _gudhi_2d():
+    """gudhi's dedicated 2D function (top-dimensional cells, sublevel), or None."""
+    try:
+        from gudhi._pers_cub_low_dim_ext import _persistence_on_rectangle_from_top_cells
+    except ImportError:
+        return None
+    return lambda cells: _persistence_on_rectangle_from_top_cells(cells, 0.0)
+
+
+def _same_diagram(dgm: Diagram, gudhi_pairs) -> bool:
+    """Whether our (birth, death) multisets equal gudhi's, per dimension."""
+    def by_rows(pairs):
+        return pairs[np.lexsort((pairs[:, 1], pairs[:, 0]))]
+
+    for dim, theirs in enumerate(gudhi_pairs):
+        rows = dgm.pairs(dim)
+        ours = np.stack([rows["birth"], rows["death"]], 1)
+        if not np.array_equal(by_rows(ours), by_rows(np.asarray(theirs, float))):
+            return False
+    return True
+
+
+def _general_2d(image: np.ndarray) -> None:
+    """The 2D path before local pairing: both general sweeps, one after the other."""
+    prep = _Prepared(image, "dark", 2, None, plane=False)
+    parent = prep.new_parent()
+    prep.h0(parent)
+    _cavity_rows(prep.tree(parent))
+
+
+def _plane_rows() -> list[dict]:
+    gudhi_2d = _gudhi_2d()
+    rows: list[dict] = []
+    if gudhi_2d is None:
+        rows.append({"metric": "2D gudhi comparison", "value": "skipped",
+                     "note": "gudhi is not installed (pip install cavitas[bench])"})
+    persistence(smoothed_noise_2d(32), walls="dark", connectivity=2)
+    for side in (1024, 2048):
+        image = smoothed_noise_2d(side)
+        as_float = image.astype(np.float64)
+        clock = _Clock(best_of=5)
+        dgm = clock("ours", persistence, image, walls="dark", connectivity=2)
+        clock("ours float64", persistence, as_float, walls="dark", connectivity=2)
+        clock("one thread", persistence, image, walls="dark", connectivity=2, parallel=False)
+        clock("general", _general_2d, image)
+        wall, cpu = clock.wall, clock.cpu
+        tag = f"{side}^2"
+        rows += [
+            {"metric": f"{tag} ours (H0 + cavities)", "value": f"{wall['ours'] * 1e3:.1f} ms",
+             "note": f"{len(dgm.pairs(0))} H0 pairs, {len(dgm.pairs(1))} cavities; "
+                     f"{usable_cores()} core(s)"},
+            {"metric": f"{tag} ours / general kernels",
+             "value": f"{wall['ours'] / wall['general']:.2f} "
+                      f"(one thread {wall['one thread'] / wall['general']:.2f})",
+             "note": f"general {wall['general'] * 1e3:.1f} ms, one thread"},
+        ]
+        if gudhi_2d is None:
+            continue
+        same = _same_diagram(dgm, clock("gudhi", gudhi_2d, as_float))
+        rows += [
+            {"metric": f"{tag} gudhi 2D path", "value": f"{wall['gudhi'] * 1e3:.1f} ms",
+             "note": "same diagram" if same else "DIAGRAMS DIFFER"},
+            {"metric": f"{tag} ours / gudhi",
+             "value": f"{wall['ours'] / wall['gudhi']:.2f} (cpu {cpu['ours'] / cpu['gudhi']:.2f})",
+             "target": "<= 1"},
+            {"metric": f"{tag}   one thread / gudhi",
+             "value": f"{wall['one thread'] / wall['gudhi']:.2f}", "note": "parallel=False"},
+            {"metric": f"{tag}   float64 input / gudhi",
+             "value": f"{wall['ours float64'] / wall['gudhi']:.2f}",
+             "note": "the image gudhi reads"},
+        ]
+    return rows
 
 
 def _rss_kib(field: str) -> int:
@@ -114,7 +207,7 @@ class _Clock:
 
 def _ours_in_steps(image: np.ndarray, clock: _Clock) -> Diagram:
     """persistence(image) step by step (the same calls it makes), timing each step."""
-    prep = clock("sort", _Prepared, image, "bright", 1, None)
+    prep = clock("sort", _Prepared, image, "bright", 1, None, plane=False)
     parent = prep.new_parent()
     h0 = clock("H0 sweep", prep.h0, parent)
     tree = clock("cavity sweep", prep.tree, parent)
@@ -148,10 +241,10 @@ def _measure(side: int, *, watershed: bool) -> dict:
 
 
 def run(args) -> list[dict]:
-    """Measure at 128^3 and 256^3 (and 512^3 with ``args.large``)."""
+    """Measure at 1024^2 and 2048^2, 128^3 and 256^3 (and 512^3 with ``args.large``)."""
+    rows = _plane_rows()
     persistence(smoothed_noise(16))  # compile (or load the cached kernels) before timing
     sides = [128, 256] + ([512] if getattr(args, "large", False) else [])
-    rows: list[dict] = []
     results = {}
     for side in sides:
         r = results[side] = _measure(side, watershed=side == 128)

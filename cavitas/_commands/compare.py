@@ -7,7 +7,6 @@ from pathlib import Path
 from typing import Any
 
 from .._caution import RESEARCH_ONLY
-from .._json import dumps
 
 __all__ = ["register", "run"]
 
@@ -54,6 +53,7 @@ def run(args: argparse.Namespace) -> int:
     import numpy as np
 
     from .._errors import InputFileError
+    from .._json import dumps
     from ..compare import border_labels, compare_labels
     from ..io import read
 

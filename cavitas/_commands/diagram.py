@@ -7,12 +7,8 @@ import sys
 from pathlib import Path
 from typing import Any
 
-import numpy as np
-from tqdm import tqdm
-
 from .._caution import RESEARCH_ONLY
 from .._errors import InputFileError, ParameterError
-from ..io._atomic import check_writable
 from ._reading import add_reading_options, reading_from_args
 
 __all__ = ["register", "run"]
@@ -77,7 +73,9 @@ def register(subparsers: Any, *, parents: list[argparse.ArgumentParser],
     return parser
 
 
-def _read_mask(path: str, shape: tuple[int, ...], read: Any) -> np.ndarray:
+def _read_mask(path: str, shape: tuple[int, ...], read: Any) -> Any:
+    import numpy as np
+
     mask = np.asarray(read(path).data) != 0
     if mask.shape != shape:
         raise InputFileError(
@@ -88,8 +86,11 @@ def _read_mask(path: str, shape: tuple[int, ...], read: Any) -> np.ndarray:
 
 def run(args: argparse.Namespace) -> int:
     """Read ``args.file``, compute its diagram, write the four outputs, print the summary."""
+    from tqdm import tqdm
+
     from ..cubical import format_summary, persistence, save_diagram
     from ..io import read
+    from ..io._atomic import check_writable
     from ..report.diagram_plots import plot_barcode, plot_diagram, save_figure
 
     if args.bars < 1:

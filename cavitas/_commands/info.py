@@ -5,13 +5,14 @@ from __future__ import annotations
 import argparse
 import logging
 import sys
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from .._errors import EXIT_INTERNAL, CavitasError, ChoiceNeeded
-from .._json import dumps
-from ..io import Volume, estimate_memory_bytes, read, summarize
 from ._reading import add_reading_options, reading_from_args
 from ._words import in_option_words
+
+if TYPE_CHECKING:  # numpy and the readers are imported when a file is read (fast --help)
+    from ..io import Volume
 
 __all__ = ["describe", "register", "run"]
 
@@ -66,10 +67,13 @@ def describe(volume: Volume, *, progress: Any = None) -> dict[str, Any]:
     Examples
     --------
     >>> import numpy as np
+    >>> from cavitas.io import Volume
     >>> facts = describe(Volume(np.arange(8, dtype=np.uint8).reshape(2, 4)))
     >>> facts["shape"], facts["min"], facts["max"], facts["memory_bytes"]
     ([2, 4], 0, 7, 424)
     """
+    from ..io import estimate_memory_bytes, summarize
+
     stats = summarize(volume.data, progress=progress)
     return {
         "source": volume.source,
@@ -164,6 +168,8 @@ def read_first_choice(name: str, options: dict[str, Any]) -> tuple[Volume, dict[
     >>> volume.shape, held
     ((2, 3), {'key': ['a', 'b']})
     """
+    from ..io import read
+
     options, held = dict(options), dict[str, list]()
     while True:
         try:
@@ -185,6 +191,8 @@ def _describe_file(name: str, options: dict[str, Any], quiet: bool) -> dict[str,
 
 def run(args: argparse.Namespace) -> int:
     """Describe each file; carry on past failures; return the worst exit code."""
+    from .._json import dumps
+
     options = reading_from_args(args).kwargs()
     failed = 0
     reader_log = logging.getLogger("cavitas.io")

@@ -36,7 +36,7 @@ from numba.cpython.unsafe.numbers import trailing_zeros
 from ._neighbors import is_interior, neighbor_offsets, neighbor_or_outside, unravel3
 from ._prefetch import prefetch
 
-__all__ = ["add_distinct", "cavity_sweep_kernel", "h0_sweep", "neighbor_chain",
+__all__ = ["add_distinct", "cavity_sweep_kernel", "eldest_root", "h0_sweep", "neighbor_chain",
            "prefetch_around"]
 
 #: How many voxels ahead in the sweep order the neighbourhood is prefetched.
@@ -144,6 +144,17 @@ def add_distinct(items, count, value):
             return count
     items[count] = value
     return count + 1
+
+
+@njit(cache=True, inline="always")
+def eldest_root(parent, roots, nr):
+    """The root among ``roots[:nr]`` with the least negative code: in a cavity sweep, the
+    eldest node (the outside first of all)."""
+    best = roots[0]
+    for q in range(1, nr):
+        if parent[roots[q]] > parent[best]:
+            best = roots[q]
+    return best
 
 
 @njit(cache=True)
@@ -349,10 +360,7 @@ def cavity_sweep_kernel(order, parent, mask, use_mask, offsets_flat, offsets_zyx
             parent[v] = -(nnodes + 2)
             nnodes += 1
             continue
-        best = roots[0]
-        for q in range(1, nr):
-            if parent[roots[q]] > parent[best]:
-                best = roots[q]
+        best = eldest_root(parent, roots, nr)
         eldest = -parent[best] - 2
         for q in range(nr):
             r = roots[q]

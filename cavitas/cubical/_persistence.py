@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from collections.abc import Iterable
 from concurrent.futures import ThreadPoolExecutor
+from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
@@ -14,6 +15,8 @@ from ..io._volume import Volume
 from ._diagram import PAIR_DTYPE, Diagram
 from ._kernels import cavity_sweep_kernel, h0_sweep, neighbor_chain
 from ._neighbors import check_connectivity, dual_connectivity, grid_shape3
+from ._plane import plane_cavity_merges, plane_critical, plane_h0_merges, plane_links
+from ._ring import ring_tables
 from ._sort import engine_array, index_dtype, sort_voxels
 from ._tree import CavityTree
 
@@ -24,10 +27,32 @@ __all__ = ["cavity_sweep", "persistence"]
 _PARALLEL_FROM = 65_536
 
 
-class _Prepared:
-    """A validated image: flat values, mask, sweep order and grid geometry."""
+@dataclass(frozen=True)
+class _CriticalPixels:
+    """The pixels a 2D sweep visits (:mod:`._plane`): flat indices and values in raster
+    order, their sweep ``order``, and the links of each (``links[start[c]:start[c + 1]]``)."""
 
-    def __init__(self, image: Any, walls: str, connectivity: object, mask: Any) -> None:
+    pixels: np.ndarray
+    values: np.ndarray
+    order: np.ndarray
+    start: np.ndarray
+    links: np.ndarray
+
+    def new_uf(self) -> np.ndarray:
+        """A union-find work array over them (one more slot: the outside)."""
+        return np.empty(len(self.pixels) + 1, self.pixels.dtype)
+
+
+class _Prepared:
+    """A validated image: flat values, mask, grid geometry and, for the general kernels,
+    the sweep order.
+
+    ``plane`` (default: for 2D images) selects the 2D sweeps of :mod:`._plane`, which sort
+    only the critical pixels and build the cavity tree without node sizes.
+    """
+
+    def __init__(self, image: Any, walls: str, connectivity: object, mask: Any,
+                 plane: bool | None = None) -> None:
         if isinstance(image, Volume):
             image = image.data
         arr = np.asarray(image)  # a view of an ndarray or a memory map, not a copy
@@ -58,26 +83,59 @@ class _Prepared:
             self.mask = np.ascontiguousarray(mask).reshape(-1)
             if not self.mask.any():
                 raise ParameterError("mask selects no voxel; expected at least one True value.")
-        self.order, nonfinite = sort_voxels(self.flat, self.mask, descending=not self.bright)
+        self.plane = self.ndim == 2 if plane is None else plane
+        if not self.plane:
+            self.order, nonfinite = sort_voxels(self.flat, self.mask, descending=not self.bright)
+            self._reject_nonfinite(nonfinite)
+        self.grid = grid_shape3(self.shape)
+        self.zmargin = 1 if self.ndim == 3 else 0
+
+    def _reject_nonfinite(self, nonfinite: int) -> None:
         if nonfinite:
             where = "inside the mask" if self.mask is not None else "(mask them out to skip them)"
             raise InputFileError(
                 f"image holds {nonfinite} NaN or infinite value(s) {where}; expected finite "
                 "intensities."
             )
-        self.grid = grid_shape3(self.shape)
-        self.zmargin = 1 if self.ndim == 3 else 0
 
     def new_parent(self) -> np.ndarray:
         """A union-find work array (n + 1 slots; the kernels initialise it)."""
         return np.empty(self.flat.shape[0] + 1, index_dtype(self.flat.shape[0] + 1))
 
+    def _plane_critical(self, for_h0: bool, parent: np.ndarray | None) -> _CriticalPixels:
+        """Steps 1 and 2 of :mod:`._plane`: the critical pixels, linked, in sweep order."""
+        conn = self.connectivity if for_h0 else dual_connectivity(2, self.connectivity)
+        count, reps = ring_tables(conn)
+        values = self.flat.view(np.uint8) if self.flat.dtype == np.bool_ else self.flat
+        use_mask = self.mask is not None
+        mask_u8 = self.mask.view(np.uint8) if use_mask else np.zeros(1, np.uint8)
+        if parent is None:
+            parent = self.new_parent()  # freed when this method returns
+        ny, nx = self.shape
+        args = (values, mask_u8, use_mask, self.bright, for_h0, ny, nx)
+        pixels, codes, max_links, nonfinite = plane_critical(*args, count, reps, parent,
+                                                             values.dtype.kind == "f")
+        self._reject_nonfinite(nonfinite)
+        start = np.empty(len(pixels) + 1, index_dtype(max_links + 1))
+        links = np.empty(max_links, pixels.dtype)
+        links = links[:plane_links(*args, conn == 2, count, reps, parent, pixels, codes, start,
+                                   links)]
+        del codes
+        pixel_values = values[pixels]
+        order, _ = sort_voxels(pixel_values, descending=not self.bright)
+        return _CriticalPixels(pixels, pixel_values, order, start, links)
+
     def h0(self, parent: np.ndarray | None = None) -> np.ndarray:
-        # A work array made here is an argument only, so it is freed as the kernel returns.
-        births, deaths, essential = h0_sweep(
-            self.flat, self.order, self.new_parent() if parent is None else parent,
-            *neighbor_chain(self.shape, self.connectivity), *self.grid, self.zmargin,
-        )
+        if self.plane:
+            crit = self._plane_critical(True, parent)
+            births, deaths, essential = (crit.pixels[a] for a in plane_h0_merges(
+                crit.order, crit.start, crit.links, crit.values, crit.new_uf()))
+        else:
+            # A work array made here is an argument only, so it is freed as the kernel returns.
+            births, deaths, essential = h0_sweep(
+                self.flat, self.order, self.new_parent() if parent is None else parent,
+                *neighbor_chain(self.shape, self.connectivity), *self.grid, self.zmargin,
+            )
         rows = np.empty(len(births) + len(essential), PAIR_DTYPE)
         rows["birth_voxel"] = np.concatenate((essential, births))
         rows["death_voxel"] = np.concatenate((np.full(len(essential), -1), deaths))
@@ -87,13 +145,22 @@ class _Prepared:
         return _sorted_rows(rows)
 
     def tree(self, parent: np.ndarray | None = None) -> CavityTree:
-        neighbors = neighbor_chain(self.shape, dual_connectivity(self.ndim, self.connectivity))
-        use_mask = self.mask is not None
-        mask_u8 = self.mask.view(np.uint8) if use_mask else np.zeros(1, np.uint8)
-        core, breach, tparent, size = (a.astype(np.int64) for a in cavity_sweep_kernel(
-            self.order, self.new_parent() if parent is None else parent, mask_u8, use_mask,
-            *neighbors, *self.grid, self.zmargin,
-        ))  # the kernel grows 4-byte arrays while its work array is alive
+        """The cavity tree; without node sizes (``size=None``) on the 2D path."""
+        if self.plane:
+            crit = self._plane_critical(False, parent)
+            core, breach, tparent = plane_cavity_merges(
+                crit.order, crit.start, crit.links, crit.new_uf())
+            for nodes in (core, breach):
+                nodes[nodes >= 0] = crit.pixels[nodes[nodes >= 0]]
+            size = None
+        else:
+            neighbors = neighbor_chain(self.shape, dual_connectivity(self.ndim, self.connectivity))
+            use_mask = self.mask is not None
+            mask_u8 = self.mask.view(np.uint8) if use_mask else np.zeros(1, np.uint8)
+            core, breach, tparent, size = (a.astype(np.int64) for a in cavity_sweep_kernel(
+                self.order, self.new_parent() if parent is None else parent, mask_u8, use_mask,
+                *neighbors, *self.grid, self.zmargin,
+            ))  # the kernel grows 4-byte arrays while its work array is alive
         core_level = np.empty(len(core))
         core_level[1:] = self.flat[core[1:]]
         core_level[0] = -np.inf if self.bright else np.inf
@@ -121,9 +188,13 @@ class _Prepared:
 
 
 def _sorted_rows(rows: np.ndarray) -> np.ndarray:
-    """Rows by decreasing persistence, ties by birth voxel (deterministic)."""
-    pers = np.abs(rows["birth"] - rows["death"])
-    return rows[np.lexsort((rows["birth_voxel"], -pers))]
+    """Rows by decreasing persistence, ties by birth voxel (deterministic).
+
+    Two stable radix sorts (birth voxel, then persistence), as a lexicographic sort.
+    """
+    by_voxel = sort_voxels(np.ascontiguousarray(rows["birth_voxel"]))[0]
+    pers = np.abs(rows["birth"] - rows["death"])[by_voxel]
+    return rows[by_voxel[sort_voxels(pers, descending=True)[0]]]
 
 
 def _cavity_rows(tree: CavityTree) -> np.ndarray:
@@ -222,6 +293,12 @@ def persistence(
     per tree node). A non-C-contiguous input is copied once. The kernels release the GIL,
     so several images can also be processed in threads.
 
+    A 2D image takes a shorter way to the same pairs (:mod:`._plane`): one pass in raster
+    order settles every pixel whose earlier neighbours form one piece of its 8-pixel ring
+    (most pixels), and only the others (about 4 % of a smooth image, up to half of white
+    noise) are sorted and go through the union-find. Memory per sweep: one 4-byte array
+    per pixel and about 16 bytes per such critical pixel.
+
     The cavity diagram follows from Alexander duality: cavities of the wall set are the
     components of the complement that do not reach the outside.
 
@@ -304,5 +381,5 @@ def cavity_sweep(
     >>> int(order[-1]), tree.n_nodes, int(tree.core[1]), float(tree.breach_level[1])
     (18, 2, 12, 5.0)
     """
-    prep = _Prepared(image, walls, connectivity, mask)
+    prep = _Prepared(image, walls, connectivity, mask, plane=False)  # the tree's sizes
     return prep.order, prep.tree()
