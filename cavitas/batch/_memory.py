@@ -9,7 +9,7 @@ from typing import Any
 
 import numpy as np
 
-from ..io._memory import estimate_memory_bytes
+from ..io._memory import available_memory, estimate_memory_bytes
 
 __all__ = ["MEMORY_SHARE", "admits", "available_memory", "estimate_task_bytes"]
 
@@ -47,28 +47,6 @@ def admits(need: int, used: int, running: int, budget: int | None, path: str) ->
         log.warning("'%s' may need %.1f GiB, more than the %.1f GiB budget; running it "
                     "alone.", path, need / 2**30, budget / 2**30)
     return True
-
-
-def available_memory() -> int | None:
-    """Bytes of memory available to new processes now (``MemAvailable`` on Linux).
-
-    Examples
-    --------
-    >>> mem = available_memory()
-    >>> mem is None or mem > 0
-    True
-    """
-    try:
-        with open("/proc/meminfo", encoding="ascii") as fh:
-            for line in fh:
-                if line.startswith("MemAvailable:"):
-                    return int(line.split()[1]) * 1024
-    except (OSError, ValueError, IndexError):
-        pass
-    try:
-        return os.sysconf("SC_AVPHYS_PAGES") * os.sysconf("SC_PAGE_SIZE")
-    except (OSError, ValueError, AttributeError):
-        return None
 
 
 def _stored_bytes(path: Path) -> int:

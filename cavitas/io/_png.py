@@ -13,9 +13,9 @@ from typing import Any
 
 import numpy as np
 
-from .._errors import CavitasError, InputFileError
 from ._assemble import Decoded, note
 from ._axes import select_planes
+from ._failures import reading
 
 __all__ = ["read_png"]
 
@@ -27,7 +27,7 @@ def read_png(path: Path, *, channel: int | None = None) -> Decoded:
     from PIL import Image  # Pillow: a dependency of matplotlib and scikit-image
 
     meta: dict[str, Any] = {"format": "PNG"}
-    try:
+    with reading(path, "PNG"):
         with Image.open(path) as image:
             image.load()
             mode, info = image.mode, dict(image.info)
@@ -38,10 +38,6 @@ def read_png(path: Path, *, channel: int | None = None) -> Decoded:
             data = data.astype(np.uint8)
         data, chosen = select_planes(data, "YXC"[: data.ndim], channel=channel, time=None,
                                      name=str(path))
-    except CavitasError:
-        raise
-    except Exception as exc:  # Pillow raises OSError, SyntaxError, ValueError ...
-        raise InputFileError(f"'{path}' cannot be read as PNG: {exc}.") from exc
     meta.update(chosen)
     spacing = None
     dpi = info.get("dpi")
