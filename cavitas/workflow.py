@@ -38,6 +38,7 @@ from ._table import Table
 from ._version import __version__
 from .io._atomic import atomic_path, check_writable
 from .io._checksum import input_checksum
+from .io._memory import check_memory, out_of_memory, reset_memory_guard, set_memory_guard
 
 __all__ = ["segment_file"]
 
@@ -147,7 +148,8 @@ def measured_regions(seg: Any, *, mask: np.ndarray | None = None, thickness: boo
 def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any = None, *,
                  force: bool = False, progress: bool = True,
                  read_options: dict[str, Any] | None = None, report: bool = True,
-                 thickness: bool = True, input_sha256: str | None = None) -> dict[str, Any]:
+                 thickness: bool = True, input_sha256: str | None = None,
+                 skip_memory_check: bool = False) -> dict[str, Any]:
     """Segment one file and write every output into ``outdir``; return a summary dict.
 
     Parameters
@@ -171,6 +173,12 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
     input_sha256 : str, optional
         The input's SHA-256 checksum (recorded in ``run.json``) when the caller has it
         already, as the batch runner does; it is computed otherwise.
+    skip_memory_check : bool
+        Run even when the estimated memory (:func:`cavitas.io.estimate_memory_bytes`)
+        exceeds the memory available; by default such an input is refused before the
+        computation starts (:class:`~cavitas._errors.InputFileError`), as is a file that
+        declares more voxels than memory holds. A ``MemoryError`` that still happens
+        becomes the same kind of sentence.
 
     Returns
     -------
@@ -214,10 +222,12 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
         steps.update()
         return now
 
+    guard = set_memory_guard(not skip_memory_check)
     try:
         tick = started
         stage("reading")
         volume = io.read(source, **dict(read_options or {}))
+        check_memory(source, volume.shape, volume.dtype)
         mask = _read_mask(params.mask, volume, source)
         if params.mesh and volume.ndim != 3:
             raise ParameterError(f"mesh needs a 3D volume; '{source}' is 2D.",
@@ -278,8 +288,11 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
                            encoding="utf-8")
         summary["outputs"]["run"] = str(planned["run"])
         steps.update()
+    except MemoryError as exc:
+        raise out_of_memory(source) from exc
     finally:
         steps.close()
+        reset_memory_guard(guard)
     return summary
 
 

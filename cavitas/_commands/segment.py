@@ -72,6 +72,10 @@ def register(subparsers: Any, *, parents: list[argparse.ArgumentParser],
     p.add_argument("--no-thickness", action="store_true",
                    help="skip the wall-thickness measurement (slow on thick walls)")
     p.add_argument("--force", action="store_true", help="replace outputs that already exist")
+    p.add_argument("--skip-memory-check", action="store_true",
+                   help="run even when the memory estimate (see cavitas info) exceeds the "
+                        "memory available; by default such an input is refused up front "
+                        "(exit 3) instead of failing or being killed half-way")
     p.set_defaults(func=run)
     return p
 
@@ -182,7 +186,8 @@ def run(args: argparse.Namespace) -> int:
     params, read_options = params_from_args(args), read_options_from_args(args)
     summary = segment_file(args.file, args.out, params, force=args.force,
                            progress=args.progress, read_options=read_options,
-                           report=not args.no_report, thickness=not args.no_thickness)
+                           report=not args.no_report, thickness=not args.no_thickness,
+                           skip_memory_check=args.skip_memory_check)
     if not args.quiet:
         unit = summary["unit"]
         enclosures = summary["enclosures"]

@@ -18,6 +18,7 @@ from typing import Any
 
 from .._errors import CavitasError
 from .._version import __version__
+from ..io._memory import out_of_memory
 from ._resume import (
     input_checksum,
     new_staging,
@@ -104,7 +105,7 @@ def failure_sentence(exc: BaseException, path: str) -> str:
     if isinstance(exc, CavitasError):
         return str(exc)
     if isinstance(exc, MemoryError):
-        return f"'{path}' needs more memory than was available; run it with fewer --jobs."
+        return str(out_of_memory(path))
     return f"Internal error on '{path}' ({type(exc).__name__}: {exc}); please report it."
 
 

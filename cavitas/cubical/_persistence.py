@@ -28,7 +28,9 @@ class _Prepared:
     """A validated image: flat values, mask, sweep order and grid geometry."""
 
     def __init__(self, image: Any, walls: str, connectivity: object, mask: Any) -> None:
+        name = "image"
         if isinstance(image, Volume):
+            name = f"'{image.name}'"
             image = image.data
         arr = np.asarray(image)  # a view of an ndarray or a memory map, not a copy
         if arr.ndim not in (2, 3):
@@ -37,7 +39,7 @@ class _Prepared:
             )
         if arr.size == 0:
             raise ParameterError(f"image must hold at least one voxel; got shape {arr.shape}.")
-        arr = engine_array(arr)
+        arr = engine_array(arr, name)
         if walls not in ("bright", "dark"):
             raise ParameterError(f"walls must be 'bright' or 'dark'; got {walls!r}.")
         self.shape = tuple(arr.shape)

@@ -22,7 +22,16 @@ from pathlib import Path
 
 from .._errors import CavitasError, InputFileError
 
-__all__ = ["reading", "unreadable"]
+__all__ = ["check_signature", "reading", "unreadable"]
+
+#: The bytes files of a format start with (the formats' published layouts: TIFF 6.0 and
+#: BigTIFF headers, PNG signature, NumPy ``.npy`` magic, zip local file / empty archive).
+SIGNATURES = {
+    "TIFF": (b"II*\0", b"MM\0*", b"II+\0", b"MM\0+"),
+    "PNG": (b"\x89PNG\r\n\x1a\n",),
+    "NumPy .npy": (b"\x93NUMPY",),
+    "NumPy .npz": (b"PK\x03\x04", b"PK\x05\x06"),
+}
 
 #: OS error codes and the plain words for them.
 _OS_REASONS = {
@@ -75,6 +84,27 @@ def unreadable(path: str | Path, kind: str, exc: BaseException) -> InputFileErro
     error = InputFileError(f"'{path}' cannot be read as {kind}: {reason}.")
     error.__cause__ = exc
     return error
+
+
+def check_signature(path: str | Path, kind: str) -> None:
+    """Refuse a file that does not start as files of ``kind`` (a key of SIGNATURES) do.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> target = pathlib.Path(tempfile.mkdtemp()) / "notes.tif"
+    >>> _ = target.write_text("hello")
+    >>> try:
+    ...     check_signature(target, "TIFF")
+    ... except InputFileError as exc:
+    ...     print(str(exc).split("' ", 1)[1])
+    is not a TIFF file: it does not start with the TIFF signature.
+    """
+    with open(path, "rb") as stream:
+        start = stream.read(8)
+    if not any(start.startswith(magic) for magic in SIGNATURES[kind]):
+        raise InputFileError(f"'{path}' is not a {kind} file: it does not start with the "
+                             f"{kind} signature.")
 
 
 @contextlib.contextmanager

@@ -23,7 +23,7 @@ import numpy as np
 from .._caution import RESEARCH_ONLY
 from .._errors import ChoiceNeeded, InputFileError, ParameterError
 from ._assemble import Decoded
-from ._failures import reading
+from ._failures import check_signature, reading
 from ._memory import check_declared, declared_bytes
 
 __all__ = ["read_npy", "read_npz", "write_npy", "write_npz"]
@@ -51,6 +51,7 @@ def _header(stream: BinaryIO, path: Path) -> tuple[tuple[int, ...], np.dtype, bo
 def read_npy(path: Path, *, mmap: bool = True) -> Decoded:
     """Read a ``.npy`` array (memory-mapped unless ``mmap=False``)."""
     with reading(path, "a NumPy .npy file"):
+        check_signature(path, "NumPy .npy")
         with open(path, "rb") as stream:
             shape, dtype, _ = _header(stream, path)
             stored = os.path.getsize(path) - stream.tell()
@@ -78,6 +79,7 @@ def _member(archive: zipfile.ZipFile, key: str, path: Path) -> np.ndarray:
 
 def read_npz(path: Path, *, key: str | None = None) -> Decoded:
     """Read one image array (and its optional spacing and unit) from a ``.npz`` file."""
+    check_signature(path, "NumPy .npz")
     with reading(path, "a NumPy .npz file"), zipfile.ZipFile(path) as archive:
         entries = [n[:-4] if n.endswith(".npy") else n for n in archive.namelist()]
         names = [k for k in entries if k not in METADATA_KEYS]

@@ -15,7 +15,7 @@ import numpy as np
 
 from ._assemble import Decoded, note
 from ._axes import select_planes
-from ._failures import reading
+from ._failures import check_signature, reading
 
 __all__ = ["read_png"]
 
@@ -28,6 +28,7 @@ def read_png(path: Path, *, channel: int | None = None) -> Decoded:
 
     meta: dict[str, Any] = {"format": "PNG"}
     with reading(path, "PNG"):
+        check_signature(path, "PNG")
         with Image.open(path) as image:
             image.load()
             mode, info = image.mode, dict(image.info)

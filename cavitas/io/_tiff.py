@@ -59,7 +59,7 @@ from .._caution import RESEARCH_ONLY
 from .._errors import CavitasError, InputFileError
 from ._assemble import Decoded, note
 from ._axes import select_planes
-from ._failures import unreadable
+from ._failures import check_signature, unreadable
 from ._logs import collect_log
 from ._memory import check_declared
 from ._units import centimetres_per, has_named_unit, normalise_unit
@@ -230,6 +230,7 @@ def read_tiff(path: Path, *, channel: int | None = None, time: int | None = None
               mmap: bool = True) -> Decoded:
     """Read the first image series of a TIFF file; see the module notes."""
     meta: dict[str, Any] = {}
+    check_signature(path, "TIFF")
     try:
         with collect_log("tifffile") as log, tifffile.TiffFile(path) as tif:
             if not len(tif.pages) or not tif.series:

@@ -44,6 +44,8 @@ from ._units import normalise_unit
 
 __all__ = ["is_zarr_store", "read_zarr"]
 
+#: The metadata files of a Zarr store (v2 array, v2 group, v3).
+_MARKERS = (".zarray", ".zgroup", "zarr.json")
 #: Accepted ``missing_chunks=`` values.
 MISSING_CHUNKS = ("error", "fill")
 _BLOSC_HEADER = struct.Struct("<4B3I")
@@ -54,7 +56,7 @@ _LETTERS = {"t": "T", "time": "T", "c": "C", "channel": "C", "z": "Z", "y": "Y",
 def is_zarr_store(path: Path) -> bool:
     """A Zarr store: a folder named ``*.zarr`` or holding Zarr's own metadata files."""
     return path.is_dir() and (path.name.lower().endswith(".zarr") or any(
-        (path / marker).exists() for marker in (".zarray", ".zgroup", "zarr.json")))
+        (path / marker).exists() for marker in _MARKERS))
 
 
 def _open(path: Path) -> Any:
@@ -67,6 +69,9 @@ def _open(path: Path) -> Any:
         ) from exc
     if not path.exists():
         raise InputFileError(f"Zarr store '{path}' does not exist.")
+    if not any((path / marker).is_file() for marker in _MARKERS):
+        raise InputFileError(f"'{path}' is not a readable Zarr store: it holds no Zarr "
+                             f"metadata ({', '.join(_MARKERS)}).")
     with reading(path, "a Zarr store"):
         return zarr, zarr.open(str(path), mode="r")
 
