@@ -12,7 +12,8 @@ atomically:
 ``diagram.png``       the diagram drawn, kept cavities filled, threshold shaded
 ``report.html``       self-contained report (``report=False`` skips it)
 ``run.json``          every parameter, chosen values, version, input SHA-256,
-                      timings, the outputs and the research-only caution
+                      timings, the outputs (relative to the folder) and the
+                      research-only caution
 ``enclosures.<ext>``  enclosures label map (``enclosures=True``)
 ``partition.<ext>``   every voxel of the specimen given to a region, walls split at
                       their ridge line (``partition=True``)
@@ -32,7 +33,7 @@ from typing import Any
 import numpy as np
 
 from ._caution import RESEARCH_ONLY
-from ._errors import InputFileError, ParameterError
+from ._errors import InputFileError, OutputError, ParameterError, safe_text
 from ._json import dumps
 from ._table import Table
 from ._version import __version__
@@ -209,6 +210,9 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
     planned = _planned_outputs(source, outdir, params, report=report)
     for target in planned.values():  # fail before computing, not half-way through writing
         check_writable(target, force=force, inputs=(source,))
+    if params.mesh and (outdir / "meshes").is_symlink():
+        raise OutputError(f"'{outdir / 'meshes'}' is a symbolic link; cavitas does not write "
+                          "through links in its output folder (remove it).")
     steps = tqdm(total=5 + bool(params.mesh), disable=not progress, unit="step",
                  desc=f"cavitas segment {source.name}", leave=False)
     timings: dict[str, float] = {}
@@ -262,7 +266,8 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
                 planned["report"], image=np.asarray(volume.data), labels=seg.labels,
                 spacing=volume.spacing, unit=volume.unit, regions=regions,
                 diagram=seg.diagram, kept=seg.kept, threshold=seg.threshold,
-                params=seg.params, figures=figures, title=source.name, source=source,
+                params=seg.params, figures=figures, title=safe_text(source.name),
+                source=safe_text(str(source)),
                 notes=[note for note in notes.values() if note],
                 force=force)
         tick = done("report", tick)
@@ -278,7 +283,7 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
             "parameters": seg.params,
             "summary": {k: v for k, v in summary.items() if k != "outputs"},
             "global_figures": figures,
-            "outputs": summary["outputs"],
+            "outputs": _relative(summary["outputs"], outdir),
             "timings_s": timings,
             "elapsed_s": round(time.perf_counter() - started, 3),
             "caution": RESEARCH_ONLY,
@@ -294,6 +299,18 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
         steps.close()
         reset_memory_guard(guard)
     return summary
+
+
+def _relative(outputs: dict[str, str], outdir: Path) -> dict[str, str]:
+    """Output paths relative to ``outdir`` (run.json stays right when the folder moves, as a
+    batch's staging folder does when it is published).
+
+    Examples
+    --------
+    >>> _relative({"labels": "out/labels.tif"}, Path("out"))
+    {'labels': 'labels.tif'}
+    """
+    return {key: Path(path).relative_to(outdir).as_posix() for key, path in outputs.items()}
 
 
 def _prepare_kernels(stage: Any) -> None:

@@ -101,4 +101,5 @@ def index_html(summary: Table, *, root: Path, params: Mapping[str, Any], version
 def write_index(path: Path, summary: Table, **kwargs: Any) -> None:
     """Write :func:`index_html` to ``path`` atomically (the batch owns this file)."""
     with atomic_path(path, force=True) as tmp:
-        tmp.write_text(index_html(summary, **kwargs), encoding="utf-8")
+        tmp.write_text(index_html(summary, **kwargs), encoding="utf-8",
+                       errors="backslashreplace")  # names that are not UTF-8
