@@ -221,3 +221,16 @@ def test_raw_shape_that_overflows_64_bits(tmp_path, shape):
     with pytest.raises(InputFileError, match=r"has 64 bytes, but shape") as caught:
         read(target, shape=shape, dtype="uint16")
     check_sentence(caught.value, target)
+
+
+def test_boolean_npy_is_described(tmp_path):
+    """A mask saved as bool .npy (one of the issue-14 findings): described as 0 and 1."""
+    np.save(tmp_path / "mask.npy", np.eye(6, dtype=bool))
+    facts = describe(read(tmp_path / "mask.npy"))
+    assert (facts["min"], facts["max"], facts["dtype"]) == (0, 1, "bool")
+
+
+def test_npz_spacing_of_text_is_a_clean_error(tmp_path):
+    np.savez(tmp_path / "a.npz", image=np.eye(6), spacing=np.array(["a", "b"]))
+    with pytest.raises(InputFileError, match=r"holds a spacing of <U1 values; expected numbers"):
+        read(tmp_path / "a.npz")

@@ -10,6 +10,7 @@ from .._caution import RESEARCH_ONLY
 from ._reading import add_dataset_option
 
 __all__ = [
+    "add_memory_option",
     "add_segment_options",
     "params_from_args",
     "read_options_from_args",
@@ -72,12 +73,18 @@ def register(subparsers: Any, *, parents: list[argparse.ArgumentParser],
     p.add_argument("--no-thickness", action="store_true",
                    help="skip the wall-thickness measurement (slow on thick walls)")
     p.add_argument("--force", action="store_true", help="replace outputs that already exist")
+    add_memory_option(p)
+    p.set_defaults(func=run)
+    return p
+
+
+def add_memory_option(p: argparse.ArgumentParser | Any) -> None:
+    """Add ``--skip-memory-check`` (shared by ``segment`` and ``batch``)."""
     p.add_argument("--skip-memory-check", action="store_true",
                    help="run even when the memory estimate (see cavitas info) exceeds the "
                         "memory available; by default such an input is refused up front "
-                        "(exit 3) instead of failing or being killed half-way")
-    p.set_defaults(func=run)
-    return p
+                        "in one sentence (exit 3; in a batch that input fails and the others "
+                        "go on) instead of failing or being killed half-way")
 
 
 def add_segment_options(p: argparse.ArgumentParser) -> None:

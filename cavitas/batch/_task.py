@@ -61,6 +61,8 @@ class Task:
         A worker that takes an ``input_sha256`` keyword also gets the input's checksum.
     read_options : mapping
         Options for reading the input (channel, time); passed to the worker when given.
+    skip_memory_check : bool
+        Passed to a worker that takes it: run even beyond the memory available.
     """
 
     path: str
@@ -71,6 +73,7 @@ class Task:
     force: bool = False
     worker: str = DEFAULT_WORKER
     read_options: Mapping[str, Any] = field(default_factory=dict)
+    skip_memory_check: bool = False
     version: str = __version__
 
 
@@ -143,6 +146,8 @@ def run_task(task: Task) -> dict[str, Any]:
             options["read_options"] = dict(task.read_options)
         if _accepts(worker, "input_sha256"):  # spare the worker a second pass over the input
             options["input_sha256"] = checksum
+        if task.skip_memory_check and _accepts(worker, "skip_memory_check"):
+            options["skip_memory_check"] = True
         figures = worker(task.path, staging, task.params, force=True, progress=False,
                          **options)
         seconds = time.perf_counter() - start

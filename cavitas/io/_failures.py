@@ -98,13 +98,13 @@ def check_signature(path: str | Path, kind: str) -> None:
     ...     check_signature(target, "TIFF")
     ... except InputFileError as exc:
     ...     print(str(exc).split("' ", 1)[1])
-    is not a TIFF file: it does not start with the TIFF signature.
+    cannot be read as TIFF: it does not start with the TIFF signature (it is not a TIFF file).
     """
     with open(path, "rb") as stream:
         start = stream.read(8)
     if not any(start.startswith(magic) for magic in SIGNATURES[kind]):
-        raise InputFileError(f"'{path}' is not a {kind} file: it does not start with the "
-                             f"{kind} signature.")
+        raise InputFileError(f"'{path}' cannot be read as {kind}: it does not start with "
+                             f"the {kind} signature (it is not a {kind} file).")
 
 
 @contextlib.contextmanager
