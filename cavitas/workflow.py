@@ -1,7 +1,9 @@
 """One file in, every segmentation output out: what ``cavitas segment`` and the batch runner call.
 
-:func:`segment_file` reads, segments, measures and writes into one folder, every file
-atomically:
+:func:`segment_file` reads, segments, measures and writes into one folder. The outputs
+are written into a hidden staging folder inside it and moved into place together once all
+are written, ``run.json`` (the completion record) last, so an interrupted run leaves no set
+that looks complete (:mod:`cavitas.io._staging`):
 
 ===================== ========================================================
 ``labels.<ext>``      chambers (int32; walls and outside 0), the input's geometry
@@ -40,6 +42,7 @@ from ._version import __version__
 from .io._atomic import atomic_path, check_writable
 from .io._checksum import input_checksum
 from .io._memory import check_memory, out_of_memory, reset_memory_guard, set_memory_guard
+from .io._staging import discard_staging, open_staging, publish_staged
 
 __all__ = ["segment_file"]
 
@@ -227,6 +230,7 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
         return now
 
     guard = set_memory_guard(not skip_memory_check)
+    staging = None
     try:
         tick = started
         stage("reading")
@@ -248,22 +252,25 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
         notes = run_notes(seg)
         tick = done("measure", tick)
         stage("writing")
-        written = _write_maps(seg, planned, params, force=force)
-        regions.to_csv(planned["regions"], force=force)
-        regions.to_json(planned["regions_json"], force=force)
-        _diagram_table(seg).to_csv(planned["diagram"], force=force)
-        _diagram_plot(seg, planned["diagram_plot"], force=force)
+        made = not outdir.exists()
+        staging = open_staging(outdir)  # published together at the end (io/_staging.py)
+        staged = {key: staging / path.name for key, path in planned.items()}
+        written = _write_maps(seg, staged, params, force=force)
+        regions.to_csv(staged["regions"], force=force)
+        regions.to_json(staged["regions_json"], force=force)
+        _diagram_table(seg).to_csv(staged["diagram"], force=force)
+        _diagram_plot(seg, staged["diagram_plot"], force=force)
         for key in ("regions", "regions_json", "diagram", "diagram_plot"):
-            written[key] = planned[key]
+            written[key] = staged[key]
         if params.mesh:
-            written["meshes"] = _write_meshes(seg, outdir, params.mesh, force=force)
+            written["meshes"] = _write_meshes(seg, staging, params.mesh, force=force)
         tick = done("write", tick)
         if report:
             from .report import write_report
 
             stage("report")
             written["report"] = write_report(
-                planned["report"], image=np.asarray(volume.data), labels=seg.labels,
+                staged["report"], image=np.asarray(volume.data), labels=seg.labels,
                 spacing=volume.spacing, unit=volume.unit, regions=regions,
                 diagram=seg.diagram, kept=seg.kept, threshold=seg.threshold,
                 params=seg.params, figures=figures, title=safe_text(source.name),
@@ -283,14 +290,17 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
             "parameters": seg.params,
             "summary": {k: v for k, v in summary.items() if k != "outputs"},
             "global_figures": figures,
-            "outputs": _relative(summary["outputs"], outdir),
+            "outputs": _relative(summary["outputs"], staging),
             "timings_s": timings,
             "elapsed_s": round(time.perf_counter() - started, 3),
             "caution": RESEARCH_ONLY,
         }
-        with atomic_path(planned["run"], force=force) as tmp:
+        with atomic_path(staged["run"], force=force) as tmp:
             tmp.write_text(dumps(record, indent=1, ensure_ascii=False, default=str),
                            encoding="utf-8")
+        publish_staged(staging, outdir)
+        staging = None
+        summary["outputs"] = {key: str(outdir / name) for key, name in record["outputs"].items()}
         summary["outputs"]["run"] = str(planned["run"])
         steps.update()
     except MemoryError as exc:
@@ -298,6 +308,8 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
     finally:
         steps.close()
         reset_memory_guard(guard)
+        if staging is not None:
+            discard_staging(staging, outdir, made=made)
     return summary
 
 

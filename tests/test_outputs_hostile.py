@@ -118,3 +118,29 @@ def test_same_size_corrupted_output_is_not_reused(tmp_path, rng):
                       progress=False, worker=STANDIN)
     assert again.results[0]["status"] == "failed"
     assert "is missing or changed" in again.results[0]["error"]
+
+
+def test_interrupted_run_leaves_nothing_that_looks_complete(tmp_path, square_ring,
+                                                            monkeypatch):
+    """Ctrl-C after the label map was written: no output is in the folder, and the same
+    command runs again without --force (outputs are published together, run.json last)."""
+    import cavitas.workflow as workflow
+
+    write(tmp_path / "ring.tif", square_ring)
+    out = tmp_path / "out"
+    out.mkdir()
+    abandoned = out / ".cavitas-staging-999999999-dead"  # a pid no Linux system reaches
+    abandoned.mkdir()
+
+    def interrupted(*args, **kwargs):
+        raise KeyboardInterrupt
+
+    monkeypatch.setattr(workflow, "_diagram_plot", interrupted)
+    with pytest.raises(KeyboardInterrupt):
+        segment_file(tmp_path / "ring.tif", out, progress=False, report=False)
+    assert list(out.iterdir()) == []  # the abandoned staging folder went too
+    monkeypatch.undo()
+    summary = segment_file(tmp_path / "ring.tif", out, progress=False, report=False)
+    assert summary["outputs"]["labels"] == str(out / "labels.tif")
+    assert sorted(p.name for p in out.iterdir()) == [
+        "diagram.csv", "diagram.png", "labels.tif", "regions.csv", "regions.json", "run.json"]
