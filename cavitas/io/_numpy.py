@@ -11,7 +11,6 @@ image arrays needs ``key=`` to choose one.
 
 from __future__ import annotations
 
-import math
 import os
 import zipfile
 from collections.abc import Sequence
@@ -70,11 +69,12 @@ def _member(archive: zipfile.ZipFile, key: str, path: Path) -> np.ndarray:
         shape, dtype, fortran = _header(stream, path)
         stored = archive.getinfo(name).file_size - stream.tell()
         check_declared(f"{path}' entry '{key}", shape, dtype, stored=stored)
-        data = np.frombuffer(stream.read(declared_bytes(path, shape, dtype)), dtype=dtype)
-    if data.size != math.prod(shape):
+        buffer = bytearray(declared_bytes(path, shape, dtype))  # read in place: no copy
+        got = stream.readinto(buffer)
+    if got != len(buffer):
         raise InputFileError(f"'{path}' entry '{key}' ends before its data do (the file is "
                              "cut short).")
-    return data.reshape(shape, order="F" if fortran else "C").copy()
+    return np.frombuffer(buffer, dtype=dtype).reshape(shape, order="F" if fortran else "C")
 
 
 def read_npz(path: Path, *, key: str | None = None) -> Decoded:
