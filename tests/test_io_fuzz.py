@@ -234,3 +234,23 @@ def test_npz_spacing_of_text_is_a_clean_error(tmp_path):
     np.savez(tmp_path / "a.npz", image=np.eye(6), spacing=np.array(["a", "b"]))
     with pytest.raises(InputFileError, match=r"holds a spacing of <U1 values; expected numbers"):
         read(tmp_path / "a.npz")
+
+
+@pytest.mark.parametrize("side", [20_000, 10**6])
+def test_png_declaring_a_huge_image_is_refused_before_decoding(tmp_path, side):
+    """A 1 kB PNG whose IHDR chunk (PNG specification 11.2.2) declares side x side grey
+    pixels: refused by Pillow's decompression-bomb limit or by the memory check."""
+    import struct
+    import zlib
+
+    def chunk(kind, data):
+        return (struct.pack(">I", len(data)) + kind + data
+                + struct.pack(">I", zlib.crc32(kind + data)))
+
+    header = struct.pack(">IIBBBBB", side, side, 8, 0, 0, 0, 0)
+    target = tmp_path / "bomb.png"
+    target.write_bytes(b"\x89PNG\r\n\x1a\n" + chunk(b"IHDR", header)
+                       + chunk(b"IDAT", zlib.compress(b"\0" * 1000)) + chunk(b"IEND", b""))
+    with pytest.raises(InputFileError) as caught:
+        read(target)
+    check_sentence(caught.value, target)
