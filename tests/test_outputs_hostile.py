@@ -144,3 +144,18 @@ def test_interrupted_run_leaves_nothing_that_looks_complete(tmp_path, square_rin
     assert summary["outputs"]["labels"] == str(out / "labels.tif")
     assert sorted(p.name for p in out.iterdir()) == [
         "diagram.csv", "diagram.png", "labels.tif", "regions.csv", "regions.json", "run.json"]
+
+
+def test_full_disk_leaves_no_partial_file(tmp_path, monkeypatch):
+    """The disk fills half-way through a write (ENOSPC, simulated): one sentence, exit 4,
+    and neither the target nor a temporary file is left."""
+    import tifffile
+
+    def half_then_full(target, *args, **kwargs):
+        Path(target).write_bytes(b"II*\0" + b"\0" * 100)
+        raise OSError(errno.ENOSPC, "No space left on device")
+
+    monkeypatch.setattr(tifffile, "imwrite", half_then_full)
+    with pytest.raises(OutputError, match=r"^Cannot write '.*a\.tif': No space left on device"):
+        write(tmp_path / "a.tif", np.zeros((4, 4), np.uint8))
+    assert list(tmp_path.iterdir()) == []
