@@ -27,6 +27,7 @@ from hypothesis import strategies as st
 
 from cavitas._commands.info import describe
 from cavitas._errors import CavitasError, InputFileError
+from cavitas.cli import main
 from cavitas.io import read
 from tests import malformed
 
@@ -151,6 +152,17 @@ def test_zarr_missing_chunk_is_an_error_or_filled_on_request(tmp_path, compresso
     filled = read(store, missing_chunks="fill")
     assert np.asarray(filled.data)[2, 3:, :4].max() == 0  # the fill value, as Zarr reads it
     assert any("1 of 8 chunks are missing" in w for w in filled.meta["warnings"])
+
+
+
+def test_zarr_missing_chunk_on_the_command_line(tmp_path, capsys):
+    pytest.importorskip("zarr")
+    store = malformed.zarr_seed(tmp_path, "zlib")
+    (store / "0.1.1").unlink()
+    assert main(["info", str(store)]) == 3
+    assert "give --missing-chunks fill if the writer" in capsys.readouterr().err
+    assert main(["info", str(store), "--missing-chunks", "fill"]) == 0
+    assert "1 of 8 chunks are missing" in capsys.readouterr().out
 
 
 def test_cut_blosc_chunk_is_detected_by_its_sizes(tmp_path):

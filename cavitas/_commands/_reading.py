@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 from typing import Any
 
-__all__ = ["add_dataset_option"]
+__all__ = ["add_dataset_option", "add_zarr_option"]
 
 
 def add_dataset_option(group: argparse.ArgumentParser | Any) -> None:
@@ -13,3 +13,12 @@ def add_dataset_option(group: argparse.ArgumentParser | Any) -> None:
     group.add_argument("--dataset", metavar="NAME",
                        help="dataset to read from an HDF5 file (.h5, .hdf5) holding several "
                             "image datasets, e.g. /volumes/raw (default: its only one)")
+
+
+def add_zarr_option(group: argparse.ArgumentParser | Any) -> None:
+    """Add ``--missing-chunks fill`` (accept Zarr stores with chunks left out)."""
+    group.add_argument("--missing-chunks", choices=("error", "fill"),
+                       help="a chunk missing from a Zarr store is an error (default: Zarr "
+                            "would read it as zeros), or 'fill': read it as the array's fill "
+                            "value and say how many were missing (for writers that leave "
+                            "out empty chunks)")

@@ -13,7 +13,7 @@ from tqdm import tqdm
 from .._caution import RESEARCH_ONLY
 from .._errors import InputFileError, ParameterError
 from ..io._atomic import check_writable
-from ._reading import add_dataset_option
+from ._reading import add_dataset_option, add_zarr_option
 
 __all__ = ["register", "run"]
 
@@ -67,6 +67,7 @@ def register(subparsers: Any, *, parents: list[argparse.ArgumentParser],
     parser.add_argument("--time", type=int, metavar="T",
                         help="time point to analyse in a time series (from 0)")
     add_dataset_option(parser)
+    add_zarr_option(parser)
     parser.add_argument("--one-thread", action="store_true",
                         help="run the wall and cavity sweeps one after the other instead of "
                              "at the same time: 8 instead of 12 bytes per voxel beyond the "
@@ -99,7 +100,7 @@ def run(args: argparse.Namespace) -> int:
     inputs = tuple(p for p in (args.file, args.mask) if p)
     targets = [check_writable(args.out / name, force=args.force, inputs=inputs)
                for name in OUTPUTS]
-    options = {k: getattr(args, k) for k in ("channel", "time", "dataset")
+    options = {k: getattr(args, k) for k in ("channel", "time", "dataset", "missing_chunks")
                if getattr(args, k) is not None}
     with tqdm(total=5, desc="diagram", unit="step", file=sys.stderr, disable=not args.progress,
               delay=1.0, leave=False) as bar:

@@ -10,7 +10,7 @@ from typing import Any
 from .._errors import EXIT_INTERNAL, CavitasError, ChoiceNeeded
 from .._json import dumps
 from ..io import Volume, estimate_memory_bytes, read, summarize
-from ._reading import add_dataset_option
+from ._reading import add_dataset_option, add_zarr_option
 from ._words import in_option_words
 
 __all__ = ["describe", "register", "run"]
@@ -80,6 +80,7 @@ def register(subparsers: Any, *, parents: list[argparse.ArgumentParser],
                         help="time point to read, counted from 0 (default: the first)")
     choice.add_argument("--key", help="array to read from a .npz file holding several")
     add_dataset_option(choice)
+    add_zarr_option(choice)
     geometry = parser.add_argument_group("geometry (replaces what the file states)")
     geometry.add_argument("--spacing", type=_numbers(float, "2 or 3"), metavar="Z,Y,X",
                           help="voxel size in (z, y, x) order, e.g. 2,0.5,0.5")
@@ -222,6 +223,7 @@ def _describe_file(name: str, options: dict[str, Any], quiet: bool) -> dict[str,
 def run(args: argparse.Namespace) -> int:
     """Describe each file; carry on past failures; return the worst exit code."""
     options = dict(channel=args.channel, time=args.time, key=args.key, dataset=args.dataset,
+                   missing_chunks=args.missing_chunks or "error",
                    spacing=args.spacing, unit=args.unit, shape=args.shape, dtype=args.dtype,
                    byte_order=args.byte_order, offset=args.offset)
     failed = 0

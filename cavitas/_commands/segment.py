@@ -7,7 +7,7 @@ from pathlib import Path
 from typing import Any
 
 from .._caution import RESEARCH_ONLY
-from ._reading import add_dataset_option
+from ._reading import add_dataset_option, add_zarr_option
 
 __all__ = [
     "add_memory_option",
@@ -162,6 +162,7 @@ def add_segment_options(p: argparse.ArgumentParser) -> None:
     g.add_argument("--channel", type=int, metavar="C", help="channel of a multichannel file")
     g.add_argument("--time", type=int, metavar="T", help="time point of a time series")
     add_dataset_option(g)
+    add_zarr_option(g)
 
 
 #: Command-line options that map one-to-one onto SegmentParams fields.
@@ -182,7 +183,7 @@ def params_from_args(args: argparse.Namespace) -> Any:
 
 def read_options_from_args(args: argparse.Namespace) -> dict[str, Any]:
     """The ``cavitas.io.read`` options given on the command line (channel, time, dataset)."""
-    return {k: getattr(args, k) for k in ("channel", "time", "dataset")
+    return {k: getattr(args, k) for k in ("channel", "time", "dataset", "missing_chunks")
             if getattr(args, k) is not None}
 
 
