@@ -146,7 +146,8 @@ def test_zarr_missing_chunk_is_an_error_or_filled_on_request(tmp_path, compresso
     pytest.importorskip("zarr")
     store = malformed.zarr_seed(tmp_path, compressor)
     (store / "1.1.0").unlink()
-    with pytest.raises(InputFileError, match=r"has no chunk 1\.1\.0 of its 8 chunks") as caught:
+    with pytest.raises(InputFileError,
+                       match=r"has no chunk 1\.1\.0, one of the 8 chunks to read") as caught:
         read(store)
     check_sentence(caught.value, store)
     filled = read(store, missing_chunks="fill")
@@ -267,3 +268,20 @@ def test_png_declaring_a_huge_image_is_refused_before_decoding(tmp_path, side):
     with pytest.raises(InputFileError) as caught:
         read(target)
     check_sentence(caught.value, target)
+
+
+def test_ome_zarr_only_the_chunks_read_must_be_there(tmp_path):
+    """A time series (OME-NGFF 0.4 axes t, y, x) whose second time point lost its chunk:
+    the first reads, the second is refused."""
+    zarr = pytest.importorskip("zarr")
+    group = zarr.open_group(str(tmp_path / "series.zarr"), mode="w", zarr_format=2)
+    array = group.create_array("0", shape=(2, 6, 7), chunks=(1, 6, 7), dtype="uint8")
+    array[:] = 5
+    group.attrs["multiscales"] = [{"version": "0.4", "datasets": [{"path": "0"}],
+                                   "axes": [{"name": "t", "type": "time"},
+                                            {"name": "y", "type": "space"},
+                                            {"name": "x", "type": "space"}]}]
+    (tmp_path / "series.zarr" / "0" / "1.0.0").unlink()
+    assert np.asarray(read(tmp_path / "series.zarr", time=0).data).min() == 5
+    with pytest.raises(InputFileError, match=r"has no chunk 1\.0\.0, one of the 1 chunks"):
+        read(tmp_path / "series.zarr", time=1)

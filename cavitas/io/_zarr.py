@@ -103,32 +103,40 @@ def _chunk_files(folder: Path) -> int:
                if not f.startswith(".") and f != "zarr.json")
 
 
-def _check_chunks(array: Any, name: Path, missing_chunks: str,
-                  meta: dict[str, Any]) -> None:
-    """Refuse missing chunks (unless filled) and Blosc chunks of the wrong size.
+def _check_chunks(array: Any, name: Path, missing_chunks: str, meta: dict[str, Any],
+                  fixed: Mapping[int, int] | None = None) -> None:
+    """Refuse missing chunks (unless filled) and Blosc chunks of the wrong size, among the
+    chunks read: those holding index ``fixed[axis]`` on each fixed axis (the chosen channel
+    and time point), all of them on the other axes.
 
     With ``missing_chunks="error"`` the search stops at the first missing chunk, which
     comes at the latest after every stored file was seen, so a damaged shape declaring
     millions of chunks cannot make it run long.
     """
-    check_declared(name, array.shape, array.dtype)
+    fixed = dict(fixed or {})
+    read_shape = [1 if axis in fixed else n for axis, n in enumerate(array.shape)]
+    check_declared(name, read_shape, array.dtype)
     if getattr(array, "shards", None) is not None:
         return  # sharded arrays index their chunks inside shard files
     folder = name / array.path if array.path else name
-    total, blosc = math.prod(array.cdata_shape), _is_blosc(array)
-    if missing_chunks == "fill" and not blosc:
+    ranges = [range(fixed[axis] // size, fixed[axis] // size + 1) if axis in fixed
+              else range(count) for axis, (count, size)
+              in enumerate(zip(array.cdata_shape, array.chunks, strict=True))]
+    total, blosc = math.prod(len(r) for r in ranges), _is_blosc(array)
+    if missing_chunks == "fill" and not blosc and not fixed:
         missing = max(total - _chunk_files(folder), 0)
     else:
         missing, expected = 0, math.prod(array.chunks) * array.dtype.itemsize
-        for coords in itertools.product(*(range(n) for n in array.cdata_shape)):
+        for coords in itertools.product(*ranges):
             chunk = folder / array.metadata.encode_chunk_key(coords)
             where = ".".join(map(str, coords))
             if not chunk.is_file():
                 if missing_chunks == "error":
                     raise InputFileError(
-                        f"'{name}' has no chunk {where} of its {total} chunks (Zarr would "
-                        "read it as the fill value); give missing_chunks='fill' if the "
-                        "writer left out empty chunks.", parameters=("missing_chunks",))
+                        f"'{name}' has no chunk {where}, one of the {total} chunks to read "
+                        "(Zarr would read it as the fill value); give missing_chunks='fill' "
+                        "if the writer left out empty chunks.",
+                        parameters=("missing_chunks",))
                 missing += 1
             elif blosc and (fault := _blosc_fault(chunk.read_bytes(), expected)):
                 raise InputFileError(f"'{name}' chunk {where} {fault}: the chunk is damaged.")
@@ -218,7 +226,10 @@ def _decode_ome(zarr: Any, group: Any, multiscale: Any, *, level: int,
     offset = _translation(dataset.get("coordinateTransformations"))
     if offset is not None:
         meta["origin"] = [offset[i] for i in kept]
-    _check_chunks(array, path, missing_chunks, meta)
+    chosen = {"T": info["time"], "C": info["channel"]}
+    fixed = {axis: chosen.get(letter) or 0 for axis, letter in enumerate(letters)
+             if letter not in "ZYX"}
+    _check_chunks(array, path, missing_chunks, meta, fixed)
     return Decoded(np.asarray(data[...]), spacing=tuple(scale[kept]),
                    unit=space_units.pop() if space_units else None, meta=meta)
 
