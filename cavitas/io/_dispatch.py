@@ -34,8 +34,8 @@ READ_SUFFIXES = {
     ".raw": "raw", ".bin": "raw", ".img": "raw",
 }
 #: Format -> its name in messages ("cannot be read as ...").
-_FORMAT_NAMES = {"tiff": "TIFF", "nifti": "NIfTI", "npy": "a NumPy .npy file",
-                 "npz": "a NumPy .npz file", "png": "PNG", "hdf5": "HDF5", "raw": "raw data",
+_FORMAT_NAMES = {"tiff": "TIFF", "nifti": "NIfTI", "npy": "NumPy .npy",
+                 "npz": "NumPy .npz", "png": "PNG", "hdf5": "HDF5", "raw": "raw data",
                  "zarr": "Zarr", "slices": "a stack of slices"}
 #: Extension -> format written.
 WRITE_SUFFIXES = {

@@ -49,7 +49,7 @@ def _header(stream: BinaryIO, path: Path) -> tuple[tuple[int, ...], np.dtype, bo
 
 def read_npy(path: Path, *, mmap: bool = True) -> Decoded:
     """Read a ``.npy`` array (memory-mapped unless ``mmap=False``)."""
-    with reading(path, "a NumPy .npy file"):
+    with reading(path, "NumPy .npy"):
         check_signature(path, "NumPy .npy")
         with open(path, "rb") as stream:
             shape, dtype, _ = _header(stream, path)
@@ -80,7 +80,7 @@ def _member(archive: zipfile.ZipFile, key: str, path: Path) -> np.ndarray:
 def read_npz(path: Path, *, key: str | None = None) -> Decoded:
     """Read one image array (and its optional spacing and unit) from a ``.npz`` file."""
     check_signature(path, "NumPy .npz")
-    with reading(path, "a NumPy .npz file"), zipfile.ZipFile(path) as archive:
+    with reading(path, "NumPy .npz"), zipfile.ZipFile(path) as archive:
         entries = [n[:-4] if n.endswith(".npy") else n for n in archive.namelist()]
         names = [k for k in entries if k not in METADATA_KEYS]
         if key is None:
