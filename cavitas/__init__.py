@@ -23,7 +23,10 @@ from typing import Any
 
 from ._caution import RESEARCH_ONLY
 from ._errors import CavitasError, InputFileError, OutputError, ParameterError
+from ._numba_cache import ensure_cache_dir
 from ._version import __version__
+
+ensure_cache_dir()  # before any kernel is compiled: a read-only install still runs
 
 #: Where each public name lives; loaded on first attribute access.
 _LAZY = {

@@ -43,6 +43,36 @@ EXIT_INTERRUPTED = 130
 EXIT_BROKEN_PIPE = 141  # 128 + SIGPIPE, as for any command whose reader stopped reading
 
 
+def safe_text(text: str) -> str:
+    """``text`` with bytes that are not UTF-8 (file names read with ``surrogateescape``)
+    written as ``\\xNN`` escapes, so it can be printed and written as UTF-8.
+
+    Examples
+    --------
+    >>> print(safe_text(b"caf\\xe9.tif".decode("utf-8", "surrogateescape")))
+    caf\\xe9.tif
+    """
+    try:
+        return text.encode("utf-8", "surrogateescape").decode("utf-8", "backslashreplace")
+    except UnicodeEncodeError:  # a lone surrogate that no byte stands for
+        return text.encode("utf-8", "backslashreplace").decode("utf-8")
+
+
+def one_line(text: str) -> str:
+    """``text`` on one printable line: control characters (a newline in a file name) and
+    bytes that are not UTF-8 (names read with ``surrogateescape``) written as escapes.
+
+    Examples
+    --------
+    >>> print(one_line("a" + chr(10) + "b.tif"))
+    a\\nb.tif
+    >>> print(one_line(b"caf\\xe9.tif".decode("utf-8", "surrogateescape")))
+    caf\\xe9.tif
+    """
+    return "".join(c if c.isprintable() or c == " " else repr(c)[1:-1]
+                   for c in safe_text(text))
+
+
 class CavitasError(ValueError):
     """Base class of every error cavitas raises on purpose.
 
@@ -64,7 +94,7 @@ class CavitasError(ValueError):
     exit_code = EXIT_INTERNAL
 
     def __init__(self, message: str, *, parameters: Sequence[str] = ()) -> None:
-        super().__init__(message)
+        super().__init__(one_line(message))
         self.parameters = tuple(parameters)
 
 

@@ -15,6 +15,8 @@ from typing import Any
 
 import numpy as np
 
+from ._errors import safe_text
+
 __all__ = ["dumps", "plain"]
 
 
@@ -33,10 +35,12 @@ def plain(value: Any, default: Callable[[Any], Any] | None = None) -> Any:
         return float(value) if math.isfinite(value) else None
     if isinstance(value, np.generic):
         return plain(value.item(), default)
-    if value is None or isinstance(value, (str, int)):
+    if isinstance(value, str):
+        return safe_text(value)  # a file name that is not UTF-8 (written escaped)
+    if value is None or isinstance(value, int):
         return value
     if isinstance(value, Mapping):
-        return {key: plain(item, default) for key, item in value.items()}
+        return {plain(key): plain(item, default) for key, item in value.items()}
     if isinstance(value, (list, tuple, np.ndarray)):
         return [plain(item, default) for item in value]
     return value if default is None else plain(default(value), None)

@@ -136,6 +136,9 @@ class ReadOptions:
         Array of a ``.npz`` file holding several.
     dataset : str or None
         Dataset of an HDF5 file holding several.
+    missing_chunks : {"error", "fill"} or None
+        Zarr stores: a missing chunk is an error (default), or read as the fill value and
+        counted in a warning.
     spacing : tuple of float or None
         Voxel size in ``(z, y, x)`` (2D: ``(y, x)``) order; replaces what the file states
         (PNG, ``.npy``, raw files and uncalibrated TIFFs state nothing).
@@ -165,6 +168,7 @@ class ReadOptions:
     time: int | None = None
     key: str | None = None
     dataset: str | None = None
+    missing_chunks: str | None = None
     spacing: tuple[float, ...] | None = None
     unit: str | None = None
     shape: tuple[int, ...] | None = None
@@ -187,6 +191,7 @@ class ReadOptions:
             "shape": lambda v: numbers_list("shape", v, integer=True, low=1),
             "dtype": _dtype_name,
             "byte_order": lambda v: choice("byte_order", v, tuple(BYTE_ORDERS)),
+            "missing_chunks": lambda v: choice("missing_chunks", v, ("error", "fill")),
         }
         for name, check in checked.items():
             value = getattr(self, name)

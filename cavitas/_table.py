@@ -23,7 +23,7 @@ from typing import Any
 
 import numpy as np
 
-from ._errors import InputFileError, ParameterError
+from ._errors import InputFileError, ParameterError, safe_text
 from ._json import dumps
 from .io._atomic import atomic_path
 
@@ -182,7 +182,7 @@ def _csv_cell(value: Any) -> str:
         return "" if math.isnan(value) else repr(float(f"{value:.{CSV_DIGITS}g}"))
     if isinstance(value, bool):
         return "true" if value else "false"
-    return str(value)
+    return safe_text(str(value))  # a file name that is not UTF-8 (written escaped)
 
 
 def _json_value(value: Any) -> Any:

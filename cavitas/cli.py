@@ -18,6 +18,7 @@ from ._caution import RESEARCH_ONLY
 from ._commands._words import in_option_words, option_names
 from ._errors import (
     EXIT_BROKEN_PIPE,
+    EXIT_INPUT,
     EXIT_INTERNAL,
     EXIT_INTERRUPTED,
     EXIT_PARAMETER,
@@ -163,6 +164,13 @@ def main(argv: Sequence[str] | None = None) -> int:
         return EXIT_INTERRUPTED
     except BrokenPipeError:
         return _reader_gone()
+    except MemoryError:  # beyond what the memory checks foresaw
+        if args.debug:
+            raise
+        print(f"cavitas {args.command}: error: the computation ran out of memory; crop or "
+              "downsample the input, or run it on a machine with more memory.",
+              file=sys.stderr)
+        return EXIT_INPUT
     except Exception as exc:  # a bug: say so plainly, the traceback on request
         if args.debug:
             raise

@@ -1,7 +1,9 @@
 """One file in, every segmentation output out: what ``cavitas segment`` and the batch runner call.
 
-:func:`segment_file` reads, segments, measures and writes into one folder, every file
-atomically:
+:func:`segment_file` reads, segments, measures and writes into one folder. The outputs
+are written into a hidden staging folder inside it and moved into place together once all
+are written, ``run.json`` (the completion record) last, so an interrupted run leaves no set
+that looks complete (:mod:`cavitas.io._staging`):
 
 ===================== ========================================================
 ``labels.<ext>``      chambers (int32; walls and outside 0), the input's geometry
@@ -12,7 +14,8 @@ atomically:
 ``diagram.png``       the diagram drawn, kept cavities filled, threshold shaded
 ``report.html``       self-contained report (``report=False`` skips it)
 ``run.json``          every parameter, chosen values, version, input SHA-256,
-                      timings, the outputs and the research-only caution
+                      timings, the outputs (relative to the folder) and the
+                      research-only caution
 ``enclosures.<ext>``  enclosures label map (``enclosures=True``)
 ``partition.<ext>``   every voxel of the specimen given to a region, walls split at
                       their ridge line (``partition=True``)
@@ -37,7 +40,7 @@ from typing import Any
 import numpy as np
 
 from ._caution import RESEARCH_ONLY
-from ._errors import InputFileError
+from ._errors import InputFileError, OutputError, safe_text
 from ._json import dumps
 from ._run_options import ReadOptions, RunOptions
 from ._settings import Settings
@@ -45,6 +48,8 @@ from ._table import Table
 from ._version import __version__
 from .io._atomic import atomic_path, check_writable
 from .io._checksum import input_checksum
+from .io._memory import check_memory, out_of_memory, reset_memory_guard, set_memory_guard
+from .io._staging import discard_staging, open_staging, publish_staged
 
 __all__ = ["ReadOptions", "RunOptions", "Settings", "segment_file"]
 
@@ -149,7 +154,8 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
                  options: RunOptions | None = None, force: bool = False, progress: bool = True,
                  read_options: ReadOptions | Mapping[str, Any] | None = None,
                  report: bool = True, thickness: bool = True,
-                 input_sha256: str | None = None) -> dict[str, Any]:
+                 input_sha256: str | None = None,
+                 skip_memory_check: bool = False) -> dict[str, Any]:
     """Segment one file and write every output into ``outdir``; return a summary dict.
 
     Parameters
@@ -177,6 +183,12 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
     input_sha256 : str, optional
         The input's SHA-256 checksum (recorded in ``run.json``) when the caller has it
         already, as the batch runner does; it is computed otherwise.
+    skip_memory_check : bool
+        Run even when the estimated memory (:func:`cavitas.io.estimate_memory_bytes`)
+        exceeds the memory available; by default such an input is refused before the
+        computation starts (:class:`~cavitas._errors.InputFileError`), as is a file that
+        declares more voxels than memory holds. A ``MemoryError`` that still happens
+        becomes the same kind of sentence.
 
     Returns
     -------
@@ -215,6 +227,9 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
     planned = _planned_outputs(source, outdir, options, report=report)
     for target in planned.values():  # fail before computing, not half-way through writing
         check_writable(target, force=force, inputs=(source,))
+    if options.mesh and (outdir / "meshes").is_symlink():
+        raise OutputError(f"'{outdir / 'meshes'}' is a symbolic link; cavitas does not write "
+                          "through links in its output folder (remove it).")
     steps = tqdm(total=5 + bool(options.mesh), disable=not progress, unit="step",
                  desc=f"cavitas segment {source.name}", leave=False)
     timings: dict[str, float] = {}
@@ -228,10 +243,13 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
         steps.update()
         return now
 
+    guard = set_memory_guard(not skip_memory_check)
+    staging = None
     try:
         tick = started
         stage("reading")
         volume = io.read(source, **dict(read_options or {}))
+        check_memory(source, volume.shape, volume.dtype)
         params.check_image(volume)  # before the kernels are loaded: fail fast
         options.check_image(volume)
         mask = _read_mask(options.mask, volume, source)
@@ -247,26 +265,30 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
         notes = run_notes(seg)
         tick = done("measure", tick)
         stage("writing")
-        written = _write_maps(seg, planned, options, force=force)
-        regions.to_csv(planned["regions"], force=force)
-        regions.to_json(planned["regions_json"], force=force)
-        _diagram_table(seg).to_csv(planned["diagram"], force=force)
-        _diagram_plot(seg, planned["diagram_plot"], force=force)
+        made = not outdir.exists()
+        staging = open_staging(outdir)  # published together at the end (io/_staging.py)
+        staged = {key: staging / path.name for key, path in planned.items()}
+        written = _write_maps(seg, staged, options, force=force)
+        regions.to_csv(staged["regions"], force=force)
+        regions.to_json(staged["regions_json"], force=force)
+        _diagram_table(seg).to_csv(staged["diagram"], force=force)
+        _diagram_plot(seg, staged["diagram_plot"], force=force)
         for key in ("regions", "regions_json", "diagram", "diagram_plot"):
-            written[key] = planned[key]
+            written[key] = staged[key]
         if options.mesh:
-            written["meshes"] = _write_meshes(seg, outdir, options.mesh, force=force)
+            written["meshes"] = _write_meshes(seg, staging, options.mesh, force=force)
         tick = done("write", tick)
         if report:
             from .report import write_report
 
             stage("report")
             written["report"] = write_report(
-                planned["report"], image=np.asarray(volume.data),
+                staged["report"], image=np.asarray(volume.data),
                 labels=seg.labels if seg.all_labels is None else seg.all_labels,
                 spacing=volume.spacing, unit=volume.unit, regions=regions,
                 diagram=seg.diagram, kept=seg.kept, threshold=seg.threshold,
-                params=seg.params, figures=figures, title=source.name, source=source,
+                params=seg.params, figures=figures, title=safe_text(source.name),
+                source=safe_text(str(source)),
                 notes=[note for note in notes.values() if note],
                 force=force)
         tick = done("report", tick)
@@ -283,19 +305,39 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
             "options": options.to_dict(),
             "summary": {k: v for k, v in summary.items() if k != "outputs"},
             "global_figures": figures,
-            "outputs": summary["outputs"],
+            "outputs": _relative(summary["outputs"], staging),
             "timings_s": timings,
             "elapsed_s": round(time.perf_counter() - started, 3),
             "caution": RESEARCH_ONLY,
         }
-        with atomic_path(planned["run"], force=force) as tmp:
+        with atomic_path(staged["run"], force=force) as tmp:
             tmp.write_text(dumps(record, indent=1, ensure_ascii=False, default=str),
                            encoding="utf-8")
+        publish_staged(staging, outdir)
+        staging = None
+        summary["outputs"] = {key: str(outdir / name) for key, name in record["outputs"].items()}
         summary["outputs"]["run"] = str(planned["run"])
         steps.update()
+    except MemoryError as exc:
+        raise out_of_memory(source) from exc
     finally:
         steps.close()
+        reset_memory_guard(guard)
+        if staging is not None:
+            discard_staging(staging, outdir, made=made)
     return summary
+
+
+def _relative(outputs: dict[str, str], outdir: Path) -> dict[str, str]:
+    """Output paths relative to ``outdir`` (run.json stays right when the folder moves, as a
+    batch's staging folder does when it is published).
+
+    Examples
+    --------
+    >>> _relative({"labels": "out/labels.tif"}, Path("out"))
+    {'labels': 'labels.tif'}
+    """
+    return {key: Path(path).relative_to(outdir).as_posix() for key, path in outputs.items()}
 
 
 def _prepare_kernels(stage: Any) -> None:

@@ -15,8 +15,8 @@ from typing import Any
 __all__ = ["READING", "add_reading_options", "reading_from_args"]
 
 #: The reading options' names (``dest``), as :class:`~cavitas.workflow.ReadOptions` has them.
-READING = ("channel", "time", "key", "dataset", "spacing", "unit", "shape", "dtype",
-           "byte_order", "offset")
+READING = ("channel", "time", "key", "dataset", "missing_chunks", "spacing", "unit", "shape",
+           "dtype", "byte_order", "offset")
 
 
 def _per_axis(kind: type, count: str) -> Callable[[str], tuple[Any, ...]]:
@@ -56,6 +56,11 @@ def add_reading_options(parser: argparse.ArgumentParser) -> None:
     choice.add_argument("--dataset", metavar="NAME",
                         help="dataset to read from an HDF5 file (.h5, .hdf5) holding several "
                              "image datasets, e.g. /volumes/raw (default: its only one)")
+    choice.add_argument("--missing-chunks", choices=("error", "fill"),
+                        help="a chunk missing from a Zarr store is an error (default: Zarr "
+                             "would read it as zeros), or 'fill': read it as the array's fill "
+                             "value and say how many were missing (for writers that leave "
+                             "out empty chunks)")
     geometry = parser.add_argument_group("geometry (replaces what the file states)")
     geometry.add_argument("--spacing", type=_per_axis(float, "2 or 3"), metavar="Z,Y,X",
                           help="voxel size in (z, y, x) order, e.g. 2,0.5,0.5 (Y,X in 2D); "

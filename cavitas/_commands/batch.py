@@ -73,6 +73,7 @@ def register(subparsers: Any, *, parents: list[argparse.ArgumentParser],
                              help="run through a Dask cluster started on this machine")
     run_options.add_argument("--force", action="store_true",
                              help="redo every input and replace existing outputs")
+    _segment.add_memory_option(run_options)
     _segment.add_segment_options(parser)
     parser.add_argument("--config", dest="params", metavar="FILE.toml",
                         help="same as --params: segmentation parameters from a TOML file")
@@ -91,7 +92,8 @@ def run(args: argparse.Namespace) -> int:
     result = run_batch(args.inputs, args.out, settings.params, options=options,
                        jobs=args.jobs, scheduler=args.scheduler, dask=args.dask_local,
                        force=args.force, progress=args.progress,
-                       read_options=settings.reading.kwargs())
+                       read_options=settings.reading.kwargs(),
+                       skip_memory_check=args.skip_memory_check)
     counts = {s: sum(r["status"] == s for r in result.results)
               for s in ("done", "reused", "failed")}
     for failure in result.failed:

@@ -106,7 +106,7 @@ def run(args: argparse.Namespace) -> int:
         mask = _read_mask(args.mask, vol.shape, read) if args.mask else None
         bar.update()
         bar.set_postfix_str(f"persistence of {' x '.join(map(str, vol.shape))} voxels")
-        dgm = persistence(vol.data, walls=args.walls, connectivity=args.connectivity,
+        dgm = persistence(vol, walls=args.walls, connectivity=args.connectivity,
                           mask=mask, parallel=False if args.one_thread else None)
         bar.update()
         bar.set_postfix_str("writing")

@@ -21,9 +21,12 @@ Show what each file holds: shape, data type, voxel spacing and unit, value range
 percentiles (1, 50, 99), NaN/Inf count, the memory a segmentation would need, and any
 problem found in the metadata. Large files are read in chunks.
 
-Memory estimate = voxels x (bytes per input voxel + the working memory of a segmentation:
-52 bytes when the image is smoothed in float32 (data of 16 bits or less, float32), 76 in
-float64), measured with bench/segment_scale.py; about 200 MB for Python comes on top.
+Memory estimate = 340 MiB for the program (Python, the libraries, the compiled kernels) +
+voxels x (bytes per input voxel + the working memory of a segmentation: 52 bytes when the
+image is smoothed in float32 (data of 16 bits or less, float32), 76 in float64) + 40 bytes
+per voxel for the first 2 million voxels (small volumes), measured with
+bench/segment_scale.py and bench/memory_guard.py. `cavitas segment` refuses an input whose
+estimate exceeds the memory available (--skip-memory-check to try anyway).
 """
 
 EPILOG = """\
@@ -70,7 +73,7 @@ def describe(volume: Volume, *, progress: Any = None) -> dict[str, Any]:
     >>> from cavitas.io import Volume
     >>> facts = describe(Volume(np.arange(8, dtype=np.uint8).reshape(2, 4)))
     >>> facts["shape"], facts["min"], facts["max"], facts["memory_bytes"]
-    ([2, 4], 0, 7, 424)
+    ([2, 4], 0, 7, 356516584)
     """
     from ..io import estimate_memory_bytes, summarize
 

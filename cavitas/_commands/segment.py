@@ -9,7 +9,8 @@ from typing import Any
 from .._caution import RESEARCH_ONLY
 from ._reading import add_reading_options
 
-__all__ = ["add_segment_options", "register", "run", "settings_from_args"]
+__all__ = ["add_memory_option", "add_segment_options", "register", "run",
+           "settings_from_args"]
 
 DESCRIPTION = f"""\
 Find the enclosed regions (cells, pores, vesicles, capsules, bubbles) of a 2D image or 3D
@@ -81,8 +82,18 @@ def register(subparsers: Any, *, parents: list[argparse.ArgumentParser],
     p.add_argument("--no-thickness", action="store_true",
                    help="skip the wall-thickness measurement (slow on thick walls)")
     p.add_argument("--force", action="store_true", help="replace outputs that already exist")
+    add_memory_option(p)
     p.set_defaults(func=run)
     return p
+
+
+def add_memory_option(p: argparse.ArgumentParser | Any) -> None:
+    """Add ``--skip-memory-check`` (shared by ``segment`` and ``batch``)."""
+    p.add_argument("--skip-memory-check", action="store_true",
+                   help="run even when the memory estimate (see cavitas info) exceeds the "
+                        "memory available; by default such an input is refused up front "
+                        "in one sentence (exit 3; in a batch that input fails and the others "
+                        "go on) instead of failing or being killed half-way")
 
 
 def add_segment_options(p: argparse.ArgumentParser) -> None:
@@ -179,7 +190,8 @@ def run(args: argparse.Namespace) -> int:
     summary = segment_file(args.file, args.out, params, options=settings.options,
                            force=args.force, progress=args.progress,
                            read_options=settings.reading, report=not args.no_report,
-                           thickness=not args.no_thickness)
+                           thickness=not args.no_thickness,
+                           skip_memory_check=args.skip_memory_check)
     if not args.quiet:
         unit = summary["unit"]
         enclosures = summary["enclosures"]

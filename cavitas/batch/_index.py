@@ -125,4 +125,5 @@ input's intensity units.</p>
 def write_index(path: Path, summary: Table, **kwargs: Any) -> None:
     """Write :func:`index_html` to ``path`` atomically (the batch owns this file)."""
     with atomic_path(path, force=True) as tmp:
-        tmp.write_text(index_html(summary, **kwargs), encoding="utf-8")
+        tmp.write_text(index_html(summary, **kwargs), encoding="utf-8",
+                       errors="backslashreplace")  # names that are not UTF-8

@@ -23,6 +23,9 @@ SUFFIXES: tuple[str, ...] = tuple(sorted({*READ_SUFFIXES, ".zarr", ".ome.zarr"},
                                          reverse=True))
 _GLOB_CHARS = re.compile(r"[*?\[]")
 _UNSAFE = re.compile(r"[^A-Za-z0-9._-]+")
+#: Longest part of an input's name kept in its output folder's name: with the hash and
+#: the staging marker, the folder's names stay well within the 255 bytes file systems allow.
+_STEM_LENGTH = 100
 
 
 @dataclass(frozen=True)
@@ -67,7 +70,7 @@ def output_name(path: str | os.PathLike) -> str:
     path = Path(os.path.abspath(path))
     suffix = _suffix(path) or path.suffix
     stem = path.name[: len(path.name) - len(suffix)] if suffix else path.name
-    stem = _UNSAFE.sub("_", stem).strip("._") or "input"
+    stem = _UNSAFE.sub("_", stem).strip("._")[:_STEM_LENGTH] or "input"
     digest = hashlib.sha256(str(path).encode("utf-8", "surrogateescape")).hexdigest()[:8]
     return f"{stem}-{digest}"
 

@@ -72,12 +72,24 @@ class _Worker:
     bytes: int = 0
 
 
-def _died(task: Task, exitcode: int | None) -> dict[str, Any]:
+def _died(task: Task, exitcode: int | None, others: int) -> dict[str, Any]:
+    """The failure of a worker that died; ``others``: how many inputs ran beside it.
+
+    Examples
+    --------
+    >>> _died(Task("a.tif", "a", "/out", None), -9, 0)["error"]  # doctest: +ELLIPSIS
+    "The worker process was killed by signal 9 while processing 'a.tif' ... alone: ..."
+    >>> "fewer --jobs" in _died(Task("a.tif", "a", "/out", None), -9, 2)["error"]
+    True
+    """
     how = (f"was killed by signal {-exitcode}" if exitcode is not None and exitcode < 0
            else f"ended with exit code {exitcode}")
+    advice = (f"{others} other input(s) ran beside it: if memory ran out, fewer --jobs may "
+              "let it finish" if others else
+              "it ran alone: if memory ran out, crop or downsample it")
     return {"input": task.path, "name": task.name, "status": FAILED, "seconds": 0.0,
             "summary": {}, "error": f"The worker process {how} while processing "
-            f"'{task.path}' (killed, or out of memory); nothing was kept."}
+            f"'{task.path}' (killed, or out of memory; {advice}); nothing was kept."}
 
 
 def run_local(tasks: Sequence[Task], *, jobs: int, estimates: Sequence[int],
@@ -168,7 +180,8 @@ def run_local(tasks: Sequence[Task], *, jobs: int, estimates: Sequence[int],
                 if worker.process.sentinel in ready or not worker.process.is_alive():
                     worker.process.join()
                     task = tasks[worker.index]
-                    finish(worker, _died(task, worker.process.exitcode))
+                    others = sum(w.index is not None for w in workers) - 1
+                    finish(worker, _died(task, worker.process.exitcode, others))
                     workers.remove(worker)
                     remove_stale(Path(task.root), task.name)
             dispatch()

@@ -34,8 +34,12 @@ def folder_lock(root: Path) -> Iterator[None]:
     """
     try:
         root.mkdir(parents=True, exist_ok=True)
-        fd = os.open(root / LOCK_NAME, os.O_CREAT | os.O_RDWR, 0o644)
+        fd = os.open(root / LOCK_NAME, os.O_CREAT | os.O_RDWR | getattr(os, "O_NOFOLLOW", 0),
+                     0o644)
     except OSError as exc:
+        if (root / LOCK_NAME).is_symlink():
+            raise OutputError(f"'{root / LOCK_NAME}' is a symbolic link; cavitas does not "
+                              "follow links in its output folder (remove it).") from exc
         raise OutputError(f"Cannot use the output folder '{root}': {exc.strerror or exc}.") \
             from exc
     try:

@@ -9,7 +9,7 @@ from typing import Any
 
 import numpy as np
 
-from ..io._memory import estimate_memory_bytes
+from ..io._memory import WORK_BYTES_PER_VOXEL, available_memory, data_memory_bytes
 
 __all__ = ["MEMORY_SHARE", "admits", "available_memory", "estimate_task_bytes"]
 
@@ -24,8 +24,8 @@ MEMORY_SHARE = 0.8
 _COMPRESSED_FACTOR = 4
 _COMPRESSED = (".gz", ".zarr", ".h5", ".hdf5")  # HDF5 datasets are often compressed
 #: Peak memory per stored byte when the header cannot be read: 8-bit data, the worst case
-#: of :func:`cavitas.io.estimate_memory_bytes` per stored byte.
-_BYTES_PER_INPUT_BYTE = estimate_memory_bytes((1,), np.uint8)
+#: of :func:`cavitas.io._memory.data_memory_bytes` per stored byte.
+_BYTES_PER_INPUT_BYTE = 1 + WORK_BYTES_PER_VOXEL[4]
 
 
 def admits(need: int, used: int, running: int, budget: int | None, path: str) -> bool:
@@ -47,28 +47,6 @@ def admits(need: int, used: int, running: int, budget: int | None, path: str) ->
         log.warning("'%s' may need %.1f GiB, more than the %.1f GiB budget; running it "
                     "alone.", path, need / 2**30, budget / 2**30)
     return True
-
-
-def available_memory() -> int | None:
-    """Bytes of memory available to new processes now (``MemAvailable`` on Linux).
-
-    Examples
-    --------
-    >>> mem = available_memory()
-    >>> mem is None or mem > 0
-    True
-    """
-    try:
-        with open("/proc/meminfo", encoding="ascii") as fh:
-            for line in fh:
-                if line.startswith("MemAvailable:"):
-                    return int(line.split()[1]) * 1024
-    except (OSError, ValueError, IndexError):
-        pass
-    try:
-        return os.sysconf("SC_AVPHYS_PAGES") * os.sysconf("SC_PAGE_SIZE")
-    except (OSError, ValueError, AttributeError):
-        return None
 
 
 def _stored_bytes(path: Path) -> int:
@@ -111,7 +89,7 @@ def _declared_layout(path: Path) -> tuple[tuple[int, ...], Any]:
 def estimate_task_bytes(path: str | os.PathLike) -> int:
     """Estimated peak memory of segmenting one input, from its header when possible.
 
-    :func:`cavitas.io.estimate_memory_bytes` (the measured peak of ``segment_file`` with a
+    :func:`cavitas.io._memory.data_memory_bytes` (the measured peak of ``segment_file`` with a
     margin) for the shape and type the file declares; files whose header cannot be read
     get an estimate from their size on disk. Never raises: an unreadable input gets a
     small estimate and fails in its worker. The batch raises every estimate when a worker
@@ -122,13 +100,13 @@ def estimate_task_bytes(path: str | os.PathLike) -> int:
     >>> import tempfile, pathlib, numpy as np
     >>> f = pathlib.Path(tempfile.mkdtemp()) / "x.npy"
     >>> np.save(f, np.zeros((10, 10, 10), np.uint16))
-    >>> estimate_task_bytes(f) == estimate_memory_bytes((10, 10, 10), np.uint16)
+    >>> estimate_task_bytes(f) == data_memory_bytes((10, 10, 10), np.uint16)
     True
     """
     path = Path(path)
     try:
         shape, dtype = _declared_layout(path)
-        return int(estimate_memory_bytes(shape, dtype))
+        return int(data_memory_bytes(shape, dtype))
     except Exception as exc:  # unreadable header: fall back on the size on disk
         log.debug("No header estimate for '%s' (%s); using its size on disk.", path, exc)
     try:

@@ -20,7 +20,7 @@ from .._caution import RESEARCH_ONLY
 from .._errors import OutputError
 from .._json import dumps
 from ..io._atomic import atomic_path
-from ..io._checksum import input_checksum
+from ..io._checksum import file_checksum, input_checksum
 
 __all__ = [
     "DONE_NAME",
@@ -53,9 +53,11 @@ def json_ready(value: Any) -> Any:
 
 def write_record(folder: Path, *, input_path: str, checksum: str, params: Mapping[str, Any],
                  version: str, summary: Mapping[str, Any], seconds: float) -> Path:
-    """Write ``folder/done.json`` listing every file already in ``folder`` with its size."""
+    """Write ``folder/done.json`` listing every file already in ``folder`` with its size and
+    SHA-256 (a later run reuses the folder only if every file still matches both)."""
     outputs = {
-        p.relative_to(folder).as_posix(): p.stat().st_size
+        p.relative_to(folder).as_posix(): {"bytes": p.stat().st_size,
+                                           "sha256": file_checksum(p)}
         for p in sorted(folder.rglob("*")) if p.is_file() and p.name != DONE_NAME
     }
     record = {
@@ -98,9 +100,12 @@ def reusable(folder: Path, *, checksum: str, params: Mapping[str, Any],
         return False, "it was processed with other parameters"
     if record.get("version") != version:
         return False, f"it was processed by cavitas {record.get('version')}, not {version}"
-    for name, size in dict(record.get("outputs", {})).items():
+    for name, entry in dict(record.get("outputs", {})).items():
         file = folder / name
-        if not file.is_file() or file.stat().st_size != size:
+        if not isinstance(entry, dict) or "sha256" not in entry:
+            return False, f"{DONE_NAME} holds no checksum of '{file}' (an older record)"
+        if (file.is_symlink() or not file.is_file() or file.stat().st_size != entry.get("bytes")
+                or file_checksum(file) != entry["sha256"]):
             return False, f"its output '{file}' is missing or changed"
     return True, ""
 

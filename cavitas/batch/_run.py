@@ -107,7 +107,8 @@ def run_batch(inputs: Sequence[str | os.PathLike], outdir: str | os.PathLike,
               params: Any = None, *, options: Any = None, jobs: int | None = None,
               scheduler: str | None = None, dask: bool = False, force: bool = False,
               progress: bool = True, read_options: Mapping[str, Any] | None = None,
-              worker: str = DEFAULT_WORKER, memory_budget: int | None = None) -> BatchResult:
+              worker: str = DEFAULT_WORKER, memory_budget: int | None = None,
+              skip_memory_check: bool = False) -> BatchResult:
     """Process many inputs into ``outdir``: one folder per input plus batch-wide tables.
 
     Each input gets ``outdir/<name>-<hash>/`` (its segmentation outputs and a ``done.json``
@@ -146,6 +147,9 @@ def run_batch(inputs: Sequence[str | os.PathLike], outdir: str | os.PathLike,
     memory_budget : int, optional
         Bytes the concurrent tasks may use together (default: 80% of what this machine
         has available, or with ``scheduler`` 80% of the workers' memory limits).
+    skip_memory_check : bool, optional
+        Let each worker run an input whose estimated memory exceeds what its machine has
+        available (by default that input fails with one sentence, the others go on).
 
     Returns
     -------
@@ -190,7 +194,8 @@ def run_batch(inputs: Sequence[str | os.PathLike], outdir: str | os.PathLike,
         record["read_options"] = json_ready(dict(read_options))
     tasks = [Task(path=str(item.path), name=item.name, root=str(root), params=params,
                   options=options, record=record, force=force, worker=worker,
-                  read_options=dict(read_options or {})) for item in items]
+                  read_options=dict(read_options or {}),
+                  skip_memory_check=skip_memory_check) for item in items]
     started = datetime.now(timezone.utc)
     with folder_lock(root):
         remove_stale(root)

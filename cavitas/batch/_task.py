@@ -18,6 +18,7 @@ from typing import Any
 
 from .._errors import CavitasError
 from .._version import __version__
+from ..io._memory import out_of_memory
 from ._resume import (
     input_checksum,
     new_staging,
@@ -64,6 +65,8 @@ class Task:
         an ``input_sha256`` keyword also gets the input's checksum.
     read_options : mapping
         Options for reading the input (channel, time); passed to the worker when given.
+    skip_memory_check : bool
+        Passed to a worker that takes it: run even beyond the memory available.
     """
 
     path: str
@@ -75,6 +78,7 @@ class Task:
     force: bool = False
     worker: str = DEFAULT_WORKER
     read_options: Mapping[str, Any] = field(default_factory=dict)
+    skip_memory_check: bool = False
     version: str = __version__
 
 
@@ -109,7 +113,7 @@ def failure_sentence(exc: BaseException, path: str) -> str:
     if isinstance(exc, CavitasError):
         return str(exc)
     if isinstance(exc, MemoryError):
-        return f"'{path}' needs more memory than was available; run it with fewer --jobs."
+        return str(out_of_memory(path))
     return f"Internal error on '{path}' ({type(exc).__name__}: {exc}); please report it."
 
 
@@ -149,6 +153,8 @@ def run_task(task: Task) -> dict[str, Any]:
             extra["read_options"] = dict(task.read_options)
         if _accepts(worker, "input_sha256"):  # spare the worker a second pass over the input
             extra["input_sha256"] = checksum
+        if task.skip_memory_check and _accepts(worker, "skip_memory_check"):
+            extra["skip_memory_check"] = True
         figures = worker(task.path, staging, task.params, force=True, progress=False,
                          **extra)
         seconds = time.perf_counter() - start

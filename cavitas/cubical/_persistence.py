@@ -53,7 +53,9 @@ class _Prepared:
 
     def __init__(self, image: Any, walls: str, connectivity: object, mask: Any,
                  plane: bool | None = None) -> None:
+        name = "image"
         if isinstance(image, Volume):
+            name = f"'{image.name}'"
             image = image.data
         arr = np.asarray(image)  # a view of an ndarray or a memory map, not a copy
         if arr.ndim not in (2, 3):
@@ -62,7 +64,7 @@ class _Prepared:
             )
         if arr.size == 0:
             raise ParameterError(f"image must hold at least one voxel; got shape {arr.shape}.")
-        arr = engine_array(arr)
+        arr = engine_array(arr, name)
         if walls not in ("bright", "dark"):
             raise ParameterError(f"walls must be 'bright' or 'dark'; got {walls!r}.")
         self.shape = tuple(arr.shape)

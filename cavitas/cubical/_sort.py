@@ -22,9 +22,13 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
-from .._errors import ParameterError
+from .._errors import InputFileError, ParameterError
 
-__all__ = ["engine_array", "index_dtype", "sort_voxels", "supported"]
+__all__ = ["EXACT_LIMIT", "engine_array", "index_dtype", "sort_voxels", "supported"]
+
+#: Levels (births, deaths, thresholds) are float64, exact for integers up to this
+#: magnitude (IEEE 754 double: a 53-bit significand).
+EXACT_LIMIT = 2**53
 
 # dtype -> (unsigned view, key mode: 0 unsigned, 1 signed integer, 2 IEEE float)
 _VIEWS = {
@@ -61,7 +65,9 @@ def engine_array(arr: np.ndarray, name: str = "image") -> np.ndarray:
 
     Non-native byte order becomes native, float16 becomes float32 (exactly) and wider
     floats (long double) become float64, rounded to its 53-bit precision. Anything else
-    that is not an integer or float type is refused with a :class:`ParameterError`.
+    that is not an integer or float type is refused with a :class:`ParameterError`;
+    64-bit integers beyond :data:`EXACT_LIMIT` in magnitude, which float64 levels would
+    merge, with an :class:`InputFileError` (``name`` should then name the file).
 
     Examples
     --------
@@ -76,6 +82,13 @@ def engine_array(arr: np.ndarray, name: str = "image") -> np.ndarray:
         arr = arr.astype(arr.dtype.newbyteorder("="))
     if not supported(arr.dtype):
         raise ParameterError(f"{name} must have an integer or float dtype; got {arr.dtype}.")
+    if arr.dtype.kind in "iu" and arr.dtype.itemsize == 8 and arr.size:
+        peak = max(abs(int(arr.min())), abs(int(arr.max())))
+        if peak > EXACT_LIMIT:
+            raise InputFileError(
+                f"{name} holds integers up to {peak} in magnitude, beyond 2**53, where the "
+                "float64 levels of the diagram no longer tell neighbouring values apart; "
+                "subtract an offset or rescale the values to within 2**53 first.")
     return arr
 
 

@@ -1,4 +1,10 @@
-"""Atomic output: write to a temporary file beside the target, then rename it into place."""
+"""Atomic output: write to a temporary file beside the target, then rename it into place.
+
+The temporary file is flushed to disk (``fsync``) before the rename, so after a crash the
+target holds the old or the new content, never a partial one; its name is short enough
+for any target name the file system accepts. A symbolic link at the target is replaced by
+the new file, never written through.
+"""
 
 from __future__ import annotations
 
@@ -10,7 +16,11 @@ from pathlib import Path
 
 from .._errors import OutputError
 
-__all__ = ["atomic_path", "check_writable"]
+__all__ = ["atomic_path", "check_writable", "fsync_file"]
+
+#: Longest part of the target's name kept in the temporary name (file systems allow 255
+#: bytes; the rest is the random part and the ``.part`` suffix).
+_NAME_PART = 80
 
 
 def check_writable(path: str | os.PathLike, *, force: bool = False,
@@ -32,9 +42,9 @@ def check_writable(path: str | os.PathLike, *, force: bool = False,
         with contextlib.suppress(OSError):
             if Path(source).exists() and path.exists() and path.samefile(source):
                 raise OutputError(f"Refusing to overwrite the input file '{path}'.")
-    if path.is_dir():
+    if path.is_dir() and not path.is_symlink():
         raise OutputError(f"Output '{path}' is a folder, expected a file path.")
-    if path.exists() and not force:
+    if (path.exists() or path.is_symlink()) and not force:
         raise OutputError(
             f"Output '{path}' already exists; use force=True to replace it.",
             parameters=("force",))
@@ -82,22 +92,35 @@ def atomic_path(path: str | os.PathLike, *, force: bool = False,
     except OSError as exc:
         raise OutputError(f"Cannot create the folder of '{path}': {exc.strerror or exc}.") from exc
     suffix = "".join(path.suffixes[-2:]) if path.suffixes else ""
-    fd, tmp_name = tempfile.mkstemp(prefix=f".{path.name}.", suffix=f".part{suffix}",
-                                    dir=path.parent)
-    os.close(fd)
-    tmp = Path(tmp_name)
+    suffix = suffix if len(suffix) <= 16 else ""  # a dotted name, not an extension
+    tmp = None
     try:
+        fd, tmp_name = tempfile.mkstemp(prefix=f".{path.name[:_NAME_PART]}.",
+                                        suffix=f".part{suffix}", dir=path.parent)
+        os.close(fd)
+        tmp = Path(tmp_name)
         yield tmp
         if not tmp.exists():
             raise OutputError(f"Writing '{path}' produced no file.")
-        if path.exists() and not force:  # appeared while we were writing
+        if (path.exists() or path.is_symlink()) and not force:  # appeared while writing
             raise OutputError(
                 f"Output '{path}' appeared while it was being written; not replaced."
             )
         os.chmod(tmp, _FILE_MODE)  # mkstemp makes 0600 files; outputs are ordinary files
-        os.replace(tmp, path)
+        fsync_file(tmp)
+        os.replace(tmp, path)  # a link at ``path`` is replaced, not followed
     except OSError as exc:
         raise OutputError(f"Cannot write '{path}': {exc.strerror or exc}.") from exc
     finally:
-        with contextlib.suppress(FileNotFoundError):
-            tmp.unlink()
+        if tmp is not None:
+            with contextlib.suppress(FileNotFoundError):
+                tmp.unlink()
+
+
+def fsync_file(path: str | os.PathLike) -> None:
+    """Flush ``path``'s content to the disk (before a rename makes it the real file)."""
+    fd = os.open(path, os.O_RDONLY)
+    try:
+        os.fsync(fd)
+    finally:
+        os.close(fd)

@@ -12,7 +12,7 @@ from .._errors import InputFileError
 from ._slices import slice_files
 from ._zarr import is_zarr_store
 
-__all__ = ["input_checksum"]
+__all__ = ["file_checksum", "input_checksum"]
 
 _BLOCK = 1 << 20
 
@@ -50,6 +50,22 @@ def input_checksum(path: str | os.PathLike) -> str:
             _feed(digest, file)
     except OSError as exc:
         raise InputFileError(f"Cannot read '{path}': {exc.strerror or exc}.") from exc
+    return digest.hexdigest()
+
+
+def file_checksum(path: str | os.PathLike) -> str:
+    """SHA-256 of one file's bytes (raises ``OSError`` as ``open`` does).
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> f = pathlib.Path(tempfile.mkdtemp()) / "a.csv"
+    >>> _ = f.write_bytes(b"abc")
+    >>> file_checksum(f)[:16]  # SHA-256 of b"abc" (FIPS 180-2, appendix B.1)
+    'ba7816bf8f01cfea'
+    """
+    digest = hashlib.sha256()
+    _feed(digest, Path(path))
     return digest.hexdigest()
 
 

@@ -12,6 +12,7 @@ import numpy as np
 from .._errors import InputFileError, OutputError, ParameterError
 from ._assemble import Decoded, assemble, check_spacing_option
 from ._atomic import atomic_path
+from ._failures import reading
 from ._hdf5 import read_hdf5, write_hdf5
 from ._nifti import read_nifti, write_nifti
 from ._numpy import read_npy, read_npz, write_npy, write_npz
@@ -32,6 +33,10 @@ READ_SUFFIXES = {
     ".npy": "npy", ".npz": "npz", ".png": "png", ".h5": "hdf5", ".hdf5": "hdf5",
     ".raw": "raw", ".bin": "raw", ".img": "raw",
 }
+#: Format -> its name in messages ("cannot be read as ...").
+_FORMAT_NAMES = {"tiff": "TIFF", "nifti": "NIfTI", "npy": "NumPy .npy",
+                 "npz": "NumPy .npz", "png": "PNG", "hdf5": "HDF5", "raw": "raw data",
+                 "zarr": "Zarr", "slices": "a stack of slices"}
 #: Extension -> format written.
 WRITE_SUFFIXES = {
     ".ome.tiff": "ome", ".ome.tif": "ome", ".tiff": "tiff", ".tif": "tiff",
@@ -87,7 +92,7 @@ def read(path: str | os.PathLike, *, channel: int | None = None, time: int | Non
          spacing: Sequence[float] | None = None,
          unit: str | None = None, shape: Sequence[int] | None = None,
          dtype: str | np.dtype | None = None, byte_order: str | None = None,
-         offset: int = 0, mmap: bool = True) -> Volume:
+         offset: int = 0, mmap: bool = True, missing_chunks: str = "error") -> Volume:
     """Read a 2D image or 3D volume, with its voxel spacing, unit and metadata.
 
     The format is chosen by the extension: TIFF / OME-TIFF (``.tif``, ``.tiff``), NIfTI
@@ -119,6 +124,9 @@ def read(path: str | os.PathLike, *, channel: int | None = None, time: int | Non
     mmap : bool
         Memory-map the data when the format allows it (uncompressed TIFF, ``.nii``,
         ``.npy``, raw); False reads everything into memory.
+    missing_chunks : {"error", "fill"}
+        Zarr only: a chunk missing from the store is an error (default), or read as the
+        fill value with a warning (for writers that leave out empty chunks).
 
     Returns
     -------
@@ -129,7 +137,8 @@ def read(path: str | os.PathLike, *, channel: int | None = None, time: int | Non
     Raises
     ------
     InputFileError
-        Missing, unreadable, truncated or unusable file (one sentence naming the file).
+        Missing, unreadable, truncated, damaged or unusable file, or one that declares
+        more voxels than the memory available holds (one sentence naming the file).
     ParameterError
         An option value that cannot be used (channel out of range, spacing <= 0 ...).
 
@@ -163,32 +172,44 @@ def read(path: str | os.PathLike, *, channel: int | None = None, time: int | Non
             raise InputFileError(f"'{text}' is empty (0 bytes).")
     _check_options(text, kind, raw_options=bool(raw_options), key=key, dataset=dataset,
                    channel=channel, time=time)
-    decoded: Decoded
+    if missing_chunks != "error" and kind != "zarr":
+        raise ParameterError(f"missing_chunks= applies only to Zarr stores; '{text}' is read "
+                             f"as {kind}.", parameters=("missing_chunks",))
+    with reading(text, _FORMAT_NAMES[kind]):
+        decoded = _decode(text, source, kind, channel=channel, time=time, key=key,
+                          dataset=dataset, shape=shape, dtype=dtype, byte_order=byte_order,
+                          offset=offset, mmap=mmap, missing_chunks=missing_chunks)
+        if decoded.data.dtype.kind not in "biuf":
+            raise InputFileError(
+                f"'{text}' holds {decoded.data.dtype} values; expected integer or "
+                "floating-point intensities."
+            )
+        return assemble(text, decoded, spacing=spacing, unit=unit)
+
+
+def _decode(text: str, source: Path, kind: str, *, channel: int | None, time: int | None,
+            key: str | None, dataset: str | None, shape: Sequence[int] | None,
+            dtype: str | np.dtype | None, byte_order: str | None, offset: int, mmap: bool,
+            missing_chunks: str) -> Decoded:
+    """Call the reader of ``kind``."""
     if kind == "slices":
-        decoded = read_slices(text, channel=channel)
-    elif kind == "tiff":
-        decoded = read_tiff(source, channel=channel, time=time, mmap=mmap)
-    elif kind == "nifti":
-        decoded = read_nifti(source, channel=channel, time=time, mmap=mmap)
-    elif kind == "png":
-        decoded = read_png(source, channel=channel)
-    elif kind == "zarr":
-        decoded = read_zarr(source, channel=channel, time=time)
-    elif kind == "npy":
-        decoded = read_npy(source, mmap=mmap)
-    elif kind == "npz":
-        decoded = read_npz(source, key=key)
-    elif kind == "hdf5":
-        decoded = read_hdf5(source, dataset=dataset, mmap=mmap)
-    else:
-        decoded = read_raw(source, shape=shape, dtype=dtype, byte_order=byte_order,
-                           offset=offset, mmap=mmap)
-    if decoded.data.dtype.kind not in "biuf":
-        raise InputFileError(
-            f"'{text}' holds {decoded.data.dtype} values; expected integer or floating-point "
-            "intensities."
-        )
-    return assemble(text, decoded, spacing=spacing, unit=unit)
+        return read_slices(text, channel=channel)
+    if kind == "tiff":
+        return read_tiff(source, channel=channel, time=time, mmap=mmap)
+    if kind == "nifti":
+        return read_nifti(source, channel=channel, time=time, mmap=mmap)
+    if kind == "png":
+        return read_png(source, channel=channel)
+    if kind == "zarr":
+        return read_zarr(source, channel=channel, time=time, missing_chunks=missing_chunks)
+    if kind == "npy":
+        return read_npy(source, mmap=mmap)
+    if kind == "npz":
+        return read_npz(source, key=key)
+    if kind == "hdf5":
+        return read_hdf5(source, dataset=dataset, mmap=mmap)
+    return read_raw(source, shape=shape, dtype=dtype, byte_order=byte_order, offset=offset,
+                    mmap=mmap)
 
 
 def _geometry(data: Any, volume: Volume | None, like: Volume | None,

@@ -24,6 +24,7 @@ the unit is a length, and the research-only caution in ``caution``.
 
 from __future__ import annotations
 
+import os
 from collections.abc import Sequence
 from pathlib import Path
 from typing import Any
@@ -31,8 +32,10 @@ from typing import Any
 import numpy as np
 
 from .._caution import RESEARCH_ONLY
-from .._errors import CavitasError, InputFileError, OutputError
+from .._errors import InputFileError, OutputError
 from ._assemble import Decoded
+from ._failures import reading
+from ._memory import check_declared
 from ._units import UNKNOWN, centimetres_per
 
 __all__ = ["read_hdf5", "write_hdf5"]
@@ -127,7 +130,11 @@ def _geometry(dataset: Any, root: Any) -> tuple[tuple[float, ...] | None, str | 
 def _voxels(dataset: Any, path: Path, mmap: bool) -> Any:
     """A memory map of a contiguous uncompressed dataset, else its values in memory."""
     offset = dataset.id.get_offset()
-    if mmap and dataset.chunks is None and offset is not None and not dataset.compression:
+    contiguous = dataset.chunks is None and offset is not None and not dataset.compression
+    stored = os.path.getsize(path) - offset if contiguous else None
+    check_declared(f"{path}' dataset '{dataset.name}", dataset.shape, dataset.dtype,
+                   stored=stored)
+    if mmap and contiguous:
         return np.memmap(path, dtype=dataset.dtype, mode="r", offset=offset,
                          shape=dataset.shape)
     return dataset[()]
@@ -136,18 +143,11 @@ def _voxels(dataset: Any, path: Path, mmap: bool) -> Any:
 def read_hdf5(path: Path, *, dataset: str | None = None, mmap: bool = True) -> Decoded:
     """Read one image dataset of an HDF5 file; see the module notes."""
     h5py = _h5py(path)
-    try:
-        with h5py.File(path, "r") as handle:
-            node = _choose(h5py, handle, dataset, path)
-            spacing, unit = _geometry(node, handle)
-            data = _voxels(node, path, mmap)
-            name = node.name
-    except CavitasError:
-        raise
-    except Exception as exc:  # h5py raises OSError, KeyError, ValueError ...
-        raise InputFileError(
-            f"'{path}' cannot be read as HDF5: {exc or type(exc).__name__}."
-        ) from exc
+    with reading(path, "HDF5"), h5py.File(path, "r") as handle:
+        node = _choose(h5py, handle, dataset, path)
+        spacing, unit = _geometry(node, handle)
+        data = _voxels(node, path, mmap)
+        name = node.name
     return Decoded(data, spacing, unit, meta={"format": f"HDF5 dataset {name}",
                                               "dataset": name})
 

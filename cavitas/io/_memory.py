@@ -2,24 +2,45 @@
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+import contextlib
+import contextvars
+import math
+import os
+from collections.abc import Iterator, Sequence
 
 import numpy as np
 
-__all__ = ["WORK_BYTES_PER_VOXEL", "estimate_memory_bytes", "work_dtype"]
+from .._errors import InputFileError
+
+__all__ = ["PROCESS_BASE_BYTES", "WORK_BYTES_PER_VOXEL", "available_memory", "check_declared",
+           "check_memory", "data_memory_bytes", "declared_bytes", "estimate_memory_bytes",
+           "memory_guard", "out_of_memory", "reset_memory_guard", "set_memory_guard",
+           "work_dtype"]
+
+#: Whether readers and runs refuse what cannot fit in the memory available (see
+#: :func:`memory_guard`).
+_GUARD = contextvars.ContextVar("cavitas_memory_guard", default=True)
 
 #: Peak working memory of a whole ``segment_file`` run per voxel, beyond the input itself,
 #: by the float type the image is smoothed in (float32 for data of at most 16 bits and for
 #: float32 data, float64 otherwise; :func:`work_dtype`).
 WORK_BYTES_PER_VOXEL = {4: 52, 8: 76}
+#: Memory of the process before any data: Python, NumPy, SciPy, numba and the compiled
+#: kernels, matplotlib and the report (``python -m bench --only memory_guard``: 340 MiB
+#: fits the bundled samples' peaks less their data).
+PROCESS_BASE_BYTES = 340 << 20
+#: Small volumes peak higher per voxel (arrays the allocator keeps after freeing them):
+#: this much more per voxel, for up to :data:`SMALL_VOXELS` voxels.
+SMALL_EXTRA_BYTES_PER_VOXEL = 40
+SMALL_VOXELS = 2**21
 
 
-def estimate_memory_bytes(shape: Sequence[int], dtype: np.dtype | str | type) -> int:
-    """Estimated peak memory of segmenting a volume with ``segment_file``, in bytes.
+def data_memory_bytes(shape: Sequence[int], dtype: np.dtype | str | type) -> int:
+    """Peak memory of segmenting a volume beyond the process's own (its data), in bytes.
 
-    ``voxels * (itemsize + work)``: the input in its own type (counted whole, even when
-    memory-mapped, since every voxel is read) and the working memory
-    :data:`WORK_BYTES_PER_VOXEL`; the interpreter itself (about 200 MB) is not included.
+    ``voxels * (itemsize + work) + 40 * min(voxels, 2**21)``: the input in its own type
+    (counted whole, even when memory-mapped, since every voxel is read), the working
+    memory :data:`WORK_BYTES_PER_VOXEL`, and what small volumes add per voxel.
 
     Derivation (``python -m bench --only segment_scale [--large]``: uint16 foams through
     ``segment_file`` in a fresh interpreter, automatic mode, thickness on; peak RSS above
@@ -28,27 +49,39 @@ def estimate_memory_bytes(shape: Sequence[int], dtype: np.dtype | str | type) ->
         256^3: 43.6 B/voxel    512^3: 44.8 B/voxel (5.8 GiB in all; 138 B/voxel before)
         work for float32 smoothing: 43 -> 52 B/voxel, a margin of about 1/5
 
-    Small volumes (128^3 and below) measure higher per voxel (freed arrays kept by the
-    allocator), a few hundred MB in all; the batch runner raises its estimates from the
-    peaks its workers report.
-
     The peak is in the region step: the detection image (4), sweep order and ranks (4 + 4),
     the work labels (4), and the nearest-label map of the island filling (an int32 index
     per axis, 12, plus scipy's int64 copy of the wall mask, 8, and the map, 4); the
     segmentation's own steps (six smoothing scales, the sweeps) peak near 27. With float64
     smoothing (32/64-bit integers, float64 data) the smoothed copies and the per-region
-    median sort double (derived, not measured): 76.
+    median sort double (derived, not measured): 76. Volumes of 128^3 voxels and below
+    measure 85 to 95 bytes per voxel: the small-volume term.
 
     Examples
     --------
-    >>> estimate_memory_bytes((100, 200, 300), "uint16")  # 6e6 voxels * (2 + 52) bytes
-    324000000
-    >>> estimate_memory_bytes((100, 200, 300), "float64") // 6_000_000
-    84
+    >>> data_memory_bytes((100, 200, 300), "uint16")  # 6e6 * (2 + 52) + 40 * 2**21
+    407886080
     """
     dtype = np.dtype(dtype)
-    voxels = int(np.prod([int(n) for n in shape], dtype=np.int64))
-    return voxels * (dtype.itemsize + WORK_BYTES_PER_VOXEL[work_dtype(dtype).itemsize])
+    voxels = math.prod(int(n) for n in shape)
+    return (voxels * (dtype.itemsize + WORK_BYTES_PER_VOXEL[work_dtype(dtype).itemsize])
+            + SMALL_EXTRA_BYTES_PER_VOXEL * min(voxels, SMALL_VOXELS))
+
+
+def estimate_memory_bytes(shape: Sequence[int], dtype: np.dtype | str | type) -> int:
+    """Estimated peak memory of a process segmenting a volume with ``segment_file``, in bytes.
+
+    :data:`PROCESS_BASE_BYTES` plus :func:`data_memory_bytes`. Measured on the bundled
+    samples (``python -m bench --only memory_guard``), the estimate lies a few per cent
+    above the peak.
+
+    Examples
+    --------
+    >>> estimate_memory_bytes((100, 200, 300), "uint16") - data_memory_bytes(
+    ...     (100, 200, 300), "uint16") == PROCESS_BASE_BYTES
+    True
+    """
+    return PROCESS_BASE_BYTES + data_memory_bytes(shape, dtype)
 
 
 def work_dtype(dtype: np.dtype | str | type) -> np.dtype:
@@ -67,3 +100,186 @@ def work_dtype(dtype: np.dtype | str | type) -> np.dtype:
     dtype = np.dtype(dtype)
     small = dtype.itemsize <= (2 if dtype.kind in "biu" else 4 if dtype.kind == "f" else 0)
     return np.dtype(np.float32 if small else np.float64)
+
+
+def available_memory() -> int | None:
+    """Bytes of memory available to new allocations now (``MemAvailable`` on Linux).
+
+    Examples
+    --------
+    >>> mem = available_memory()
+    >>> mem is None or mem > 0
+    True
+    """
+    try:
+        with open("/proc/meminfo", encoding="ascii") as fh:
+            for line in fh:
+                if line.startswith("MemAvailable:"):
+                    return int(line.split()[1]) * 1024
+    except (OSError, ValueError, IndexError):
+        pass
+    try:
+        return os.sysconf("SC_AVPHYS_PAGES") * os.sysconf("SC_PAGE_SIZE")
+    except (OSError, ValueError, AttributeError):
+        return None
+
+
+@contextlib.contextmanager
+def memory_guard(enabled: bool) -> Iterator[None]:
+    """Within the block, the memory checks refuse (``True``) or let everything through.
+
+    Examples
+    --------
+    >>> with memory_guard(False):
+    ...     check_declared("big.npy", (10**6, 10**6), np.uint8)
+    1000000000000
+    """
+    token = set_memory_guard(enabled)
+    try:
+        yield
+    finally:
+        reset_memory_guard(token)
+
+
+def set_memory_guard(enabled: bool) -> contextvars.Token:
+    """Turn the memory checks on or off until :func:`reset_memory_guard` (see
+    :func:`memory_guard`, the same as a ``with`` block)."""
+    return _GUARD.set(bool(enabled))
+
+
+def reset_memory_guard(token: contextvars.Token) -> None:
+    """Put the memory checks back as they were before :func:`set_memory_guard`."""
+    _GUARD.reset(token)
+
+
+def guarding() -> bool:
+    """Whether the memory checks are on (see :func:`memory_guard`)."""
+    return _GUARD.get()
+
+
+def size_text(count: float) -> str:
+    """A byte count in binary units for messages.
+
+    Examples
+    --------
+    >>> size_text(512), size_text(3 * 2**30)
+    ('512 B', '3.0 GiB')
+    """
+    for unit in ("B", "KiB", "MiB", "GiB", "TiB", "PiB"):
+        if abs(count) < 1024 or unit == "PiB":
+            return f"{count:.0f} {unit}" if unit == "B" else f"{count:.1f} {unit}"
+        count /= 1024
+    raise AssertionError("unreachable")  # pragma: no cover
+
+
+def declared_bytes(path: object, shape: Sequence[int], dtype: np.dtype | str | type) -> int:
+    """Bytes of the voxels a header declares, in exact integers (no overflow).
+
+    Raises
+    ------
+    InputFileError
+        When a length is negative or not a whole number (a damaged header).
+
+    Examples
+    --------
+    >>> declared_bytes("a.nii", (1024, 1024, 1024), "int16")
+    2147483648
+    """
+    try:
+        dims = [int(n) for n in shape]
+        itemsize = np.dtype(dtype).itemsize
+    except (TypeError, ValueError, OverflowError) as exc:
+        raise InputFileError(f"'{path}' declares an unusable shape {tuple(shape)!r} or data "
+                             "type (a damaged header).") from exc
+    if any(n < 0 for n in dims):
+        raise InputFileError(f"'{path}' declares a negative length in its shape {tuple(dims)} "
+                             "(a damaged header).")
+    return math.prod(dims) * itemsize
+
+
+def check_declared(path: object, shape: Sequence[int], dtype: np.dtype | str | type, *,
+                   stored: int | None = None) -> int:
+    """Check a declared array against the bytes the file holds and the memory available.
+
+    Called before anything is allocated. ``stored`` is the number of bytes the file holds
+    for the voxels (after its header) when they are stored uncompressed; a declaration
+    larger than that means a truncated file or a damaged header. Whatever the storage, an
+    array larger than the memory available now is refused (a damaged size, or a
+    decompression bomb) unless :func:`memory_guard` turned the check off. Returns the
+    declared bytes.
+
+    Examples
+    --------
+    >>> check_declared("a.npy", (4, 4), np.uint16, stored=32)
+    32
+    >>> try:
+    ...     check_declared("a.npy", (400, 4), np.uint16, stored=32)
+    ... except InputFileError as exc:
+    ...     print(str(exc)[:69])
+    'a.npy' declares 400 x 4 uint16 voxels (3200 bytes) but holds only 32
+    """
+    need = declared_bytes(path, shape, dtype)
+    what = f"{' x '.join(str(int(n)) for n in shape)} {np.dtype(dtype).name} voxels"
+    if stored is not None and need > stored:
+        raise InputFileError(f"'{path}' declares {what} ({need} bytes) but holds only "
+                             f"{max(stored, 0)} bytes of voxel data: the file is cut short or "
+                             "its header is damaged.")
+    available = available_memory() if guarding() else None
+    if available is not None and need > available:
+        raise InputFileError(
+            f"'{path}' declares {what} ({size_text(need)}), more than the "
+            f"{size_text(available)} of memory available: the header is damaged, or the "
+            "volume must be cropped or read on a machine with more memory (the memory "
+            "check can be skipped with skip_memory_check=True).",
+            parameters=("skip_memory_check",))
+    return need
+
+
+#: What to do about a volume too large for the memory (the end of the guard's sentences).
+_ADVICE = ("crop or downsample it first, or run it on a machine with more memory "
+           "(skip_memory_check=True tries anyway)")
+
+
+def check_memory(name: object, shape: Sequence[int], dtype: np.dtype | str | type, *,
+                 available: int | None = None) -> None:
+    """Refuse, before the computation starts, a volume whose segmentation cannot fit.
+
+    :func:`data_memory_bytes` is compared with the memory available now (``available``,
+    by default :func:`available_memory`); the process's own memory is already held. Off
+    within ``memory_guard(False)``.
+
+    Raises
+    ------
+    InputFileError
+        One sentence with both figures and what to do.
+
+    Examples
+    --------
+    >>> check_memory("small.tif", (10, 10), np.uint8, available=2**30)
+    >>> try:
+    ...     check_memory("big.tif", (1024, 1024, 1024), np.uint16, available=2**30)
+    ... except InputFileError as exc:
+    ...     print(str(exc)[:75])
+    'big.tif' (1024 x 1024 x 1024 uint16) needs about 54.1 GiB of memory to seg
+    """
+    if not guarding():
+        return
+    need = data_memory_bytes(shape, dtype)
+    available = available_memory() if available is None else available
+    if available is not None and need > available:
+        raise InputFileError(
+            f"'{name}' ({' x '.join(map(str, shape))} {np.dtype(dtype).name}) needs about "
+            f"{size_text(need)} of memory to segment, but {size_text(available)} are "
+            f"available: {_ADVICE}.", parameters=("skip_memory_check",))
+
+
+def out_of_memory(name: object) -> InputFileError:
+    """The sentence for a run that ran out of memory despite the check (or without it).
+
+    Examples
+    --------
+    >>> print(out_of_memory("a.tif"))  # doctest: +ELLIPSIS
+    Segmenting 'a.tif' ran out of memory: crop or downsample it first, ...
+    """
+    return InputFileError(f"Segmenting '{name}' ran out of memory: {_ADVICE}.",
+                          parameters=("skip_memory_check",))

@@ -27,6 +27,7 @@ scaling is written. The ``descrip`` field holds a short research-only caution.
 
 from __future__ import annotations
 
+import os
 from collections.abc import Sequence
 from pathlib import Path
 from typing import Any
@@ -34,10 +35,12 @@ from typing import Any
 import nibabel as nib
 import numpy as np
 
-from .._errors import CavitasError, InputFileError
+from .._errors import InputFileError
 from ._assemble import Decoded, note
 from ._axes import select_planes
+from ._failures import reading
 from ._logs import collect_log
+from ._memory import check_declared
 from ._units import centimetres_per
 
 __all__ = ["CAUTION_SHORT", "read_nifti", "write_nifti"]
@@ -55,11 +58,20 @@ def _zoom(value: Any) -> float:
     return float(value)
 
 
+def _stored_bytes(img: Any) -> int | None:
+    """Bytes of voxel data an uncompressed image file holds after its header (None when
+    the data are compressed: their size is known only once unpacked)."""
+    name = str(img.file_map["image"].filename or "")
+    if name.lower().endswith((".gz", ".bz2", ".zst")) or not os.path.isfile(name):
+        return None
+    return os.path.getsize(name) - int(getattr(img.dataobj, "offset", 0))
+
+
 def read_nifti(path: Path, *, channel: int | None = None, time: int | None = None,
                mmap: bool = True) -> Decoded:
     """Read a NIfTI (or Analyze) image; see the module notes."""
     meta: dict[str, Any] = {}
-    try:
+    with reading(path, "NIfTI"):
         with collect_log("nibabel.global") as log:
             img = nib.load(path, mmap="r" if mmap else False)
         for message in log.messages():
@@ -70,6 +82,7 @@ def read_nifti(path: Path, *, channel: int | None = None, time: int | None = Non
                 f"'{path}' states impossible dimensions {shape}; expected 1 to 7 axes, "
                 "each of length >= 1."
             )
+        check_declared(path, shape, img.header.get_data_dtype(), stored=_stored_bytes(img))
         proxy = img.dataobj
         slope, inter = float(proxy.slope), float(proxy.inter)
         if (slope, inter) == (1.0, 0.0):
@@ -86,12 +99,6 @@ def read_nifti(path: Path, *, channel: int | None = None, time: int | None = Non
         affine = np.asarray(img.affine, dtype=np.float64)
         codes = (int(header.get("sform_code", 0)), int(header.get("qform_code", 0)))
         time_unit = header.get_xyzt_units()[1] if kind != "Analyze" else "unknown"
-    except CavitasError:
-        raise
-    except Exception as exc:  # nibabel, gzip, zlib and the OS raise many types
-        raise InputFileError(
-            f"'{path}' cannot be read as NIfTI: {exc or type(exc).__name__}."
-        ) from exc
     if kind != "Analyze" and codes == (0, 0):
         note(meta, path, "no orientation codes (sform/qform); the affine holds only voxel sizes")
     spatial = [_zoom(z) for z in zooms[: min(3, len(shape))]]

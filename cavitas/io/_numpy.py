@@ -11,16 +11,19 @@ image arrays needs ``key=`` to choose one.
 
 from __future__ import annotations
 
+import os
 import zipfile
 from collections.abc import Sequence
 from pathlib import Path
-from typing import Any
+from typing import Any, BinaryIO
 
 import numpy as np
 
 from .._caution import RESEARCH_ONLY
-from .._errors import CavitasError, ChoiceNeeded, InputFileError, ParameterError
+from .._errors import ChoiceNeeded, InputFileError, ParameterError
 from ._assemble import Decoded
+from ._failures import check_signature, reading
+from ._memory import check_declared, declared_bytes
 
 __all__ = ["read_npy", "read_npz", "write_npy", "write_npz"]
 
@@ -28,39 +31,76 @@ __all__ = ["read_npy", "read_npz", "write_npy", "write_npz"]
 METADATA_KEYS = ("spacing", "unit", "caution")
 
 
+def _header(stream: BinaryIO, path: Path) -> tuple[tuple[int, ...], np.dtype, bool]:
+    """Shape, type and Fortran order a ``.npy`` header declares, the stream left at the data.
+
+    The header is parsed by NumPy's own reader (``numpy.lib.format``), which evaluates it as
+    a literal only (never unpickles); an object type is refused before any data is read.
+    """
+    version = np.lib.format.read_magic(stream)
+    read_header = (np.lib.format.read_array_header_1_0 if version == (1, 0)
+                   else np.lib.format.read_array_header_2_0)
+    shape, fortran, dtype = read_header(stream)
+    if dtype.hasobject:
+        raise InputFileError(f"'{path}' holds Python objects, which cavitas never loads "
+                             "(they could run code); expected numeric voxels.")
+    return tuple(shape), dtype, fortran
+
+
 def read_npy(path: Path, *, mmap: bool = True) -> Decoded:
     """Read a ``.npy`` array (memory-mapped unless ``mmap=False``)."""
-    try:
+    with reading(path, "NumPy .npy"):
+        check_signature(path, "NumPy .npy")
+        with open(path, "rb") as stream:
+            shape, dtype, _ = _header(stream, path)
+            stored = os.path.getsize(path) - stream.tell()
+        check_declared(path, shape, dtype, stored=stored)
         data = np.load(path, mmap_mode="r" if mmap else None, allow_pickle=False)
-    except Exception as exc:  # ValueError (pickled objects, bad header), OSError, EOFError
-        raise InputFileError(f"'{path}' cannot be read as a NumPy .npy file: {exc}.") from exc
     return Decoded(data, meta={"format": "NumPy .npy"})
+
+
+def _member(archive: zipfile.ZipFile, key: str, path: Path) -> np.ndarray:
+    """The array stored as ``key`` (``key.npy`` in the zip), its size checked first."""
+    name = f"{key}.npy" if f"{key}.npy" in archive.namelist() else key
+    with archive.open(name) as stream:
+        if stream.read(6) != np.lib.format.MAGIC_PREFIX:
+            raise InputFileError(f"'{path}' holds an entry '{key}' that is not a NumPy array.")
+    with archive.open(name) as stream:
+        shape, dtype, fortran = _header(stream, path)
+        stored = archive.getinfo(name).file_size - stream.tell()
+        check_declared(f"{path}' entry '{key}", shape, dtype, stored=stored)
+        buffer = bytearray(declared_bytes(path, shape, dtype))  # read in place: no copy
+        got = stream.readinto(buffer)
+    if got != len(buffer):
+        raise InputFileError(f"'{path}' entry '{key}' ends before its data do (the file is "
+                             "cut short).")
+    return np.frombuffer(buffer, dtype=dtype).reshape(shape, order="F" if fortran else "C")
 
 
 def read_npz(path: Path, *, key: str | None = None) -> Decoded:
     """Read one image array (and its optional spacing and unit) from a ``.npz`` file."""
-    try:
-        with np.load(path, allow_pickle=False) as archive:
-            names = [k for k in archive.files if k not in METADATA_KEYS]
-            if key is None:
-                if len(names) != 1:
-                    raise ChoiceNeeded(
-                        f"'{path}' holds {len(names)} arrays ({', '.join(names) or 'none'}); "
-                        "choose one with key=.", parameter="key", choices=names)
-                key = names[0]
-            elif key not in archive.files:
-                raise ParameterError(
-                    f"key={key!r} is not in '{path}', which holds: {', '.join(names)}.",
-                    parameters=("key",))
-            data = archive[key]
-            spacing = archive["spacing"] if "spacing" in archive.files else None
-            unit = str(archive["unit"]) if "unit" in archive.files else None
-    except CavitasError:
-        raise
-    except (ValueError, OSError, EOFError, zipfile.BadZipFile, KeyError) as exc:
-        raise InputFileError(f"'{path}' cannot be read as a NumPy .npz file: {exc}.") from exc
-    if spacing is not None:
-        spacing = tuple(float(s) for s in np.ravel(spacing))
+    check_signature(path, "NumPy .npz")
+    with reading(path, "NumPy .npz"), zipfile.ZipFile(path) as archive:
+        entries = [n[:-4] if n.endswith(".npy") else n for n in archive.namelist()]
+        names = [k for k in entries if k not in METADATA_KEYS]
+        if key is None:
+            if len(names) != 1:
+                raise ChoiceNeeded(
+                    f"'{path}' holds {len(names)} arrays ({', '.join(names) or 'none'}); "
+                    "choose one with key=.", parameter="key", choices=names)
+            key = names[0]
+        elif key not in entries:
+            raise ParameterError(
+                f"key={key!r} is not in '{path}', which holds: {', '.join(names)}.",
+                parameters=("key",))
+        data = _member(archive, key, path)
+        spacing = _member(archive, "spacing", path) if "spacing" in entries else None
+        unit = str(_member(archive, "unit", path)) if "unit" in entries else None
+        if spacing is not None:
+            if spacing.dtype.kind not in "iuf":
+                raise InputFileError(f"'{path}' holds a spacing of {spacing.dtype} values; "
+                                     "expected numbers.", parameters=("spacing",))
+            spacing = tuple(float(s) for s in np.ravel(spacing))
     return Decoded(data, spacing, unit, meta={"format": "NumPy .npz", "key": key})
 
 

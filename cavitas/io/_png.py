@@ -8,18 +8,35 @@ when it states one (Pillow reports it in dots per inch); 72 dpi is ignored as a 
 
 from __future__ import annotations
 
+import struct
+import warnings
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
-from .._errors import CavitasError, InputFileError
+from .._errors import InputFileError
 from ._assemble import Decoded, note
 from ._axes import select_planes
+from ._failures import check_signature, reading
+from ._memory import check_declared
 
 __all__ = ["read_png"]
 
 _PLACEHOLDER_DPI = 72.0
+
+
+def _check_header(path: Path) -> None:
+    """Check the size the ``IHDR`` chunk declares (PNG specification, section 11.2.2: width
+    and height as big-endian 32-bit integers after the signature and chunk header, then the
+    bit depth and colour type) against the memory available, before decoding."""
+    with open(path, "rb") as stream:
+        header = stream.read(26)
+    if len(header) < 26 or header[12:16] != b"IHDR":
+        return  # Pillow names what is wrong
+    width, height, depth, colour = struct.unpack(">IIBB", header[16:26])
+    samples = {0: 1, 2: 3, 3: 1, 4: 2, 6: 4}.get(colour, 4)
+    check_declared(path, (height, width, samples), np.uint16 if depth == 16 else np.uint8)
 
 
 def read_png(path: Path, *, channel: int | None = None) -> Decoded:
@@ -27,8 +44,18 @@ def read_png(path: Path, *, channel: int | None = None) -> Decoded:
     from PIL import Image  # Pillow: a dependency of matplotlib and scikit-image
 
     meta: dict[str, Any] = {"format": "PNG"}
-    try:
-        with Image.open(path) as image:
+    with reading(path, "PNG"):
+        check_signature(path, "PNG")
+        _check_header(path)
+        try:
+            with warnings.catch_warnings():  # the size was checked against memory above
+                warnings.simplefilter("ignore", Image.DecompressionBombWarning)
+                image = Image.open(path)
+        except Image.DecompressionBombError as exc:
+            raise InputFileError(
+                f"'{path}' holds more pixels than Pillow (the PNG library) opens; store it "
+                "as TIFF instead.") from exc
+        with image:
             image.load()
             mode, info = image.mode, dict(image.info)
             data = np.asarray(image)
@@ -38,10 +65,6 @@ def read_png(path: Path, *, channel: int | None = None) -> Decoded:
             data = data.astype(np.uint8)
         data, chosen = select_planes(data, "YXC"[: data.ndim], channel=channel, time=None,
                                      name=str(path))
-    except CavitasError:
-        raise
-    except Exception as exc:  # Pillow raises OSError, SyntaxError, ValueError ...
-        raise InputFileError(f"'{path}' cannot be read as PNG: {exc}.") from exc
     meta.update(chosen)
     spacing = None
     dpi = info.get("dpi")

@@ -15,6 +15,8 @@ import numpy as np
 
 from .._errors import InputFileError, ParameterError
 from ._assemble import Decoded
+from ._failures import reading
+from ._memory import check_declared, declared_bytes
 
 __all__ = ["BYTE_ORDERS", "read_raw"]
 
@@ -62,19 +64,18 @@ def read_raw(path: Path, *, shape: Sequence[int] | None, dtype: str | np.dtype |
              byte_order: str | None = None, offset: int = 0, mmap: bool = True) -> Decoded:
     """Read a raw binary volume with a user-given layout; see the module notes."""
     dims, kind = _layout(path, shape, dtype, byte_order, offset)
-    expected = int(offset) + int(np.prod(dims)) * kind.itemsize
+    expected = int(offset) + declared_bytes(path, dims, kind)
     actual = os.path.getsize(path)
     if actual != expected:
         raise InputFileError(
             f"'{path}' has {actual} bytes, but shape {dims} of {kind} after a {offset}-byte "
             f"header needs {expected} bytes."
         )
-    try:
+    with reading(path, "raw data"):
         if mmap:
             data = np.memmap(path, dtype=kind, mode="r", shape=dims, offset=int(offset))
         else:
+            check_declared(path, dims, kind)
             data = np.fromfile(path, dtype=kind, offset=int(offset)).reshape(dims)
-    except OSError as exc:
-        raise InputFileError(f"'{path}' cannot be read: {exc.strerror or exc}.") from exc
     meta = {"format": "raw", "byte_order": kind.byteorder, "offset": int(offset)}
     return Decoded(data, meta=meta)

@@ -80,6 +80,8 @@ def summarize(data: Any, *, chunk_voxels: int = _CHUNK,
     {'1': 1.0, '50': 50.0, '99': 99.0}
     """
     data = data if hasattr(data, "shape") and data.ndim else np.atleast_1d(data)
+    if data.dtype == np.bool_:  # a mask: its values as 0 and 1
+        data = np.asarray(data).view(np.uint8)
     total = -(-data.shape[0] // _step(tuple(data.shape), chunk_voxels))  # ceiling division
 
     def passes() -> Iterator[np.ndarray]:

@@ -59,7 +59,9 @@ from .._caution import RESEARCH_ONLY
 from .._errors import CavitasError, InputFileError
 from ._assemble import Decoded, note
 from ._axes import select_planes
+from ._failures import check_signature, unreadable
 from ._logs import collect_log
+from ._memory import check_declared
 from ._units import centimetres_per, has_named_unit, normalise_unit
 
 __all__ = ["read_tiff", "write_tiff"]
@@ -74,13 +76,19 @@ _PLACEHOLDER_PPI = 72.0
 _OME_UNITS = {"inch": "in"}
 
 
+#: What a damaged file is called when tifffile logs an error while reading it.
+_DAMAGED = "its image directories or image data are damaged (a truncated or damaged file)"
+
+
 def _fail(path: Path, problem: str) -> InputFileError:
     return InputFileError(f"'{path}' cannot be read as TIFF: {problem}.")
 
 
 def _check_complete(path: Path, series: Any) -> None:
-    """Raise if the image data of ``series`` run past the end of the file (truncated)."""
+    """Raise if the image data of ``series`` run past the end of the file (truncated), or
+    declare more voxels than the memory available holds (see :func:`check_declared`)."""
     size = os.path.getsize(path)
+    check_declared(path, series.shape, series.dtype)
     if series.dataoffset is not None:
         end = series.dataoffset + series.nbytes
     else:
@@ -88,9 +96,9 @@ def _check_complete(path: Path, series: Any) -> None:
         for page in series.pages:
             if page is None:
                 raise _fail(path, "an image page is missing (truncated or damaged file)")
-            offsets, counts = page.dataoffsets, page.databytecounts
-            if offsets:
-                end = max(end, max(o + c for o, c in zip(offsets, counts, strict=False)))
+            ends = [int(o) + int(c) for o, c in zip(page.dataoffsets, page.databytecounts,
+                                                    strict=False)]
+            end = max(end, *ends) if ends else end
     if end > size:
         raise InputFileError(
             f"'{path}' is truncated: its image data end at byte {end} but the file has "
@@ -222,17 +230,17 @@ def read_tiff(path: Path, *, channel: int | None = None, time: int | None = None
               mmap: bool = True) -> Decoded:
     """Read the first image series of a TIFF file; see the module notes."""
     meta: dict[str, Any] = {}
+    check_signature(path, "TIFF")
     try:
         with collect_log("tifffile") as log, tifffile.TiffFile(path) as tif:
             if not len(tif.pages) or not tif.series:
-                why = "; ".join(log.messages()) or "no image directory"
-                raise _fail(path, f"the file holds no image ({why})")
+                raise _fail(path, "the file holds no readable image directory")
             series = tif.series[0]
             if len(tif.series) > 1:
                 note(meta, path, f"the file holds {len(tif.series)} image series; "
                                  "reading the first")
             if log.messages(logging.ERROR):
-                raise _fail(path, f"{log.messages(logging.ERROR)[0]} (truncated or damaged)")
+                raise _fail(path, _DAMAGED)
             _check_complete(path, series)
             data = None
             if mmap and series.dataoffset is not None:
@@ -241,7 +249,7 @@ def read_tiff(path: Path, *, channel: int | None = None, time: int | None = None
             if data is None:
                 data = series.asarray()
             if log.messages(logging.ERROR):
-                raise _fail(path, f"{log.messages(logging.ERROR)[0]} (truncated or damaged)")
+                raise _fail(path, _DAMAGED)
             data, chosen = select_planes(data, series.axes, channel=channel, time=time,
                                          name=str(path))
             data = _original_type(tif, data)
@@ -252,7 +260,7 @@ def read_tiff(path: Path, *, channel: int | None = None, time: int | None = None
     except CavitasError:
         raise
     except Exception as exc:  # tifffile, imagecodecs and the OS raise many types
-        raise _fail(path, str(exc) or type(exc).__name__) from exc
+        raise unreadable(path, "TIFF", exc) from exc
     return Decoded(data, spacing, unit, None, meta)
 
 

@@ -143,7 +143,7 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
     connectivity = check_connectivity(ndim, params.connectivity or 1)
     # Memory: the input is read in place (a memory map stays one); every smoothed copy is
     # in the work type (float32 for <= 16-bit data) and only one or two live at a time.
-    raw = engine_array(np.asarray(vol.data))
+    raw = engine_array(np.asarray(vol.data), f"'{vol.name}'")
     if raw.dtype == np.bool_:
         raw = raw.view(np.uint8)
     if isinstance(mask, (str, os.PathLike)):
