@@ -212,10 +212,13 @@ def run(args: argparse.Namespace) -> int:
             if note:
                 print(f"  {note}")
         if summary["porosity"] is not None and summary["regions"]:
-            vunit = f"{unit}{'³' if len(summary['shape']) == 3 else '²'}"
-            print(f"  volume fraction of the regions (closed porosity) "
-                  f"{summary['porosity']:.4f}; mean region size {summary['mean_volume']:.4g} "
-                  f"{vunit}")
+            solid = len(summary["shape"]) == 3
+            size = f"{unit}{'³' if solid else '²'}" if unit != "voxel" else (
+                "voxels" if solid else "pixels")
+            fraction = ("volume fraction of the regions (closed porosity)" if solid
+                        else "area fraction of the regions")
+            print(f"  {fraction} {summary['porosity']:.4f}; mean region "
+                  f"{'volume' if solid else 'area'} {summary['mean_volume']:.4g} {size}")
         print(f"  outputs in {args.out}: " + ", ".join(
             Path(p).name for p in summary["outputs"].values()))
         print(RESEARCH_ONLY)
