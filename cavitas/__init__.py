@@ -35,6 +35,8 @@ _LAZY = {
     "CavityTree": "cavitas.cubical",
     "bottleneck": "cavitas.cubical",
     "wasserstein": "cavitas.cubical",
+    "euler_curve": "cavitas.cubical",
+    "connectivity_density": "cavitas.cubical",
     "segment": "cavitas.segment",
     "Segmentation": "cavitas.segment",
 }

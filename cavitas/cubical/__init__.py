@@ -17,3 +17,12 @@ __all__ += [
 from ._persistence import cavity_sweep, persistence  # noqa: E402
 
 __all__ += ["cavity_sweep", "persistence"]
+
+from ._euler import (  # noqa: E402
+    ConnectivityDensity,
+    EulerCurve,
+    connectivity_density,
+    euler_curve,
+)
+
+__all__ += ["ConnectivityDensity", "EulerCurve", "connectivity_density", "euler_curve"]
