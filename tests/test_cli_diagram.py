@@ -140,7 +140,7 @@ def test_euler_option_writes_the_curve(tmp_path, scan):
     image = tifffile.imread(scan)
     levels = table["level"].astype(image.dtype)  # the shortest decimal of each float32
     assert np.all(np.diff(levels) < 0)  # bright walls: levels fall
-    for level, chi in zip(levels[::7], table["euler_characteristic"][::7]):
+    for level, chi in zip(levels[::7], table["euler_characteristic"][::7], strict=True):
         assert chi == euler_number(image >= level, connectivity=2)
     # the rings at a level between background and walls: three rings, each with one hole
     below_walls = levels[levels > 100][-1]

@@ -122,8 +122,8 @@ def run(args: argparse.Namespace) -> int:
     targets = [check_writable(args.out / name, force=args.force, inputs=inputs)
                for name in names]
     options = reading_from_args(args).kwargs()
-    with tqdm(total=6 if args.euler else 5, desc="diagram", unit="step", file=sys.stderr, disable=not args.progress,
-              delay=1.0, leave=False) as bar:
+    with tqdm(total=6 if args.euler else 5, desc="diagram", unit="step", file=sys.stderr,
+              disable=not args.progress, delay=1.0, leave=False) as bar:
         bar.set_postfix_str(f"reading {Path(args.file).name}")
         vol = read(args.file, **options)
         mask = _read_mask(args.mask, vol.shape, read) if args.mask else None
