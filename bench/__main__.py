@@ -15,6 +15,7 @@ MODULES = [
     "bench.segment_scale",
     "bench.real_scans",
     "bench.report",
+    "bench.topology",
 ]
 
 
