@@ -73,21 +73,29 @@ def _split(dgm_a: Any, dgm_b: Any, dim: int) -> tuple[np.ndarray, ...]:
     return fin_a, ess_a, fin_b, ess_b
 
 
-def _essential_costs(ess_a: np.ndarray, ess_b: np.ndarray) -> np.ndarray | None:
-    """Birth differences of the optimal essential matching, or ``None`` if counts differ.
+def _essential_pairs(ess_a: np.ndarray, ess_b: np.ndarray) -> np.ndarray | None:
+    """Rows ``(i, j)`` of the optimal essential matching (indices into ``ess_a`` and
+    ``ess_b``), or ``None`` if the counts differ.
 
     Essential classes of equal death (``+inf`` or ``-inf``) are matched in birth order,
     which is optimal for every order of the Wasserstein distance and for the bottleneck
     distance (on a line, the sorted matching minimises any convex cost).
     """
-    costs = []
+    pairs = []
     for sign in (-np.inf, np.inf):
-        births_a = np.sort(ess_a[ess_a[:, 1] == sign, 0])
-        births_b = np.sort(ess_b[ess_b[:, 1] == sign, 0])
-        if len(births_a) != len(births_b):
+        at_a = np.flatnonzero(ess_a[:, 1] == sign)
+        at_b = np.flatnonzero(ess_b[:, 1] == sign)
+        if len(at_a) != len(at_b):
             return None
-        costs.append(np.abs(births_a - births_b))
-    return np.concatenate(costs)
+        pairs.append(np.column_stack([at_a[np.argsort(ess_a[at_a, 0], kind="stable")],
+                                      at_b[np.argsort(ess_b[at_b, 0], kind="stable")]]))
+    return np.concatenate(pairs)
+
+
+def _essential_costs(ess_a: np.ndarray, ess_b: np.ndarray) -> np.ndarray | None:
+    """Birth differences of the optimal essential matching, or ``None`` if counts differ."""
+    pairs = _essential_pairs(ess_a, ess_b)
+    return None if pairs is None else np.abs(ess_a[pairs[:, 0], 0] - ess_b[pairs[:, 1], 0])
 
 
 def _half_persistence(pts: np.ndarray) -> np.ndarray:
@@ -138,14 +146,14 @@ class _WarmMatching:
         """A copy grown to a maximum matching at ``delta``; whether it covers every point
         heavier than ``delta``."""
         out = _WarmMatching(self.left, self.right, self.half)
+        out.mate_left[:], out.mate_right[:] = self.mate_left, self.mate_right
         heavy = self.half > delta
-        mate_left, mate_right = self.mate_left.copy(), self.mate_right.copy()
-        light = (mate_left >= 0) & ~heavy  # free to go to the diagonal now
-        mate_right[mate_left[light]] = -1
-        mate_left[light] = -1
-        out.mate_left, out.mate_right = mate_left, mate_right
-        return out, saturate_heavy(self.left, heavy, self.right, delta, mate_left,
-                                   mate_right) == 0
+        light = (out.mate_left >= 0) & ~heavy  # free to go to the diagonal now
+        out.mate_right[out.mate_left[light]] = -1
+        out.mate_left[light] = -1
+        free = saturate_heavy(self.left, heavy, self.right, delta, out.mate_left,
+                              out.mate_right)
+        return out, free == 0
 
 
 def _matching_of_finite(fin_a: np.ndarray, fin_b: np.ndarray) -> tuple[float, np.ndarray]:
@@ -227,18 +235,14 @@ def bottleneck_matching(dgm_a: Any, dgm_b: Any, dim: int) -> BottleneckMatching:
     _check_polarity(dgm_a, dgm_b)
     rows_a, rows_b = _rows(dgm_a, dim, "dgm_a"), _rows(dgm_b, dim, "dgm_b")
     finite_a, finite_b = np.isfinite(rows_a[:, 1]), np.isfinite(rows_b[:, 1])
-    nothing = np.empty(0, np.int64)
-    ess_pairs = []
-    for sign in (-np.inf, np.inf):
-        at_a = np.flatnonzero(rows_a[:, 1] == sign)
-        at_b = np.flatnonzero(rows_b[:, 1] == sign)
-        if len(at_a) != len(at_b):
-            return BottleneckMatching(float("inf"), nothing.reshape(0, 2), nothing, nothing)
-        ess_pairs.append(np.column_stack([at_a[np.argsort(rows_a[at_a, 0], kind="stable")],
-                                          at_b[np.argsort(rows_b[at_b, 0], kind="stable")]]))
-    ess = np.concatenate(ess_pairs)
-    ess_cost = float(np.abs(rows_a[ess[:, 0], 0] - rows_b[ess[:, 1], 0]).max(initial=0.0))
     index_a, index_b = np.flatnonzero(finite_a), np.flatnonzero(finite_b)
+    ess_a, ess_b = np.flatnonzero(~finite_a), np.flatnonzero(~finite_b)
+    ess_pairs = _essential_pairs(rows_a[ess_a], rows_b[ess_b])
+    if ess_pairs is None:
+        nothing = np.empty(0, np.int64)
+        return BottleneckMatching(float("inf"), nothing.reshape(0, 2), nothing, nothing)
+    ess = np.column_stack([ess_a[ess_pairs[:, 0]], ess_b[ess_pairs[:, 1]]])
+    ess_cost = float(np.abs(rows_a[ess[:, 0], 0] - rows_b[ess[:, 1], 0]).max(initial=0.0))
     delta, partner = _matching_of_finite(rows_a[index_a], rows_b[index_b])
     matched = partner >= 0
     to_b = np.zeros(len(index_b), bool)
