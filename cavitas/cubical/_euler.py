@@ -22,10 +22,10 @@ import numpy as np
 from scipy import ndimage
 
 from .._checks import number
-from .._errors import InputFileError, ParameterError
+from .._errors import ParameterError
 from ..io._volume import Volume
 from ._neighbors import check_connectivity, dual_connectivity
-from ._persistence import check_walls, checked_image, checked_mask
+from ._persistence import check_walls, checked_image, checked_mask, reject_nonfinite
 from ._sort import sort_voxels
 
 __all__ = ["ConnectivityDensity", "EulerCurve", "connectivity_density", "euler_curve"]
@@ -94,12 +94,7 @@ def _entry_ranks(arr: np.ndarray, mask: np.ndarray | None,
     flat = arr.reshape(-1)
     order, nonfinite = sort_voxels(flat, None if mask is None else mask.reshape(-1),
                                    descending=bright)
-    if nonfinite:
-        where = "inside the mask" if mask is not None else "(mask them out to skip them)"
-        raise InputFileError(
-            f"image holds {nonfinite} NaN or infinite value(s) {where}; expected finite "
-            "intensities."
-        )
+    reject_nonfinite(nonfinite, masked=mask is not None)
     ordered = flat[order]
     first = np.empty(len(order), bool)  # the first voxel of each level
     first[0] = True
@@ -110,7 +105,7 @@ def _entry_ranks(arr: np.ndarray, mask: np.ndarray | None,
     return levels, ranks.reshape(arr.shape)
 
 
-def _pairs(cells: np.ndarray, axis: int, reduce: Any) -> np.ndarray:
+def _reduce_neighbours(cells: np.ndarray, axis: int, reduce: Any) -> np.ndarray:
     """``reduce`` of each two neighbours along ``axis``: one entry per cell spanning it."""
     head = [slice(None)] * cells.ndim
     tail = [slice(None)] * cells.ndim
@@ -133,9 +128,9 @@ def _chi_steps(ranks: np.ndarray, n_levels: int, full: bool) -> np.ndarray:
             if full and spanned:
                 cells = cells[(slice(None),) * axis + (slice(1, -1),)]
             elif full:
-                cells = _pairs(cells, axis, np.minimum)
+                cells = _reduce_neighbours(cells, axis, np.minimum)
             elif spanned:
-                cells = _pairs(cells, axis, np.maximum)
+                cells = _reduce_neighbours(cells, axis, np.maximum)
         sign = -1 if sum(spans) % 2 else 1
         steps += sign * np.bincount(cells.ravel(), minlength=n_levels + 1)
     return steps[:n_levels]

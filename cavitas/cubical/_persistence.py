@@ -64,6 +64,16 @@ def check_walls(walls: object) -> None:
         raise ParameterError(f"walls must be 'bright' or 'dark'; got {walls!r}.")
 
 
+def reject_nonfinite(nonfinite: int, *, masked: bool) -> None:
+    """Refuse an image with ``nonfinite`` NaN or infinite values in the analysed voxels."""
+    if nonfinite:
+        where = "inside the mask" if masked else "(mask them out to skip them)"
+        raise InputFileError(
+            f"image holds {nonfinite} NaN or infinite value(s) {where}; expected finite "
+            "intensities."
+        )
+
+
 def checked_mask(mask: Any, shape: tuple[int, ...]) -> np.ndarray | None:
     """``mask`` as a C-contiguous boolean array of ``shape`` selecting at least one voxel
     (``None`` stays ``None``); anything else is a :class:`ParameterError`."""
@@ -107,12 +117,7 @@ class _Prepared:
         self.zmargin = 1 if self.ndim == 3 else 0
 
     def _reject_nonfinite(self, nonfinite: int) -> None:
-        if nonfinite:
-            where = "inside the mask" if self.mask is not None else "(mask them out to skip them)"
-            raise InputFileError(
-                f"image holds {nonfinite} NaN or infinite value(s) {where}; expected finite "
-                "intensities."
-            )
+        reject_nonfinite(nonfinite, masked=self.mask is not None)
 
     def new_parent(self) -> np.ndarray:
         """A union-find work array (n + 1 slots; the kernels initialise it)."""
