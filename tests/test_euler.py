@@ -15,7 +15,7 @@ import pytest
 from skimage.measure import euler_number
 
 from cavitas import ParameterError
-from cavitas.cubical import connectivity_density, euler_curve
+from cavitas.cubical import connectivity_density, euler_curve, persistence
 
 
 def _walls_at(image, level, walls, mask):
@@ -46,6 +46,25 @@ def test_chi_at_every_level_matches_skimage(rng, ndim, dtype, walls, full, use_m
     for t in (between, float(image.max()) + 1, float(image.min()) - 1):
         assert curve.at(t) == euler_number(_walls_at(image, t, walls, mask),
                                            connectivity=connectivity)
+
+
+@pytest.mark.parametrize("walls", ["bright", "dark"])
+@pytest.mark.parametrize("connectivity", [1, 2])
+def test_chi_is_components_minus_holes_of_the_2d_diagram(rng, walls, connectivity):
+    # internal consistency (two independent routes in cavitas): in 2D, chi = beta0 - beta1
+    # (Euler-Poincare), beta0 and beta1 counted as the diagram's H0 and H1 pairs alive at
+    # each level (born at or before it, not yet dead)
+    image = rng.integers(0, 6, size=(20, 23)).astype(float)
+    dgm = persistence(image, walls=walls, connectivity=connectivity)
+    curve = euler_curve(image, walls=walls, connectivity=connectivity)
+    sign = 1 if walls == "bright" else -1  # bright: levels fall as the walls grow
+
+    def alive(dim, level):
+        rows = dgm.pairs(dim)
+        return int(np.sum((sign * rows["birth"] >= sign * level)
+                          & (sign * rows["death"] < sign * level)))
+
+    assert [alive(0, t) - alive(1, t) for t in curve.levels] == curve.chi.tolist()
 
 
 def test_float_data_with_many_levels_matches_skimage(rng):

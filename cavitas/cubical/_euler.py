@@ -163,8 +163,11 @@ def euler_curve(volume: Any, *, walls: str = "bright", connectivity: int = 1,
     In 3D, χ = β0 − β1 + β2 (components − tunnels + cavities); in 2D, components − holes.
     Every cell of the cubical complex enters at one level, so each of the ``2**ndim`` cell
     types (vertices, edges along each axis, ...) is histogrammed by entry level and the
-    signed histograms are summed cumulatively: ``O(N)`` time and a few integer arrays
-    of the image's size, plus a sort of the intensities for data wider than 16 bits.
+    signed histograms are summed cumulatively: ``O(N)`` time beyond one sort of the
+    intensities (a counting sort for data of 16 bits or less), and a few integer arrays of
+    the image's size. With a mask, χ is that of the walls inside it: a pocket of masked-out
+    voxels enclosed by walls is a hole here, while :func:`persistence` joins masked-out
+    voxels to the outside.
     At every level, χ equals :func:`skimage.measure.euler_number` of the thresholded
     walls with the same ``connectivity`` (J. Ohser, W. Nagel, K. Schladitz, "The Euler
     number of discretized sets - on the choice of adjacency in homogeneous lattices",
