@@ -46,7 +46,9 @@ class _CriticalPixels:
 def checked_image(image: Any) -> np.ndarray:
     """``image`` (an array or a :class:`~cavitas.Volume`) as a 2D or 3D array of a dtype the
     engine reads, without a copy when possible; anything else is a :class:`ParameterError`."""
+    name = "image"
     if isinstance(image, Volume):
+        name = f"'{image.name}'"
         image = image.data
     arr = np.asarray(image)  # a view of an ndarray or a memory map, not a copy
     if arr.ndim not in (2, 3):
@@ -55,7 +57,7 @@ def checked_image(image: Any) -> np.ndarray:
         )
     if arr.size == 0:
         raise ParameterError(f"image must hold at least one voxel; got shape {arr.shape}.")
-    return engine_array(arr)
+    return engine_array(arr, name)
 
 
 def check_walls(walls: object) -> None:
