@@ -16,6 +16,7 @@ MODULES = [
     "bench.memory_guard",
     "bench.real_scans",
     "bench.report",
+    "bench.topology",
 ]
 
 

@@ -37,7 +37,10 @@ _LAZY = {
     "Diagram": "cavitas.cubical",
     "CavityTree": "cavitas.cubical",
     "bottleneck": "cavitas.cubical",
+    "bottleneck_matching": "cavitas.cubical",
     "wasserstein": "cavitas.cubical",
+    "euler_curve": "cavitas.cubical",
+    "connectivity_density": "cavitas.cubical",
     "segment": "cavitas.segment",
     "Segmentation": "cavitas.segment",
 }

@@ -124,3 +124,25 @@ def test_volume_cavity_dimension_is_h2(tmp_path):
     serial = load_diagram(tmp_path / "serial" / "diagram.csv")
     for dim in (0, 2):
         np.testing.assert_array_equal(serial.pairs(dim), dgm.pairs(dim))
+
+
+def test_euler_option_writes_the_curve(tmp_path, scan):
+    # reference: skimage.measure.euler_number of the walls at each written level (Ohser,
+    # Nagel & Schladitz 2002); walls bright, connectivity 2 in cavitas and in skimage
+    from skimage.measure import euler_number
+
+    from cavitas._table import Table
+
+    out = tmp_path / "out"
+    assert main(["diagram", str(scan), "-o", str(out), "--euler", "--connectivity", "2",
+                 "-q"]) == 0
+    table = Table.from_csv(out / "euler.csv")
+    image = tifffile.imread(scan)
+    levels = table["level"].astype(image.dtype)  # the shortest decimal of each float32
+    assert np.all(np.diff(levels) < 0)  # bright walls: levels fall
+    for level, chi in zip(levels[::7], table["euler_characteristic"][::7], strict=True):
+        assert chi == euler_number(image >= level, connectivity=2)
+    # the rings at a level between background and walls: three rings, each with one hole
+    below_walls = levels[levels > 100][-1]
+    assert table["euler_characteristic"][levels == below_walls][0] == 0
+    assert (out / "euler.png").read_bytes()[:4] == b"\x89PNG"

@@ -16,7 +16,8 @@ from hypothesis import strategies as st
 from scipy.optimize import linear_sum_assignment
 
 from cavitas import ParameterError
-from cavitas.cubical import PAIR_DTYPE, Diagram, bottleneck, wasserstein
+from cavitas.cubical import PAIR_DTYPE, Diagram, bottleneck, bottleneck_matching, wasserstein
+from tests.bottleneck_bisection import bisection_bottleneck
 
 
 def _augmented_costs(a, b):
@@ -90,10 +91,71 @@ _point = st.tuples(st.integers(0, 6), st.integers(0, 6)).map(
 _tiny = st.lists(_point, min_size=0, max_size=3)
 
 
+def matching_cost(a, b, found):
+    """Largest cost of a returned matching, after checking that it is one: every row of
+    each diagram used exactly once, finite with finite and essential with essential."""
+    a = np.asarray(a, float).reshape(-1, 2)
+    b = np.asarray(b, float).reshape(-1, 2)
+    rows_a = np.concatenate([found.pairs[:, 0], found.diagonal_a])
+    rows_b = np.concatenate([found.pairs[:, 1], found.diagonal_b])
+    assert sorted(rows_a.tolist()) == list(range(len(a)))
+    assert sorted(rows_b.tolist()) == list(range(len(b)))
+    assert np.all(np.isfinite(a[found.diagonal_a, 1]))
+    assert np.all(np.isfinite(b[found.diagonal_b, 1]))
+    pa, pb = a[found.pairs[:, 0]], b[found.pairs[:, 1]]
+    assert np.array_equal(np.isfinite(pa[:, 1]), np.isfinite(pb[:, 1]))
+    gap = np.abs(pa - pb)
+    gap[~np.isfinite(pa[:, 1]), 1] = 0.0  # essential: only the births count
+    costs = np.concatenate([gap.max(axis=1, initial=0.0),
+                            np.abs(a[found.diagonal_a, 0] - a[found.diagonal_a, 1]) / 2,
+                            np.abs(b[found.diagonal_b, 0] - b[found.diagonal_b, 1]) / 2])
+    return float(costs.max(initial=0.0))
+
+
 @given(_tiny, _tiny)
 def test_bottleneck_matches_permutation_brute_force(a, b):
     # reference: definition, Cohen-Steiner, Edelsbrunner & Harer 2007 (all permutations)
     assert bottleneck(a, b, 0) == pytest.approx(brute_bottleneck(a, b), rel=1e-12, abs=1e-12)
+    found = bottleneck_matching(a, b, 0)
+    assert matching_cost(a, b, found) == found.distance  # the matching attains it
+
+
+@pytest.mark.parametrize("a, b, distance, pairs, diagonal_a, diagonal_b", [
+    # hand-worked from the definition (L-infinity costs, half persistence to the diagonal)
+    ([[3.0, 1.0]], [], 1.0, [], [0], []),                      # (3 - 1) / 2
+    ([[3.0, 1.0]], [[3.5, 1.0]], 0.5, [[0, 0]], [], []),        # max(0.5, 0) < 1 and 1.25
+    ([[10.0, 0.0]], [[4.0, 3.0]], 5.0, [], [0], [0]),           # 5 and 0.5 beat max(6, 3)
+    ([[10.0, 0.0]], [[7.0, 1.0]], 3.0, [[0, 0]], [], []),       # max(3, 1) beats 5 and 3
+    ([[5.0, -np.inf]], [[3.0, -np.inf]], 2.0, [[0, 0]], [], []),  # essential: |5 - 3|
+    ([[5.0, -np.inf], [4.0, 3.0]], [[4.5, -np.inf]], 0.5, [[0, 0]], [1], []),
+])
+def test_single_bar_cases_by_hand(a, b, distance, pairs, diagonal_a, diagonal_b):
+    found = bottleneck_matching(a, b, 0)
+    assert found.distance == distance
+    assert found.pairs.tolist() == pairs
+    assert found.diagonal_a.tolist() == diagonal_a and found.diagonal_b.tolist() == diagonal_b
+
+
+def test_different_numbers_of_essential_classes_are_infinitely_apart():
+    # definition: essential classes can only be matched with each other
+    found = bottleneck_matching([[5.0, -np.inf]], [[5.0, 1.0]], 0)
+    assert found.distance == np.inf and found.pairs.shape == (0, 2)
+
+
+@pytest.mark.parametrize("size, levels", [(300, 12), (800, 40), (600, 1000)])
+def test_bottleneck_equals_the_previous_bisection_on_medium_diagrams(rng, size, levels):
+    # reference: the previous implementation (bisection over candidate costs, each test a
+    # scipy Hopcroft-Karp matching on explicitly listed pairs; tests/bottleneck_bisection.py).
+    # Few distinct levels give many ties, many give a spread of distances.
+    def diagram(count):
+        births = rng.integers(0, levels, count).astype(float)
+        return np.column_stack([births, births - rng.integers(0, levels // 4 + 1, count)])
+
+    for _ in range(3):
+        a, b = diagram(size), diagram(size + int(rng.integers(0, 30)))
+        found = bottleneck_matching(a, b, 0)
+        assert found.distance == bisection_bottleneck(a, b, 0)
+        assert matching_cost(a, b, found) == found.distance
 
 
 @given(_tiny, _tiny, st.sampled_from([1.0, 2.0, 3.5]))
@@ -113,16 +175,9 @@ def test_bottleneck_matches_assignment_reference_on_larger_diagrams(rng):
 
 
 
-@pytest.mark.parametrize("listed_at_once", [2_000_000, 1])
-def test_bottleneck_with_many_noise_points_matches_the_reference(rng, monkeypatch,
-                                                                 listed_at_once):
-    # reference: as above. Mostly noise near the diagonal around a few far points, the
-    # case where points with no far partner leave the matching graph. Listing one pair at
-    # most forces the interval to be halved before the candidates are listed.
-    import cavitas.cubical._distance as distance
-
-    monkeypatch.setattr(distance, "_MAX_CANDIDATE_PAIRS", listed_at_once)
-
+def test_bottleneck_with_many_noise_points_matches_the_reference(rng):
+    # reference: as above. Mostly noise near the diagonal around a few far points: most
+    # points may go to the diagonal, the grid cells are crowded.
     def diagram(count, n_far):
         births = rng.uniform(0, 100, count + n_far)
         gaps = np.concatenate([rng.exponential(1.0, count), rng.uniform(20, 60, n_far)])
@@ -130,7 +185,9 @@ def test_bottleneck_with_many_noise_points_matches_the_reference(rng, monkeypatc
 
     for n_noise, n_far in ((150, 3), (240, 10)):
         a, b = diagram(n_noise, n_far), diagram(n_noise + 17, n_far)
-        assert bottleneck(a, b, 0) == pytest.approx(threshold_bottleneck(a, b), abs=1e-12)
+        found = bottleneck_matching(a, b, 0)
+        assert found.distance == pytest.approx(threshold_bottleneck(a, b), abs=1e-12)
+        assert matching_cost(a, b, found) == found.distance
         assert bottleneck(a, a[::-1] + 1e-3, 0) == pytest.approx(1e-3, abs=1e-9)
 
 

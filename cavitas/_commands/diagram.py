@@ -15,6 +15,8 @@ __all__ = ["register", "run"]
 
 #: Files written into the output folder.
 OUTPUTS = ("diagram.npz", "diagram.csv", "diagram.png", "barcode.png")
+#: Written as well with ``--euler``.
+EULER_OUTPUTS = ("euler.csv", "euler.png")
 
 DESCRIPTION = f"""\
 Compute the persistence diagram of an image or volume: wall components (H0) and cavities
@@ -36,6 +38,8 @@ examples:
       one channel and time point, inside a region of interest, replacing earlier output
   cavitas diagram block.raw -o out --shape 64,256,256 --dtype uint16 --byte-order big
       a raw volume without a header: its layout
+  cavitas diagram foam.tif -o out --euler
+      also the Euler characteristic of the walls at every level (euler.csv, euler.png)
 """
 
 
@@ -66,6 +70,10 @@ def register(subparsers: Any, *, parents: list[argparse.ArgumentParser],
                              "image, about 1.7x slower")
     parser.add_argument("--bars", type=int, default=50, metavar="K",
                         help="number of cavity bars drawn in barcode.png, longest first")
+    parser.add_argument("--euler", action="store_true",
+                        help="also write euler.csv and euler.png: the Euler characteristic "
+                             "of the walls (components - loops + enclosed cavities) at every "
+                             "level, one row per level where it changes")
     parser.add_argument("--force", action="store_true",
                         help="replace output files that already exist")
     add_reading_options(parser)
@@ -84,8 +92,22 @@ def _read_mask(path: str, shape: tuple[int, ...], read: Any) -> Any:
     return mask
 
 
+def _write_euler(image: Any, args: argparse.Namespace, mask: Any, targets: list[Path]) -> None:
+    """Write the Euler characteristic curve of the walls as a table and a figure."""
+    from .._table import Table
+    from ..cubical import euler_curve
+    from ..report.diagram_plots import save_figure
+    from ..report.euler_plot import plot_euler_curve
+
+    curve = euler_curve(image, walls=args.walls, connectivity=args.connectivity,
+                        mask=mask).changes()
+    Table({"level": curve.levels, "euler_characteristic": curve.chi}).to_csv(
+        targets[0], force=args.force)
+    save_figure(plot_euler_curve(curve), targets[1], force=args.force)
+
+
 def run(args: argparse.Namespace) -> int:
-    """Read ``args.file``, compute its diagram, write the four outputs, print the summary."""
+    """Read ``args.file``, compute its diagram, write the outputs, print the summary."""
     from tqdm import tqdm
 
     from ..cubical import format_summary, persistence, save_diagram
@@ -96,11 +118,12 @@ def run(args: argparse.Namespace) -> int:
     if args.bars < 1:
         raise ParameterError(f"--bars must be a positive number of bars; got {args.bars}.")
     inputs = tuple(p for p in (args.file, args.mask) if p)
+    names = OUTPUTS + (EULER_OUTPUTS if args.euler else ())
     targets = [check_writable(args.out / name, force=args.force, inputs=inputs)
-               for name in OUTPUTS]
+               for name in names]
     options = reading_from_args(args).kwargs()
-    with tqdm(total=5, desc="diagram", unit="step", file=sys.stderr, disable=not args.progress,
-              delay=1.0, leave=False) as bar:
+    with tqdm(total=6 if args.euler else 5, desc="diagram", unit="step", file=sys.stderr,
+              disable=not args.progress, delay=1.0, leave=False) as bar:
         bar.set_postfix_str(f"reading {Path(args.file).name}")
         vol = read(args.file, **options)
         mask = _read_mask(args.mask, vol.shape, read) if args.mask else None
@@ -119,8 +142,12 @@ def run(args: argparse.Namespace) -> int:
         save_figure(plot_barcode(dgm, dim=dgm.cavity_dim, top=args.bars), targets[3],
                     force=args.force)
         bar.update()
+        if args.euler:
+            bar.set_postfix_str("Euler characteristic")
+            _write_euler(vol.data, args, mask, targets[4:])
+            bar.update()
     if not args.quiet:
         print(f"{vol.name}: {format_summary(dgm)}")
-        print(f"wrote {', '.join(OUTPUTS)} to {args.out}")
+        print(f"wrote {', '.join(names)} to {args.out}")
         print(RESEARCH_ONLY)
     return 0

@@ -6,14 +6,28 @@ from ._tree import OUTSIDE, CavityTree
 __all__ = ["PAIR_DTYPE", "OUTSIDE", "CavityTree", "Diagram"]
 
 from ._diagram_io import load_diagram, save_diagram  # noqa: E402
-from ._distance import bottleneck, wasserstein  # noqa: E402
+from ._distance import (  # noqa: E402
+    BottleneckMatching,
+    bottleneck,
+    bottleneck_matching,
+    wasserstein,
+)
 from ._summary import diagram_summary, format_summary  # noqa: E402
 
 __all__ += [
-    "bottleneck", "diagram_summary", "format_summary", "load_diagram", "save_diagram",
-    "wasserstein",
+    "BottleneckMatching", "bottleneck", "bottleneck_matching", "diagram_summary",
+    "format_summary", "load_diagram", "save_diagram", "wasserstein",
 ]
 
 from ._persistence import cavity_sweep, persistence  # noqa: E402
 
 __all__ += ["cavity_sweep", "persistence"]
+
+from ._euler import (  # noqa: E402
+    ConnectivityDensity,
+    EulerCurve,
+    connectivity_density,
+    euler_curve,
+)
+
+__all__ += ["ConnectivityDensity", "EulerCurve", "connectivity_density", "euler_curve"]

@@ -8,27 +8,26 @@ different number of them are at infinite distance.
 
 from __future__ import annotations
 
-import itertools
+from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
 from scipy.optimize import linear_sum_assignment
-from scipy.sparse import csr_matrix
-from scipy.sparse.csgraph import maximum_bipartite_matching
 from scipy.spatial import cKDTree
 
 from .._errors import ParameterError
 from ._diagram import Diagram
+from ._geometric_matching import merge_matchings, saturate_heavy
 
-__all__ = ["bottleneck", "wasserstein"]
+__all__ = ["BottleneckMatching", "bottleneck", "bottleneck_matching", "wasserstein"]
 
 #: Largest number of finite points (both diagrams together) for the exact Wasserstein
 #: distance: its dense cost matrix holds this many squared float64 values.
 MAX_WASSERSTEIN_POINTS = 8000
 
 
-def _points(dgm: Any, dim: int, name: str) -> tuple[np.ndarray, np.ndarray]:
-    """Split one diagram's ``dim`` pairs into finite points (k, 2) and essential (birth, sign)."""
+def _rows(dgm: Any, dim: int, name: str) -> np.ndarray:
+    """One diagram's ``dim`` pairs as checked float64 ``(birth, death)`` rows (k, 2)."""
     if isinstance(dgm, Diagram):
         dgm = dgm.pairs(dim)
     try:
@@ -49,78 +48,149 @@ def _points(dgm: Any, dim: int, name: str) -> tuple[np.ndarray, np.ndarray]:
         raise ParameterError(f"{name} has a birth that is not a finite number.")
     if np.any(np.isnan(pts[:, 1])):
         raise ParameterError(f"{name} has a death that is NaN.")
+    return pts
+
+
+def _points(dgm: Any, dim: int, name: str) -> tuple[np.ndarray, np.ndarray]:
+    """Split one diagram's ``dim`` pairs into finite points (k, 2) and essential (birth, sign)."""
+    pts = _rows(dgm, dim, name)
     finite = np.isfinite(pts[:, 1])
     return pts[finite], pts[~finite]
 
 
-def _split(dgm_a: Any, dgm_b: Any, dim: int) -> tuple[np.ndarray, ...]:
+def _check_polarity(dgm_a: Any, dgm_b: Any) -> None:
     if isinstance(dgm_a, Diagram) and isinstance(dgm_b, Diagram) and dgm_a.walls != dgm_b.walls:
         raise ParameterError(
             f"Cannot compare diagrams of different wall polarity: {dgm_a.walls!r} and "
             f"{dgm_b.walls!r}."
         )
+
+
+def _split(dgm_a: Any, dgm_b: Any, dim: int) -> tuple[np.ndarray, ...]:
+    _check_polarity(dgm_a, dgm_b)
     fin_a, ess_a = _points(dgm_a, dim, "dgm_a")
     fin_b, ess_b = _points(dgm_b, dim, "dgm_b")
     return fin_a, ess_a, fin_b, ess_b
 
 
-def _essential_costs(ess_a: np.ndarray, ess_b: np.ndarray) -> np.ndarray | None:
-    """Birth differences of the optimal essential matching, or ``None`` if counts differ.
+def _essential_pairs(ess_a: np.ndarray, ess_b: np.ndarray) -> np.ndarray | None:
+    """Rows ``(i, j)`` of the optimal essential matching (indices into ``ess_a`` and
+    ``ess_b``), or ``None`` if the counts differ.
 
     Essential classes of equal death (``+inf`` or ``-inf``) are matched in birth order,
     which is optimal for every order of the Wasserstein distance and for the bottleneck
     distance (on a line, the sorted matching minimises any convex cost).
     """
-    costs = []
+    pairs = []
     for sign in (-np.inf, np.inf):
-        births_a = np.sort(ess_a[ess_a[:, 1] == sign, 0])
-        births_b = np.sort(ess_b[ess_b[:, 1] == sign, 0])
-        if len(births_a) != len(births_b):
+        at_a = np.flatnonzero(ess_a[:, 1] == sign)
+        at_b = np.flatnonzero(ess_b[:, 1] == sign)
+        if len(at_a) != len(at_b):
             return None
-        costs.append(np.abs(births_a - births_b))
-    return np.concatenate(costs)
+        pairs.append(np.column_stack([at_a[np.argsort(ess_a[at_a, 0], kind="stable")],
+                                      at_b[np.argsort(ess_b[at_b, 0], kind="stable")]]))
+    return np.concatenate(pairs)
+
+
+def _essential_costs(ess_a: np.ndarray, ess_b: np.ndarray) -> np.ndarray | None:
+    """Birth differences of the optimal essential matching, or ``None`` if counts differ."""
+    pairs = _essential_pairs(ess_a, ess_b)
+    return None if pairs is None else np.abs(ess_a[pairs[:, 0], 0] - ess_b[pairs[:, 1], 0])
 
 
 def _half_persistence(pts: np.ndarray) -> np.ndarray:
     return np.abs(pts[:, 0] - pts[:, 1]) / 2.0
 
 
-def _perfect_matching_exists(n: int, m: int, ia: np.ndarray, jb: np.ndarray,
-                             light_a: np.ndarray, light_b: np.ndarray) -> bool:
-    """Whether the augmented graph with the given edges has a perfect matching.
+@dataclass(frozen=True)
+class BottleneckMatching:
+    """An optimal bottleneck matching of two diagrams and its cost.
 
-    Rows: ``n`` points of A, then ``m`` diagonal slots of B. Columns: ``m`` points of B,
-    then ``n`` diagonal slots of A. Edges: A_i–B_j (given), A_i–diag(A_i) if ``light_a[i]``,
-    diag(B_j)–B_j if ``light_b[j]``, and diag(B_j)–diag(A_i) mirroring every A_i–B_j edge
-    (enough: the two diagonal slots are free exactly when A_i and B_j are matched together).
-
-    A light point with no A–B edge can only take its own diagonal slot, which nothing else
-    can take, so both leave the graph; what remains is usually a small part of the points.
+    Attributes
+    ----------
+    distance : float
+        The bottleneck distance (``inf`` if the numbers of essential classes differ; the
+        matching is then empty).
+    pairs : ndarray of int64, shape (k, 2)
+        Rows ``(i, j)``: row ``i`` of the first diagram's ``dim`` pairs is matched with row
+        ``j`` of the second's (finite with finite, essential with essential).
+    diagonal_a, diagonal_b : ndarray of int64
+        Rows of each diagram matched with the diagonal (at cost half their persistence).
     """
-    keep_a = ~light_a
-    keep_a[ia] = True
-    keep_b = ~light_b
-    keep_b[jb] = True
-    new_a = np.cumsum(keep_a) - 1
-    new_b = np.cumsum(keep_b) - 1
-    n, m = int(keep_a.sum()), int(keep_b.sum())
-    if n + m == 0:
-        return True
-    ia, jb = new_a[ia], new_b[jb]
-    la = new_a[np.flatnonzero(light_a & keep_a)]
-    lb = new_b[np.flatnonzero(light_b & keep_b)]
-    rows = np.concatenate([ia, la, n + lb, n + jb])
-    cols = np.concatenate([jb, m + la, lb, m + ia])
-    degree = np.bincount(rows, minlength=n + m)
-    if degree.min() == 0:  # a heavy point with no partner within reach
-        return False
-    graph = csr_matrix((np.ones(len(rows), np.int8), (rows, cols)), shape=(n + m, n + m))
-    match = maximum_bipartite_matching(graph, perm_type="column")
-    return bool(np.all(match >= 0))
+
+    distance: float
+    pairs: np.ndarray
+    diagonal_a: np.ndarray
+    diagonal_b: np.ndarray
 
 
-def bottleneck(dgm_a: Any, dgm_b: Any, dim: int) -> float:
-    """Exact bottleneck distance between the ``dim`` pairs of two diagrams.
+def _float_bits(value: float) -> int:
+    """The bit pattern of a float >= 0 as an integer: it orders like the float."""
+    return int(np.float64(value).view(np.int64))
+
+
+def _bits_float(bits: int) -> float:
+    return float(np.int64(bits).view(np.float64))
+
+
+class _WarmMatching:
+    """A maximum matching from the heavy points of one diagram into the other, kept valid
+    as the cost grows (a larger cost only adds pairs and makes fewer points heavy)."""
+
+    def __init__(self, left: np.ndarray, right: np.ndarray, half: np.ndarray) -> None:
+        self.left, self.right, self.half = left, right, half
+        self.mate_left = np.full(len(left), -1, np.int64)
+        self.mate_right = np.full(len(right), -1, np.int64)
+
+    def grown(self, delta: float) -> tuple[_WarmMatching, bool]:
+        """A copy grown to a maximum matching at ``delta``; whether it covers every point
+        heavier than ``delta``."""
+        out = _WarmMatching(self.left, self.right, self.half)
+        out.mate_left[:], out.mate_right[:] = self.mate_left, self.mate_right
+        heavy = self.half > delta
+        light = (out.mate_left >= 0) & ~heavy  # free to go to the diagonal now
+        out.mate_right[out.mate_left[light]] = -1
+        out.mate_left[light] = -1
+        free = saturate_heavy(self.left, heavy, self.right, delta, out.mate_left,
+                              out.mate_right)
+        return out, free == 0
+
+
+def _matching_of_finite(fin_a: np.ndarray, fin_b: np.ndarray) -> tuple[float, np.ndarray]:
+    """The bottleneck cost of the finite points and the partner in B of each point of A
+    (-1: the diagonal)."""
+    half_a, half_b = _half_persistence(fin_a), _half_persistence(fin_b)
+    upper = float(max(half_a.max(initial=0.0), half_b.max(initial=0.0)))
+    tree_a = cKDTree(fin_a) if len(fin_a) else None
+    tree_b = cKDTree(fin_b) if len(fin_b) else None
+    bound = _lower_bound(fin_a, fin_b, tree_a, tree_b, half_a, half_b)
+    lo = bound - 4 * np.spacing(bound)  # below the exact bound: no cost that low passes
+    lo_bits = _float_bits(lo) if lo >= 0 else -1
+    hi_bits = _float_bits(upper)  # every point to the diagonal: always passes
+    below = (_WarmMatching(fin_a, fin_b, half_a), _WarmMatching(fin_b, fin_a, half_b))
+    above = below
+    # Feasibility is monotone in the cost and changes only at a candidate cost (a float
+    # computed exactly as in the test), so bisecting the floats between the bounds ends
+    # on the answer itself: at most 64 tests, each warm-started from the last failure.
+    while hi_bits - lo_bits > 1:
+        mid_bits = (lo_bits + hi_bits) // 2
+        delta = _bits_float(mid_bits)
+        side_a, covered = below[0].grown(delta)
+        side_b = below[1]
+        if covered:
+            side_b, covered = below[1].grown(delta)
+        if covered:
+            hi_bits, above = mid_bits, (side_a, side_b)
+        else:
+            lo_bits, below = mid_bits, (side_a, side_b)
+    delta = _bits_float(hi_bits)
+    partner = merge_matchings(above[0].mate_left, above[1].mate_left, half_b > delta)
+    return delta, partner
+
+
+def bottleneck_matching(dgm_a: Any, dgm_b: Any, dim: int) -> BottleneckMatching:
+    """Exact bottleneck distance between the ``dim`` pairs of two diagrams, with a
+    matching that attains it.
 
     Parameters
     ----------
@@ -132,30 +202,68 @@ def bottleneck(dgm_a: Any, dgm_b: Any, dim: int) -> float:
 
     Returns
     -------
-    float
-        The smallest ``δ`` such that a matching pairs every point of one diagram with a
-        point of the other or with the diagonal, each within ``δ`` in L∞ distance;
-        ``inf`` if the diagrams have a different number of essential classes.
+    BottleneckMatching
+        The distance, and which rows are matched with which or with the diagonal.
 
     Notes
     -----
     Each diagram is augmented with the diagonal projections of the other's points; a
     point may be matched with the diagonal at cost half its persistence, and two diagonal
-    points with each other at cost 0 (Cohen-Steiner, Edelsbrunner & Harer 2007). The answer
-    is one of the candidate costs (half persistences and L∞ point distances): the smallest
-    one for which the graph of cheaper edges has a perfect matching (Hopcroft–Karp), found
-    by bisection over the candidates between a lower bound (the largest cost some point
-    must pay to the diagonal or to its nearest partner) and the largest half persistence.
-    Edges between two points that may both go to the diagonal are left out (they are
-    never needed), and light points with no heavy partner leave the matching graph (they
-    go to the diagonal), so memory stays proportional to the pairs within the answer of a
-    point far from the diagonal. Essential classes of the same death sign are matched in
-    order of birth.
+    points with each other at cost 0 (Cohen-Steiner, Edelsbrunner & Harer 2007). A cost
+    ``δ`` can be met when the pairs of points at most ``δ`` apart (L∞) hold a matching
+    that covers every point farther than ``δ`` from the diagonal; the test grows maximum
+    matchings by breadth-first augmenting paths whose neighbours are found in a grid of
+    side ``δ`` (after Efrat, Itai & Katz 2001), so no pair is ever listed and memory stays
+    linear. The answer is a candidate cost (a point distance or a half persistence):
+    the smallest float that passes, found by bisecting the floats between a lower bound
+    (some point has neither the diagonal nor a partner closer) and the largest half
+    persistence. Essential classes of the same death sign are matched in order of birth.
 
     References
     ----------
     D. Cohen-Steiner, H. Edelsbrunner, J. Harer, "Stability of persistence diagrams",
     Discrete Comput. Geom. 37 (2007) 103-120. doi:10.1007/s00454-006-1276-5
+    A. Efrat, A. Itai, M. J. Katz, "Geometry helps in bottleneck matching and related
+    problems", Algorithmica 31 (2001) 1-28. doi:10.1007/s00453-001-0016-8
+
+    Examples
+    --------
+    >>> found = bottleneck_matching([[5.0, 1.0], [2.0, 1.9]], [[4.5, 1.0]], dim=0)
+    >>> found.distance, found.pairs.tolist(), found.diagonal_a.tolist()
+    (0.5, [[0, 0]], [1])
+    """
+    _check_polarity(dgm_a, dgm_b)
+    rows_a, rows_b = _rows(dgm_a, dim, "dgm_a"), _rows(dgm_b, dim, "dgm_b")
+    finite_a, finite_b = np.isfinite(rows_a[:, 1]), np.isfinite(rows_b[:, 1])
+    index_a, index_b = np.flatnonzero(finite_a), np.flatnonzero(finite_b)
+    ess_a, ess_b = np.flatnonzero(~finite_a), np.flatnonzero(~finite_b)
+    ess_pairs = _essential_pairs(rows_a[ess_a], rows_b[ess_b])
+    if ess_pairs is None:
+        nothing = np.empty(0, np.int64)
+        return BottleneckMatching(float("inf"), nothing.reshape(0, 2), nothing, nothing)
+    ess = np.column_stack([ess_a[ess_pairs[:, 0]], ess_b[ess_pairs[:, 1]]])
+    ess_cost = float(np.abs(rows_a[ess[:, 0], 0] - rows_b[ess[:, 1], 0]).max(initial=0.0))
+    delta, partner = _matching_of_finite(rows_a[index_a], rows_b[index_b])
+    matched = partner >= 0
+    to_b = np.zeros(len(index_b), bool)
+    to_b[partner[matched]] = True
+    pairs = np.column_stack([index_a[matched], index_b[partner[matched]]])
+    return BottleneckMatching(max(delta, ess_cost), np.concatenate([pairs, ess]),
+                              index_a[~matched], index_b[~to_b])
+
+
+def bottleneck(dgm_a: Any, dgm_b: Any, dim: int) -> float:
+    """Exact bottleneck distance between the ``dim`` pairs of two diagrams.
+
+    The distance of :func:`bottleneck_matching` (see there for the parameters and the
+    method).
+
+    Returns
+    -------
+    float
+        The smallest ``δ`` such that a matching pairs every point of one diagram with a
+        point of the other or with the diagonal, each within ``δ`` in L∞ distance;
+        ``inf`` if the diagrams have a different number of essential classes.
 
     Examples
     --------
@@ -164,87 +272,7 @@ def bottleneck(dgm_a: Any, dgm_b: Any, dim: int) -> float:
     >>> bottleneck([[5.0, 1.0], [2.0, 1.9]], [[4.5, 1.0]], dim=0)
     0.5
     """
-    fin_a, ess_a, fin_b, ess_b = _split(dgm_a, dgm_b, dim)
-    ess = _essential_costs(ess_a, ess_b)
-    if ess is None:
-        return float("inf")
-    ess_cost = float(ess.max()) if len(ess) else 0.0
-    n, m = len(fin_a), len(fin_b)
-    if n + m == 0:
-        return ess_cost
-    half_a, half_b = _half_persistence(fin_a), _half_persistence(fin_b)
-    tree_a = cKDTree(fin_a) if n else None
-    tree_b = cKDTree(fin_b) if m else None
-
-    def edges(delta: float, heavy_above: float) -> tuple[np.ndarray, ...]:
-        """Pairs within ``delta`` with a point heavier than ``heavy_above``, and their
-        exact L-infinity distances (a few ulps of slack only widen the superset)."""
-        reach = delta + 4 * np.spacing(delta)
-        ia, jb = _heavy_edges(fin_a, fin_b, tree_a, tree_b, half_a > heavy_above,
-                              half_b > heavy_above, reach)
-        dist = np.maximum(np.abs(fin_a[ia, 0] - fin_b[jb, 0]),
-                          np.abs(fin_a[ia, 1] - fin_b[jb, 1]))
-        return ia, jb, dist
-
-    listed = 0  # pairs listed by the last test that listed its own
-
-    def feasible(delta: float, graph: tuple[np.ndarray, ...] | None = None) -> bool:
-        nonlocal listed
-        if graph is None:
-            graph = edges(delta, delta)
-            listed = len(graph[0])
-        ia, jb, dist = graph
-        use = (dist <= delta) & ((half_a[ia] > delta) | (half_b[jb] > delta))
-        return _perfect_matching_exists(n, m, ia[use], jb[use], half_a <= delta,
-                                        half_b <= delta)
-
-    # The answer is a candidate cost: a half persistence or a point distance (computed
-    # exactly as in the test), between a lower bound (some point has neither the diagonal
-    # nor a partner closer) and ``upper`` (every point to the diagonal). Halve the interval
-    # until the pairs it may need are few, then list the candidates inside and bisect
-    # over them, testing each on that one list of pairs.
-    upper = float(max(half_a.max(initial=0.0), half_b.max(initial=0.0)))
-    bound = _lower_bound(fin_a, fin_b, tree_a, tree_b, half_a, half_b)
-    lo = max(0.0, bound - 4 * np.spacing(bound))  # below it, no cost can pass the test
-    if lo == 0.0 and feasible(0.0):
-        return ess_cost
-    hi = upper
-    while (_pairs_within(fin_a, fin_b, tree_a, tree_b, half_a > lo, half_b > lo, hi)
-           > max(_MAX_CANDIDATE_PAIRS, 2 * listed)
-           and lo < (mid := lo + (hi - lo) / 2) < hi):
-        if feasible(mid):
-            hi = mid
-        else:
-            lo = mid
-    graph = edges(hi, lo)
-    within = (graph[2] > lo) & (graph[2] <= hi)
-    cands = np.unique(np.concatenate([graph[2][within], half_a[(half_a > lo) & (half_a <= hi)],
-                                      half_b[(half_b > lo) & (half_b <= hi)]]))
-    first, last = 0, len(cands)  # the answer is cands[first:last][0] once first == last - 1
-    while last - first > 1:
-        mid_at = (first + last - 1) // 2
-        if feasible(float(cands[mid_at]), graph):
-            last = mid_at + 1
-        else:
-            first = mid_at + 1
-    return max(float(cands[first]) if len(cands) else hi, ess_cost)
-
-
-#: Most point pairs listed at once to draw the candidate costs from (or twice as many as
-#: the last test needed, when that is more).
-_MAX_CANDIDATE_PAIRS = 2_000_000
-
-
-def _pairs_within(fin_a: np.ndarray, fin_b: np.ndarray, tree_a: Any, tree_b: Any,
-                  heavy_a: np.ndarray, heavy_b: np.ndarray, delta: float) -> int:
-    """How many pairs :func:`_heavy_edges` would list (heavy-heavy pairs counted twice),
-    counted without listing them."""
-    total = 0
-    for tree, pts, heavy in ((tree_b, fin_a, heavy_a), (tree_a, fin_b, heavy_b)):
-        if tree is not None and heavy.any():
-            total += int(tree.query_ball_point(pts[heavy], r=delta, p=np.inf,
-                                               return_length=True).sum())
-    return total
+    return bottleneck_matching(dgm_a, dgm_b, dim).distance
 
 
 def _lower_bound(fin_a: np.ndarray, fin_b: np.ndarray, tree_a: Any, tree_b: Any,
@@ -262,37 +290,6 @@ def _lower_bound(fin_a: np.ndarray, fin_b: np.ndarray, tree_a: Any, tree_b: Any,
         nearest, _ = other.query(pts, k=1, p=np.inf)
         bound = max(bound, float(np.minimum(half, nearest).max()))
     return bound
-
-
-def _heavy_edges(fin_a: np.ndarray, fin_b: np.ndarray, tree_a: Any, tree_b: Any,
-                 heavy_a: np.ndarray, heavy_b: np.ndarray,
-                 delta: float) -> tuple[np.ndarray, np.ndarray]:
-    """Point pairs within ``delta`` (L-infinity) of which at least one point is heavy.
-
-    A heavy point is farther than ``delta`` from the diagonal. Two light points never need
-    each other: both can go to the diagonal instead, which keeps the graph small when most
-    points are noise near the diagonal.
-    """
-    ia, jb = [np.empty(0, np.int64)], [np.empty(0, np.int64)]
-    if tree_b is not None and heavy_a.any():
-        rows, cols = _ball_pairs(tree_b, fin_a, np.flatnonzero(heavy_a), delta)
-        ia.append(rows)
-        jb.append(cols)
-    if tree_a is not None and heavy_b.any():
-        rows, cols = _ball_pairs(tree_a, fin_b, np.flatnonzero(heavy_b), delta)
-        light = ~heavy_a[cols]  # heavy-heavy pairs were listed above
-        ia.append(cols[light])
-        jb.append(rows[light])
-    return np.concatenate(ia), np.concatenate(jb)
-
-
-def _ball_pairs(tree: Any, points: np.ndarray, idx: np.ndarray,
-                delta: float) -> tuple[np.ndarray, np.ndarray]:
-    """(query index, tree index) of every tree point within ``delta`` of ``points[idx]``."""
-    near = tree.query_ball_point(points[idx], r=delta, p=np.inf, return_sorted=False)
-    counts = np.fromiter((len(x) for x in near), np.int64, len(near))
-    found = np.fromiter(itertools.chain.from_iterable(near), np.int64, int(counts.sum()))
-    return np.repeat(idx, counts), found
 
 
 def wasserstein(dgm_a: Any, dgm_b: Any, dim: int, *, order: float = 1.0) -> float:

@@ -43,6 +43,54 @@ class _CriticalPixels:
         return np.empty(len(self.pixels) + 1, self.pixels.dtype)
 
 
+def checked_image(image: Any) -> np.ndarray:
+    """``image`` (an array or a :class:`~cavitas.Volume`) as a 2D or 3D array of a dtype the
+    engine reads, without a copy when possible; anything else is a :class:`ParameterError`."""
+    name = "image"
+    if isinstance(image, Volume):
+        name = f"'{image.name}'"
+        image = image.data
+    arr = np.asarray(image)  # a view of an ndarray or a memory map, not a copy
+    if arr.ndim not in (2, 3):
+        raise ParameterError(
+            f"image must be a 2D or 3D array; got {arr.ndim} dimension(s), shape {arr.shape}."
+        )
+    if arr.size == 0:
+        raise ParameterError(f"image must hold at least one voxel; got shape {arr.shape}.")
+    return engine_array(arr, name)
+
+
+def check_walls(walls: object) -> None:
+    """Refuse a ``walls`` that is neither ``"bright"`` nor ``"dark"``."""
+    if walls not in ("bright", "dark"):
+        raise ParameterError(f"walls must be 'bright' or 'dark'; got {walls!r}.")
+
+
+def reject_nonfinite(nonfinite: int, *, masked: bool) -> None:
+    """Refuse an image with ``nonfinite`` NaN or infinite values in the analysed voxels."""
+    if nonfinite:
+        where = "inside the mask" if masked else "(mask them out to skip them)"
+        raise InputFileError(
+            f"image holds {nonfinite} NaN or infinite value(s) {where}; expected finite "
+            "intensities."
+        )
+
+
+def checked_mask(mask: Any, shape: tuple[int, ...]) -> np.ndarray | None:
+    """``mask`` as a C-contiguous boolean array of ``shape`` selecting at least one voxel
+    (``None`` stays ``None``); anything else is a :class:`ParameterError`."""
+    if mask is None:
+        return None
+    mask = np.asarray(mask)
+    if mask.shape != shape:
+        raise ParameterError(f"mask must have the image's shape {shape}; got {mask.shape}.")
+    if mask.dtype != np.bool_:
+        raise ParameterError(f"mask must be a boolean array; got dtype {mask.dtype}.")
+    if not mask.any():
+        raise ParameterError("mask selects no voxel; expected at least one True value.")
+    return np.ascontiguousarray(mask)
+
+
 class _Prepared:
     """A validated image: flat values, mask, grid geometry and, for the general kernels,
     the sweep order.
@@ -53,38 +101,16 @@ class _Prepared:
 
     def __init__(self, image: Any, walls: str, connectivity: object, mask: Any,
                  plane: bool | None = None) -> None:
-        name = "image"
-        if isinstance(image, Volume):
-            name = f"'{image.name}'"
-            image = image.data
-        arr = np.asarray(image)  # a view of an ndarray or a memory map, not a copy
-        if arr.ndim not in (2, 3):
-            raise ParameterError(
-                f"image must be a 2D or 3D array; got {arr.ndim} dimension(s), shape {arr.shape}."
-            )
-        if arr.size == 0:
-            raise ParameterError(f"image must hold at least one voxel; got shape {arr.shape}.")
-        arr = engine_array(arr, name)
-        if walls not in ("bright", "dark"):
-            raise ParameterError(f"walls must be 'bright' or 'dark'; got {walls!r}.")
+        arr = checked_image(image)
+        check_walls(walls)
         self.shape = tuple(arr.shape)
         self.ndim = arr.ndim
         self.walls = walls
         self.bright = walls == "bright"
         self.connectivity = check_connectivity(self.ndim, connectivity)
         self.flat = arr.reshape(-1)  # a view when C-contiguous, else one copy
-        self.mask = None
-        if mask is not None:
-            mask = np.asarray(mask)
-            if mask.shape != self.shape:
-                raise ParameterError(
-                    f"mask must have the image's shape {self.shape}; got {mask.shape}."
-                )
-            if mask.dtype != np.bool_:
-                raise ParameterError(f"mask must be a boolean array; got dtype {mask.dtype}.")
-            self.mask = np.ascontiguousarray(mask).reshape(-1)
-            if not self.mask.any():
-                raise ParameterError("mask selects no voxel; expected at least one True value.")
+        mask = checked_mask(mask, self.shape)
+        self.mask = None if mask is None else mask.reshape(-1)
         self.plane = self.ndim == 2 if plane is None else plane
         if not self.plane:
             self.order, nonfinite = sort_voxels(self.flat, self.mask, descending=not self.bright)
@@ -93,12 +119,7 @@ class _Prepared:
         self.zmargin = 1 if self.ndim == 3 else 0
 
     def _reject_nonfinite(self, nonfinite: int) -> None:
-        if nonfinite:
-            where = "inside the mask" if self.mask is not None else "(mask them out to skip them)"
-            raise InputFileError(
-                f"image holds {nonfinite} NaN or infinite value(s) {where}; expected finite "
-                "intensities."
-            )
+        reject_nonfinite(nonfinite, masked=self.mask is not None)
 
     def new_parent(self) -> np.ndarray:
         """A union-find work array (n + 1 slots; the kernels initialise it)."""
