@@ -293,6 +293,7 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
                 force=force)
         tick = done("report", tick)
         summary = _summary(seg, source, figures, written, notes)
+        relative = _relative(summary["outputs"], staging)
         record = {
             "cavitas_version": __version__,
             "input": str(source),
@@ -305,7 +306,7 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
             "options": options.to_dict(),
             "summary": {k: v for k, v in summary.items() if k != "outputs"},
             "global_figures": figures,
-            "outputs": _relative(summary["outputs"], staging),
+            "outputs": relative,
             "timings_s": timings,
             "elapsed_s": round(time.perf_counter() - started, 3),
             "caution": RESEARCH_ONLY,
@@ -315,7 +316,7 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
                            encoding="utf-8")
         publish_staged(staging, outdir)
         staging = None
-        summary["outputs"] = {key: str(outdir / name) for key, name in record["outputs"].items()}
+        summary["outputs"] = {key: str(outdir / name) for key, name in relative.items()}
         summary["outputs"]["run"] = str(planned["run"])
         steps.update()
     except MemoryError as exc:

@@ -74,8 +74,9 @@ def _declared_layout(path: Path) -> tuple[tuple[int, ...], Any]:
     if name.endswith((".nii", ".nii.gz")):
         import nibabel
 
-        header = nibabel.load(path).header
-        return tuple(header.get_data_shape()), header.get_data_dtype()
+        image = nibabel.load(path)
+        if isinstance(image, nibabel.analyze.AnalyzeImage):  # NIfTI images are Analyze ones
+            return tuple(image.header.get_data_shape()), image.header.get_data_dtype()
     if path.is_dir():  # a Zarr store: the array, or level 0 of an OME-Zarr image
         import zarr
 

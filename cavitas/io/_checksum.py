@@ -39,7 +39,8 @@ def input_checksum(path: str | os.PathLike) -> str:
     digest = hashlib.sha256()
     try:
         if path.is_file() or not (path.is_dir() or glob.has_magic(str(path))):
-            files = [(path, None)]  # a path that exists is that file, whatever its name
+            # a path that exists is that file, whatever its name
+            files: list[tuple[Path, Path | None]] = [(path, None)]
         elif is_zarr_store(path):
             files = [(p, p.relative_to(path)) for p in path.rglob("*") if p.is_file()]
         else:  # the slices read_slices stacks, not every file the folder or pattern holds

@@ -129,7 +129,9 @@ def _resolution(page: Any, path: Path, meta: dict[str, Any]) -> tuple[tuple[floa
         return None, None
     if code in (2, 3):  # inch, centimetre
         unit = "inch" if code == 2 else "cm"
-        return (_convert(1.0 / per_y, unit, "µm"), _convert(1.0 / per_x, unit, "µm")), "µm"
+        size_y, size_x = _convert(1.0 / per_y, unit, "µm"), _convert(1.0 / per_x, unit, "µm")
+        if size_y is not None and size_x is not None:  # always: both are lengths
+            return (size_y, size_x), "µm"
     return (1.0 / per_y, 1.0 / per_x), None
 
 

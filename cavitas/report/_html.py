@@ -165,7 +165,8 @@ def _border_labels(regions: Table) -> list[int]:
 
 def _figures_html(figures: Mapping[str, Any], words: Words) -> str:
     """Every global figure, in the reader's words with its unit, behind a fold."""
-    units = figures.get("units") if isinstance(figures.get("units"), Mapping) else {}
+    given = figures.get("units")
+    units = given if isinstance(given, Mapping) else {}
     rows = []
     for key, value in figures.items():
         if key == "units":
