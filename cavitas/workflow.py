@@ -44,11 +44,11 @@ from ._errors import InputFileError, OutputError, safe_text
 from ._json import dumps
 from ._run_options import ReadOptions, RunOptions
 from ._settings import Settings
+from ._shared.atomic import atomic_path, check_writable
+from ._shared.memory import check_memory, out_of_memory, reset_memory_guard, set_memory_guard
 from ._table import Table
 from ._version import __version__
-from .io._atomic import atomic_path, check_writable
 from .io._checksum import input_checksum
-from .io._memory import check_memory, out_of_memory, reset_memory_guard, set_memory_guard
 from .io._staging import discard_staging, open_staging, publish_staged
 
 __all__ = ["ReadOptions", "RunOptions", "Settings", "segment_file"]

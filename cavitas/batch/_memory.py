@@ -9,7 +9,7 @@ from typing import Any
 
 import numpy as np
 
-from ..io._memory import WORK_BYTES_PER_VOXEL, available_memory, data_memory_bytes
+from .._shared.memory import WORK_BYTES_PER_VOXEL, available_memory, data_memory_bytes
 
 __all__ = ["MEMORY_SHARE", "admits", "available_memory", "estimate_task_bytes"]
 
@@ -24,7 +24,7 @@ MEMORY_SHARE = 0.8
 _COMPRESSED_FACTOR = 4
 _COMPRESSED = (".gz", ".zarr", ".h5", ".hdf5")  # HDF5 datasets are often compressed
 #: Peak memory per stored byte when the header cannot be read: 8-bit data, the worst case
-#: of :func:`cavitas.io._memory.data_memory_bytes` per stored byte.
+#: of :func:`cavitas._shared.memory.data_memory_bytes` per stored byte.
 _BYTES_PER_INPUT_BYTE = 1 + WORK_BYTES_PER_VOXEL[4]
 
 
@@ -90,7 +90,7 @@ def _declared_layout(path: Path) -> tuple[tuple[int, ...], Any]:
 def estimate_task_bytes(path: str | os.PathLike) -> int:
     """Estimated peak memory of segmenting one input, from its header when possible.
 
-    :func:`cavitas.io._memory.data_memory_bytes` (the measured peak of ``segment_file`` with a
+    :func:`cavitas._shared.memory.data_memory_bytes` (the measured peak of ``segment_file`` with a
     margin) for the shape and type the file declares; files whose header cannot be read
     get an estimate from their size on disk. Never raises: an unreadable input gets a
     small estimate and fails in its worker. The batch raises every estimate when a worker

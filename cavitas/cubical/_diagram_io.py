@@ -27,7 +27,7 @@ import numpy as np
 
 from .._caution import RESEARCH_ONLY
 from .._errors import InputFileError, ParameterError
-from ..io._atomic import atomic_path
+from .._shared.atomic import atomic_path
 from ._diagram import PAIR_DTYPE, Diagram
 
 __all__ = ["FORMAT_VERSION", "load_diagram", "save_diagram"]

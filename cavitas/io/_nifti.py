@@ -39,9 +39,9 @@ from nibabel.arrayproxy import ArrayProxy
 from .._errors import InputFileError
 from ._assemble import Decoded, note
 from ._axes import select_planes
+from ._declared import check_declared
 from ._failures import reading
 from ._logs import collect_log
-from ._memory import check_declared
 from ._units import centimetres_per
 
 __all__ = ["CAUTION_SHORT", "read_nifti", "write_nifti"]

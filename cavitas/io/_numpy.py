@@ -22,8 +22,8 @@ import numpy as np
 from .._caution import RESEARCH_ONLY
 from .._errors import ChoiceNeeded, InputFileError, ParameterError
 from ._assemble import Decoded
+from ._declared import check_declared, declared_bytes
 from ._failures import check_signature, reading
-from ._memory import check_declared, declared_bytes
 
 __all__ = ["read_npy", "read_npz", "write_npy", "write_npz"]
 

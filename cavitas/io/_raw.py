@@ -16,8 +16,8 @@ import numpy as np
 
 from .._errors import InputFileError, ParameterError
 from ._assemble import Decoded
+from ._declared import check_declared, declared_bytes
 from ._failures import reading
-from ._memory import check_declared, declared_bytes
 
 __all__ = ["BYTE_ORDERS", "read_raw"]
 

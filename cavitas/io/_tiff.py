@@ -59,9 +59,9 @@ from .._caution import RESEARCH_ONLY
 from .._errors import CavitasError, InputFileError
 from ._assemble import Decoded, note
 from ._axes import select_planes
+from ._declared import check_declared
 from ._failures import check_signature, unreadable
 from ._logs import collect_log
-from ._memory import check_declared
 from ._units import centimetres_per, has_named_unit, normalise_unit
 
 __all__ = ["read_tiff", "write_tiff"]

@@ -19,8 +19,8 @@ from matplotlib.figure import Figure
 
 from .._caution import RESEARCH_ONLY
 from .._errors import ParameterError
+from .._shared.atomic import atomic_path
 from ..cubical._diagram import Diagram
-from ..io._atomic import atomic_path
 
 __all__ = ["DIM_STYLE", "plot_barcode", "plot_diagram", "save_figure"]
 

@@ -58,7 +58,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import ndimage as ndi
 
-from ..io._memory import work_dtype  # the dtype policy lives beside the memory estimate
+from .._shared.memory import work_dtype  # the dtype policy lives beside the memory estimate
 
 __all__ = ["NULL_SEEDS", "QUANTISATION_SIGMA", "NoiseLevel", "correlation_factor",
            "estimate_noise", "noise_level", "null_persistence", "smooth", "smoothed_noise_sigma",

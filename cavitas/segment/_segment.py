@@ -110,7 +110,7 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
 
     Levels in the table and the diagram are values of the image at the detection scale
     (the input itself when no smoothing was chosen), in the input's units. Data of at most
-    16 bits and float32 data are smoothed in float32 (:func:`cavitas.io._memory.work_dtype`,
+    16 bits and float32 data are smoothed in float32 (:func:`cavitas._shared.memory.work_dtype`,
     others in float64): levels are exact for that float32 image, and within about 1e-7
     (relative) of smoothing in float64.
 
