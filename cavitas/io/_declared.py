@@ -46,8 +46,8 @@ def check_declared(path: object, shape: Sequence[int], dtype: np.dtype | str | t
     for the voxels (after its header) when they are stored uncompressed; a declaration
     larger than that means a truncated file or a damaged header. Whatever the storage, an
     array larger than the memory available now is refused (a damaged size, or a
-    decompression bomb) unless :func:`memory_guard` turned the check off. Returns the
-    declared bytes.
+    decompression bomb) unless :func:`~cavitas._shared.memory.memory_guard` turned the check
+    off. Returns the declared bytes.
 
     Examples
     --------
