@@ -14,6 +14,7 @@ import os
 import sys
 import tempfile
 from pathlib import Path
+from typing import Any
 
 __all__ = ["choose_cache_dir", "ensure_cache_dir"]
 
@@ -78,6 +79,6 @@ def ensure_cache_dir() -> None:
     with contextlib.suppress(OSError):
         chosen.chmod(0o700)  # private: cached code is loaded and run
     os.environ["NUMBA_CACHE_DIR"] = str(chosen)
-    config = sys.modules.get("numba.core.config")
+    config: Any = sys.modules.get("numba.core.config")  # numba is not type-checked
     if config is not None:  # numba was imported first: it has read its settings already
         config.CACHE_DIR = str(chosen)

@@ -25,7 +25,7 @@ import numpy as np
 
 from ._errors import InputFileError, ParameterError, safe_text
 from ._json import dumps
-from .io._atomic import atomic_path
+from ._shared.atomic import atomic_path
 
 __all__ = ["CSV_DIGITS", "CSV_ENCODING", "Table"]
 

@@ -44,11 +44,11 @@ from ._errors import InputFileError, OutputError, safe_text
 from ._json import dumps
 from ._run_options import ReadOptions, RunOptions
 from ._settings import Settings
+from ._shared.atomic import atomic_path, check_writable
+from ._shared.memory import check_memory, out_of_memory, reset_memory_guard, set_memory_guard
 from ._table import Table
 from ._version import __version__
-from .io._atomic import atomic_path, check_writable
 from .io._checksum import input_checksum
-from .io._memory import check_memory, out_of_memory, reset_memory_guard, set_memory_guard
 from .io._staging import discard_staging, open_staging, publish_staged
 
 __all__ = ["ReadOptions", "RunOptions", "Settings", "segment_file"]
@@ -293,6 +293,7 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
                 force=force)
         tick = done("report", tick)
         summary = _summary(seg, source, figures, written, notes)
+        relative = _relative(summary["outputs"], staging)
         record = {
             "cavitas_version": __version__,
             "input": str(source),
@@ -305,7 +306,7 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
             "options": options.to_dict(),
             "summary": {k: v for k, v in summary.items() if k != "outputs"},
             "global_figures": figures,
-            "outputs": _relative(summary["outputs"], staging),
+            "outputs": relative,
             "timings_s": timings,
             "elapsed_s": round(time.perf_counter() - started, 3),
             "caution": RESEARCH_ONLY,
@@ -315,7 +316,7 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
                            encoding="utf-8")
         publish_staged(staging, outdir)
         staging = None
-        summary["outputs"] = {key: str(outdir / name) for key, name in record["outputs"].items()}
+        summary["outputs"] = {key: str(outdir / name) for key, name in relative.items()}
         summary["outputs"]["run"] = str(planned["run"])
         steps.update()
     except MemoryError as exc:

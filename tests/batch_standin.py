@@ -22,8 +22,8 @@ import numpy as np
 from scipy import ndimage
 
 from cavitas._errors import InputFileError
+from cavitas._shared.atomic import atomic_path
 from cavitas._table import Table
-from cavitas.io._atomic import atomic_path
 
 
 def _log(event: str, path: Path) -> None:

@@ -7,8 +7,8 @@ import numpy as np
 import pytest
 
 from cavitas._errors import OutputError
+from cavitas._shared.atomic import atomic_path
 from cavitas.io import _dispatch, read, write
-from cavitas.io._atomic import atomic_path
 
 
 def _failing_writer(target, data, **options):

@@ -97,6 +97,15 @@ def test_draws_into_given_axes_and_empty_dimension():
     assert len(plot_barcode(dgm, dim=0).axes[0].collections) == 0
 
 
+def test_axes_in_a_subfigure_give_the_whole_figure():
+    # matplotlib: a SubFigure cannot be saved; the documented return is the Figure
+    fig = Figure()
+    left, right = fig.subfigures(1, 2)
+    dgm = Diagram({0: np.zeros(0, PAIR_DTYPE)}, shape=(4, 4), walls="dark", connectivity=1)
+    assert plot_diagram(dgm, ax=left.add_subplot()) is fig
+    assert plot_barcode(dgm, dim=0, ax=right.add_subplot()) is fig
+
+
 def test_bad_arguments():
     dgm = make_diagram()
     with pytest.raises(ParameterError, match="highlight for H2"):

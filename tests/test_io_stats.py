@@ -64,7 +64,7 @@ def test_all_nan():
 
 
 def test_memory_estimate_formula():
-    # the formula of cavitas/io/_memory.py (input + measured work per voxel), common practice
+    # the formula of cavitas/_shared/memory.py (input + measured work per voxel), common practice
     base, small = 340 * 2**20, 6000 * 40  # the program, and the small-volume term
     assert estimate_memory_bytes((10, 20, 30), np.float32) == base + 6000 * (4 + 52) + small
     assert estimate_memory_bytes((10, 20, 30), np.int32) == base + 6000 * (4 + 76) + small

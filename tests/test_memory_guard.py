@@ -9,7 +9,7 @@ import re
 import numpy as np
 import pytest
 
-import cavitas.io._memory as memory
+import cavitas._shared.memory as memory
 from cavitas._errors import EXIT_INPUT, InputFileError
 from cavitas.cli import main
 from cavitas.io import write

@@ -78,9 +78,9 @@ def run(args: argparse.Namespace) -> int:
     """Run ``cavitas demo``: segment, measure, report and score every sample."""
     from tqdm import tqdm
 
+    from .._shared.atomic import check_writable
     from ..compare import border_labels, compare_labels
     from ..io import read
-    from ..io._atomic import check_writable
     from ..scenes.samples import SAMPLES
     from ..workflow import segment_file
 
@@ -111,7 +111,7 @@ def _write_record(rows: list[tuple[str, dict, dict, float]], path: Path, *,
                   force: bool) -> None:
     """``demo.json``: per sample, the run summary and the score against the ground truth."""
     from .._json import dumps
-    from ..io._atomic import atomic_path
+    from .._shared.atomic import atomic_path
 
     record = {"samples": {name: {"summary": summary, "score": score, "seconds": seconds}
                           for name, summary, score, seconds in rows},

@@ -110,9 +110,9 @@ def run(args: argparse.Namespace) -> int:
     """Read ``args.file``, compute its diagram, write the outputs, print the summary."""
     from tqdm import tqdm
 
+    from .._shared.atomic import check_writable
     from ..cubical import format_summary, persistence, save_diagram
     from ..io import read
-    from ..io._atomic import check_writable
     from ..report.diagram_plots import plot_barcode, plot_diagram, save_figure
 
     if args.bars < 1:

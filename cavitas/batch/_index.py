@@ -10,8 +10,8 @@ from typing import Any
 from urllib.parse import quote
 
 from .._caution import RESEARCH_ONLY
+from .._shared.atomic import atomic_path
 from .._table import Table
-from ..io._atomic import atomic_path
 from ..report._params_html import parameters_html
 from ..report._table_html import SORT_SCRIPT, format_value
 

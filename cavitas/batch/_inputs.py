@@ -12,6 +12,7 @@ from pathlib import Path
 
 from .._errors import InputFileError, ParameterError
 from ..io import READ_SUFFIXES
+from ..io._zarr import is_zarr_store
 
 __all__ = ["BatchInput", "expand_inputs", "missing_sentence", "natural_key", "output_name"]
 
@@ -75,13 +76,6 @@ def output_name(path: str | os.PathLike) -> str:
     return f"{stem}-{digest}"
 
 
-def _is_zarr_store(path: Path) -> bool:
-    return path.is_dir() and (
-        path.name.lower().endswith(".zarr")
-        or any((path / marker).exists() for marker in ("zarr.json", ".zarray", ".zgroup"))
-    )
-
-
 def _folder_members(folder: Path) -> list[Path]:
     found = []
     for entry in sorted(folder.iterdir()):
@@ -89,7 +83,7 @@ def _folder_members(folder: Path) -> list[Path]:
             continue
         if entry.suffix.lower() == ".img" and entry.with_suffix(".hdr").exists():
             continue  # the image half of an Analyze pair: its .hdr is the input
-        if _is_zarr_store(entry) or (entry.is_file() and _suffix(entry)):
+        if is_zarr_store(entry) or (entry.is_file() and _suffix(entry)):
             found.append(entry)
         else:
             log.info("Skipping '%s' in folder '%s': not an image file cavitas reads.",
@@ -134,10 +128,10 @@ def expand_inputs(items: list[str | os.PathLike], *,
         text = os.fspath(item)
         path = Path(text)
         if path.exists():
-            members = [path] if path.is_file() or _is_zarr_store(path) else _folder_members(path)
+            members = [path] if path.is_file() or is_zarr_store(path) else _folder_members(path)
         elif _GLOB_CHARS.search(text):
             members = [Path(p) for p in glob.glob(text, recursive=True)]
-            members = [p for p in members if p.is_file() or _is_zarr_store(p)]
+            members = [p for p in members if p.is_file() or is_zarr_store(p)]
         elif missing is not None:
             missing.append(text)
             continue

@@ -131,14 +131,14 @@ def run_local(tasks: Sequence[Task], *, jobs: int, estimates: Sequence[int],
         workers.append(worker)
         return worker
 
-    def finish(worker: _Worker, result: dict[str, Any], peak: int = 0) -> None:
+    def finish(worker: _Worker, index: int, result: dict[str, Any], peak: int = 0) -> None:
         nonlocal scale
-        estimate = estimates[worker.index]
+        estimate = estimates[index]
         if estimate > LEARN_ABOVE_BYTES and peak - WORKER_BASE_BYTES > estimate * scale:
             scale = (peak - WORKER_BASE_BYTES) / estimate
             log.info("Tasks need more memory than estimated; scaling estimates by %.2f.",
                      scale)
-        results[worker.index] = result
+        results[index] = result
         worker.index, worker.bytes = None, 0
         on_result(result)
 
@@ -166,22 +166,22 @@ def run_local(tasks: Sequence[Task], *, jobs: int, estimates: Sequence[int],
     try:
         dispatch()
         while pending or any(w.index is not None for w in workers):
-            busy = [w for w in workers if w.index is not None]
-            ready = wait([w.conn for w in busy] + [w.process.sentinel for w in busy])
-            for worker in busy:
+            running = [(w, w.index) for w in workers if w.index is not None]
+            ready = wait([w.conn for w, _ in running] + [w.process.sentinel for w, _ in running])
+            for worker, index in running:
                 if worker.conn in ready or worker.conn.poll():
                     try:
                         _, result, peak = worker.conn.recv()
                     except (EOFError, OSError):
                         result = None
                     if result is not None:
-                        finish(worker, result, peak)
+                        finish(worker, index, result, peak)
                         continue
                 if worker.process.sentinel in ready or not worker.process.is_alive():
                     worker.process.join()
-                    task = tasks[worker.index]
+                    task = tasks[index]
                     others = sum(w.index is not None for w in workers) - 1
-                    finish(worker, _died(task, worker.process.exitcode, others))
+                    finish(worker, index, _died(task, worker.process.exitcode, others))
                     workers.remove(worker)
                     remove_stale(Path(task.root), task.name)
             dispatch()

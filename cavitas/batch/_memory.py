@@ -5,11 +5,9 @@ from __future__ import annotations
 import logging
 import os
 from pathlib import Path
-from typing import Any
 
-import numpy as np
-
-from ..io._memory import WORK_BYTES_PER_VOXEL, available_memory, data_memory_bytes
+from .._shared.memory import WORK_BYTES_PER_VOXEL, available_memory, data_memory_bytes
+from ..io._header import declared_layout
 
 __all__ = ["MEMORY_SHARE", "admits", "available_memory", "estimate_task_bytes"]
 
@@ -24,7 +22,7 @@ MEMORY_SHARE = 0.8
 _COMPRESSED_FACTOR = 4
 _COMPRESSED = (".gz", ".zarr", ".h5", ".hdf5")  # HDF5 datasets are often compressed
 #: Peak memory per stored byte when the header cannot be read: 8-bit data, the worst case
-#: of :func:`cavitas.io._memory.data_memory_bytes` per stored byte.
+#: of :func:`cavitas._shared.memory.data_memory_bytes` per stored byte.
 _BYTES_PER_INPUT_BYTE = 1 + WORK_BYTES_PER_VOXEL[4]
 
 
@@ -55,41 +53,10 @@ def _stored_bytes(path: Path) -> int:
     return path.stat().st_size
 
 
-def _declared_layout(path: Path) -> tuple[tuple[int, ...], Any]:
-    """Shape and type a file declares in its header, without reading its voxels."""
-    name = path.name.lower()
-    if name.endswith(".npy"):
-        array = np.load(path, mmap_mode="r", allow_pickle=False)
-        return array.shape, array.dtype
-    if name.endswith((".tif", ".tiff")):
-        import tifffile
-
-        quiet = logging.getLogger("tifffile")
-        was, quiet.disabled = quiet.disabled, True  # its worker reports a damaged file
-        try:
-            with tifffile.TiffFile(path) as tif:
-                return tuple(tif.series[0].shape), tif.series[0].dtype
-        finally:
-            quiet.disabled = was
-    if name.endswith((".nii", ".nii.gz")):
-        import nibabel
-
-        header = nibabel.load(path).header
-        return tuple(header.get_data_shape()), header.get_data_dtype()
-    if path.is_dir():  # a Zarr store: the array, or level 0 of an OME-Zarr image
-        import zarr
-
-        node = zarr.open(str(path), mode="r")
-        if not isinstance(node, zarr.Array):
-            node = max((a for _, a in node.arrays()), key=lambda a: a.nbytes)
-        return tuple(node.shape), node.dtype
-    raise ValueError("no header reader for this type")
-
-
 def estimate_task_bytes(path: str | os.PathLike) -> int:
     """Estimated peak memory of segmenting one input, from its header when possible.
 
-    :func:`cavitas.io._memory.data_memory_bytes` (the measured peak of ``segment_file`` with a
+    :func:`cavitas._shared.memory.data_memory_bytes` (the measured peak of ``segment_file`` with a
     margin) for the shape and type the file declares; files whose header cannot be read
     get an estimate from their size on disk. Never raises: an unreadable input gets a
     small estimate and fails in its worker. The batch raises every estimate when a worker
@@ -105,7 +72,7 @@ def estimate_task_bytes(path: str | os.PathLike) -> int:
     """
     path = Path(path)
     try:
-        shape, dtype = _declared_layout(path)
+        shape, dtype = declared_layout(path)
         return int(data_memory_bytes(shape, dtype))
     except Exception as exc:  # unreadable header: fall back on the size on disk
         log.debug("No header estimate for '%s' (%s); using its size on disk.", path, exc)

@@ -19,8 +19,9 @@ from typing import Any
 from .._caution import RESEARCH_ONLY
 from .._errors import OutputError
 from .._json import dumps
-from ..io._atomic import atomic_path
-from ..io._checksum import file_checksum, input_checksum
+from .._shared.atomic import atomic_path
+from .._shared.checksum import file_checksum
+from ..io._checksum import input_checksum
 
 __all__ = [
     "DONE_NAME",

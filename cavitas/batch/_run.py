@@ -22,8 +22,8 @@ from .._errors import (
     ParameterError,
 )
 from .._json import dumps
+from .._shared.atomic import atomic_path
 from .._version import __version__
-from ..io._atomic import atomic_path
 from ._index import write_index
 from ._inputs import expand_inputs, missing_sentence
 from ._lock import folder_lock

@@ -17,8 +17,8 @@ from pathlib import Path
 from typing import Any
 
 from .._errors import CavitasError
+from .._shared.memory import out_of_memory
 from .._version import __version__
-from ..io._memory import out_of_memory
 from ._resume import (
     input_checksum,
     new_staging,

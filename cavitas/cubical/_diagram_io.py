@@ -27,7 +27,7 @@ import numpy as np
 
 from .._caution import RESEARCH_ONLY
 from .._errors import InputFileError, ParameterError
-from ..io._atomic import atomic_path
+from .._shared.atomic import atomic_path
 from ._diagram import PAIR_DTYPE, Diagram
 
 __all__ = ["FORMAT_VERSION", "load_diagram", "save_diagram"]
@@ -139,7 +139,9 @@ def _write_npz(dgm: Diagram, tmp: Path, extras: dict[str, dict[int, np.ndarray]]
         for dim, values in per_dim.items():
             arrays[f"extra__{name}__h{dim}"] = values
     with open(tmp, "wb") as fh:
-        np.savez_compressed(fh, **arrays)
+        # numpy's stub lets **arrays fill its allow_pickle flag (numpy >= 2.1); no key of
+        # ours is named so, and older numpy would store the flag as an array
+        np.savez_compressed(fh, **arrays)  # type: ignore[arg-type]
 
 
 def _text(values: np.ndarray) -> list[str]:
@@ -274,7 +276,7 @@ def _read_csv(path: Path) -> tuple[dict[str, Any], dict[int, np.ndarray], dict]:
         )
     meta = dict(ln.split(": ", 1) for ln in head[1:] if ": " in ln)
     ndim = len(meta["shape"].split(" x "))
-    fields = {
+    fields: dict[str, Any] = {
         "version": int(match.group(1)),
         "shape": tuple(int(s) for s in meta["shape"].split(" x ")),
         "walls": meta["walls"],
@@ -295,7 +297,8 @@ def _read_csv(path: Path) -> tuple[dict[str, Any], dict[int, np.ndarray], dict]:
     row_dims = columns[0].astype(np.int64)
     if not np.isin(row_dims, dims).all():
         raise InputFileError(f"'{path}': a row has a dimension not listed in '# dimensions'.")
-    pairs, extras = {}, {name: {} for name in extra_names}
+    pairs: dict[int, np.ndarray] = {}
+    extras: dict[str, dict[int, np.ndarray]] = {name: {} for name in extra_names}
     for dim in dims:
         cells = columns[:, row_dims == dim]
         out = np.zeros(cells.shape[1], dtype=PAIR_DTYPE)

@@ -131,7 +131,7 @@ class _Prepared:
         count, reps = ring_tables(conn)
         values = self.flat.view(np.uint8) if self.flat.dtype == np.bool_ else self.flat
         use_mask = self.mask is not None
-        mask_u8 = self.mask.view(np.uint8) if use_mask else np.zeros(1, np.uint8)
+        mask_u8 = self.mask.view(np.uint8) if self.mask is not None else np.zeros(1, np.uint8)
         if parent is None:
             parent = self.new_parent()  # freed when this method returns
         ny, nx = self.shape
@@ -139,7 +139,7 @@ class _Prepared:
         pixels, codes, max_links, nonfinite = plane_critical(*args, count, reps, parent,
                                                              values.dtype.kind == "f")
         self._reject_nonfinite(nonfinite)
-        start = np.empty(len(pixels) + 1, index_dtype(max_links + 1))
+        start: np.ndarray = np.empty(len(pixels) + 1, index_dtype(max_links + 1))
         links = np.empty(max_links, pixels.dtype)
         links = links[:plane_links(*args, conn == 2, count, reps, parent, pixels, codes, start,
                                    links)]
@@ -179,7 +179,7 @@ class _Prepared:
         else:
             neighbors = neighbor_chain(self.shape, dual_connectivity(self.ndim, self.connectivity))
             use_mask = self.mask is not None
-            mask_u8 = self.mask.view(np.uint8) if use_mask else np.zeros(1, np.uint8)
+            mask_u8 = self.mask.view(np.uint8) if self.mask is not None else np.zeros(1, np.uint8)
             core, breach, tparent, size = (a.astype(np.int64) for a in cavity_sweep_kernel(
                 self.order, self.new_parent() if parent is None else parent, mask_u8, use_mask,
                 *neighbors, *self.grid, self.zmargin,

@@ -210,7 +210,7 @@ def sort_voxels(
     if mode == 2:
         expmask = 0x7F800000 if width == 32 else 0x7FF0000000000000
     use_mask = mask is not None
-    mask_u8 = mask.view(np.uint8) if use_mask else np.zeros(1, np.uint8)
+    mask_u8 = mask.view(np.uint8) if mask is not None else np.zeros(1, np.uint8)
     hist, m, nonfinite = _histograms(
         bits, mask_u8, use_mask, mode, descending, width, dbits, ndig, np.uint64(expmask)
     )
@@ -223,7 +223,7 @@ def sort_voxels(
     # Ping-pong between two buffers so that the last pass writes into ``out``.
     other = np.empty(m, itype) if len(passes) > 1 else out
     bufs = [other, out] if len(passes) % 2 == 0 else [out, other]
-    src = np.empty(0, itype)
+    src: np.ndarray = np.empty(0, itype)
     for p, d in enumerate(passes):
         dst = bufs[p % 2] if len(passes) > 1 else out
         starts = np.concatenate(([0], np.cumsum(hist[d])[:-1]))

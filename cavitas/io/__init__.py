@@ -4,8 +4,8 @@ Also the helpers later stages share: :func:`check_finite` (NaN/Inf make the comp
 fail with a clear message) and :func:`estimate_memory_bytes` (what a segmentation needs).
 """
 
+from .._shared.memory import estimate_memory_bytes
 from ._dispatch import READ_SUFFIXES, WRITE_SUFFIXES, read, write
-from ._memory import estimate_memory_bytes
 from ._stats import check_finite, summarize
 from ._volume import Volume
 

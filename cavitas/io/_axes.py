@@ -39,7 +39,7 @@ def _pick(data: Any, axes: str, letter: str, choice: int | None, name: str,
                 f"'{name}' holds {size} {plural} (axes {original}, shape {shape}); "
                 f"choose one with {option}=N (counted from 0).",
                 parameter=option, choices=range(size))
-        choice = 0 if letter in axes else None
+        choice = 0
     elif isinstance(choice, bool) or not isinstance(choice, (int, np.integer)) or not (
         0 <= choice < size
     ):
@@ -49,7 +49,8 @@ def _pick(data: Any, axes: str, letter: str, choice: int | None, name: str,
     if letter not in axes:
         return data, axes, None
     index = axes.index(letter)
-    data = data[(slice(None),) * index + (int(choice),)]
+    key = (*[slice(None)] * index, int(choice))  # basic indexing: a memory map stays one
+    data = data[key]
     return data, axes.replace(letter, ""), int(choice)
 
 

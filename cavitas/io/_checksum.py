@@ -6,15 +6,13 @@ import glob
 import hashlib
 import os
 from pathlib import Path
-from typing import Any
 
 from .._errors import InputFileError
+from .._shared.checksum import feed_file
 from ._slices import slice_files
 from ._zarr import is_zarr_store
 
-__all__ = ["file_checksum", "input_checksum"]
-
-_BLOCK = 1 << 20
+__all__ = ["input_checksum"]
 
 
 def input_checksum(path: str | os.PathLike) -> str:
@@ -39,7 +37,8 @@ def input_checksum(path: str | os.PathLike) -> str:
     digest = hashlib.sha256()
     try:
         if path.is_file() or not (path.is_dir() or glob.has_magic(str(path))):
-            files = [(path, None)]  # a path that exists is that file, whatever its name
+            # a path that exists is that file, whatever its name
+            files: list[tuple[Path, Path | None]] = [(path, None)]
         elif is_zarr_store(path):
             files = [(p, p.relative_to(path)) for p in path.rglob("*") if p.is_file()]
         else:  # the slices read_slices stacks, not every file the folder or pattern holds
@@ -47,29 +46,7 @@ def input_checksum(path: str | os.PathLike) -> str:
         for file, name in sorted(files, key=lambda item: str(item[1] or "")):
             if name is not None:
                 digest.update(Path(name).as_posix().encode() + b"\0")
-            _feed(digest, file)
+            feed_file(digest, file)
     except OSError as exc:
         raise InputFileError(f"Cannot read '{path}': {exc.strerror or exc}.") from exc
     return digest.hexdigest()
-
-
-def file_checksum(path: str | os.PathLike) -> str:
-    """SHA-256 of one file's bytes (raises ``OSError`` as ``open`` does).
-
-    Examples
-    --------
-    >>> import tempfile, pathlib
-    >>> f = pathlib.Path(tempfile.mkdtemp()) / "a.csv"
-    >>> _ = f.write_bytes(b"abc")
-    >>> file_checksum(f)[:16]  # SHA-256 of b"abc" (FIPS 180-2, appendix B.1)
-    'ba7816bf8f01cfea'
-    """
-    digest = hashlib.sha256()
-    _feed(digest, Path(path))
-    return digest.hexdigest()
-
-
-def _feed(digest: Any, file: Path) -> None:
-    with open(file, "rb") as fh:
-        while block := fh.read(_BLOCK):
-            digest.update(block)

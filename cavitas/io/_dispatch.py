@@ -10,8 +10,8 @@ from typing import Any
 import numpy as np
 
 from .._errors import InputFileError, OutputError, ParameterError
+from .._shared.atomic import atomic_path
 from ._assemble import Decoded, assemble, check_spacing_option
-from ._atomic import atomic_path
 from ._failures import reading
 from ._hdf5 import read_hdf5, write_hdf5
 from ._nifti import read_nifti, write_nifti

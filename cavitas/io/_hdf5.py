@@ -34,8 +34,8 @@ import numpy as np
 from .._caution import RESEARCH_ONLY
 from .._errors import InputFileError, OutputError
 from ._assemble import Decoded
+from ._declared import check_declared
 from ._failures import reading
-from ._memory import check_declared
 from ._units import UNKNOWN, centimetres_per
 
 __all__ = ["read_hdf5", "write_hdf5"]

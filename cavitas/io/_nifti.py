@@ -30,17 +30,18 @@ from __future__ import annotations
 import os
 from collections.abc import Sequence
 from pathlib import Path
-from typing import Any
+from typing import Any, cast
 
 import nibabel as nib
 import numpy as np
+from nibabel.arrayproxy import ArrayProxy
 
 from .._errors import InputFileError
 from ._assemble import Decoded, note
 from ._axes import select_planes
+from ._declared import check_declared
 from ._failures import reading
 from ._logs import collect_log
-from ._memory import check_declared
 from ._units import centimetres_per
 
 __all__ = ["CAUTION_SHORT", "read_nifti", "write_nifti"]
@@ -49,6 +50,7 @@ __all__ = ["CAUTION_SHORT", "read_nifti", "write_nifti"]
 CAUTION_SHORT = "cavitas output: research use only, not for diagnosis"
 
 _UNIT_CODES = {"mm": "mm", "µm": "micron", "m": "meter"}
+_KINDS: dict[type, str] = {nib.Nifti2Image: "NIfTI-2", nib.Nifti1Image: "NIfTI-1"}
 
 
 def _zoom(value: Any) -> float:
@@ -74,6 +76,9 @@ def read_nifti(path: Path, *, channel: int | None = None, time: int | None = Non
     with reading(path, "NIfTI"):
         with collect_log("nibabel.global") as log:
             img = nib.load(path, mmap="r" if mmap else False)
+        if not isinstance(img, nib.analyze.AnalyzeImage):  # NIfTI images are Analyze ones
+            raise InputFileError(f"'{path}' is a {type(img).__name__} file, not a NIfTI or "
+                                 "Analyze image.")
         for message in log.messages():
             note(meta, path, message)
         shape = tuple(int(n) for n in img.shape)
@@ -83,7 +88,8 @@ def read_nifti(path: Path, *, channel: int | None = None, time: int | None = Non
                 "each of length >= 1."
             )
         check_declared(path, shape, img.header.get_data_dtype(), stored=_stored_bytes(img))
-        proxy = img.dataobj
+        # a loaded image's data object is an ArrayProxy (nibabel annotates any ArrayLike)
+        proxy = cast(ArrayProxy, img.dataobj)
         slope, inter = float(proxy.slope), float(proxy.inter)
         if (slope, inter) == (1.0, 0.0):
             data = proxy.get_unscaled()
@@ -92,13 +98,15 @@ def read_nifti(path: Path, *, channel: int | None = None, time: int | None = Non
             meta["scaled"] = True
         header = img.header
         zooms = header.get_zooms()
-        xyz_unit = header.get_xyzt_units()[0] if hasattr(header, "get_xyzt_units") else "unknown"
-        kind = {nib.Nifti2Image: "NIfTI-2", nib.Nifti1Image: "NIfTI-1"}.get(type(img), "Analyze")
+        units = (header.get_xyzt_units() if isinstance(header, nib.Nifti1Header)
+                 else ("unknown", "unknown"))  # NIfTI-2 and pair headers are NIfTI-1 ones
+        xyz_unit = units[0]
+        kind = _KINDS.get(type(img), "Analyze")
         data, chosen = select_planes(np.asanyarray(data), "XYZTCVW"[: len(shape)],
                                      channel=channel, time=time, name=str(path))
         affine = np.asarray(img.affine, dtype=np.float64)
         codes = (int(header.get("sform_code", 0)), int(header.get("qform_code", 0)))
-        time_unit = header.get_xyzt_units()[1] if kind != "Analyze" else "unknown"
+        time_unit = units[1] if kind != "Analyze" else "unknown"
     if kind != "Analyze" and codes == (0, 0):
         note(meta, path, "no orientation codes (sform/qform); the affine holds only voxel sizes")
     spatial = [_zoom(z) for z in zooms[: min(3, len(shape))]]

@@ -15,15 +15,15 @@ import os
 import zipfile
 from collections.abc import Sequence
 from pathlib import Path
-from typing import Any, BinaryIO
+from typing import IO, Any, cast
 
 import numpy as np
 
 from .._caution import RESEARCH_ONLY
 from .._errors import ChoiceNeeded, InputFileError, ParameterError
 from ._assemble import Decoded
+from ._declared import check_declared, declared_bytes
 from ._failures import check_signature, reading
-from ._memory import check_declared, declared_bytes
 
 __all__ = ["read_npy", "read_npz", "write_npy", "write_npz"]
 
@@ -31,7 +31,7 @@ __all__ = ["read_npy", "read_npz", "write_npy", "write_npz"]
 METADATA_KEYS = ("spacing", "unit", "caution")
 
 
-def _header(stream: BinaryIO, path: Path) -> tuple[tuple[int, ...], np.dtype, bool]:
+def _header(stream: IO[bytes], path: Path) -> tuple[tuple[int, ...], np.dtype, bool]:
     """Shape, type and Fortran order a ``.npy`` header declares, the stream left at the data.
 
     The header is parsed by NumPy's own reader (``numpy.lib.format``), which evaluates it as
@@ -70,7 +70,8 @@ def _member(archive: zipfile.ZipFile, key: str, path: Path) -> np.ndarray:
         stored = archive.getinfo(name).file_size - stream.tell()
         check_declared(f"{path}' entry '{key}", shape, dtype, stored=stored)
         buffer = bytearray(declared_bytes(path, shape, dtype))  # read in place: no copy
-        got = stream.readinto(buffer)
+        # typeshed types ZipFile.open() as IO[bytes]; reading, it returns a ZipExtFile
+        got = cast(zipfile.ZipExtFile, stream).readinto(buffer)
     if got != len(buffer):
         raise InputFileError(f"'{path}' entry '{key}' ends before its data do (the file is "
                              "cut short).")
@@ -94,13 +95,14 @@ def read_npz(path: Path, *, key: str | None = None) -> Decoded:
                 f"key={key!r} is not in '{path}', which holds: {', '.join(names)}.",
                 parameters=("key",))
         data = _member(archive, key, path)
-        spacing = _member(archive, "spacing", path) if "spacing" in entries else None
         unit = str(_member(archive, "unit", path)) if "unit" in entries else None
-        if spacing is not None:
-            if spacing.dtype.kind not in "iuf":
-                raise InputFileError(f"'{path}' holds a spacing of {spacing.dtype} values; "
+        spacing = None
+        if "spacing" in entries:
+            stored = _member(archive, "spacing", path)
+            if stored.dtype.kind not in "iuf":
+                raise InputFileError(f"'{path}' holds a spacing of {stored.dtype} values; "
                                      "expected numbers.", parameters=("spacing",))
-            spacing = tuple(float(s) for s in np.ravel(spacing))
+            spacing = tuple(float(s) for s in np.ravel(stored))
     return Decoded(data, spacing, unit, meta={"format": "NumPy .npz", "key": key})
 
 

@@ -18,8 +18,8 @@ import numpy as np
 from .._errors import InputFileError
 from ._assemble import Decoded, note
 from ._axes import select_planes
+from ._declared import check_declared
 from ._failures import check_signature, reading
-from ._memory import check_declared
 
 __all__ = ["read_png"]
 

@@ -10,18 +10,20 @@ from __future__ import annotations
 import os
 from collections.abc import Sequence
 from pathlib import Path
+from typing import Literal
 
 import numpy as np
 
 from .._errors import InputFileError, ParameterError
 from ._assemble import Decoded
+from ._declared import check_declared, declared_bytes
 from ._failures import reading
-from ._memory import check_declared, declared_bytes
 
 __all__ = ["BYTE_ORDERS", "read_raw"]
 
 #: Accepted ``byte_order=`` values and the NumPy prefix each stands for.
-BYTE_ORDERS = {"little": "<", "big": ">", "native": "=", "<": "<", ">": ">", "=": "="}
+BYTE_ORDERS: dict[str, Literal["<", ">", "="]] = {
+    "little": "<", "big": ">", "native": "=", "<": "<", ">": ">", "=": "="}
 
 
 def _layout(path: Path, shape: Sequence[int] | None, dtype: str | np.dtype | None,
@@ -72,6 +74,7 @@ def read_raw(path: Path, *, shape: Sequence[int] | None, dtype: str | np.dtype |
             f"header needs {expected} bytes."
         )
     with reading(path, "raw data"):
+        data: np.ndarray
         if mmap:
             data = np.memmap(path, dtype=kind, mode="r", shape=dims, offset=int(offset))
         else:

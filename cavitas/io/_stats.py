@@ -103,7 +103,7 @@ def summarize(data: Any, *, chunk_voxels: int = _CHUNK,
     keys = [f"{p:g}" for p in PERCENTILES]
     result: dict[str, Any] = {"min": None, "max": None, "percentiles": dict.fromkeys(keys),
                               "nonfinite": int(nonfinite), "exact": True}
-    if count == 0:
+    if low is None or high is None:  # no finite value at all
         return result
     result["min"], result["max"] = low.item(), high.item()
     ranks = np.asarray(PERCENTILES) / 100.0 * (count - 1)

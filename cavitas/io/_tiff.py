@@ -59,9 +59,9 @@ from .._caution import RESEARCH_ONLY
 from .._errors import CavitasError, InputFileError
 from ._assemble import Decoded, note
 from ._axes import select_planes
+from ._declared import check_declared
 from ._failures import check_signature, unreadable
 from ._logs import collect_log
-from ._memory import check_declared
 from ._units import centimetres_per, has_named_unit, normalise_unit
 
 __all__ = ["read_tiff", "write_tiff"]
@@ -129,7 +129,9 @@ def _resolution(page: Any, path: Path, meta: dict[str, Any]) -> tuple[tuple[floa
         return None, None
     if code in (2, 3):  # inch, centimetre
         unit = "inch" if code == 2 else "cm"
-        return (_convert(1.0 / per_y, unit, "µm"), _convert(1.0 / per_x, unit, "µm")), "µm"
+        size_y, size_x = _convert(1.0 / per_y, unit, "µm"), _convert(1.0 / per_x, unit, "µm")
+        if size_y is not None and size_x is not None:  # always: both are lengths
+            return (size_y, size_x), "µm"
     return (1.0 / per_y, 1.0 / per_x), None
 
 

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import re
+from typing import TypeGuard
 
 __all__ = ["UNKNOWN", "centimetres_per", "has_named_unit", "normalise_unit"]
 
@@ -64,7 +65,7 @@ def centimetres_per(unit: str | None) -> float | None:
     return _CENTIMETRES.get(normalise_unit(unit) or "")
 
 
-def has_named_unit(unit: str | None) -> bool:
+def has_named_unit(unit: str | None) -> TypeGuard[str]:
     """True when ``unit`` names a physical unit (not "voxel", "unknown" or nothing).
 
     Examples

@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
@@ -14,7 +14,7 @@ from .._errors import ParameterError
 __all__ = ["Volume"]
 
 
-@dataclass(eq=False)
+@dataclass(eq=False, init=False)
 class Volume:
     """An image (2D) or volume (3D) with its voxel spacing, unit, affine and metadata.
 
@@ -48,13 +48,22 @@ class Volume:
     """
 
     data: Any
-    spacing: Sequence[float] | None = None
-    unit: str | None = None
-    affine: Any = None
-    source: str | Path | None = None
-    meta: Mapping[str, Any] = field(default_factory=dict)
+    spacing: tuple[float, ...]
+    unit: str
+    affine: np.ndarray | None
+    source: str | None
+    meta: dict[str, Any]
 
-    def __post_init__(self) -> None:
+    def __init__(
+        self,
+        data: Any,
+        spacing: Sequence[float] | None = None,
+        unit: str | None = None,
+        affine: Any = None,
+        source: str | Path | None = None,
+        meta: Mapping[str, Any] | None = None,
+    ) -> None:
+        self.data = data
         if not hasattr(self.data, "shape") or not hasattr(self.data, "dtype"):
             self.data = np.asarray(self.data)
         ndim = len(self.data.shape)
@@ -63,29 +72,27 @@ class Volume:
                 f"A volume must be 2D or 3D; got an array with {ndim} dimension(s) "
                 f"and shape {tuple(self.data.shape)}."
             )
-        if self.spacing is None:
-            spacing = (1.0,) * ndim
-            if self.unit is None:
-                self.unit = "voxel"
+        if spacing is None:
+            steps = (1.0,) * ndim
+            self.unit = "voxel" if unit is None else unit
         else:
-            spacing = tuple(float(s) for s in np.ravel(self.spacing))
-            if self.unit is None:
-                self.unit = "µm"
-        if len(spacing) != ndim:
+            steps = tuple(float(s) for s in np.ravel(spacing))
+            self.unit = "µm" if unit is None else unit
+        if len(steps) != ndim:
             raise ParameterError(
-                f"spacing must have one value per axis ({ndim}); got {len(spacing)}: {spacing}."
+                f"spacing must have one value per axis ({ndim}); got {len(steps)}: {steps}."
             )
-        if not all(np.isfinite(s) and s > 0 for s in spacing):
-            raise ParameterError(f"spacing must be finite and > 0 on every axis; got {spacing}.")
-        self.spacing = spacing
-        if self.affine is not None:
-            affine = np.asarray(self.affine, dtype=np.float64)
-            if affine.shape != (4, 4):
-                raise ParameterError(f"affine must be a 4x4 matrix; got shape {affine.shape}.")
-            self.affine = affine
-        if self.source is not None:
-            self.source = str(self.source)
-        self.meta = dict(self.meta)
+        if not all(np.isfinite(s) and s > 0 for s in steps):
+            raise ParameterError(f"spacing must be finite and > 0 on every axis; got {steps}.")
+        self.spacing = steps
+        self.affine = None
+        if affine is not None:
+            matrix = np.asarray(affine, dtype=np.float64)
+            if matrix.shape != (4, 4):
+                raise ParameterError(f"affine must be a 4x4 matrix; got shape {matrix.shape}.")
+            self.affine = matrix
+        self.source = None if source is None else str(source)
+        self.meta = dict(meta) if meta is not None else {}
 
     @property
     def shape(self) -> tuple[int, ...]:
@@ -122,7 +129,7 @@ class Volume:
         >>> vol.with_data(np.ones((3, 3), np.uint8)).spacing
         (0.5, 0.5)
         """
-        fields = dict(
+        fields: dict[str, Any] = dict(
             spacing=self.spacing, unit=self.unit, affine=self.affine, source=self.source,
             meta=self.meta,
         )

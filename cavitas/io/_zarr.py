@@ -38,8 +38,8 @@ import numpy as np
 from .._errors import InputFileError, ParameterError
 from ._assemble import Decoded, note
 from ._axes import select_planes
+from ._declared import check_declared
 from ._failures import reading
-from ._memory import check_declared
 from ._units import normalise_unit
 
 __all__ = ["is_zarr_store", "read_zarr"]

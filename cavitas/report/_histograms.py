@@ -70,7 +70,7 @@ def plot_histograms(regions: Table, *, columns: Sequence[str] | None = None,
     for k, (name, (values, dropped)) in enumerate(data.items()):
         ax = fig.add_subplot(1, len(data), k + 1)
         edges, log = _bins(values)
-        ax.hist(values, bins=edges, color=_FILL[k % 4], edgecolor="black", linewidth=0.6,
+        ax.hist(values, bins=edges.tolist(), color=_FILL[k % 4], edgecolor="black", linewidth=0.6,
                 hatch=_HATCHES[k % 4])
         median = float(np.median(values))
         ax.axvline(median, color="black", ls="--", lw=1.2, label=f"median {median:.3g}")

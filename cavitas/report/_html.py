@@ -13,10 +13,10 @@ import numpy as np
 
 from .._caution import RESEARCH_ONLY
 from .._errors import ParameterError
+from .._shared.atomic import atomic_path, check_writable
 from .._table import Table
 from .._version import __version__
 from ..cubical._diagram import Diagram
-from ..io._atomic import atomic_path, check_writable
 from ._browser import BROWSER_SCRIPT, browser_html, embed_scan
 from ._encode import data_uri, figure_png
 from ._findings import findings_html, gather_findings
@@ -165,7 +165,8 @@ def _border_labels(regions: Table) -> list[int]:
 
 def _figures_html(figures: Mapping[str, Any], words: Words) -> str:
     """Every global figure, in the reader's words with its unit, behind a fold."""
-    units = figures.get("units") if isinstance(figures.get("units"), Mapping) else {}
+    given = figures.get("units")
+    units = given if isinstance(given, Mapping) else {}
     rows = []
     for key, value in figures.items():
         if key == "units":

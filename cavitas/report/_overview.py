@@ -11,6 +11,7 @@ from collections.abc import Sequence
 
 import numpy as np
 from matplotlib import patheffects
+from matplotlib.artist import Artist
 from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 from matplotlib.patches import Patch, Rectangle
@@ -110,7 +111,8 @@ def plot_overview(image: np.ndarray, labels: np.ndarray, *, spacing: Sequence[fl
     fill = inside & ~is_border
     rgb[fill] = 0.35 * rgb[fill] + 0.65 * colours[where[fill]]
     rgb[is_border] = 0.4 * rgb[is_border] + 0.6 * 0.85  # pale, with dark diagonal stripes
-    rows, cols = np.indices(small.shape)
+    grid = np.indices(small.shape)
+    rows, cols = grid[0], grid[1]
     stripes = is_border & (((rows + cols) // max(2, small.shape[1] // 120)) % 3 == 0)
     rgb[stripes] = 0.2
     edge = outline_mask(small)
@@ -140,7 +142,7 @@ def plot_overview(image: np.ndarray, labels: np.ndarray, *, spacing: Sequence[fl
             va="bottom", fontsize=10)
     ax.set_xlabel(f"x [{unit}]")
     ax.set_ylabel(f"y [{unit}]")
-    handles = [Patch(facecolor="#c9b26b", edgecolor="black",
+    handles: list[Artist] = [Patch(facecolor="#c9b26b", edgecolor="black",
                      label="enclosed region (number = table label)")]
     if highlight is not None and (small == highlight).any():
         ax.contour((np.arange(small.shape[1]) + 0.5) * factor * dx,

@@ -116,7 +116,7 @@ def plot_slices(image: np.ndarray, labels: np.ndarray | None = None, *,
         if axis is not None:
             ax.set_title(f"{_AXES[axis]} = {index[axis] * spacing[axis]:.4g} {unit} "
                          f"(slice {index[axis]})", fontsize=10)
-    handles = [Line2D([], [], color=np.array(OUTLINE_LIGHT) / 255, lw=2,
+    handles = [Line2D([], [], color="#" + "".join(f"{v:02x}" for v in OUTLINE_LIGHT), lw=2,
                       label="region outlines (two-tone)")]
     if highlight is not None:
         handles.append(Line2D([], [], color=_SELECTED, ls="--", marker="+", ms=10, lw=1.6,

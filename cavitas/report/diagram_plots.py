@@ -19,8 +19,8 @@ from matplotlib.figure import Figure
 
 from .._caution import RESEARCH_ONLY
 from .._errors import ParameterError
+from .._shared.atomic import atomic_path
 from ..cubical._diagram import Diagram
-from ..io._atomic import atomic_path
 
 __all__ = ["DIM_STYLE", "plot_barcode", "plot_diagram", "save_figure"]
 
@@ -38,6 +38,12 @@ def _new_axes(ax: Axes | None, figsize: tuple[float, float]) -> Axes:
     if ax is not None:
         return ax
     return Figure(figsize=figsize, layout="constrained").add_subplot()
+
+
+def _root_figure(ax: Axes) -> Figure:
+    """The figure that holds ``ax`` (the whole figure when ``ax`` sits in a subfigure)."""
+    holder = ax.figure
+    return holder if isinstance(holder, Figure) else holder.figure
 
 
 def _kept(highlight: Any, dim: int, n: int) -> np.ndarray | None:
@@ -70,8 +76,8 @@ def _level_label(dgm: Diagram, what: str, unit: str | None) -> str:
 
 def _level_range(dgm: Diagram, dims: tuple[int, ...]) -> tuple[float, float, float]:
     """Finite level range of the plotted pairs, and a margin."""
-    values = [dgm.pairs(d)[f] for d in dims for f in ("birth", "death")]
-    values = np.concatenate(values) if values else np.empty(0)
+    columns = [dgm.pairs(d)[f] for d in dims for f in ("birth", "death")]
+    values = np.concatenate(columns) if columns else np.empty(0)
     values = values[np.isfinite(values)]
     lo, hi = (float(values.min()), float(values.max())) if len(values) else (0.0, 1.0)
     pad = 0.06 * (hi - lo) if hi > lo else max(1.0, abs(hi) * 0.1)
@@ -165,7 +171,7 @@ def plot_diagram(dgm: Diagram, *, dims: Any = None, highlight: Any = None,
     ax.set_ylabel(_level_label(dgm, "death level", unit))
     ax.set_title(f"Persistence diagram, {' x '.join(map(str, dgm.shape))} image")
     ax.legend(fontsize="small", loc="upper left" if dgm.walls == "bright" else "lower right")
-    return ax.figure
+    return _root_figure(ax)
 
 
 def plot_barcode(dgm: Diagram, *, dim: int, top: int = 50, highlight: Any = None,
@@ -249,7 +255,7 @@ def plot_barcode(dgm: Diagram, *, dim: int, top: int = 50, highlight: Any = None
     ax.set_title(f"Barcode of H{dim} ({role})")
     if ax.get_legend_handles_labels()[0]:
         ax.legend(fontsize="small", loc="upper left", bbox_to_anchor=(1.01, 1.0))
-    return ax.figure
+    return _root_figure(ax)
 
 
 def save_figure(fig: Figure, path: str | os.PathLike, *, force: bool = False,

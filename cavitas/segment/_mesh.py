@@ -9,7 +9,7 @@ import numpy as np
 from scipy import ndimage as ndi
 
 from .._errors import ParameterError
-from ..io._atomic import atomic_path
+from .._shared.atomic import atomic_path
 
 __all__ = ["region_mesh", "write_mesh"]
 

@@ -58,7 +58,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import ndimage as ndi
 
-from ..io._memory import work_dtype  # the dtype policy lives beside the memory estimate
+from .._shared.memory import work_dtype  # the dtype policy lives beside the memory estimate
 
 __all__ = ["NULL_SEEDS", "QUANTISATION_SIGMA", "NoiseLevel", "correlation_factor",
            "estimate_noise", "noise_level", "null_persistence", "smooth", "smoothed_noise_sigma",
@@ -297,11 +297,11 @@ def _null_cached(shape: tuple[int, ...], sigma: tuple[float, ...],
 
 
 def _crop_shape(shape: tuple[int, ...], limit: int) -> tuple[int, ...]:
-    shape = list(shape)
-    while math.prod(shape) > limit:
-        i = int(np.argmax(shape))
-        shape[i] = max(8, shape[i] // 2)
-    return tuple(shape)
+    sizes = list(shape)
+    while math.prod(sizes) > limit:
+        i = int(np.argmax(sizes))
+        sizes[i] = max(8, sizes[i] // 2)
+    return tuple(sizes)
 
 
 def _central_crop(image: np.ndarray, limit: int) -> np.ndarray:

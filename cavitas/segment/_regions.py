@@ -497,7 +497,7 @@ def open_to_border(labels: np.ndarray, outside: np.ndarray, n_labels: int,
     border = np.zeros(labels.shape, bool)
     for ax in range(ndim):
         for end in (0, -1):
-            index = [slice(None)] * ndim
+            index: list[slice | int] = [slice(None)] * ndim
             index[ax] = end
             border[tuple(index)] = True
     if beyond_roi is not None and beyond_roi.any():

@@ -71,7 +71,7 @@ class Segmentation:
     noise: float
     params: dict[str, Any]
     volume: Volume
-    all_labels: np.ndarray = field(repr=False, default=None)
+    all_labels: np.ndarray | None = field(repr=False, default=None)
     enclosure_map: np.ndarray | None = field(repr=False, default=None)
     background: np.ndarray | None = field(repr=False, default=None)
 

@@ -110,7 +110,7 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
 
     Levels in the table and the diagram are values of the image at the detection scale
     (the input itself when no smoothing was chosen), in the input's units. Data of at most
-    16 bits and float32 data are smoothed in float32 (:func:`cavitas.io._memory.work_dtype`,
+    16 bits and float32 data are smoothed in float32 (:func:`cavitas._shared.memory.work_dtype`,
     others in float64): levels are exact for that float32 image, and within about 1e-7
     (relative) of smoothing in float64.
 
@@ -287,6 +287,13 @@ class Detection:
         return int(np.count_nonzero(self.passing))
 
 
+def _node_sizes(tree: CavityTree) -> np.ndarray:
+    """Voxels per node: ``cavity_sweep`` counts them (only a hand-built tree lacks them)."""
+    if tree.size is None:
+        raise TypeError("the cavity tree carries no node sizes")
+    return tree.size
+
+
 class _Image(NamedTuple):
     """The input as read, its polarity and the float type it is smoothed in."""
 
@@ -385,7 +392,7 @@ def _detect(image: _Image, params: SegmentParams, *, noise: float, robust_range:
         face_breach = on_faces(tree.breach, smoothed.shape) if image.closed_border else None
         eligible = gap = rule = None
         auto = None
-        if params.automatic:
+        if null is not None:  # automatic mode
             eligible = eligible_nodes(tree, smoothed, image.statistics_mask,
                                       _noise.smoothed_noise_sigma(noise, tuple(sig)))
             if face_breach is not None:
@@ -401,7 +408,7 @@ def _detect(image: _Image, params: SegmentParams, *, noise: float, robust_range:
         if eligible is not None:
             passing &= eligible
             if passing.any():
-                area = tree.size.astype(np.float64)
+                area = _node_sizes(tree).astype(np.float64)
                 area[OUTSIDE] = np.inf
                 eligible &= pers >= small_region_threshold(area, pers, passing)
                 passing &= eligible
@@ -481,8 +488,8 @@ def _polarity_check(det: Detection, image: _Image, params: SegmentParams, *,
                                                smooth=float((det.sigma * spacing).max())),
                        spacing=spacing, tell=lambda text: None, **detect_options)
     n = int(np.prod(image.data.shape))
-    return polarity_hint(census(det.tree.parent, det.tree.size, det.passing, n),
-                         census(other.tree.parent, other.tree.size, other.passing, n),
+    return polarity_hint(census(det.tree.parent, _node_sizes(det.tree), det.passing, n),
+                         census(other.tree.parent, _node_sizes(other.tree), other.passing, n),
                          other_walls, "pixels" if image.data.ndim == 2 else "voxels")
 
 

@@ -133,12 +133,12 @@ def prune(tree: CavityTree, keep: np.ndarray, rank_of: np.ndarray, level_of_rank
         group_of[gj] = gp
         current[gp] = new
 
-    cand_end = np.asarray(cand_end, np.int64)
-    cand_formed = np.asarray(cand_formed, np.int64)
+    end_rank = np.asarray(cand_end, np.int64)
+    formed_rank = np.asarray(cand_formed, np.int64)
     life = np.zeros(len(cand_node))
     if len(cand_node) > n_ch:
         enc = slice(n_ch, None)
-        life[enc] = np.abs(level_of_rank(cand_end[enc]) - level_of_rank(cand_formed[enc]))
+        life[enc] = np.abs(level_of_rank(end_rank[enc]) - level_of_rank(formed_rank[enc]))
     kept_cand = np.arange(len(cand_node)) < n_ch
     kept_cand |= (np.asarray(cand_size) >= 2) & (life >= threshold)
     new_id = np.cumsum(kept_cand)  # 1-based ids of kept candidates
@@ -151,8 +151,8 @@ def prune(tree: CavityTree, keep: np.ndarray, rank_of: np.ndarray, level_of_rank
     idx = np.flatnonzero(kept_cand)
     return Hierarchy(
         node=np.asarray(cand_node, np.int64)[idx],
-        close_rank=cand_end[idx],
-        formed_rank=cand_formed[idx],
+        close_rank=end_rank[idx],
+        formed_rank=formed_rank[idx],
         parent=parent_id[idx],
         n_chambers=n_ch,
     )

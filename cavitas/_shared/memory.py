@@ -1,4 +1,5 @@
-"""How much memory a segmentation of a volume needs (used by ``cavitas info`` and batches)."""
+"""How much memory a segmentation of a volume needs (what ``cavitas info`` prints and batches
+budget with), how much the machine has, and the guard that refuses what cannot fit."""
 
 from __future__ import annotations
 
@@ -12,9 +13,9 @@ import numpy as np
 
 from .._errors import InputFileError
 
-__all__ = ["PROCESS_BASE_BYTES", "WORK_BYTES_PER_VOXEL", "available_memory", "check_declared",
-           "check_memory", "data_memory_bytes", "declared_bytes", "estimate_memory_bytes",
-           "memory_guard", "out_of_memory", "reset_memory_guard", "set_memory_guard",
+__all__ = ["PROCESS_BASE_BYTES", "WORK_BYTES_PER_VOXEL", "available_memory", "check_memory",
+           "data_memory_bytes", "estimate_memory_bytes", "guarding", "memory_guard",
+           "out_of_memory", "reset_memory_guard", "set_memory_guard", "size_text",
            "work_dtype"]
 
 #: Whether readers and runs refuse what cannot fit in the memory available (see
@@ -131,8 +132,11 @@ def memory_guard(enabled: bool) -> Iterator[None]:
     Examples
     --------
     >>> with memory_guard(False):
-    ...     check_declared("big.npy", (10**6, 10**6), np.uint8)
-    1000000000000
+    ...     check_memory("big.tif", (10**4, 10**4, 10**4), np.uint8, available=1)
+    ...     guarding()
+    False
+    >>> guarding()
+    True
     """
     token = set_memory_guard(enabled)
     try:
@@ -170,69 +174,6 @@ def size_text(count: float) -> str:
             return f"{count:.0f} {unit}" if unit == "B" else f"{count:.1f} {unit}"
         count /= 1024
     raise AssertionError("unreachable")  # pragma: no cover
-
-
-def declared_bytes(path: object, shape: Sequence[int], dtype: np.dtype | str | type) -> int:
-    """Bytes of the voxels a header declares, in exact integers (no overflow).
-
-    Raises
-    ------
-    InputFileError
-        When a length is negative or not a whole number (a damaged header).
-
-    Examples
-    --------
-    >>> declared_bytes("a.nii", (1024, 1024, 1024), "int16")
-    2147483648
-    """
-    try:
-        dims = [int(n) for n in shape]
-        itemsize = np.dtype(dtype).itemsize
-    except (TypeError, ValueError, OverflowError) as exc:
-        raise InputFileError(f"'{path}' declares an unusable shape {tuple(shape)!r} or data "
-                             "type (a damaged header).") from exc
-    if any(n < 0 for n in dims):
-        raise InputFileError(f"'{path}' declares a negative length in its shape {tuple(dims)} "
-                             "(a damaged header).")
-    return math.prod(dims) * itemsize
-
-
-def check_declared(path: object, shape: Sequence[int], dtype: np.dtype | str | type, *,
-                   stored: int | None = None) -> int:
-    """Check a declared array against the bytes the file holds and the memory available.
-
-    Called before anything is allocated. ``stored`` is the number of bytes the file holds
-    for the voxels (after its header) when they are stored uncompressed; a declaration
-    larger than that means a truncated file or a damaged header. Whatever the storage, an
-    array larger than the memory available now is refused (a damaged size, or a
-    decompression bomb) unless :func:`memory_guard` turned the check off. Returns the
-    declared bytes.
-
-    Examples
-    --------
-    >>> check_declared("a.npy", (4, 4), np.uint16, stored=32)
-    32
-    >>> try:
-    ...     check_declared("a.npy", (400, 4), np.uint16, stored=32)
-    ... except InputFileError as exc:
-    ...     print(str(exc)[:69])
-    'a.npy' declares 400 x 4 uint16 voxels (3200 bytes) but holds only 32
-    """
-    need = declared_bytes(path, shape, dtype)
-    what = f"{' x '.join(str(int(n)) for n in shape)} {np.dtype(dtype).name} voxels"
-    if stored is not None and need > stored:
-        raise InputFileError(f"'{path}' declares {what} ({need} bytes) but holds only "
-                             f"{max(stored, 0)} bytes of voxel data: the file is cut short or "
-                             "its header is damaged.")
-    available = available_memory() if guarding() else None
-    if available is not None and need > available:
-        raise InputFileError(
-            f"'{path}' declares {what} ({size_text(need)}), more than the "
-            f"{size_text(available)} of memory available: the header is damaged, or the "
-            "volume must be cropped or read on a machine with more memory (the memory "
-            "check can be skipped with skip_memory_check=True).",
-            parameters=("skip_memory_check",))
-    return need
 
 
 #: What to do about a volume too large for the memory (the end of the guard's sentences).
