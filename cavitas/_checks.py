@@ -1,4 +1,8 @@
-"""Strict checks of single parameter values, shared by every parameter group.
+"""Strict checks of single parameter values, shared by every parameter group and every stage.
+
+The argument validators every stage shares live here too, so their copies cannot drift:
+:func:`spacing`, :func:`shape`, :func:`walls` and :func:`refuse_nonfinite` (NaN or
+infinite intensities, inside a mask when there is one). This module imports no stage.
 
 Each check takes the parameter's Python name and its value, and returns the value in its
 canonical type or raises a one-sentence :class:`~cavitas._errors.ParameterError` naming the
@@ -25,9 +29,13 @@ from typing import Any
 
 import numpy as np
 
-from ._errors import ParameterError
+from ._errors import InputFileError, ParameterError
 
-__all__ = ["choice", "flag", "number", "numbers_list", "text", "whole"]
+__all__ = ["WALLS", "choice", "flag", "number", "numbers_list", "refuse_nonfinite", "shape",
+           "spacing", "text", "walls", "whole"]
+
+#: The accepted ``walls`` values: bright walls (a superlevel filtration) or dark ones.
+WALLS = ("bright", "dark")
 
 
 def _shown(value: Any) -> str:
@@ -138,3 +146,72 @@ def numbers_list(name: str, value: Any, *, integer: bool, low: float,
         return tuple(number(name, v, low=low, low_open=low_open) for v in value)
     except ParameterError:
         raise _refuse(name, expected, value) from None
+
+
+def spacing(value: Any, ndim: int | None = None) -> tuple[float, ...]:
+    """A voxel spacing: 2 or 3 finite numbers > 0 in ``(z, y, x)`` order, ``ndim`` of them
+    when the image is known.
+
+    Examples
+    --------
+    >>> spacing([2, 0.5, 0.5])
+    (2.0, 0.5, 0.5)
+    >>> spacing((1.0, 1.0), ndim=3)
+    Traceback (most recent call last):
+    ...
+    cavitas._errors.ParameterError: spacing must have one value per axis (3, in (z, y, x) \
+order); got 2: (1.0, 1.0).
+    """
+    values = numbers_list("spacing", value, integer=False, low=0, low_open=True)
+    if ndim is not None and len(values) != ndim:
+        raise ParameterError(
+            f"spacing must have one value per axis ({ndim}, in (z, y, x) order); "
+            f"got {len(values)}: {values}.", parameters=("spacing",))
+    return values
+
+
+def shape(value: Any) -> tuple[int, ...]:
+    """An array shape: 2 or 3 whole numbers >= 1 in ``(z, y, x)`` order.
+
+    Examples
+    --------
+    >>> shape([64, 256, 256])
+    (64, 256, 256)
+    """
+    return numbers_list("shape", value, integer=True, low=1)
+
+
+def walls(value: Any) -> str:
+    """``"bright"`` (walls brighter than what they enclose) or ``"dark"``.
+
+    Examples
+    --------
+    >>> walls("grey")
+    Traceback (most recent call last):
+    ...
+    cavitas._errors.ParameterError: walls must be 'bright' or 'dark'; got 'grey'.
+    """
+    return choice("walls", value, WALLS)
+
+
+def refuse_nonfinite(count: int, *, image: str = "image", masked: bool = False,
+                     total: int | None = None) -> None:
+    """Refuse an image with ``count`` NaN or infinite values among the voxels analysed
+    (those inside the mask when ``masked``); ``total`` is the number of voxels looked at.
+
+    Examples
+    --------
+    >>> refuse_nonfinite(0, image="'a.tif'")
+    >>> refuse_nonfinite(2, image="'a.tif'", masked=True)
+    Traceback (most recent call last):
+    ...
+    cavitas._errors.InputFileError: 'a.tif' holds 2 NaN or infinite voxel(s) inside the mask; \
+replace them (e.g. with numpy.nan_to_num) or leave them outside the mask.
+    """
+    if not count:
+        return
+    among = "" if total is None else f" out of {total}"
+    where, instead = (" inside the mask", "leave them outside the mask") if masked else (
+        "", "mask them out")
+    raise InputFileError(f"{image} holds {count} NaN or infinite voxel(s){among}{where}; "
+                         f"replace them (e.g. with numpy.nan_to_num) or {instead}.")

@@ -18,7 +18,8 @@ from typing import Any
 
 import numpy as np
 
-from ._checks import choice, flag, number, numbers_list, text, whole
+from . import _checks
+from ._checks import choice, flag, number, text, whole
 from ._errors import ParameterError
 
 __all__ = ["ReadOptions", "RunOptions"]
@@ -186,9 +187,8 @@ class ReadOptions:
             "key": lambda v: text("key", v, what="an array name"),
             "dataset": lambda v: text("dataset", v, what="a dataset name"),
             "unit": lambda v: text("unit", v, what="a unit such as 'um'"),
-            "spacing": lambda v: numbers_list("spacing", v, integer=False, low=0,
-                                              low_open=True),
-            "shape": lambda v: numbers_list("shape", v, integer=True, low=1),
+            "spacing": _checks.spacing,
+            "shape": _checks.shape,
             "dtype": _dtype_name,
             "byte_order": lambda v: choice("byte_order", v, tuple(BYTE_ORDERS)),
             "missing_chunks": lambda v: choice("missing_chunks", v, ("error", "fill")),

@@ -8,6 +8,7 @@ from pathlib import Path
 from typing import Any
 
 from .._caution import RESEARCH_ONLY
+from .._checks import WALLS
 from .._errors import InputFileError, ParameterError
 from ._reading import add_reading_options, reading_from_args
 
@@ -55,7 +56,7 @@ def register(subparsers: Any, *, parents: list[argparse.ArgumentParser],
                         help="the 2D image or 3D volume to analyse")
     parser.add_argument("-o", "--out", metavar="OUTDIR", required=True, type=Path,
                         help="folder for the diagram files and figures (created if needed)")
-    parser.add_argument("--walls", choices=("bright", "dark"), default="bright",
+    parser.add_argument("--walls", choices=WALLS, default="bright",
                         help="polarity of the walls that enclose the cavities: bright "
                              "(superlevel filtration) or dark (sublevel filtration)")
     parser.add_argument("--connectivity", type=int, default=1, metavar="N",

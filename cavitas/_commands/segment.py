@@ -7,6 +7,7 @@ from pathlib import Path
 from typing import Any
 
 from .._caution import RESEARCH_ONLY
+from .._checks import WALLS
 from ._reading import add_reading_options
 
 __all__ = ["add_memory_option", "add_segment_options", "register", "run",
@@ -102,7 +103,7 @@ def add_segment_options(p: argparse.ArgumentParser) -> None:
                    help="read parameters, reading options and outputs from a TOML file "
                         "(see below; options given here win)")
     g = p.add_argument_group("what a wall is")
-    g.add_argument("--walls", choices=("bright", "dark"),
+    g.add_argument("--walls", choices=WALLS,
                    help="polarity of the walls around the regions (default: bright)")
     g.add_argument("--connectivity", type=int, metavar="N",
                    help="connectivity of the wall set: 1 = faces only (default), 2 in 2D / 3 "

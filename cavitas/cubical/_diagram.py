@@ -8,6 +8,7 @@ from typing import Any
 
 import numpy as np
 
+from .. import _checks
 from .._errors import ParameterError
 
 __all__ = ["PAIR_DTYPE", "Diagram"]
@@ -62,9 +63,7 @@ class Diagram:
         masked: bool = False,
     ) -> None:
         self.shape = tuple(int(s) for s in shape)
-        if walls not in ("bright", "dark"):
-            raise ParameterError(f"walls must be 'bright' or 'dark'; got {walls!r}.")
-        self.walls = walls
+        self.walls = _checks.walls(walls)
         self.connectivity = int(connectivity)
         self.masked = bool(masked)
         self._pairs: dict[int, np.ndarray] = {}

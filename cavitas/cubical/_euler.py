@@ -21,11 +21,12 @@ from typing import Any
 import numpy as np
 from scipy import ndimage
 
+from .. import _checks
 from .._checks import number
 from .._errors import ParameterError
 from ..io._volume import Volume
 from ._neighbors import check_connectivity, dual_connectivity
-from ._persistence import check_walls, checked_image, checked_mask, reject_nonfinite
+from ._persistence import checked_image, checked_mask
 from ._sort import sort_voxels
 
 __all__ = ["ConnectivityDensity", "EulerCurve", "connectivity_density", "euler_curve"]
@@ -94,7 +95,7 @@ def _entry_ranks(arr: np.ndarray, mask: np.ndarray | None,
     flat = arr.reshape(-1)
     order, nonfinite = sort_voxels(flat, None if mask is None else mask.reshape(-1),
                                    descending=bright)
-    reject_nonfinite(nonfinite, masked=mask is not None)
+    _checks.refuse_nonfinite(nonfinite, masked=mask is not None)
     ordered = flat[order]
     first = np.empty(len(order), bool)  # the first voxel of each level
     first[0] = True
@@ -184,7 +185,7 @@ def euler_curve(volume: Any, *, walls: str = "bright", connectivity: int = 1,
     [1, 1]
     """
     arr = checked_image(volume)
-    check_walls(walls)
+    _checks.walls(walls)
     connectivity = check_connectivity(arr.ndim, connectivity)
     mask = checked_mask(mask, arr.shape)
     levels, ranks = _entry_ranks(arr, mask, walls == "bright")
@@ -283,7 +284,7 @@ def connectivity_density(volume: Any, *, level: float | None = None, walls: str 
     else:
         vol = Volume(np.asarray(volume), spacing=spacing)
     data = np.asarray(vol.data)
-    check_walls(walls)
+    _checks.walls(walls)
     connectivity = check_connectivity(data.ndim, connectivity)
     roi = checked_mask(mask, data.shape)
     if data.dtype == np.bool_:

@@ -9,8 +9,9 @@ from typing import Any
 
 import numpy as np
 
+from .. import _checks
 from .._cores import usable_cores
-from .._errors import InputFileError, ParameterError
+from .._errors import ParameterError
 from ..io._volume import Volume
 from ._diagram import PAIR_DTYPE, Diagram
 from ._kernels import cavity_sweep_kernel, h0_sweep, neighbor_chain
@@ -60,22 +61,6 @@ def checked_image(image: Any) -> np.ndarray:
     return engine_array(arr, name)
 
 
-def check_walls(walls: object) -> None:
-    """Refuse a ``walls`` that is neither ``"bright"`` nor ``"dark"``."""
-    if walls not in ("bright", "dark"):
-        raise ParameterError(f"walls must be 'bright' or 'dark'; got {walls!r}.")
-
-
-def reject_nonfinite(nonfinite: int, *, masked: bool) -> None:
-    """Refuse an image with ``nonfinite`` NaN or infinite values in the analysed voxels."""
-    if nonfinite:
-        where = "inside the mask" if masked else "(mask them out to skip them)"
-        raise InputFileError(
-            f"image holds {nonfinite} NaN or infinite value(s) {where}; expected finite "
-            "intensities."
-        )
-
-
 def checked_mask(mask: Any, shape: tuple[int, ...]) -> np.ndarray | None:
     """``mask`` as a C-contiguous boolean array of ``shape`` selecting at least one voxel
     (``None`` stays ``None``); anything else is a :class:`ParameterError`."""
@@ -102,7 +87,7 @@ class _Prepared:
     def __init__(self, image: Any, walls: str, connectivity: object, mask: Any,
                  plane: bool | None = None) -> None:
         arr = checked_image(image)
-        check_walls(walls)
+        _checks.walls(walls)
         self.shape = tuple(arr.shape)
         self.ndim = arr.ndim
         self.walls = walls
@@ -119,7 +104,7 @@ class _Prepared:
         self.zmargin = 1 if self.ndim == 3 else 0
 
     def _reject_nonfinite(self, nonfinite: int) -> None:
-        reject_nonfinite(nonfinite, masked=self.mask is not None)
+        _checks.refuse_nonfinite(nonfinite, masked=self.mask is not None)
 
     def new_parent(self) -> np.ndarray:
         """A union-find work array (n + 1 slots; the kernels initialise it)."""

@@ -13,9 +13,8 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-import numpy as np
-
-from .._errors import InputFileError, ParameterError
+from .. import _checks
+from .._errors import InputFileError
 from ._units import UNKNOWN, normalise_unit
 from ._volume import Volume
 
@@ -42,28 +41,15 @@ def note(meta: dict[str, Any], source: str | Path, message: str) -> None:
 
 
 def check_spacing_option(spacing: Any, ndim: int | None = None) -> tuple[float, ...] | None:
-    """Validate a user-given ``spacing=`` option (finite, > 0, one value per axis).
+    """Validate a user-given ``spacing=`` option (``None``: not given) with the shared
+    :func:`cavitas._checks.spacing`.
 
     Examples
     --------
     >>> check_spacing_option([2, 0.5, 0.5])
     (2.0, 0.5, 0.5)
     """
-    if spacing is None:
-        return None
-    try:
-        values = tuple(float(s) for s in np.ravel(np.asarray(spacing, dtype=float)))
-    except (TypeError, ValueError) as exc:
-        raise ParameterError(f"spacing must be numbers; got {spacing!r}.",
-                             parameters=("spacing",)) from exc
-    if not values or not all(np.isfinite(v) and v > 0 for v in values):
-        raise ParameterError(f"spacing must be finite and > 0 on every axis; got {values}.",
-                             parameters=("spacing",))
-    if ndim is not None and len(values) != ndim:
-        raise ParameterError(
-            f"spacing must have one value per axis ({ndim}, in (z, y, x) order); "
-            f"got {len(values)}: {values}.", parameters=("spacing",))
-    return values
+    return None if spacing is None else _checks.spacing(spacing, ndim)
 
 
 def assemble(source: str | Path, decoded: Decoded, *, spacing: Sequence[float] | None = None,
@@ -92,14 +78,13 @@ def assemble(source: str | Path, decoded: Decoded, *, spacing: Sequence[float] |
     elif decoded.spacing is None:
         file_spacing = None
     else:
-        file_spacing = tuple(float(s) for s in decoded.spacing)
-        if len(file_spacing) != len(shape) or not all(
-            np.isfinite(s) and s > 0 for s in file_spacing
-        ):
+        try:
+            file_spacing = _checks.spacing(tuple(float(s) for s in decoded.spacing), len(shape))
+        except (TypeError, ValueError):
             raise InputFileError(
-                f"'{name}' states a voxel spacing of {file_spacing} for an array of shape "
-                f"{shape}; expected one finite value > 0 per axis (give spacing= to replace it).",
-                parameters=("spacing",))
+                f"'{name}' states a voxel spacing of {tuple(decoded.spacing)} for an array of "
+                f"shape {shape}; expected one finite value > 0 per axis (give spacing= to "
+                "replace it).", parameters=("spacing",)) from None
     stated = unit if unit is not None else decoded.unit
     file_unit = normalise_unit(stated)
     if file_unit is None and stated is not None and str(stated).strip():

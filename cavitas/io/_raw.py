@@ -14,6 +14,7 @@ from typing import Literal
 
 import numpy as np
 
+from .. import _checks
 from .._errors import InputFileError, ParameterError
 from ._assemble import Decoded
 from ._declared import check_declared, declared_bytes
@@ -34,14 +35,7 @@ def _layout(path: Path, shape: Sequence[int] | None, dtype: str | np.dtype | Non
             "(and byte_order=, offset= if needed).",
             parameters=("shape", "dtype", "byte_order", "offset"),
         )
-    try:
-        dims = tuple(int(n) for n in shape)
-    except (TypeError, ValueError) as exc:
-        raise ParameterError(f"shape must be 2 or 3 whole numbers; got {shape!r}.",
-                             parameters=("shape",)) from exc
-    if len(dims) not in (2, 3) or min(dims) < 1:
-        raise ParameterError(f"shape must be 2 or 3 numbers >= 1, in (z, y, x) order; got {dims}.",
-                             parameters=("shape",))
+    dims = _checks.shape(shape)
     try:
         kind = np.dtype(dtype)
     except TypeError as exc:

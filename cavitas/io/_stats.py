@@ -16,7 +16,7 @@ from typing import Any
 
 import numpy as np
 
-from .._errors import InputFileError
+from .. import _checks
 from ._volume import Volume
 
 __all__ = ["PERCENTILES", "check_finite", "summarize"]
@@ -146,9 +146,5 @@ def check_finite(volume: Volume, *, chunk_voxels: int = _CHUNK) -> None:
         return
     bad = sum(int(chunk.size - np.count_nonzero(np.isfinite(chunk)))
               for chunk in _chunks(volume.data, chunk_voxels))
-    if bad:
-        size = int(np.prod(volume.shape))
-        raise InputFileError(
-            f"'{volume.source or '<array>'}' holds {bad} NaN or infinite voxel(s) out of "
-            f"{size}; replace them (e.g. with numpy.nan_to_num) or mask them out."
-        )
+    _checks.refuse_nonfinite(bad, image=f"'{volume.source or '<array>'}'",
+                             total=int(np.prod(volume.shape)))

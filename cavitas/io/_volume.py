@@ -9,6 +9,7 @@ from typing import Any
 
 import numpy as np
 
+from .. import _checks
 from .._errors import ParameterError
 
 __all__ = ["Volume"]
@@ -73,18 +74,11 @@ class Volume:
                 f"and shape {tuple(self.data.shape)}."
             )
         if spacing is None:
-            steps = (1.0,) * ndim
+            self.spacing = (1.0,) * ndim
             self.unit = "voxel" if unit is None else unit
         else:
-            steps = tuple(float(s) for s in np.ravel(spacing))
+            self.spacing = _checks.spacing(spacing, ndim)
             self.unit = "µm" if unit is None else unit
-        if len(steps) != ndim:
-            raise ParameterError(
-                f"spacing must have one value per axis ({ndim}); got {len(steps)}: {steps}."
-            )
-        if not all(np.isfinite(s) and s > 0 for s in steps):
-            raise ParameterError(f"spacing must be finite and > 0 on every axis; got {steps}.")
-        self.spacing = steps
         self.affine = None
         if affine is not None:
             matrix = np.asarray(affine, dtype=np.float64)

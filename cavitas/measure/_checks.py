@@ -13,6 +13,7 @@ from typing import Any
 
 import numpy as np
 
+from .. import _checks
 from .._errors import ParameterError
 
 __all__ = [
@@ -44,22 +45,11 @@ def check_labels(labels: Any) -> np.ndarray:
 
 
 def check_spacing(spacing: Sequence[float] | float | None, ndim: int) -> tuple[float, ...]:
-    """Return ``spacing`` as ``ndim`` positive finite floats (``None`` means 1 per axis)."""
+    """Return ``spacing`` as ``ndim`` positive finite floats (``None`` means 1 per axis, one
+    number is used on every axis), checked by the shared :func:`cavitas._checks.spacing`."""
     if spacing is None:
         return (1.0,) * ndim
-    values = np.ravel(np.asarray(spacing, dtype=np.float64))
-    if values.size == 1:
-        values = np.repeat(values, ndim)
-    if values.size != ndim:
-        raise ParameterError(
-            f"spacing must have one value per axis ({ndim}); got {values.size}: "
-            f"{tuple(values.tolist())}."
-        )
-    if not np.all(np.isfinite(values) & (values > 0)):
-        raise ParameterError(
-            f"spacing must be finite and > 0 on every axis; got {tuple(values.tolist())}."
-        )
-    return tuple(float(v) for v in values)
+    return _checks.spacing((spacing,) * ndim if np.ndim(spacing) == 0 else spacing, ndim)
 
 
 def check_mask(mask: Any, shape: tuple[int, ...], name: str) -> np.ndarray | None:

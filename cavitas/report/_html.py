@@ -11,6 +11,7 @@ from typing import Any
 
 import numpy as np
 
+from .. import _checks
 from .._caution import RESEARCH_ONLY
 from .._errors import ParameterError
 from .._shared.atomic import atomic_path, check_writable
@@ -264,11 +265,7 @@ def write_report(path: str | os.PathLike, *, image: np.ndarray, labels: np.ndarr
         raise ParameterError(
             f"labels must have the image's shape {tuple(image.shape)}; got {labels.shape}."
         )
-    spacing = tuple(float(s) for s in spacing)
-    if len(spacing) != image.ndim:
-        raise ParameterError(
-            f"spacing must have one value per axis ({image.ndim}); got {len(spacing)}."
-        )
+    spacing = _checks.spacing(spacing, image.ndim)
     words = Words(image.ndim)
     name = Path(source).name if source else None
     title = title or (f"cavitas report: {name}" if name else "cavitas report")

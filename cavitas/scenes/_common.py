@@ -14,6 +14,7 @@ from typing import Any
 import numpy as np
 from scipy import ndimage as ndi
 
+from .. import _checks
 from .._errors import ParameterError
 
 __all__ = ["Scene"]
@@ -73,22 +74,12 @@ class Scene:
 
 def check_shape(shape: Sequence[int], ndim: int) -> tuple[int, ...]:
     """Return ``shape`` as a tuple of ``ndim`` ints >= 8, or raise ParameterError."""
-    shape = tuple(int(s) for s in np.ravel(shape))
+    shape = _checks.shape(shape)
     if len(shape) != ndim or min(shape) < 8:
         raise ParameterError(
             f"shape must have {ndim} axes of at least 8 voxels each; got {shape}."
         )
     return shape
-
-
-def check_spacing(spacing: Sequence[float], ndim: int) -> tuple[float, ...]:
-    """Return ``spacing`` as a tuple of ``ndim`` positive floats, or raise ParameterError."""
-    spacing = tuple(float(s) for s in np.ravel(spacing))
-    if len(spacing) != ndim or not all(np.isfinite(s) and s > 0 for s in spacing):
-        raise ParameterError(
-            f"spacing must have {ndim} finite values > 0; got {spacing}."
-        )
-    return spacing
 
 
 def check_range(name: str, value: float, low: float, high: float = np.inf) -> float:
@@ -111,8 +102,7 @@ def check_imaging(*, noise: float, ramp: float, blur: float, walls: str) -> None
     check_range("noise", noise, 0.0, 10.0)
     check_range("ramp", ramp, 0.01, 100.0)
     check_range("blur", blur, 0.0, 20.0)
-    if walls not in ("bright", "dark"):
-        raise ParameterError(f"walls must be 'bright' or 'dark'; got {walls!r}.")
+    _checks.walls(walls)
 
 
 def fmt_extent(extent: Iterable[float]) -> str:

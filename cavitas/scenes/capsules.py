@@ -7,6 +7,7 @@ from collections.abc import Sequence
 
 import numpy as np
 
+from .. import _checks
 from .._errors import ParameterError
 from ._common import (
     Scene,
@@ -15,7 +16,6 @@ from ._common import (
     check_imaging,
     check_range,
     check_shape,
-    check_spacing,
     fmt_extent,
     relabel,
     render,
@@ -98,7 +98,7 @@ def capsules(shape: Sequence[int] = (64, 128, 128), *, count: int = 12, nested: 
                   shell_thickness=shell_thickness, noise=noise, ramp=ramp, walls=walls,
                   touching=touching, blur=blur, spacing=spacing, seed=seed)
     shape = check_shape(shape, 3)
-    spacing = check_spacing(spacing, 3)
+    spacing = _checks.spacing(spacing, 3)
     count = check_count("count", count, 1)
     nested = check_count("nested", nested)
     touching = check_count("touching", touching)

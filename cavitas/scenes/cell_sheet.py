@@ -8,6 +8,7 @@ from collections.abc import Sequence
 import numpy as np
 from scipy import ndimage as ndi
 
+from .. import _checks
 from ._common import (
     Scene,
     border_labels,
@@ -15,7 +16,6 @@ from ._common import (
     check_imaging,
     check_range,
     check_shape,
-    check_spacing,
     physical_grid,
     render,
     seed_cells,
@@ -89,7 +89,7 @@ def cell_sheet(shape: Sequence[int] = (512, 512), *, cells: int = 150,
                   wall_thickness=wall_thickness, noise=noise, ramp=ramp, walls=walls,
                   blur=blur, spacing=spacing, seed=seed)
     shape = check_shape(shape, 2)
-    spacing = check_spacing(spacing, 2)
+    spacing = _checks.spacing(spacing, 2)
     cells = check_count("cells", cells, 2)
     check_range("wall_thickness", wall_thickness, 0.5, 20.0)
     check_imaging(noise=noise, ramp=ramp, blur=blur, walls=walls)

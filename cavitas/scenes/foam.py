@@ -7,6 +7,7 @@ from collections.abc import Sequence
 
 import numpy as np
 
+from .. import _checks
 from .._errors import ParameterError
 from ._common import (
     Scene,
@@ -15,7 +16,6 @@ from ._common import (
     check_imaging,
     check_range,
     check_shape,
-    check_spacing,
     physical_grid,
     render,
     seed_cells,
@@ -105,7 +105,7 @@ def foam(shape: Sequence[int] = (96, 96, 96), *, cells: int = 60, wall_thickness
     if len(shape) not in (2, 3):
         raise ParameterError(f"shape must be 2D or 3D; got {shape}.")
     ndim = len(shape)
-    spacing = check_spacing((1.0,) * ndim if spacing is None else spacing, ndim)
+    spacing = _checks.spacing((1.0,) * ndim if spacing is None else spacing, ndim)
     cells = check_count("cells", cells, 2)
     check_range("wall_thickness", wall_thickness, 0.5, 20.0)
     check_range("thickness_spread", thickness_spread, 0.0, 0.9)

@@ -13,6 +13,7 @@ from typing import Any
 
 import numpy as np
 
+from .. import _checks
 from .._checks import choice, flag, number, whole
 from .._errors import ParameterError
 from ._select import SPLIT_FRACTION
@@ -108,7 +109,7 @@ class SegmentParams:
     keep_border: bool = False
 
     def __post_init__(self) -> None:
-        self.walls = choice("walls", self.walls, ("bright", "dark"))
+        self.walls = _checks.walls(self.walls)
         self.region = choice("region", self.region, ("basin", "breach"))
         for name in ("min_persistence", "min_volume", "max_volume", "smooth"):
             if getattr(self, name) is not None:

@@ -15,8 +15,9 @@ from typing import Any, NamedTuple
 
 import numpy as np
 
+from .. import _checks
 from .._cores import usable_cores
-from .._errors import InputFileError, ParameterError
+from .._errors import ParameterError
 from ..cubical._neighbors import check_connectivity
 from ..cubical._sort import engine_array
 from ..cubical._tree import OUTSIDE, CavityTree
@@ -257,10 +258,9 @@ def _fill_outside(image: np.ndarray, roi: np.ndarray | None, name: str, *,
     finite = np.isfinite(image)
     if finite.all():
         return image
-    if roi is None or not finite[roi].all():
-        where = "" if roi is None else " inside the mask"
-        raise InputFileError(f"Image {name} holds NaN or infinite values{where}; "
-                             "replace them or leave them outside the mask.")
+    looked_at = finite if roi is None else finite[roi]
+    _checks.refuse_nonfinite(looked_at.size - np.count_nonzero(looked_at), image=f"'{name}'",
+                             masked=roi is not None)
     inside = image[roi]
     fill = (inside.min() if walls == "bright" else inside.max()) if inside.size else 0
     return np.where(finite, image, fill).astype(image.dtype, copy=False)
