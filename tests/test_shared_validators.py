@@ -11,8 +11,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from cavitas import InputFileError, ParameterError, Volume
-from cavitas import _checks
+from cavitas import InputFileError, ParameterError, Volume, _checks
 from cavitas._run_options import ReadOptions
 from cavitas.cubical import Diagram, cavity_sweep, euler_curve, persistence
 from cavitas.io import check_finite, read
