@@ -93,7 +93,8 @@ def test_every_stage_refuses_nonfinite_values_alike(masked):
     expected = str(_refusal(lambda: _checks.refuse_nonfinite(1, image="'holes.npy'",
                                                              masked=masked)))
     assert str(_refusal(lambda: segment(vol, mask=mask))) == expected
-    engine = str(_refusal(lambda: persistence(image, mask=mask)))
+    assert str(_refusal(lambda: persistence(vol, mask=mask))) == expected
+    engine = str(_refusal(lambda: persistence(image, mask=mask)))  # an array has no name
     assert engine == expected.replace("'holes.npy'", "image")
     if not masked:
         assert str(_refusal(lambda: check_finite(vol))).replace(" out of 42", "") == expected

@@ -88,6 +88,7 @@ class _Prepared:
                  plane: bool | None = None) -> None:
         arr = checked_image(image)
         _checks.walls(walls)
+        self.name = f"'{image.name}'" if isinstance(image, Volume) else "image"  # for messages
         self.shape = tuple(arr.shape)
         self.ndim = arr.ndim
         self.walls = walls
@@ -104,7 +105,7 @@ class _Prepared:
         self.zmargin = 1 if self.ndim == 3 else 0
 
     def _reject_nonfinite(self, nonfinite: int) -> None:
-        _checks.refuse_nonfinite(nonfinite, masked=self.mask is not None)
+        _checks.refuse_nonfinite(nonfinite, image=self.name, masked=self.mask is not None)
 
     def new_parent(self) -> np.ndarray:
         """A union-find work array (n + 1 slots; the kernels initialise it)."""
