@@ -213,13 +213,14 @@ def run(args: argparse.Namespace) -> int:
             if note:
                 print(f"  {note}")
         if summary["porosity"] is not None and summary["regions"]:
-            solid = len(summary["shape"]) == 3
-            size = f"{unit}{'³' if solid else '²'}" if unit != "voxel" else (
-                "voxels" if solid else "pixels")
-            fraction = ("volume fraction of the regions (closed porosity)" if solid
-                        else "area fraction of the regions")
-            print(f"  {fraction} {summary['porosity']:.4f}; mean region "
-                  f"{'volume' if solid else 'area'} {summary['mean_volume']:.4g} {size}")
+            from ..report._words import Words
+
+            words = Words(len(summary["shape"]))
+            power = "³" if words.ndim == 3 else "²"
+            size = f"{unit}{power}" if unit != "voxel" else f"{words.element}s"
+            porosity = " (closed porosity)" if words.ndim == 3 else ""
+            print(f"  {words.fraction} of the regions{porosity} {summary['porosity']:.4f}; "
+                  f"mean region {words.size} {summary['mean_volume']:.4g} {size}")
         print(f"  outputs in {args.out}: " + ", ".join(
             Path(p).name for p in summary["outputs"].values()))
         print(RESEARCH_ONLY)

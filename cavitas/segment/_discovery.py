@@ -72,10 +72,7 @@ def false_discovery_threshold(persistence: np.ndarray, null: NullDistribution, n
     p = np.sort(np.asarray(persistence, np.float64))
     p = p[np.isfinite(p) & (p > 0) & (p < top)]
     above_top = np.count_nonzero(np.asarray(persistence) >= top)
-    for i, level in enumerate(p):
-        found = p.size - i + above_top
-        if found < MIN_DISCOVERIES:
-            return None
-        if null.expected_above(level / noise, voxels) <= FALSE_DISCOVERY_RATE * found:
-            return float(level)
-    return None
+    found = p.size - np.arange(p.size) + above_top  # candidates at or above each level
+    expected = null.expected_above(p / noise, voxels)
+    passes = (found >= MIN_DISCOVERIES) & (expected <= FALSE_DISCOVERY_RATE * found)
+    return float(p[np.argmax(passes)]) if passes.any() else None

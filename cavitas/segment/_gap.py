@@ -125,13 +125,13 @@ def find_empty_stretch(persistence: np.ndarray, floor: float, top: float) -> flo
     p = np.sort(np.asarray(persistence, np.float64))
     p = p[np.isfinite(p) & (p > 0)]
     above_top = np.count_nonzero(p >= top)
-    for i in range(len(p) - 1):
-        low, high = p[i], p[i + 1]
-        if high >= top:
-            break
-        if high < EMPTY_LOW * floor or high < EMPTY_FACTOR * low:
-            continue
-        below, above = i + 1, len(p) - i - 1
-        if above - above_top >= MIN_MODE_COUNT and below <= EMPTY_BELOW_SHARE * above:
-            return float(np.sqrt(low * high))
-    return None
+    low, high = p[:-1], p[1:]
+    below = np.arange(1, p.size)     # candidates at or below ``low``
+    above = p.size - below           # candidates at or above ``high``
+    found = ((high >= EMPTY_LOW * floor) & (high >= EMPTY_FACTOR * low)
+             & (above - above_top >= MIN_MODE_COUNT) & (below <= EMPTY_BELOW_SHARE * above))
+    found &= np.cumsum(high >= top) == 0  # only stretches that end below ``top``
+    if not found.any():
+        return None
+    i = int(np.argmax(found))
+    return float(np.sqrt(low[i] * high[i]))

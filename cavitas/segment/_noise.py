@@ -54,6 +54,7 @@ from __future__ import annotations
 import functools
 import math
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 from scipy import ndimage as ndi
@@ -253,18 +254,18 @@ class NullDistribution:
     voxels: int
     largest: float
 
-    def expected_above(self, level: float, voxels: int) -> float:
-        """Expected number of noise cavities with persistence >= ``level`` (unit noise) in
-        an image of ``voxels`` voxels.
+    def expected_above(self, level: Any, voxels: int) -> Any:
+        """Expected number of noise cavities with persistence >= ``level`` (unit noise; a
+        number or an array of them) in an image of ``voxels`` voxels.
 
         Examples
         --------
         >>> null = NullDistribution(np.array([0.1, 0.2, 0.3, 0.4]), 100, 0.4)
-        >>> null.expected_above(0.25, 1000)
+        >>> float(null.expected_above(0.25, 1000))
         20.0
         """
         above = self.values.size - np.searchsorted(self.values, level, side="left")
-        return float(above) * voxels / self.voxels
+        return above * (voxels / self.voxels)
 
 
 def null_distribution(shape: tuple[int, ...], sigma_voxels: tuple[float, ...],
