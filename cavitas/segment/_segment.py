@@ -46,6 +46,7 @@ from ._regions import (
 )
 from ._result import Segmentation, build_table
 from ._select import persistence_threshold, select_nodes, split_rule
+from ._texture import texture_splits
 from ._tree import prune
 
 __all__ = ["segment"]
@@ -93,8 +94,9 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
     persistence (:mod:`cavitas.segment._evidence`), above the threshold of the first rule of
     :data:`THRESHOLD_RULES` that applies (the diagram's gap or an empty stretch under the
     null, :mod:`cavitas.segment._gap`; with white noise the false discovery rate,
-    :mod:`cavitas.segment._discovery`; else the null times ``safety``); the
-    detection scale is the candidate with most such cavities (:func:`_detect`); (3)
+    :mod:`cavitas.segment._discovery`; else the null times ``safety``); where the noise
+    is not white, a piece that splits off a region must also stand out from the texture
+    inside it (:mod:`cavitas.segment._texture`); the detection scale is the candidate with most such cavities (:func:`_detect`); (3)
     selection on the cavity tree of that scale, then the split rule (an inner wall must
     close at least ``split_fraction`` of the way up the local wall contrast,
     :mod:`cavitas.segment._select`), pruned into chambers and enclosures
@@ -237,6 +239,7 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
         "threshold_rule": det.rule,
         "polarity_hint": hint,
         "splits_joined": int(np.count_nonzero(significant & ~keep)),
+        "texture_pieces_joined": det.texture_joined,
         "perforated_walls": int(np.count_nonzero(perforated)),
         "automatic": params.automatic,
         "connectivity": connectivity,
@@ -280,6 +283,7 @@ class Detection:
     passing: np.ndarray          # per node: passes every criterion
     face_breach: np.ndarray | None = None  # per node: breach on the closed faces (keep_border)
     rule: str | None = None      # what set the automatic threshold (THRESHOLD_RULES)
+    texture_joined: int = 0      # significant pieces kept with their region (_texture)
 
     @property
     def count(self) -> int:
@@ -392,6 +396,7 @@ def _detect(image: _Image, params: SegmentParams, *, noise: float, robust_range:
         face_breach = on_faces(tree.breach, smoothed.shape) if image.closed_border else None
         eligible = gap = rule = None
         auto = None
+        texture_joined = 0
         if null is not None:  # automatic mode
             eligible = eligible_nodes(tree, smoothed, image.statistics_mask,
                                       _noise.smoothed_noise_sigma(noise, tuple(sig)))
@@ -412,9 +417,14 @@ def _detect(image: _Image, params: SegmentParams, *, noise: float, robust_range:
                 area[OUTSIDE] = np.inf
                 eligible &= pers >= small_region_threshold(area, pers, passing)
                 passing &= eligible
+                if not white_noise:  # texture: a split must stand out from its region's
+                    texture = texture_splits(tree.parent, pers, passing)
+                    texture_joined = int(np.count_nonzero(texture))
+                    eligible &= ~texture
+                    passing &= ~texture
         passing[OUTSIDE] = False
         return Detection(sig, smoothed, order, tree, tau, gap, eligible, passing, face_breach,
-                         rule)
+                         rule, texture_joined)
 
     # Two scales at a time in two threads (smoothing, sort and sweep release the GIL);
     # results are taken in scale order, so the choice is the same as one after the other.
