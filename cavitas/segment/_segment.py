@@ -96,7 +96,8 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
     null, :mod:`cavitas.segment._gap`; with white noise the false discovery rate,
     :mod:`cavitas.segment._discovery`; else the null times ``safety``); where the noise
     is not white, a piece that splits off a region must also stand out from the texture
-    inside it (:mod:`cavitas.segment._texture`); the detection scale is the candidate with most such cavities (:func:`_detect`); (3)
+    inside it (:mod:`cavitas.segment._texture`); the detection scale is the candidate
+    with most such cavities (:func:`_detect`); (3)
     selection on the cavity tree of that scale, then the split rule (an inner wall must
     close at least ``split_fraction`` of the way up the local wall contrast,
     :mod:`cavitas.segment._select`), pruned into chambers and enclosures
