@@ -248,11 +248,13 @@ def test_empty_stretch_below_the_null_sets_the_threshold():
     assert find_empty_stretch(np.r_[few, rng.uniform(0.2, 2.0, 300)], 1.0, 1.25) is None
 
 
-def test_false_discovery_threshold_is_the_benjamini_hochberg_cut():
+@pytest.mark.parametrize("share", [1.0, 0.25])
+def test_false_discovery_threshold_is_the_benjamini_hochberg_cut(share):
     # Reference: scipy.stats.false_discovery_control (Benjamini & Hochberg 1995). With the
-    # null's survival function as p-value, every noise cavity one test (those that are not
-    # candidates never rejected: p = 1), the cavities BH rejects at rate q are exactly the
-    # candidates at or above the threshold.
+    # null's survival function as p-value and every noise cavity that could be a candidate
+    # one test (``share`` of the null's count; those that are not candidates are never
+    # rejected: p = 1), the cavities BH rejects at rate q are exactly the candidates at or
+    # above the threshold.
     from scipy.stats import false_discovery_control
 
     from cavitas.segment._discovery import FALSE_DISCOVERY_RATE, false_discovery_threshold
@@ -260,10 +262,30 @@ def test_false_discovery_threshold_is_the_benjamini_hochberg_cut():
 
     rng = np.random.default_rng(5)
     null = NullDistribution(np.sort(rng.exponential(1.0, 20000)), 5000, 12.0)
-    candidates = np.r_[rng.exponential(1.0, 300), rng.normal(11.0, 1.5, 150)]
+    candidates = np.r_[rng.exponential(1.0, 300), rng.normal(9.0, 1.5, 150)]
     candidates = candidates[candidates > 0]
-    t = false_discovery_threshold(candidates, null, noise=1.0, voxels=5000, top=np.inf)
+    t = false_discovery_threshold(candidates, null, noise=1.0, voxels=5000, top=np.inf,
+                                  share=share)
+    tests = round(share * null.values.size)
     survival = np.array([null.expected_above(x, 5000) for x in candidates]) / null.values.size
-    p = np.r_[survival, np.ones(null.values.size - candidates.size)]
+    p = np.r_[survival, np.ones(tests - candidates.size)]
     rejected = false_discovery_control(p, method="bh")[:candidates.size] <= FALSE_DISCOVERY_RATE
     assert rejected.any() and np.array_equal(rejected, candidates >= t)
+
+
+@pytest.mark.parametrize("rate", [0.01, 0.05, 0.2])
+def test_share_passing_recovers_the_share_of_noise_kept(rate):
+    # Constructed: the candidates are a random ``rate`` of the noise cavities (the null's
+    # own law) plus cells far above; the share measured at the diagram's bottom recovers
+    # ``rate`` within its binomial spread (common practice: 3 standard errors).
+    from cavitas.segment._discovery import THINNING_LEVEL, share_passing
+    from cavitas.segment._noise import NullDistribution
+
+    rng = np.random.default_rng(6)
+    noise = np.sort(rng.exponential(1.0, 40000))
+    null = NullDistribution(noise, 10000, 12.0)
+    kept = rng.exponential(1.0, 40000)[rng.random(40000) < rate]
+    cells = rng.normal(20.0, 2.0, 300)
+    measured = share_passing(np.r_[kept, cells], null, noise=1.0, voxels=10000)
+    bottom = np.count_nonzero(noise < THINNING_LEVEL * null.largest)
+    assert abs(measured - rate) < 3 * np.sqrt(rate * (1 - rate) / bottom) + 1 / bottom

@@ -23,8 +23,13 @@ from ..cubical._sort import engine_array
 from ..cubical._tree import OUTSIDE, CavityTree
 from ..io._volume import Volume
 from . import _noise
-from ._discovery import false_discovery_threshold
-from ._evidence import class_split, eligible_nodes, small_region_threshold
+from ._discovery import false_discovery_threshold, share_passing
+from ._evidence import (
+    WHITE_NOISE_DIP,
+    class_split,
+    eligible_nodes,
+    small_region_threshold,
+)
 from ._gap import find_empty_stretch, find_gap
 from ._params import AUTO_SCALES, SegmentParams
 from ._perforation import perforated_splits
@@ -399,8 +404,10 @@ def _detect(image: _Image, params: SegmentParams, *, noise: float, robust_range:
         auto = None
         texture_joined = 0
         if null is not None:  # automatic mode
-            eligible = eligible_nodes(tree, smoothed, image.statistics_mask,
-                                      _noise.smoothed_noise_sigma(noise, tuple(sig)))
+            smoothed_noise = _noise.smoothed_noise_sigma(noise, tuple(sig))
+            eligible = eligible_nodes(
+                tree, smoothed, image.statistics_mask, smoothed_noise,
+                breach_dip=WHITE_NOISE_DIP * smoothed_noise if white_noise else 0.0)
             if face_breach is not None:
                 eligible &= ~face_breach
             rule, auto = _automatic_threshold(pers[eligible], null, noise=noise,
@@ -484,7 +491,8 @@ def _automatic_threshold(candidates: np.ndarray, null: _noise.NullDistribution, 
     if found is not None:
         return "empty stretch", found
     if white_noise:
-        found = false_discovery_threshold(candidates, null, noise, voxels, top)
+        found = false_discovery_threshold(candidates, null, noise, voxels, top,
+                                          share_passing(candidates, null, noise, voxels))
         if found is not None:
             return "false discovery rate", found
     return "noise null", top
