@@ -188,6 +188,38 @@ def _depths(parent: np.ndarray) -> np.ndarray:
 
 
 @dataclass
+class ChamberValues:
+    """What the table says of each chamber, from the detection scale it was found at.
+
+    Levels are values of the image at that scale with walls high (the table applies the
+    polarity); ``node`` is the chamber's node in the base scale's cavity tree, -1 for a
+    chamber taken from another scale.
+    """
+
+    birth: np.ndarray         # breach level
+    death: np.ndarray         # core level
+    breach_voxel: np.ndarray
+    core_voxel: np.ndarray
+    threshold: np.ndarray     # persistence threshold at its scale
+    scale: np.ndarray         # Gaussian sigma of its scale, physical units
+    node: np.ndarray
+
+    def take(self, rows: np.ndarray) -> ChamberValues:
+        """The values of ``rows`` (an index or mask), in a new :class:`ChamberValues`."""
+        return ChamberValues(**{k: v[rows] for k, v in vars(self).items()})
+
+    def put(self, row: int, source: ChamberValues, source_row: int) -> None:
+        """Overwrite ``row`` with ``source_row`` of ``source``, in place."""
+        for key, values in vars(self).items():
+            values[row] = vars(source)[key][source_row]
+
+    @classmethod
+    def concatenate(cls, parts: list[ChamberValues]) -> ChamberValues:
+        """One :class:`ChamberValues` of ``parts`` in order."""
+        return cls(**{k: np.concatenate([vars(p)[k] for p in parts]) for k in vars(parts[0])})
+
+
+@dataclass
 class TableParts:
     """What :func:`build_table` hands to :meth:`Segmentation.assemble`."""
 
@@ -200,9 +232,12 @@ class TableParts:
     masked: bool                        # an ROI was given
 
 
-def build_table(*, vol: Volume, sign: float, tree: Any, hier: Any, sweep: Any,
-                regions: Any, tau: float, params: Any) -> TableParts:
+def build_table(*, vol: Volume, sign: float, chambers: ChamberValues, hier: Any, sweep: Any,
+                regions: Any, tau: float, scale: float, params: Any) -> TableParts:
     """Apply the volume bounds, renumber, and build the regions table.
+
+    Chamber rows take their values from ``chambers``; enclosures from the base scale's
+    ``sweep`` (its tree and levels), with threshold ``tau`` and detection ``scale``.
 
     ``regions`` (a :class:`~cavitas.segment._segment.Delineation`) holds chambers
     ``1..n_chambers`` and border-cut pieces after them; its ``open_to_border`` marks the
@@ -246,7 +281,9 @@ def build_table(*, vol: Volume, sign: float, tree: Any, hier: Any, sweep: Any,
             return 0
         return int(new_enc[p - n_ch - 1]) if p > n_ch else int(new_ch[p])
 
-    ch_nodes = hier.node[:n_ch][ok]
+    tree = sweep.tree
+    mine = chambers.take(ok)
+    ch_nodes = mine.node
     ch_parent = np.array([remap_parent(p) for p in hier.parent[:n_ch][ok]], np.int64)
     old_ids = np.flatnonzero(ok) + 1
     for j, old in enumerate(old_ids):
@@ -272,19 +309,18 @@ def build_table(*, vol: Volume, sign: float, tree: Any, hier: Any, sweep: Any,
         if p > 0 and (p <= k) == (i < k):
             enclosed[p - 1] += enclosed[i]
 
-    nodes = np.concatenate([ch_nodes, hier.node[n_ch:]])
     ch_level = used_level[ok]
     enc_close = hier.close_rank[n_ch:]
     enc_formed = hier.formed_rank[n_ch:]
     nan_m = np.full(m, np.nan)
-    birth = np.concatenate([sign * tree.breach_level[ch_nodes],
-                            sign * sweep.level_of_rank(enc_close), nan_m])
-    death = np.concatenate([sign * tree.core_level[ch_nodes],
-                            sign * sweep.level_of_rank(enc_formed), nan_m])
+    birth = np.concatenate([sign * mine.birth, sign * sweep.level_of_rank(enc_close), nan_m])
+    death = np.concatenate([sign * mine.death, sign * sweep.level_of_rank(enc_formed), nan_m])
     persistence = np.abs(birth - death)
-    breach_voxel = np.concatenate([tree.breach[ch_nodes], sweep.order[enc_close],
-                                   np.full(m, -1)])
-    core_voxel = np.concatenate([tree.core[nodes], np.full(m, -1)])
+    threshold = np.concatenate([mine.threshold, np.full(n_enc, tau), nan_m])
+    scales = np.concatenate([mine.scale, np.full(n_enc + m, scale)])
+    breach_voxel = np.concatenate([mine.breach_voxel, sweep.order[enc_close], np.full(m, -1)])
+    core_voxel = np.concatenate([mine.core_voxel, tree.core[hier.node[n_ch:]],
+                                 np.full(m, -1)])
     level = np.concatenate([sign * ch_level, sign * sweep.level_of_rank(enc_close), nan_m])
     touches = np.zeros(n, bool)
     touches[k + n_enc:] = True
@@ -302,7 +338,8 @@ def build_table(*, vol: Volume, sign: float, tree: Any, hier: Any, sweep: Any,
             "birth": birth,
             "death": death,
             "persistence": persistence,
-            "margin": persistence - tau,
+            "margin": persistence - threshold,
+            "detection_scale": scales,
             "core_voxel": core_voxel,
             "breach_voxel": breach_voxel,
             "level": level,
@@ -312,7 +349,7 @@ def build_table(*, vol: Volume, sign: float, tree: Any, hier: Any, sweep: Any,
             "enclosed_volume": enclosed * voxel,
             "touches_border": touches,
         },
-        units={"own_volume": vunit, "enclosed_volume": vunit},
+        units={"own_volume": vunit, "enclosed_volume": vunit, "detection_scale": unit},
         meta={"threshold": tau, "caution": RESEARCH_ONLY},
     )
     if params.keep_border:

@@ -10,7 +10,7 @@ import time
 from collections import deque
 from collections.abc import Callable
 from concurrent.futures import ThreadPoolExecutor
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Any, NamedTuple
 
 import numpy as np
@@ -25,6 +25,7 @@ from ..io._volume import Volume
 from . import _noise
 from ._discovery import false_discovery_threshold, share_passing
 from ._evidence import (
+    SMALL_FRACTION,
     WHITE_NOISE_DIP,
     class_split,
     eligible_nodes,
@@ -49,10 +50,11 @@ from ._regions import (
     remove_walls,
     reopen_faces,
 )
-from ._result import Segmentation, build_table
+from ._result import ChamberValues, Segmentation, build_table
+from ._scales import Contribution, ScaleSeeds, merge, plan
 from ._select import persistence_threshold, select_nodes, split_rule
 from ._texture import texture_splits
-from ._tree import prune
+from ._tree import Hierarchy, prune
 
 __all__ = ["segment"]
 
@@ -183,10 +185,10 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
     robust_range = float(hi - lo)
     spacing_arr = np.asarray(vol.spacing, float)
     white_noise = _noise.correlation_factor(levels.ratio) == 1.0
-    det, tried = _detect(
+    det, tried, seeds = _detect(
         image, params, noise=noise, robust_range=robust_range, spacing=spacing_arr,
         connectivity=connectivity, roi=roi, tell=tell, white_noise=white_noise)
-    sig, smoothed, order, tree, tau = det.sigma, det.smoothed, det.order, det.tree, det.threshold
+    sig, tree, tau = det.sigma, det.tree, det.threshold
     hint = None
     if params.automatic:
         tell("polarity check")
@@ -197,37 +199,24 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
     log.info("%s: noise σ %.4g, detection σ %.3g %s, persistence threshold %.4g (%s)",
              vol.name, noise, float((sig * spacing_arr).max()), vol.unit, tau,
              det.rule or "given")
-    sweep = Sweep(smoothed, order, tree, connectivity, outside)
-    significant = select_nodes(tree.persistence, tree.parent, tau, params.top,
-                               eligible=det.eligible)
-    keep = split_rule(tree, significant, params.split_fraction, det.face_breach)
-    hier = prune(tree, keep, sweep.rank, sweep.level_of_rank, tau)
-
-    # never delineate on an image smoother than the one the regions were detected on
-    fine_sigma = np.minimum(DELINEATION_SIGMA * spacing_arr.min() / spacing_arr, sig)
     t0 = time.perf_counter()
     tell("regions")
-    regions = _delineate(params, sweep, hier, image, fine_sigma, outside, connectivity,
-                         vol.voxel_volume)
-    perforated = np.zeros(len(keep), bool)
-    if params.split_fraction > 0 and params.region == "basin" and hier.n_chambers > 1:
-        # Walls with a hole that the detection smoothing closed. The delineation image is
-        # smoothed again rather than kept from _delineate: one filter pass costs less than
-        # holding 4 more bytes per voxel through the region steps, where memory peaks.
-        perforated = perforated_splits(regions.labels, image.smoothed(fine_sigma),
-                                       regions.level, hier.node[:hier.n_chambers],
-                                       tree.parent, keep)
-    if perforated.any():
-        tell("regions, joined through perforated walls")
-        keep &= ~perforated
-        hier = prune(tree, keep, sweep.rank, sweep.level_of_rank, tau)
-        del regions
-        regions = _delineate(params, sweep, hier, image, fine_sigma, outside, connectivity,
-                             vol.voxel_volume)
+    geometry = _Geometry(image, outside, connectivity, vol.voxel_volume, spacing_arr)
+    base = _regions_at(det, params, geometry, tell)
+    refined = None
+    if params.automatic and params.smooth is None and params.region == "basin":
+        refined = _refine_across_scales(base, seeds, params, geometry, tell, noise=noise,
+                                        robust_range=robust_range, roi=roi,
+                                        white_noise=white_noise)
+    sweep, hier, regions = base.sweep, base.hier, base.regions
+    chambers = base.chamber_values(image.sign, spacing_arr)
+    if refined is not None:
+        hier, regions, chambers = refined.hier, refined.regions, refined.chambers
     timings["regions"] = time.perf_counter() - t0
 
-    seg = build_table(vol=vol, sign=image.sign, tree=tree, hier=hier, sweep=sweep,
-                      regions=regions, tau=tau, params=params)
+    seg = build_table(vol=vol, sign=image.sign, chambers=chambers, hier=hier, sweep=sweep,
+                      regions=regions, tau=tau, scale=float((sig * spacing_arr).max()),
+                      params=params)
     timings["total"] = time.perf_counter() - started
     chosen = {
         "noise_sigma": noise,
@@ -239,14 +228,16 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
         # what set the detection scale: "given" (smooth), "data" (automatic), "none"
         "scale_basis": ("given" if params.smooth is not None else
                         "data" if params.automatic else "none"),
-        "delineation_sigma": float((fine_sigma * spacing_arr).max()),
+        "delineation_sigma": float((base.fine_sigma * spacing_arr).max()),
         "scales_tried": tried,
         "gap": det.gap,
         "threshold_rule": det.rule,
         "polarity_hint": hint,
-        "splits_joined": int(np.count_nonzero(significant & ~keep)),
+        "splits_joined": int(np.count_nonzero(base.significant & ~base.keep)),
         "texture_pieces_joined": det.texture_joined,
-        "perforated_walls": int(np.count_nonzero(perforated)),
+        "perforated_walls": int(np.count_nonzero(base.perforated)),
+        "regions_from_other_scales": (refined.summary if refined is not None
+                                      else {"split": 0, "pieces": 0, "added": 0}),
         "automatic": params.automatic,
         "connectivity": connectivity,
         "unit": vol.unit,
@@ -290,6 +281,8 @@ class Detection:
     face_breach: np.ndarray | None = None  # per node: breach on the closed faces (keep_border)
     rule: str | None = None      # what set the automatic threshold (THRESHOLD_RULES)
     texture_joined: int = 0      # significant pieces kept with their region (_texture)
+    seeds: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))  # chamber cores
+    clarity: np.ndarray = field(default_factory=lambda: np.zeros(0))  # their pers / threshold
 
     @property
     def count(self) -> int:
@@ -367,8 +360,10 @@ def on_faces(flat_index: np.ndarray, shape: tuple[int, ...]) -> np.ndarray:
 
 def _detect(image: _Image, params: SegmentParams, *, noise: float, robust_range: float,
             spacing: np.ndarray, connectivity: int, roi: np.ndarray | None,
-            tell: Callable[[str], None], white_noise: bool = False):
-    """Detection scale, its sweep and threshold: the candidate with most significant cavities.
+            tell: Callable[[str], None], white_noise: bool = False
+            ) -> tuple[Detection, list[dict[str, Any]], list[ScaleSeeds]]:
+    """Detection scale, its sweep and threshold: the candidate with most significant cavities;
+    also what every scale tried found (for run.json), and the seeds of its chambers.
 
     Candidates are :data:`AUTO_SCALES` (in voxels of the finest axis, the same physical σ on
     every axis) in automatic mode, else the one given (or none). At each, the threshold is
@@ -431,13 +426,18 @@ def _detect(image: _Image, params: SegmentParams, *, noise: float, robust_range:
                     eligible &= ~texture
                     passing &= ~texture
         passing[OUTSIDE] = False
+        kept = split_rule(tree, select_nodes(pers, tree.parent, tau, params.top,
+                                             eligible=eligible),
+                          params.split_fraction, face_breach)
+        kept[OUTSIDE] = False
+        clarity = pers[kept] / tau if tau > 0 else np.full(int(kept.sum()), np.inf)
         return Detection(sig, smoothed, order, tree, tau, gap, eligible, passing, face_breach,
-                         rule, texture_joined)
+                         rule, texture_joined, tree.core[kept], clarity)
 
     # Two scales at a time in two threads (smoothing, sort and sweep release the GIL);
     # results are taken in scale order, so the choice is the same as one after the other.
     workers = 2 if len(scales) > 1 and usable_cores() > 1 else 1
-    best, tried = None, []
+    best, tried, seeds = None, [], []
     todo = iter(scales)
     tell(f"smoothing scale 1 of {len(scales)}")
     with ThreadPoolExecutor(max_workers=workers, thread_name_prefix="cavitas-scale") as pool:
@@ -447,6 +447,7 @@ def _detect(image: _Image, params: SegmentParams, *, noise: float, robust_range:
             tried.append({"sigma": float((result.sigma * spacing).max()),
                           "threshold": result.threshold, "count": result.count,
                           "gap": result.gap, "rule": result.rule})
+            seeds.append(ScaleSeeds(result.sigma, result.seeds, result.clarity))
             if best is None or result.count > best.count:
                 best = result
             del result  # a losing candidate is freed before the next scale starts
@@ -455,7 +456,8 @@ def _detect(image: _Image, params: SegmentParams, *, noise: float, robust_range:
             following = next(todo, None)
             if following is not None:
                 running.append(pool.submit(candidate, following))
-    return best, tried
+    assert best is not None  # at least one scale is always tried
+    return best, tried, seeds
 
 
 @dataclass
@@ -469,6 +471,137 @@ class Delineation:
     level: np.ndarray                # per chamber: the level its region was cut at (walls high)
     enclosures: np.ndarray | None    # innermost enclosure per voxel (ids n+1...), if any
     outside_basin: np.ndarray        # voxels of the outside basin below its walls
+
+
+class _Geometry(NamedTuple):
+    """What the regions of every scale share: the image, ROI, connectivity and voxel size."""
+
+    image: _Image
+    outside: np.ndarray | None
+    connectivity: int
+    voxel_volume: float
+    spacing: np.ndarray
+
+
+@dataclass
+class ScaleRegions:
+    """The regions of one detection scale: its selection, pruned tree and delineation."""
+
+    det: Detection
+    sweep: Sweep
+    significant: np.ndarray      # per node: passes every criterion (closed upward)
+    keep: np.ndarray             # ... less the splits the split rule and holes joined
+    hier: Hierarchy
+    regions: Delineation
+    perforated: np.ndarray       # per node: a split joined through a hole in its wall
+    fine_sigma: np.ndarray       # Gaussian sigma per axis of the delineation image
+
+    def chamber_values(self, sign: float, spacing: np.ndarray) -> ChamberValues:
+        """The table's values of this scale's chambers."""
+        nodes = self.hier.node[:self.hier.n_chambers]
+        tree, n = self.det.tree, nodes.size
+        return ChamberValues(
+            birth=tree.breach_level[nodes], death=tree.core_level[nodes],
+            breach_voxel=tree.breach[nodes], core_voxel=tree.core[nodes],
+            threshold=np.full(n, self.det.threshold),
+            scale=np.full(n, float((self.det.sigma * spacing).max())), node=nodes)
+
+
+def _regions_at(det: Detection, params: SegmentParams, geometry: _Geometry,
+                tell: Callable[[str], None]) -> ScaleRegions:
+    """Selection, split rule, pruning and delineation on one detection scale."""
+    image, outside, connectivity, voxel_volume, spacing = geometry
+    tree, tau = det.tree, det.threshold
+    sweep = Sweep(det.smoothed, det.order, tree, connectivity, outside)
+    significant = select_nodes(tree.persistence, tree.parent, tau, params.top,
+                               eligible=det.eligible)
+    keep = split_rule(tree, significant, params.split_fraction, det.face_breach)
+    hier = prune(tree, keep, sweep.rank, sweep.level_of_rank, tau)
+    # never delineate on an image smoother than the one the regions were detected on
+    fine_sigma = np.minimum(DELINEATION_SIGMA * spacing.min() / spacing, det.sigma)
+    regions = _delineate(params, sweep, hier, image, fine_sigma, outside, connectivity,
+                         voxel_volume)
+    perforated = np.zeros(len(keep), bool)
+    if params.split_fraction > 0 and params.region == "basin" and hier.n_chambers > 1:
+        # Walls with a hole that the detection smoothing closed. The delineation image is
+        # smoothed again rather than kept from _delineate: one filter pass costs less than
+        # holding 4 more bytes per voxel through the region steps, where memory peaks.
+        perforated = perforated_splits(regions.labels, image.smoothed(fine_sigma),
+                                       regions.level, hier.node[:hier.n_chambers],
+                                       tree.parent, keep)
+    if perforated.any():
+        tell("regions, joined through perforated walls")
+        keep &= ~perforated
+        hier = prune(tree, keep, sweep.rank, sweep.level_of_rank, tau)
+        del regions
+        regions = _delineate(params, sweep, hier, image, fine_sigma, outside, connectivity,
+                             voxel_volume)
+    return ScaleRegions(det, sweep, significant, keep, hier, regions, perforated, fine_sigma)
+
+
+@dataclass
+class Refined:
+    """The base scale's regions with those of other scales put in (:mod:`._scales`)."""
+
+    hier: Hierarchy
+    regions: Delineation
+    chambers: ChamberValues
+    summary: dict[str, int]
+
+
+def _refine_across_scales(base: ScaleRegions, seeds: list[ScaleSeeds],
+                          params: SegmentParams, geometry: _Geometry,
+                          tell: Callable[[str], None], **detect_options: Any) -> Refined | None:
+    """Regions that another candidate scale separates or finds alone (:mod:`._scales`)."""
+    n_ch = base.hier.n_chambers
+    plans = plan(base.regions.labels, n_ch, base.det.sigma, seeds)
+    if not plans:
+        return None
+    image, spacing = geometry.image, geometry.spacing
+    contributions = []
+    for step in plans:
+        smooth = float((step.sigma * spacing).max())
+        tell(f"regions at smoothing {smooth:.3g}")
+        other, _, _ = _detect(image, params.replace(smooth=smooth), spacing=spacing,
+                              connectivity=geometry.connectivity, tell=lambda text: None,
+                              **detect_options)
+        at = _regions_at(other, params, geometry, lambda text: None)
+        n_other = at.hier.n_chambers
+        labels = np.where(at.regions.labels <= n_other, at.regions.labels, 0)
+        contributions.append(Contribution(step, labels, at.chamber_values(image.sign, spacing),
+                                          at.regions.level))
+        del other, at
+    regions, hier = base.regions, base.hier
+    sizes = label_counts(regions.labels, n_ch + 1)[1:]
+    typical = float(np.median(sizes[sizes > 0])) if np.any(sizes > 0) else 0.0
+    merged = merge(regions.labels, base.chamber_values(image.sign, spacing), regions.level,
+                   hier.parent[:n_ch], regions.enclosures, contributions,
+                   min_voxels=SMALL_FRACTION * typical)
+    if not any(merged.summary.values()):
+        return None
+    shift = merged.shift
+    n_extra = shift
+
+    def moved(ids: np.ndarray) -> np.ndarray:
+        return np.where(ids > n_ch, ids + shift, ids)
+
+    enclosures = None if regions.enclosures is None else moved(regions.enclosures)
+    new_regions = Delineation(
+        labels=merged.labels, n_cut=regions.n_cut,
+        open_to_border=np.r_[regions.open_to_border, np.zeros(n_extra, bool)],
+        nested={int(moved(np.array(k))): int(moved(np.array(v)))
+                for k, v in regions.nested.items()},
+        level=merged.level, enclosures=enclosures,
+        outside_basin=regions.outside_basin & ~merged.added)
+    none = np.full(n_extra, -1, hier.node.dtype)
+    zero = np.zeros(n_extra, hier.close_rank.dtype)
+    new_hier = Hierarchy(
+        node=np.r_[hier.node[:n_ch], none, hier.node[n_ch:]],
+        close_rank=np.r_[hier.close_rank[:n_ch], zero, hier.close_rank[n_ch:]],
+        formed_rank=np.r_[hier.formed_rank[:n_ch], zero, hier.formed_rank[n_ch:]],
+        parent=np.r_[merged.parent, moved(hier.parent[n_ch:])],
+        n_chambers=n_ch + n_extra)
+    return Refined(new_hier, new_regions, merged.chambers, merged.summary)
 
 
 #: What sets the automatic threshold, in the order tried: the valley between two populations
@@ -503,7 +636,7 @@ def _polarity_check(det: Detection, image: _Image, params: SegmentParams, *,
     """:func:`polarity_hint` of the detection against the other polarity at its scale."""
     other_walls = "dark" if params.walls == "bright" else "bright"
     flipped = image._replace(sign=-image.sign)
-    other, _ = _detect(flipped, params.replace(walls=other_walls,
+    other, _, _ = _detect(flipped, params.replace(walls=other_walls,
                                                smooth=float((det.sigma * spacing).max())),
                        spacing=spacing, tell=lambda text: None, **detect_options)
     n = int(np.prod(image.data.shape))
