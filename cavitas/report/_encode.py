@@ -41,6 +41,8 @@ def figure_png(fig: Figure, *, dpi: int = 100) -> bytes:
     canvas = FigureCanvasAgg(fig)
     canvas.draw()
     buf = io.BytesIO()
-    imsave(buf, canvas.buffer_rgba(), format="png", dpi=dpi, metadata={"Software": None},
+    # None drops the key (matplotlib's documented use; its stub says str only)
+    no_software: dict = {"Software": None}
+    imsave(buf, canvas.buffer_rgba(), format="png", dpi=dpi, metadata=no_software,
            pil_kwargs={"compress_level": 2})  # plots compress well anyway; saves time
     return buf.getvalue()
