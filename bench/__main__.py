@@ -13,6 +13,7 @@ MODULES = [
     "bench.measure",
     "bench.batch",
     "bench.segment_scale",
+    "bench.whole_run",
     "bench.memory_guard",
     "bench.real_scans",
     "bench.report",

@@ -5,6 +5,10 @@ The kernels are compiled with ``cache=True``: numba keeps them beside the source
 "no locator available" when neither can be written (a system-wide install, a home
 without a writable cache). :func:`ensure_cache_dir` then points numba at a private
 folder in the temporary directory, before any kernel is compiled.
+
+Compiling takes several seconds on the first run (later runs load the cache):
+:func:`announce_compilation` makes the commands say so in one line instead of sitting
+silent, and only when numba really compiles (not when it loads from its cache).
 """
 
 from __future__ import annotations
@@ -13,10 +17,14 @@ import contextlib
 import os
 import sys
 import tempfile
+from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
-__all__ = ["choose_cache_dir", "ensure_cache_dir"]
+__all__ = ["COMPILING", "announce_compilation", "choose_cache_dir", "ensure_cache_dir"]
+
+#: The line shown when numba starts compiling (it does so once per install and version).
+COMPILING = "compiling kernels (first run only; later runs load them from the cache)"
 
 
 def _writable(folder: Path) -> bool:
@@ -82,3 +90,39 @@ def ensure_cache_dir() -> None:
     config: Any = sys.modules.get("numba.core.config")  # numba is not type-checked
     if config is not None:  # numba was imported first: it has read its settings already
         config.CACHE_DIR = str(chosen)
+
+
+_armed: list[Callable[[str], None]] = []  # the writer to call at the next compilation
+_listening: list[bool] = []                # whether the listener is registered
+
+
+def announce_compilation(write: Callable[[str], None]) -> None:
+    """Call ``write(COMPILING)`` once, at the next time numba compiles a kernel.
+
+    Loading a kernel from numba's cache is no compilation (numba raises its
+    ``numba:compile`` event only on a cache miss), so a warm install stays quiet.
+    Calling again replaces the writer and arms it again.
+
+    Examples
+    --------
+    >>> from numba import njit
+    >>> lines = []
+    >>> announce_compilation(lines.append)
+    >>> njit(lambda x: x + 1)(1), njit(lambda x: x + 2)(1), lines == [COMPILING]
+    (2, 3, True)
+    """
+    _armed[:] = [write]
+    if _listening:
+        return
+    from numba.core import event
+
+    class _FirstCompilation(event.Listener):
+        def on_start(self, _event: Any) -> None:
+            if _armed:
+                _armed.pop()(COMPILING)
+
+        def on_end(self, _event: Any) -> None:
+            return None
+
+    event.register("numba:compile", _FirstCompilation())
+    _listening.append(True)

@@ -12,7 +12,7 @@ import importlib
 import logging
 import os
 import sys
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 
 from ._caution import RESEARCH_ONLY
 from ._commands._words import in_option_words, option_names
@@ -28,6 +28,8 @@ from ._version import __version__
 
 #: Subcommands in the order ``--help`` lists them.
 COMMANDS: tuple[str, ...] = ("info", "diagram", "segment", "batch", "compare", "demo")
+#: Subcommands that run the compiled kernels in this process (say so when compiling them).
+KERNEL_COMMANDS = ("diagram", "segment", "demo")
 
 DESCRIPTION = f"""\
 Find, segment and measure enclosed regions (cells, vesicles, capsules, pores, bubbles)
@@ -127,6 +129,15 @@ def _reader_gone() -> int:
     return EXIT_BROKEN_PIPE
 
 
+def _line_above_the_bar(prefix: str) -> Callable[[str], None]:
+    """A writer of one line to stderr that leaves a progress bar intact."""
+    def write(text: str) -> None:
+        from tqdm import tqdm
+
+        tqdm.write(prefix + text, file=sys.stderr)
+    return write
+
+
 def main(argv: Sequence[str] | None = None) -> int:
     """Run the ``cavitas`` command with ``argv`` (default: ``sys.argv[1:]``); return the exit code.
 
@@ -150,6 +161,10 @@ def main(argv: Sequence[str] | None = None) -> int:
     # left half-drawn there would run into the next message
     args.progress = not args.quiet and sys.stderr.isatty()
     args.options = option_names(_subcommand(parser, args.command))  # for messages
+    if args.command in KERNEL_COMMANDS and not args.quiet:
+        from ._numba_cache import announce_compilation
+
+        announce_compilation(_line_above_the_bar(f"cavitas {args.command}: "))
     try:
         return int(args.func(args) or 0)
     except CavitasError as exc:

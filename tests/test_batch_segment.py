@@ -141,3 +141,32 @@ def test_the_batch_hashes_each_input_once(tmp_path, folder, monkeypatch):
     done = json.loads((tmp_path / "out" / "b2" / "done.json").read_text())
     assert run["input_sha256"] == hashlib.sha256(source.read_bytes()).hexdigest()
     assert done["input_sha256"] == run["input_sha256"]
+
+
+def _in_this_process(tasks, *, on_result, **_budget):
+    """The local runner's job without worker processes (test helper)."""
+    from cavitas.batch._task import run_task
+
+    results = [run_task(task) for task in tasks]
+    for result in results:
+        on_result(result)
+    return results
+
+
+def test_no_report_writes_everything_but_the_report_pages(tmp_path, rng, monkeypatch):
+    # Regression on invented data (the hollow boxes): with --no-report each input gets its
+    # label map and tables and the batch its index, but no report.html; a later run
+    # with reports does not reuse those folders silently.
+    monkeypatch.setattr("cavitas.batch._local.run_local", _in_this_process)
+    src = tmp_path / "in"
+    src.mkdir()
+    tifffile.imwrite(src / "b2.tif", _boxes(rng, 2, np.uint8))
+    out = tmp_path / "out"
+    assert main(["batch", str(src), "-o", str(out), "--no-report", "-q"]) == 0
+    (folder,) = [p for p in out.iterdir() if p.is_dir()]
+    written = {p.name for p in folder.iterdir()}
+    assert {"labels.tif", "regions.csv", "run.json"} <= written
+    assert "report.html" not in written and (out / "index.html").is_file()
+    assert main(["batch", str(src), "-o", str(out), "-q"]) == 1
+    assert main(["batch", str(src), "-o", str(out), "--force", "-q"]) == 0
+    assert (folder / "report.html").is_file()

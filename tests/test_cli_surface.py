@@ -26,6 +26,7 @@ import pytest
 import tifffile
 
 from cavitas._json import dumps
+from cavitas._numba_cache import COMPILING
 from cavitas.cli import build_parser, main
 from cavitas.io import write
 
@@ -239,7 +240,8 @@ def test_degenerate_images_get_a_result_or_a_sentence(tmp_path, capsys, case):
     assert main(["segment", str(tmp_path / name), "-o", str(out), "--no-thickness",
                  *report]) == 0
     captured = capsys.readouterr()
-    assert captured.err == ""
+    # nothing on stderr but, on the first run with a new data type, the compile notice
+    assert [line for line in captured.err.splitlines() if not line.endswith(COMPILING)] == []
     if sentence:
         assert sentence in captured.out
     for written in ("run.json", "regions.json"):

@@ -41,6 +41,8 @@ examples:
       a glob and a file, parameters from a TOML file, at most 2 at once
   cavitas batch scans/ -o results --walls dark --auto
       segment options as for `cavitas segment`
+  cavitas batch scans/ -o results --no-report
+      tables and label maps only: no report page per input
   cavitas batch scans/ -o results --scheduler tcp://scheduler-host:8786
       send each input to a running Dask cluster (needs cavitas[cluster]; OUTDIR on a
       file system every worker can reach)
@@ -73,6 +75,9 @@ def register(subparsers: Any, *, parents: list[argparse.ArgumentParser],
                              help="run through a Dask cluster started on this machine")
     run_options.add_argument("--force", action="store_true",
                              help="redo every input and replace existing outputs")
+    run_options.add_argument("--no-report", action="store_true",
+                             help="write no report.html per input (tables, maps, run.json "
+                                  "and the index are written); faster on large stacks")
     _segment.add_memory_option(run_options)
     _segment.add_segment_options(parser)
     parser.add_argument("--config", dest="params", metavar="FILE.toml",
@@ -93,7 +98,8 @@ def run(args: argparse.Namespace) -> int:
                        jobs=args.jobs, scheduler=args.scheduler, dask=args.dask_local,
                        force=args.force, progress=args.progress,
                        read_options=settings.reading.kwargs(),
-                       skip_memory_check=args.skip_memory_check)
+                       skip_memory_check=args.skip_memory_check,
+                       report=not args.no_report)
     counts = {s: sum(r["status"] == s for r in result.results)
               for s in ("done", "reused", "failed")}
     for failure in result.failed:

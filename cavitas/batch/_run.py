@@ -108,7 +108,7 @@ def run_batch(inputs: Sequence[str | os.PathLike], outdir: str | os.PathLike,
               scheduler: str | None = None, dask: bool = False, force: bool = False,
               progress: bool = True, read_options: Mapping[str, Any] | None = None,
               worker: str = DEFAULT_WORKER, memory_budget: int | None = None,
-              skip_memory_check: bool = False) -> BatchResult:
+              skip_memory_check: bool = False, report: bool = True) -> BatchResult:
     """Process many inputs into ``outdir``: one folder per input plus batch-wide tables.
 
     Each input gets ``outdir/<name>-<hash>/`` (its segmentation outputs and a ``done.json``
@@ -150,6 +150,9 @@ def run_batch(inputs: Sequence[str | os.PathLike], outdir: str | os.PathLike,
     skip_memory_check : bool, optional
         Let each worker run an input whose estimated memory exceeds what its machine has
         available (by default that input fails with one sentence, the others go on).
+    report : bool, optional
+        Write each input's ``report.html`` (False: tables, maps and ``run.json`` only;
+        recorded like the parameters, so a folder made with the other choice is not reused).
 
     Returns
     -------
@@ -192,10 +195,12 @@ def run_batch(inputs: Sequence[str | os.PathLike], outdir: str | os.PathLike,
     record = params_record(params, options)
     if read_options:
         record["read_options"] = json_ready(dict(read_options))
+    if not report:
+        record["report"] = False
     tasks = [Task(path=str(item.path), name=item.name, root=str(root), params=params,
                   options=options, record=record, force=force, worker=worker,
                   read_options=dict(read_options or {}),
-                  skip_memory_check=skip_memory_check) for item in items]
+                  skip_memory_check=skip_memory_check, report=report) for item in items]
     started = datetime.now(timezone.utc)
     with folder_lock(root):
         remove_stale(root)

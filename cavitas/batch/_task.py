@@ -67,6 +67,8 @@ class Task:
         Options for reading the input (channel, time); passed to the worker when given.
     skip_memory_check : bool
         Passed to a worker that takes it: run even beyond the memory available.
+    report : bool
+        False: passed as ``report=False`` to a worker that takes it (no report page).
     """
 
     path: str
@@ -79,6 +81,7 @@ class Task:
     worker: str = DEFAULT_WORKER
     read_options: Mapping[str, Any] = field(default_factory=dict)
     skip_memory_check: bool = False
+    report: bool = True
     version: str = __version__
 
 
@@ -155,6 +158,8 @@ def run_task(task: Task) -> dict[str, Any]:
             extra["input_sha256"] = checksum
         if task.skip_memory_check and _accepts(worker, "skip_memory_check"):
             extra["skip_memory_check"] = True
+        if not task.report and _accepts(worker, "report"):
+            extra["report"] = False
         figures = worker(task.path, staging, task.params, force=True, progress=False,
                          **extra)
         seconds = time.perf_counter() - start

@@ -12,8 +12,6 @@ from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
-from scipy.optimize import linear_sum_assignment
-from scipy.spatial import cKDTree
 
 from .._errors import ParameterError
 from ._diagram import Diagram
@@ -159,6 +157,8 @@ class _WarmMatching:
 def _matching_of_finite(fin_a: np.ndarray, fin_b: np.ndarray) -> tuple[float, np.ndarray]:
     """The bottleneck cost of the finite points and the partner in B of each point of A
     (-1: the diagonal)."""
+    from scipy.spatial import cKDTree  # imported when needed: segmentation never is
+
     half_a, half_b = _half_persistence(fin_a), _half_persistence(fin_b)
     upper = float(max(half_a.max(initial=0.0), half_b.max(initial=0.0)))
     tree_a = cKDTree(fin_a) if len(fin_a) else None
@@ -356,6 +356,8 @@ def wasserstein(dgm_a: Any, dgm_b: Any, dim: int, *, order: float = 1.0) -> floa
         cost[:n, m:] = _half_persistence(fin_a)[:, None]
         cost[n:, :m] = _half_persistence(fin_b)[None, :]
         cost **= order
+        from scipy.optimize import linear_sum_assignment  # a costly import, rarely needed
+
         rows, cols = linear_sum_assignment(cost)
         total += float(cost[rows, cols].sum())
     return total ** (1.0 / order)

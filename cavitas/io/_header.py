@@ -12,11 +12,11 @@ import os
 from pathlib import Path
 from typing import Any
 
-import nibabel as nib
 import numpy as np
 import tifffile
 
 from ._dispatch import _read_kind
+from ._nifti import nibabel
 from ._zarr import is_zarr_store
 
 __all__ = ["declared_layout"]
@@ -38,6 +38,7 @@ def _tiff(path: Path) -> tuple[tuple[int, ...], np.dtype]:
 
 
 def _nifti(path: Path) -> tuple[tuple[int, ...], np.dtype]:
+    nib = nibabel()
     image = nib.load(path)
     if not isinstance(image, nib.analyze.AnalyzeImage):  # NIfTI images are Analyze ones
         raise ValueError(f"'{path}' is not a NIfTI or Analyze image")

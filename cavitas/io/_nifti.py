@@ -30,11 +30,9 @@ from __future__ import annotations
 import os
 from collections.abc import Sequence
 from pathlib import Path
-from typing import Any, cast
+from typing import TYPE_CHECKING, Any, cast
 
-import nibabel as nib
 import numpy as np
-from nibabel.arrayproxy import ArrayProxy
 
 from .._errors import InputFileError
 from ._assemble import Decoded, note
@@ -44,13 +42,23 @@ from ._failures import reading
 from ._logs import collect_log
 from ._units import centimetres_per
 
+if TYPE_CHECKING:
+    from nibabel.arrayproxy import ArrayProxy
+
 __all__ = ["CAUTION_SHORT", "read_nifti", "write_nifti"]
 
 #: The research-only caution as it fits in the 80-byte ``descrip`` field.
 CAUTION_SHORT = "cavitas output: research use only, not for diagnosis"
 
 _UNIT_CODES = {"mm": "mm", "µm": "micron", "m": "meter"}
-_KINDS: dict[type, str] = {nib.Nifti2Image: "NIfTI-2", nib.Nifti1Image: "NIfTI-1"}
+
+
+def nibabel() -> Any:
+    """The nibabel module, imported on first use (it takes a tenth of a second or more to
+    import, which ``cavitas info`` of another format need not wait for)."""
+    import nibabel
+
+    return nibabel
 
 
 def _zoom(value: Any) -> float:
@@ -74,6 +82,7 @@ def read_nifti(path: Path, *, channel: int | None = None, time: int | None = Non
     """Read a NIfTI (or Analyze) image; see the module notes."""
     meta: dict[str, Any] = {}
     with reading(path, "NIfTI"):
+        nib = nibabel()
         with collect_log("nibabel.global") as log:
             img = nib.load(path, mmap="r" if mmap else False)
         if not isinstance(img, nib.analyze.AnalyzeImage):  # NIfTI images are Analyze ones
@@ -89,7 +98,7 @@ def read_nifti(path: Path, *, channel: int | None = None, time: int | None = Non
             )
         check_declared(path, shape, img.header.get_data_dtype(), stored=_stored_bytes(img))
         # a loaded image's data object is an ArrayProxy (nibabel annotates any ArrayLike)
-        proxy = cast(ArrayProxy, img.dataobj)
+        proxy = cast("ArrayProxy", img.dataobj)
         slope, inter = float(proxy.slope), float(proxy.inter)
         if (slope, inter) == (1.0, 0.0):
             data = proxy.get_unscaled()
@@ -101,7 +110,8 @@ def read_nifti(path: Path, *, channel: int | None = None, time: int | None = Non
         units = (header.get_xyzt_units() if isinstance(header, nib.Nifti1Header)
                  else ("unknown", "unknown"))  # NIfTI-2 and pair headers are NIfTI-1 ones
         xyz_unit = units[0]
-        kind = _KINDS.get(type(img), "Analyze")
+        kind = {nib.Nifti2Image: "NIfTI-2", nib.Nifti1Image: "NIfTI-1"}.get(type(img),
+                                                                        "Analyze")
         data, chosen = select_planes(np.asanyarray(data), "XYZTCVW"[: len(shape)],
                                      channel=channel, time=time, name=str(path))
         affine = np.asarray(img.affine, dtype=np.float64)
@@ -139,6 +149,7 @@ def write_nifti(target: Path, data: np.ndarray, *, spacing: Sequence[float] | No
     if affine is None:
         affine = _affine_from_spacing(spacing, data.ndim)
     nifti = nifti or {}
+    nib = nibabel()
     image_class = nib.Nifti2Image if nifti.get("version") == 2 else nib.Nifti1Image
     image = image_class(np.asarray(data).T, affine)
     if nifti:

@@ -77,7 +77,8 @@ def _reduce(image: np.ndarray, labels: np.ndarray | None, factor: int,
 
 
 def embed_scan(image: np.ndarray, labels: np.ndarray | None, *,
-               border: Sequence[int] = (), budget: int = 9_000_000) -> EmbeddedScan:
+               border: Sequence[int] = (), budget: int = 9_000_000,
+               window: tuple[float, float] | None = None) -> EmbeddedScan:
     """Reduce and compress the scan and its labels for the browser.
 
     Parameters
@@ -89,6 +90,9 @@ def embed_scan(image: np.ndarray, labels: np.ndarray | None, *,
     budget : int
         Most bytes of both compressed arrays; past it, the scan is reduced by a larger
         whole factor per axis.
+    window : (float, float), optional
+        Display range of the intensities (default: :func:`intensity_window` of
+        ``image``; a caller drawing several pictures of one scan computes it once).
 
     Examples
     --------
@@ -97,7 +101,7 @@ def embed_scan(image: np.ndarray, labels: np.ndarray | None, *,
     >>> scan.shape, scan.factor, scan.label_bytes
     ((10, 8, 6), 1, 1)
     """
-    window = intensity_window(image)
+    window = window or intensity_window(image)
     top = 0 if labels is None else int(np.asarray(labels).max(initial=0))
     label_bytes = 1 if top < 2**8 else 2 if top < 2**16 else 4
     kind = {1: np.uint8, 2: np.uint16, 4: np.uint32}[label_bytes]

@@ -25,6 +25,7 @@ from ._histograms import plot_histograms
 from ._overview import plot_overview
 from ._params_html import parameters_html, plain_value
 from ._regions import region_centroids
+from ._render import intensity_window
 from ._slices import plot_region_slices
 from ._table_html import SORT_SCRIPT, TABLE_SCRIPT, region_table_html
 from ._words import Words
@@ -289,10 +290,11 @@ def write_report(path: str | os.PathLike, *, image: np.ndarray, labels: np.ndarr
     # Pictures of single regions and histograms show whole regions only.
     shown = regions.select(regions["kind"] == "chamber") if "kind" in regions else regions
     overview = ""
+    window = intensity_window(image)  # one display range for every picture of the scan
     doubt = found.least_certain[0] if found.least_certain and image.ndim == 2 else None
     if n and labels.any():
         fig, where = plot_overview(image, labels, spacing=spacing, unit=unit, border=border,
-                                   highlight=doubt)
+                                   highlight=doubt, window=window)
         dashed = (f" The least certain region, number {doubt}, is outlined dashed."
                   if doubt is not None else "")
         overview = _figure(fig, f"Overview. {where} Each region is filled and carries its "
@@ -305,15 +307,16 @@ def write_report(path: str | os.PathLike, *, image: np.ndarray, labels: np.ndarr
                         f"How many regions have each {words.size}; the dashed line is the "
                         "median.") if n else ""
     centroids = region_centroids(labels, regions.select(slice(0, max_rows)))
-    scan = embed_scan(image, labels if n else None, border=border, budget=scan_budget)
+    scan = embed_scan(image, labels if n else None, border=border, budget=scan_budget,
+                      window=window)
     closer = [  # in 2D the overview shows the whole image, least certain region marked
         _figure(plot_region_slices(image, labels, shown, which="least_certain",
-                                   spacing=spacing, unit=unit),
+                                   spacing=spacing, unit=unit, window=window),
                 "The least certain region (its wall stands least above the threshold), "
                 "drawn dashed with a plus at its centre.") if image.ndim == 3 else "",
         _figure(plot_region_slices(image, labels, shown, which="largest", spacing=spacing,
-                                   unit=unit), "The largest region.") if image.ndim == 3
-        else "",
+                                   unit=unit, window=window), "The largest region.")
+        if image.ndim == 3 else "",
         _figure(plot_histograms(shown, columns=("sphericity", "circularity"),
                                 ndim=image.ndim),
                 f"How round the regions are ({words.shape_name}: 1 for a perfect "

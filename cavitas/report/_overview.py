@@ -67,7 +67,8 @@ def _palette(count: int) -> np.ndarray:
 
 def plot_overview(image: np.ndarray, labels: np.ndarray, *, spacing: Sequence[float],
                   unit: str, border: Sequence[int] = (), highlight: int | None = None,
-                  max_side: int = 640, max_numbers: int = 400) -> tuple[Figure, str]:
+                  max_side: int = 640, max_numbers: int = 400,
+                  window: tuple[float, float] | None = None) -> tuple[Figure, str]:
     """The overview figure and a sentence saying which slice it shows.
 
     Parameters
@@ -85,6 +86,9 @@ def plot_overview(image: np.ndarray, labels: np.ndarray, *, spacing: Sequence[fl
         Larger slices are reduced by a whole factor for drawing.
     max_numbers : int
         Most region numbers drawn (the largest regions of the slice first).
+    window : (float, float), optional
+        Display range of the intensities (default: :func:`intensity_window` of
+        ``image``; a caller drawing several pictures of one scan computes it once).
 
     Examples
     --------
@@ -99,7 +103,7 @@ def plot_overview(image: np.ndarray, labels: np.ndarray, *, spacing: Sequence[fl
     lab = np.asarray(take_slice(labels, 0, z))
     dy, dx = spacing[-2], spacing[-1]
     factor = max(1, int(np.ceil(max(plane.shape) / max_side)))
-    lo, hi = intensity_window(image)
+    lo, hi = window or intensity_window(image)
     grey = np.clip((block_reduce(np.asarray(plane, np.float64), factor) - lo) / (hi - lo), 0, 1)
     small = lab[factor // 2::factor, factor // 2::factor][:grey.shape[0], :grey.shape[1]]
     ids = np.unique(small[small > 0])

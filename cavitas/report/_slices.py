@@ -30,7 +30,8 @@ def _views(ndim: int) -> list[tuple[int | None, int, int]]:
 def plot_slices(image: np.ndarray, labels: np.ndarray | None = None, *,
                 spacing: Sequence[float] | None = None, unit: str | None = None,
                 point: Sequence[float] | None = None, highlight: int | None = None,
-                title: str | None = None, max_side: int = 512) -> Figure:
+                title: str | None = None, max_side: int = 512,
+                window: tuple[float, float] | None = None) -> Figure:
     """Orthogonal slices through ``point`` with the outlines of every labelled region.
 
     Parameters
@@ -50,6 +51,9 @@ def plot_slices(image: np.ndarray, labels: np.ndarray | None = None, *,
         Figure title.
     max_side : int
         Planes larger than this are block-averaged down for drawing.
+    window : (float, float), optional
+        Display range of the intensities (default: :func:`intensity_window` of
+        ``image``; a caller drawing several pictures of one scan computes it once).
 
     Returns
     -------
@@ -78,7 +82,7 @@ def plot_slices(image: np.ndarray, labels: np.ndarray | None = None, *,
     if point is None:
         point = [(n - 1) / 2 for n in shape]
     index = [int(np.clip(round(float(p)), 0, n - 1)) for p, n in zip(point, shape, strict=True)]
-    window = intensity_window(image)
+    window = window or intensity_window(image)
     views = _views(ndim)
     heights = [shape[r] * spacing[r] for _, r, _ in views]
     widths = [shape[c] * spacing[c] for _, _, c in views]
@@ -132,12 +136,13 @@ def plot_slices(image: np.ndarray, labels: np.ndarray | None = None, *,
 
 def plot_region_slices(image: np.ndarray, labels: np.ndarray, regions: Table, *,
                        which: str = "largest", spacing: Sequence[float] | None = None,
-                       unit: str | None = None) -> Figure | None:
+                       unit: str | None = None,
+                       window: tuple[float, float] | None = None) -> Figure | None:
     """Orthogonal slices through the centroid of the largest or least certain region.
 
     ``which`` is ``"largest"`` (largest ``volume``) or ``"least_certain"`` (smallest
     ``margin``, else smallest ``persistence``). Returns ``None`` when the table has no row
-    to pick (empty, or no such column).
+    to pick (empty, or no such column). ``window`` as for :func:`plot_slices`.
 
     Examples
     --------
@@ -157,4 +162,4 @@ def plot_region_slices(image: np.ndarray, labels: np.ndarray, regions: Table, *,
         return None
     name = "Largest region" if which == "largest" else "Least certain region"
     return plot_slices(image, labels, spacing=spacing, unit=unit, point=centre,
-                       highlight=label, title=f"{name}: label {label}")
+                       highlight=label, title=f"{name}: label {label}", window=window)

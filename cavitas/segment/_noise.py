@@ -20,9 +20,14 @@ The automatic significance rule
    it), ``k = c`` from ``c = 2`` on, linear between (:func:`correlation_factor`).
 2. **Null**: persistence scales with the noise amplitude, so the largest cavity
    persistence that noise alone produces at smoothing ``σ`` is ``s · P(σ)``, where ``P``
-   is measured once on white noise of unit variance, smoothed the same way, of the same
-   shape (or of a crop of it, scaled up by ``sqrt(log N / log N_crop)``, the growth of the
-   maximum of Gaussian-tailed variables), over :data:`NULL_SEEDS` seeds (the maximum).
+   is measured on white noise of unit variance, smoothed the same way, over
+   :data:`NULL_SEEDS` seeds: once, when the package is made, on a grid of smoothing
+   scales, and interpolated at run time (:mod:`cavitas.segment._null_table`). For an
+   image of ``N`` voxels, ``P`` is the largest persistence the seeds' images would show
+   at that size: the pooled maximum scaled up by ``sqrt(log N / log N_ref)`` (the growth
+   of the maximum of Gaussian-tailed variables) when the image is larger than one
+   simulated image (``N_ref`` voxels), else the pooled value ranked ``N_ref / N`` from
+   the top (the maximum of a pool that many times smaller).
 3. **Threshold**: ``safety · s · P(σ)``, ``safety = 1.25`` by default, when nothing in the
    diagram says better (a gap or an empty stretch, :mod:`cavitas.segment._gap`; with white
    noise the false discovery rate over the null's whole distribution,
@@ -60,6 +65,7 @@ import numpy as np
 from scipy import ndimage as ndi
 
 from .._shared.memory import work_dtype  # the dtype policy lives beside the memory estimate
+from ._null_table import NULL_SEEDS, REFERENCE_SHAPE, tabulated_null
 
 __all__ = ["NULL_SEEDS", "QUANTISATION_SIGMA", "NoiseLevel", "correlation_factor",
            "estimate_noise", "noise_level", "null_persistence", "smooth", "smoothed_noise_sigma",
@@ -68,10 +74,6 @@ __all__ = ["NULL_SEEDS", "QUANTISATION_SIGMA", "NoiseLevel", "correlation_factor
 #: Standard deviation of rounding to integers (uniform over one step: 1/sqrt(12)); the
 #: noise floor of integer images, whose MAD can be 0 where the signal is flat.
 QUANTISATION_SIGMA = 12 ** -0.5
-#: Seeds of the noise-only images the null is measured on (fixed: results are reproducible).
-NULL_SEEDS = (11, 12, 13)
-#: Largest number of voxels simulated for the null; larger images are extrapolated.
-_NULL_VOXELS = {2: 256 * 256, 3: 64 * 64 * 64}
 #: Largest number of voxels used for the noise estimate (a central crop beyond).
 _NOISE_VOXELS = 1 << 22
 
@@ -230,7 +232,7 @@ def null_persistence(shape: tuple[int, ...], sigma_voxels: tuple[float, ...],
                      connectivity: int) -> float:
     """Largest cavity persistence of unit white noise of ``shape`` smoothed by ``sigma_voxels``.
 
-    Measured on :data:`NULL_SEEDS` noise images (cached per arguments).
+    From the tabulated null (:mod:`cavitas.segment._null_table`; cached per arguments).
 
     Examples
     --------
@@ -246,8 +248,8 @@ class NullDistribution:
     """Cavity persistence of unit white noise, smoothed, at one image shape and scale.
 
     ``values`` (sorted) pool the :data:`NULL_SEEDS` simulations of ``voxels`` voxels in
-    all; ``largest`` is the largest of them, grown to the image's size when the
-    simulations ran on a crop (see the module notes).
+    all (interpolated in the tabulated null); ``largest`` is the largest persistence
+    expected in the image's size (see the module notes).
     """
 
     values: np.ndarray
@@ -278,23 +280,24 @@ def null_distribution(shape: tuple[int, ...], sigma_voxels: tuple[float, ...],
 @functools.lru_cache(maxsize=64)
 def _null_cached(shape: tuple[int, ...], sigma: tuple[float, ...],
                  connectivity: int) -> NullDistribution:
-    from .. import cubical
-
+    # one-voxel axes hold no noise structure: a one-slice volume is a plane
+    axes = [i for i, n in enumerate(shape) if n > 1]
+    if len(axes) >= 2 and len(axes) < len(shape):
+        shape = tuple(shape[i] for i in axes)
+        sigma = tuple(sigma[i] for i in axes)
+        connectivity = min(connectivity, len(axes))
+    pooled = tabulated_null(sigma, connectivity)
+    reference = math.prod(REFERENCE_SHAPE[len(shape)])  # voxels of one simulated image
     n_full = math.prod(shape)
-    sim_shape = _crop_shape(shape, _NULL_VOXELS[len(shape)])
-    n_sim = math.prod(sim_shape)
-    values = []
-    for seed in NULL_SEEDS:
-        noise = np.random.default_rng(seed).standard_normal(sim_shape)
-        _, tree = cubical.cavity_sweep(smooth(noise, sigma), walls="bright",
-                                       connectivity=connectivity, mask=None)
-        pers = tree.persistence[1:]
-        values.append(pers[pers > 0])
-    pooled = np.sort(np.concatenate(values))
-    best = float(pooled[-1]) if pooled.size else 0.0
-    if n_full > n_sim:
-        best *= math.sqrt(math.log(n_full) / math.log(n_sim))
-    return NullDistribution(pooled, n_sim * len(NULL_SEEDS), best)
+    values = pooled.values
+    if values.size == 0:
+        best = 0.0
+    elif n_full >= reference:  # the pooled maximum, grown to the image's size
+        best = float(values[-1]) * math.sqrt(math.log(n_full) / math.log(reference))
+    else:  # the maximum over as many voxels as the seeds' images of this size would hold
+        rank = reference / n_full  # from the largest (1), fractional between
+        best = float(np.interp(-rank, -np.arange(values.size, 0, -1.0), values))
+    return NullDistribution(values, pooled.voxels, best)
 
 
 def _crop_shape(shape: tuple[int, ...], limit: int) -> tuple[int, ...]:
