@@ -8,15 +8,19 @@ __all__ = ["PAIR_DTYPE", "OUTSIDE", "CavityTree", "Diagram"]
 from ._diagram_io import load_diagram, save_diagram  # noqa: E402
 from ._distance import (  # noqa: E402
     BottleneckMatching,
+    Matching,
+    WassersteinMatching,
     bottleneck,
     bottleneck_matching,
     wasserstein,
+    wasserstein_matching,
 )
 from ._summary import diagram_summary, format_summary  # noqa: E402
 
 __all__ += [
-    "BottleneckMatching", "bottleneck", "bottleneck_matching", "diagram_summary",
-    "format_summary", "load_diagram", "save_diagram", "wasserstein",
+    "BottleneckMatching", "Matching", "WassersteinMatching", "bottleneck",
+    "bottleneck_matching", "diagram_summary", "format_summary", "load_diagram",
+    "save_diagram", "wasserstein", "wasserstein_matching",
 ]
 
 from ._persistence import cavity_sweep, persistence  # noqa: E402
