@@ -27,7 +27,8 @@ from ._errors import (
 from ._version import __version__
 
 #: Subcommands in the order ``--help`` lists them.
-COMMANDS: tuple[str, ...] = ("info", "diagram", "segment", "batch", "compare", "demo")
+COMMANDS: tuple[str, ...] = ("info", "diagram", "distance", "segment", "batch", "compare",
+                             "demo")
 
 DESCRIPTION = f"""\
 Find, segment and measure enclosed regions (cells, vesicles, capsules, pores, bubbles)

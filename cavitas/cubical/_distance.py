@@ -15,6 +15,7 @@ import numpy as np
 from scipy.optimize import linear_sum_assignment
 from scipy.spatial import cKDTree
 
+from .._checks import number
 from .._errors import ParameterError
 from ._diagram import Diagram
 from ._geometric_matching import merge_matchings, saturate_heavy
@@ -317,14 +318,7 @@ def _lower_bound(fin_a: np.ndarray, fin_b: np.ndarray, tree_a: Any, tree_b: Any,
 
 
 def _checked_order(order: Any) -> float:
-    try:
-        value = float(order)
-    except (TypeError, ValueError):
-        value = float("nan")
-    if not (np.isfinite(value) and value >= 1.0):
-        raise ParameterError(f"order must be a finite number >= 1; got {order}.",
-                             parameters=("order",))
-    return value
+    return number("order", order, low=1.0)
 
 
 def wasserstein_matching(dgm_a: Any, dgm_b: Any, dim: int, *,
