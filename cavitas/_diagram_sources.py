@@ -91,14 +91,10 @@ def _smoothed(data: np.ndarray, spacing: Sequence[float], sigma: float) -> np.nd
 def _image_diagram(path: str, recipe: DiagramRecipe, walls: str,
                    connectivity: int) -> Diagram:
     from .io import read
+    from .workflow import _read_mask
 
     volume = read(path, **dict(recipe.read_options))
-    mask = None
-    if recipe.mask:
-        mask = np.asarray(read(recipe.mask).data) != 0
-        if mask.shape != volume.shape:
-            raise InputFileError(f"Mask '{recipe.mask}' has shape {mask.shape}; the image "
-                                 f"'{path}' has shape {volume.shape}.")
+    mask = _read_mask(recipe.mask, volume, Path(path))
     image: Any = volume
     if recipe.smooth > 0:
         image = _smoothed(np.asarray(volume.data), volume.spacing, recipe.smooth)
@@ -145,7 +141,12 @@ def diagram_sources(paths: Sequence[str | os.PathLike],
     saved = {str(p): load_diagram(p) for p in paths if is_diagram_file(p)}
     for path in paths:
         if Path(path).suffix.lower() == ".csv" and str(path) not in saved:
-            load_diagram(path)  # raises: a .csv input must be a diagram file
+            if not Path(path).is_file():
+                load_diagram(path)  # says that it does not exist
+            raise InputFileError(
+                f"'{path}' is not a diagram file that `cavitas diagram` writes (its first "
+                "line would be '# cavitas persistence diagram (format N)'); the diagram.csv "
+                "of `cavitas segment` lists the cavities only and is not compared.")
     if smooth and saved:
         raise ParameterError(
             f"smooth= applies to images; '{next(iter(saved))}' is a saved diagram, which "

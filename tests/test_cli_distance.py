@@ -117,6 +117,10 @@ def test_input_and_output_problems(tmp_path, scans, capsys):
     err = capsys.readouterr().err
     assert "dark.npz" in err and "--walls" in err
     assert main(["distance", scans[0], str(dark), "-o", out, "--smooth", "1"]) == 2
+    table = tmp_path / "regions.csv"
+    table.write_text("label,volume\n1,3.0\n", encoding="utf-8")
+    assert main(["distance", scans[0], str(table), "-o", out]) == 3
+    assert "not a diagram file" in capsys.readouterr().err
     assert main(["distance", *scans[:2], "-o", out, "-q"]) == 0
     assert main(["distance", *scans[:2], "-o", out]) == 4  # exists without --force
     assert main(["distance", *scans[:2], "-o", out, "--force", "-q"]) == 0

@@ -189,7 +189,7 @@ def run(args: argparse.Namespace) -> int:
     from .._diagram_sources import DiagramRecipe, diagram_sources
     from .._json import dumps
     from .._shared.atomic import atomic_path, check_writable
-    from ..cubical import distance_matrix, drop_shallow, match_diagrams
+    from ..cubical import distance_matrix, drop_shallow
     from ..report.diagram_plots import save_figure
     from ..report.matching_plot import plot_matching
 
@@ -216,9 +216,7 @@ def run(args: argparse.Namespace) -> int:
         labels = _labels(args.inputs)
         _table(matrix, labels).to_csv(targets[TABLE], force=args.force)
         for k, name in enumerate(figures, start=1):
-            found = {dim: match_diagrams(diagrams[0], diagrams[k], dim, metric=args.metric,
-                                         order=matrix.order) for dim in dims}
-            save_figure(plot_matching(diagrams[0], diagrams[k], found,
+            save_figure(plot_matching(diagrams[0], diagrams[k], matrix.against_first[k],
                                       names=(labels[0], labels[k])),
                         targets[name], force=args.force)
         notes = _infinite_notes(sources, dims, labels)

@@ -8,7 +8,7 @@ dimension by dimension, after leaving out the pairs of low persistence if asked.
 from __future__ import annotations
 
 from collections.abc import Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -105,12 +105,16 @@ class DistanceMatrix:
         The distance used.
     order : float or None
         The Wasserstein exponent (``None`` for the bottleneck distance).
+    against_first : dict of int to dict of int to Matching
+        ``against_first[k][dim]``: the optimal matching of diagram 0 with diagram ``k``
+        (``k >= 1``) in ``dim``, what a figure of each diagram against the first draws.
     """
 
     dims: tuple[int, ...]
     values: np.ndarray
     metric: str
     order: float | None
+    against_first: dict[int, dict[int, Matching]] = field(default_factory=dict)
 
     def of(self, dim: int) -> np.ndarray:
         """The ``k x k`` matrix of homology dimension ``dim``."""
@@ -148,9 +152,12 @@ def distance_matrix(diagrams: Sequence[Diagram], dims: Sequence[int], *,
     q = _checked_metric(metric, order)
     dims = tuple(int(d) for d in dims)
     values = np.zeros((len(dims), len(diagrams), len(diagrams)))
+    against_first: dict[int, dict[int, Matching]] = {k: {} for k in range(1, len(diagrams))}
     for d, dim in enumerate(dims):
         for i in range(len(diagrams)):
             for j in range(i + 1, len(diagrams)):
                 found = match_diagrams(diagrams[i], diagrams[j], dim, metric=metric, order=q)
                 values[d, i, j] = values[d, j, i] = found.distance
-    return DistanceMatrix(dims, values, metric, q)
+                if i == 0:
+                    against_first[j][dim] = found
+    return DistanceMatrix(dims, values, metric, q, against_first)

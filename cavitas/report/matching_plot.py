@@ -81,16 +81,18 @@ def _panel(ax: Axes, dgm_a: Diagram, dgm_b: Diagram, dim: int, found: Matching,
         ax.add_collection(LineCollection(list(segments[longest]), colors=_LONGEST,
                                          linewidths=2.2, label="longest edge (= the distance)"))
     style = DIM_STYLE[dim]
+    # the hollow markers are larger and lie underneath: a point of both stays visible
     for rows, name, filled in ((rows_a, names[0], True), (rows_b, names[1], False)):
         finite = np.isfinite(rows[:, 1])
-        ax.scatter(rows[finite, 0], rows[finite, 1], s=22, marker=style["marker"],
-                   facecolors=style["color"] if filled else "white",
-                   edgecolors=style["color"], linewidths=0.9, zorder=3, label=name)
+        face = style["color"] if filled else "white"
+        ax.scatter(rows[finite, 0], rows[finite, 1], s=18 if filled else 40,
+                   marker=style["marker"], facecolors=face, edgecolors=style["color"],
+                   linewidths=0.9, zorder=4 if filled else 3, label=name)
         if (~finite).any():
-            ax.scatter(rows[~finite, 0], np.full(int((~finite).sum()), edge), s=50,
-                       marker=style["marker"], facecolors=style["color"] if filled
-                       else "white", edgecolors="black", linewidths=1.1, clip_on=False,
-                       zorder=3)
+            ax.scatter(rows[~finite, 0], np.full(int((~finite).sum()), edge),
+                       s=40 if filled else 90, marker=style["marker"], facecolors=face,
+                       edgecolors="black", linewidths=1.1, clip_on=False,
+                       zorder=4 if filled else 3)
     if not (np.isfinite(rows_a[:, 1]).all() and np.isfinite(rows_b[:, 1]).all()):
         ax.axhline(edge, color=_GUIDE, linestyle=":", linewidth=1,
                    label="essential: never dies")
