@@ -37,8 +37,9 @@ from __future__ import annotations
 import os
 import time
 from collections.abc import Mapping
+from dataclasses import dataclass
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
@@ -54,7 +55,11 @@ from ._version import __version__
 from .io._checksum import input_checksum
 from .io._staging import discard_staging, open_staging, publish_staged
 
-__all__ = ["ReadOptions", "RunOptions", "Settings", "segment_file"]
+if TYPE_CHECKING:
+    from .cubical import ConnectivityDensity, EulerCurve
+
+__all__ = ["ReadOptions", "RunOptions", "Settings", "WallTopology", "segment_file",
+           "wall_topology"]
 
 
 def _label_suffix(source: Path, wanted: str | None) -> str:
@@ -92,7 +97,23 @@ def _diagram_plot(seg: Any, path: Path, *, force: bool) -> None:
     save_figure(fig, path, force=force)
 
 
-def wall_topology(seg: Any, *, mask: np.ndarray | None = None) -> tuple[Any, Any]:
+@dataclass(frozen=True)
+class WallTopology:
+    """How the walls of one run connect.
+
+    Attributes
+    ----------
+    curve : EulerCurve
+        χ of the walls at every level of the unsmoothed image where it changes.
+    walls : ConnectivityDensity
+        Betti numbers, χ and loops per unit volume of the segmented walls.
+    """
+
+    curve: EulerCurve
+    walls: ConnectivityDensity
+
+
+def wall_topology(seg: Any, *, mask: np.ndarray | None = None) -> WallTopology:
     """The Euler characteristic curve of the image and the topology of the segmented walls.
 
     The curve is χ of the walls ``{image >= t}`` (bright walls; ``<=`` for dark) at every
@@ -112,8 +133,8 @@ def wall_topology(seg: Any, *, mask: np.ndarray | None = None) -> tuple[Any, Any
                         mask=mask).changes()
     full = seg.labels if seg.all_labels is None else seg.all_labels
     wall_set = Volume(full == 0, spacing=volume.spacing, unit=volume.unit)
-    topology = connectivity_density(wall_set, connectivity=connectivity, mask=mask)
-    return curve, topology
+    return WallTopology(curve, connectivity_density(wall_set, connectivity=connectivity,
+                                                    mask=mask))
 
 
 def measured_regions(seg: Any, *, mask: np.ndarray | None = None, thickness: bool = True,
@@ -293,7 +314,7 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
         regions, figures = measured_regions(seg, mask=mask, thickness=thickness,
                                             partition=options.partition)
         notes = run_notes(seg)
-        curve, topology = wall_topology(seg, mask=mask)
+        topology = wall_topology(seg, mask=mask)
         tick = done("measure", tick)
         stage("writing")
         made = not outdir.exists()
@@ -304,7 +325,7 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
         regions.to_json(staged["regions_json"], force=force)
         _diagram_table(seg).to_csv(staged["diagram"], force=force)
         _diagram_plot(seg, staged["diagram_plot"], force=force)
-        Table({"level": curve.levels, "euler_characteristic": curve.chi},
+        Table({"level": topology.curve.levels, "euler_characteristic": topology.curve.chi},
               meta={"caution": RESEARCH_ONLY}).to_csv(staged["euler"], force=force)
         for key in ("regions", "regions_json", "diagram", "diagram_plot", "euler"):
             written[key] = staged[key]
@@ -323,7 +344,7 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
                 params=seg.params, figures=figures, title=safe_text(source.name),
                 source=safe_text(str(source)),
                 notes=[note for note in notes.values() if note],
-                euler=curve, wall_topology=topology, force=force)
+                euler=topology.curve, wall_topology=topology.walls, force=force)
         tick = done("report", tick)
         summary = _summary(seg, source, figures, written, notes, topology)
         relative = _relative(summary["outputs"], staging)
@@ -565,7 +586,7 @@ def run_notes(seg: Any) -> dict[str, str | None]:
 
 def _summary(seg: Any, source: Path, figures: dict[str, Any],
              written: dict[str, Path], notes: dict[str, str | None],
-             topology: Any) -> dict[str, Any]:
+             topology: WallTopology) -> dict[str, Any]:
     kinds = seg.regions["kind"] if len(seg.regions) else np.array([], object)
     n_regions = int((kinds == "chamber").sum())
     return {
@@ -580,9 +601,9 @@ def _summary(seg: Any, source: Path, figures: dict[str, Any],
         "smooth_sigma": seg.params["smooth_sigma"],
         "porosity": figures.get("volume_fraction"),
         "mean_volume": figures.get("mean_volume"),
-        "walls_euler": topology.chi,
-        "walls_loops": topology.betti1,
-        "connectivity_density": topology.density,
+        "walls_euler": topology.walls.chi,
+        "walls_loops": topology.walls.betti1,
+        "connectivity_density": topology.walls.density,
         "unit": seg.volume.unit,
         "outputs": {k: str(v) for k, v in written.items()},
         **notes,
