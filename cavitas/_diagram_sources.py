@@ -75,9 +75,9 @@ def _settled(name: str, given: Any, saved: dict[str, Any], default: Any) -> Any:
     for path, value in saved.items():
         if given is not None and value != given:
             raise InputFileError(
-                f"Diagram file '{path}' was computed with {name}={value!r}, not the "
-                f"{name}={given!r} asked for; diagrams of different {name} are not compared.",
-                parameters=(name,))
+                f"Diagram file '{path}' was computed with {name}={value!r}, the other inputs "
+                f"with {name}={given!r} (given, or from another diagram file); diagrams of "
+                f"different {name} are not compared.", parameters=(name,))
         given = value
     return default if given is None else given
 
