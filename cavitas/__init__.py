@@ -39,6 +39,7 @@ _LAZY = {
     "bottleneck": "cavitas.cubical",
     "bottleneck_matching": "cavitas.cubical",
     "wasserstein": "cavitas.cubical",
+    "wasserstein_matching": "cavitas.cubical",
     "euler_curve": "cavitas.cubical",
     "connectivity_density": "cavitas.cubical",
     "segment": "cavitas.segment",

@@ -27,9 +27,10 @@ from ._errors import (
 from ._version import __version__
 
 #: Subcommands in the order ``--help`` lists them.
-COMMANDS: tuple[str, ...] = ("info", "diagram", "segment", "batch", "compare", "demo")
+COMMANDS: tuple[str, ...] = ("info", "diagram", "distance", "segment", "batch", "compare",
+                             "demo")
 #: Subcommands that run the compiled kernels in this process (say so when compiling them).
-KERNEL_COMMANDS = ("diagram", "segment", "demo")
+KERNEL_COMMANDS = ("diagram", "distance", "segment", "demo")
 
 DESCRIPTION = f"""\
 Find, segment and measure enclosed regions (cells, vesicles, capsules, pores, bubbles)

@@ -12,6 +12,9 @@ that looks complete (:mod:`cavitas.io._staging`):
 ``regions.json``      the same table with units and the global figures
 ``diagram.csv``       the cavity diagram with ``kept`` and ``margin`` columns
 ``diagram.png``       the diagram drawn, kept cavities filled, threshold shaded
+``euler.csv``         the Euler characteristic of the walls at every level where it
+                      changes (the image's own levels, the run's walls and
+                      connectivity, inside the mask)
 ``report.html``       self-contained report (``report=False`` skips it)
 ``run.json``          every parameter, chosen values, version, input SHA-256,
                       timings, the outputs (relative to the folder) and the
@@ -34,8 +37,9 @@ from __future__ import annotations
 import os
 import time
 from collections.abc import Mapping
+from dataclasses import dataclass
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
@@ -51,7 +55,11 @@ from ._version import __version__
 from .io._checksum import input_checksum
 from .io._staging import discard_staging, open_staging, publish_staged
 
-__all__ = ["ReadOptions", "RunOptions", "Settings", "segment_file"]
+if TYPE_CHECKING:
+    from .cubical import ConnectivityDensity, EulerCurve
+
+__all__ = ["ReadOptions", "RunOptions", "Settings", "WallTopology", "segment_file",
+           "wall_topology"]
 
 
 def _label_suffix(source: Path, wanted: str | None) -> str:
@@ -87,6 +95,46 @@ def _diagram_plot(seg: Any, path: Path, *, force: bool) -> None:
     fig = plot_diagram(seg.diagram, dims=dim, highlight={dim: seg.kept},
                        threshold=seg.threshold)
     save_figure(fig, path, force=force)
+
+
+@dataclass(frozen=True)
+class WallTopology:
+    """How the walls of one run connect.
+
+    Attributes
+    ----------
+    curve : EulerCurve
+        χ of the walls at every level of the unsmoothed image where it changes.
+    walls : ConnectivityDensity
+        Betti numbers, χ and loops per unit volume of the segmented walls.
+    """
+
+    curve: EulerCurve
+    walls: ConnectivityDensity
+
+
+def wall_topology(seg: Any, *, mask: np.ndarray | None = None) -> WallTopology:
+    """The Euler characteristic curve of the image and the topology of the segmented walls.
+
+    The curve is χ of the walls ``{image >= t}`` (bright walls; ``<=`` for dark) at every
+    level ``t`` of the unsmoothed image, in the input's units
+    (:func:`cavitas.cubical.euler_curve`, only the levels where χ changes). The segmented
+    walls are every voxel inside the mask that no region holds (chambers and border-cut
+    regions are not walls; a background that no region took is); their Betti numbers and
+    loops per unit volume come from :func:`cavitas.cubical.connectivity_density`, with the
+    run's connectivity.
+    """
+    from .cubical import connectivity_density, euler_curve
+    from .io import Volume
+
+    volume = seg.volume
+    walls, connectivity = seg.params["walls"], seg.params["connectivity"]
+    curve = euler_curve(volume.data, walls=walls, connectivity=connectivity,
+                        mask=mask).changes()
+    full = seg.labels if seg.all_labels is None else seg.all_labels
+    wall_set = Volume(full == 0, spacing=volume.spacing, unit=volume.unit)
+    return WallTopology(curve, connectivity_density(wall_set, connectivity=connectivity,
+                                                    mask=mask))
 
 
 def measured_regions(seg: Any, *, mask: np.ndarray | None = None, thickness: bool = True,
@@ -195,7 +243,10 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
     dict
         ``regions`` (chambers kept), ``border_cut``, ``enclosures``, ``threshold``,
         ``noise``, ``smooth_sigma``, ``porosity`` (volume fraction of the chambers),
-        ``mean_volume``, ``unit``, ``outputs`` (paths), ``message`` and ``caution``.
+        ``mean_volume``, ``walls_euler``, ``walls_loops`` and ``connectivity_density``
+        (χ, β1 and β1 per ``unit**ndim`` of the segmented walls, see
+        :func:`wall_topology`), ``unit``, ``outputs`` (paths), ``message`` and
+        ``caution``.
 
     Examples
     --------
@@ -263,6 +314,7 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
         regions, figures = measured_regions(seg, mask=mask, thickness=thickness,
                                             partition=options.partition)
         notes = run_notes(seg)
+        topology = wall_topology(seg, mask=mask)
         tick = done("measure", tick)
         stage("writing")
         made = not outdir.exists()
@@ -273,7 +325,9 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
         regions.to_json(staged["regions_json"], force=force)
         _diagram_table(seg).to_csv(staged["diagram"], force=force)
         _diagram_plot(seg, staged["diagram_plot"], force=force)
-        for key in ("regions", "regions_json", "diagram", "diagram_plot"):
+        Table({"level": topology.curve.levels, "euler_characteristic": topology.curve.chi},
+              meta={"caution": RESEARCH_ONLY}).to_csv(staged["euler"], force=force)
+        for key in ("regions", "regions_json", "diagram", "diagram_plot", "euler"):
             written[key] = staged[key]
         if options.mesh:
             written["meshes"] = _write_meshes(seg, staging, options.mesh, force=force)
@@ -290,9 +344,9 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
                 params=seg.params, figures=figures, title=safe_text(source.name),
                 source=safe_text(str(source)),
                 notes=[note for note in notes.values() if note],
-                force=force)
+                euler=topology.curve, wall_topology=topology.walls, force=force)
         tick = done("report", tick)
-        summary = _summary(seg, source, figures, written, notes)
+        summary = _summary(seg, source, figures, written, notes, topology)
         relative = _relative(summary["outputs"], staging)
         record = {
             "cavitas_version": __version__,
@@ -362,7 +416,8 @@ def _planned_outputs(source: Path, outdir: Path, options: RunOptions, *,
     suffix = _label_suffix(source, options.label_format)
     planned = {"labels": outdir / f"labels{suffix}", "regions": outdir / "regions.csv",
                "regions_json": outdir / "regions.json", "diagram": outdir / "diagram.csv",
-               "diagram_plot": outdir / "diagram.png", "run": outdir / "run.json"}
+               "diagram_plot": outdir / "diagram.png", "euler": outdir / "euler.csv",
+               "run": outdir / "run.json"}
     if report:
         planned["report"] = outdir / "report.html"
     if options.enclosures:
@@ -530,7 +585,8 @@ def run_notes(seg: Any) -> dict[str, str | None]:
 
 
 def _summary(seg: Any, source: Path, figures: dict[str, Any],
-             written: dict[str, Path], notes: dict[str, str | None]) -> dict[str, Any]:
+             written: dict[str, Path], notes: dict[str, str | None],
+             topology: WallTopology) -> dict[str, Any]:
     kinds = seg.regions["kind"] if len(seg.regions) else np.array([], object)
     n_regions = int((kinds == "chamber").sum())
     return {
@@ -545,6 +601,9 @@ def _summary(seg: Any, source: Path, figures: dict[str, Any],
         "smooth_sigma": seg.params["smooth_sigma"],
         "porosity": figures.get("volume_fraction"),
         "mean_volume": figures.get("mean_volume"),
+        "walls_euler": topology.walls.chi,
+        "walls_loops": topology.walls.betti1,
+        "connectivity_density": topology.walls.density,
         "unit": seg.volume.unit,
         "outputs": {k: str(v) for k, v in written.items()},
         **notes,

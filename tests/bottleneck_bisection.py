@@ -16,7 +16,7 @@ from scipy.sparse import csr_matrix
 from scipy.sparse.csgraph import maximum_bipartite_matching
 from scipy.spatial import cKDTree
 
-from cavitas.cubical._distance import _essential_costs, _half_persistence, _lower_bound, _split
+from cavitas.cubical._distance import _half_persistence, _lower_bound, _split
 
 
 def _perfect_matching_exists(n: int, m: int, ia: np.ndarray, jb: np.ndarray,
@@ -55,10 +55,12 @@ def _perfect_matching_exists(n: int, m: int, ia: np.ndarray, jb: np.ndarray,
 
 def bisection_bottleneck(dgm_a: Any, dgm_b: Any, dim: int) -> float:
     """Exact bottleneck distance (the previous implementation; see the module)."""
-    fin_a, ess_a, fin_b, ess_b = _split(dgm_a, dgm_b, dim)
-    ess = _essential_costs(ess_a, ess_b)
-    if ess is None:
+    split = _split(dgm_a, dgm_b, dim)
+    if split.essential is None:
         return float("inf")
+    fin_a, fin_b = split.rows_a[split.finite_a], split.rows_b[split.finite_b]
+    ess = np.abs(split.rows_a[split.essential[:, 0], 0]
+                 - split.rows_b[split.essential[:, 1], 0])
     ess_cost = float(ess.max()) if len(ess) else 0.0
     n, m = len(fin_a), len(fin_b)
     if n + m == 0:

@@ -16,7 +16,14 @@ from hypothesis import strategies as st
 from scipy.optimize import linear_sum_assignment
 
 from cavitas import ParameterError
-from cavitas.cubical import PAIR_DTYPE, Diagram, bottleneck, bottleneck_matching, wasserstein
+from cavitas.cubical import (
+    PAIR_DTYPE,
+    Diagram,
+    bottleneck,
+    bottleneck_matching,
+    wasserstein,
+    wasserstein_matching,
+)
 from tests.bottleneck_bisection import bisection_bottleneck
 
 
@@ -91,9 +98,9 @@ _point = st.tuples(st.integers(0, 6), st.integers(0, 6)).map(
 _tiny = st.lists(_point, min_size=0, max_size=3)
 
 
-def matching_cost(a, b, found):
-    """Largest cost of a returned matching, after checking that it is one: every row of
-    each diagram used exactly once, finite with finite and essential with essential."""
+def matching_costs(a, b, found):
+    """Cost of every edge of a returned matching, after checking that it is one: every row
+    of each diagram used exactly once, finite with finite and essential with essential."""
     a = np.asarray(a, float).reshape(-1, 2)
     b = np.asarray(b, float).reshape(-1, 2)
     rows_a = np.concatenate([found.pairs[:, 0], found.diagonal_a])
@@ -106,10 +113,19 @@ def matching_cost(a, b, found):
     assert np.array_equal(np.isfinite(pa[:, 1]), np.isfinite(pb[:, 1]))
     gap = np.abs(pa - pb)
     gap[~np.isfinite(pa[:, 1]), 1] = 0.0  # essential: only the births count
-    costs = np.concatenate([gap.max(axis=1, initial=0.0),
-                            np.abs(a[found.diagonal_a, 0] - a[found.diagonal_a, 1]) / 2,
-                            np.abs(b[found.diagonal_b, 0] - b[found.diagonal_b, 1]) / 2])
-    return float(costs.max(initial=0.0))
+    return np.concatenate([gap.max(axis=1, initial=0.0),
+                           np.abs(a[found.diagonal_a, 0] - a[found.diagonal_a, 1]) / 2,
+                           np.abs(b[found.diagonal_b, 0] - b[found.diagonal_b, 1]) / 2])
+
+
+def matching_cost(a, b, found):
+    """Largest cost of a returned matching (what a bottleneck matching attains)."""
+    return float(matching_costs(a, b, found).max(initial=0.0))
+
+
+def power_cost(a, b, found, q):
+    """(sum of cost**q)**(1/q) of a returned matching (what a Wasserstein matching attains)."""
+    return float(np.sum(matching_costs(a, b, found) ** q)) ** (1.0 / q)
 
 
 @given(_tiny, _tiny)
@@ -159,10 +175,66 @@ def test_bottleneck_equals_the_previous_bisection_on_medium_diagrams(rng, size, 
 
 
 @given(_tiny, _tiny, st.sampled_from([1.0, 2.0, 3.5]))
-def test_wasserstein_matches_permutation_brute_force(a, b, q):
-    # reference: definition, Mileyko, Mukherjee & Harer 2011; Turner et al. 2014
-    assert wasserstein(a, b, 0, order=q) == pytest.approx(
-        brute_wasserstein(a, b, q), rel=1e-9, abs=1e-12)
+def test_wasserstein_matching_attains_the_brute_force_optimum(a, b, q):
+    # reference: definition (all permutations of the augmented matrix; Mileyko,
+    # Mukherjee & Harer 2011; Turner et al. 2014); the
+    # returned matching is a matching and its own cost is the distance
+    found = wasserstein_matching(a, b, 0, order=q)
+    assert found.order == q
+    assert found.distance == pytest.approx(brute_wasserstein(a, b, q), rel=1e-9, abs=1e-12)
+    assert power_cost(a, b, found, q) == pytest.approx(found.distance, rel=1e-12, abs=1e-12)
+
+
+@pytest.mark.parametrize("a, b, q, distance, pairs, diagonal_a, diagonal_b", [
+    # hand-worked from the definition: L∞ between points, half persistence to the diagonal
+    ([[3.0, 1.0]], [], 1, 1.0, [], [0], []),                       # (3 - 1) / 2
+    ([[3.0, 1.0]], [[3.5, 1.0]], 2, 0.5, [[0, 0]], [], []),         # 0.5 < sqrt(1 + 1.25²)
+    ([[10.0, 0.0]], [[4.0, 3.0]], 1, 5.5, [], [0], [0]),            # 5 + 0.5 beats max(6, 3)
+    ([[10.0, 0.0]], [[7.0, 1.0]], 1, 3.0, [[0, 0]], [], []),        # max(3, 1) beats 5 + 3
+    ([[10.0, 0.0]], [[7.0, 1.0]], 2, 3.0, [[0, 0]], [], []),        # 3 beats sqrt(25 + 9)
+    ([[5.0, -np.inf]], [[3.0, -np.inf]], 2, 2.0, [[0, 0]], [], []),  # essential: |5 - 3|
+    ([[5.0, -np.inf], [4.0, 3.0]], [[4.5, -np.inf]], 1, 1.0, [[0, 0]], [1], []),  # .5 + .5
+])
+def test_wasserstein_single_bar_cases_by_hand(a, b, q, distance, pairs, diagonal_a,
+                                              diagonal_b):
+    found = wasserstein_matching(a, b, 0, order=q)
+    assert found.distance == pytest.approx(distance, rel=1e-15)
+    assert found.pairs.tolist() == pairs
+    assert found.diagonal_a.tolist() == diagonal_a and found.diagonal_b.tolist() == diagonal_b
+
+
+def test_wasserstein_matches_assignment_on_the_full_augmented_matrix(rng):
+    # reference: scipy.optimize.linear_sum_assignment on the standard augmented matrix
+    # (each diagram plus the diagonal projections of the other's points, L∞ costs to the
+    # actual projection points; Cohen-Steiner, Edelsbrunner, Harer & Mileyko 2010)
+    for size, q in ((20, 1.0), (45, 2.0), (60, 1.5)):
+        births = rng.uniform(0, 50, size=(2, size))
+        a = np.column_stack([births[0], births[0] - rng.exponential(4.0, size)])
+        b = np.column_stack([births[1], births[1] - rng.exponential(4.0, size)])[: size - 7]
+        cost = _augmented_costs(a, b) ** q
+        rows, cols = linear_sum_assignment(cost)
+        expected = float(cost[rows, cols].sum()) ** (1 / q)
+        found = wasserstein_matching(a, b, 0, order=q)
+        assert found.distance == pytest.approx(expected, rel=1e-12)
+        assert power_cost(a, b, found, q) == pytest.approx(expected, rel=1e-12)
+
+
+def test_distances_agree_with_gudhi(rng):
+    # reference: gudhi (a general-purpose topology library, optional): bottleneck_distance
+    # with e=0 is exact; gudhi.wasserstein (needs POT) with the L∞ ground metric
+    gudhi = pytest.importorskip("gudhi")
+    for size in (15, 80):
+        births = rng.uniform(0, 30, size=(2, size))
+        a = np.column_stack([births[0] - rng.exponential(3.0, size), births[0]])
+        b = np.column_stack([births[1] - rng.exponential(3.0, size), births[1]])[:-3]
+        assert bottleneck(a, b, 0) == pytest.approx(gudhi.bottleneck_distance(a, b, 0.0),
+                                                    rel=1e-12)
+        pytest.importorskip("ot")
+        from gudhi.wasserstein import wasserstein_distance
+
+        for q in (1.0, 2.0):
+            theirs = wasserstein_distance(a, b, order=q, internal_p=np.inf)
+            assert wasserstein(a, b, 0, order=q) == pytest.approx(theirs, rel=1e-9)
 
 
 def test_bottleneck_matches_assignment_reference_on_larger_diagrams(rng):
@@ -242,6 +314,8 @@ def test_essential_classes():
     assert bottleneck(a, b[:2] + [[7.0, 1.0]], 0) == 3.0
     assert bottleneck(a, b[1:], 0) == math.inf
     assert wasserstein(a, b[1:], 0) == math.inf
+    unmatched = wasserstein_matching(a, b[1:], 0, order=2)
+    assert unmatched.pairs.shape == (0, 2) and unmatched.diagonal_a.size == 0
     assert bottleneck([[1.0, np.inf]], [[1.0, -np.inf]], 0) == math.inf
 
 

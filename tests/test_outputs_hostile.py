@@ -143,7 +143,8 @@ def test_interrupted_run_leaves_nothing_that_looks_complete(tmp_path, square_rin
     summary = segment_file(tmp_path / "ring.tif", out, progress=False, report=False)
     assert summary["outputs"]["labels"] == str(out / "labels.tif")
     assert sorted(p.name for p in out.iterdir()) == [
-        "diagram.csv", "diagram.png", "labels.tif", "regions.csv", "regions.json", "run.json"]
+        "diagram.csv", "diagram.png", "euler.csv", "labels.tif", "regions.csv", "regions.json",
+        "run.json"]
 
 
 def test_full_disk_leaves_no_partial_file(tmp_path, monkeypatch):

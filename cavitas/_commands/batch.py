@@ -20,8 +20,10 @@ Segment many images or volumes with the same parameters. INPUT may be files, fol
 Each input gets its own folder in OUTDIR, named after the file plus a short code of its
 full path, holding what `cavitas segment` writes and a done.json completion record.
 OUTDIR also gets summary.csv (one row per input: status, regions, porosity, noise,
-threshold, time, problem), regions.csv (every region of every input, with its source
-file), index.html (links to each report) and batch.json.
+threshold, the Euler characteristic and connectivity density of the segmented walls,
+time, problem; with --reference the distance of each input to a reference scan),
+regions.csv (every region of every input, with its source file), index.html (links to
+each report) and batch.json.
 
 An input that cannot be read or fails is recorded with one sentence and the others go on;
 the exit code is then 1 (3 when an input named on the command line does not exist).
@@ -43,6 +45,8 @@ examples:
       segment options as for `cavitas segment`
   cavitas batch scans/ -o results --no-report
       tables and label maps only: no report page per input
+  cavitas batch 'series/*.tif' -o results --reference series/day0.tif
+      each scan's distance to the day-0 scan in the summary (drift across a series)
   cavitas batch scans/ -o results --scheduler tcp://scheduler-host:8786
       send each input to a running Dask cluster (needs cavitas[cluster]; OUTDIR on a
       file system every worker can reach)
@@ -79,6 +83,15 @@ def register(subparsers: Any, *, parents: list[argparse.ArgumentParser],
                              help="write no report.html per input (tables, maps, run.json "
                                   "and the index are written); faster on large stacks")
     _segment.add_memory_option(run_options)
+    compare = parser.add_argument_group("comparing every scan with one")
+    compare.add_argument("--reference", metavar="FILE",
+                         help="an image (or a diagram file `cavitas diagram` wrote) to compare "
+                              "every input with: summary.csv and index.html get the bottleneck "
+                              "distance between each input's persistence diagram and the "
+                              "reference's, per dimension (columns to_reference_H0 ...), from "
+                              "the unsmoothed images with the run's walls, connectivity, mask "
+                              "and reading options; computed after the inputs, so changing it "
+                              "never re-runs them")
     _segment.add_segment_options(parser)
     parser.add_argument("--config", dest="params", metavar="FILE.toml",
                         help="same as --params: segmentation parameters from a TOML file")
@@ -99,7 +112,7 @@ def run(args: argparse.Namespace) -> int:
                        force=args.force, progress=args.progress,
                        read_options=settings.reading.kwargs(),
                        skip_memory_check=args.skip_memory_check,
-                       report=not args.no_report)
+                       report=not args.no_report, reference=args.reference)
     counts = {s: sum(r["status"] == s for r in result.results)
               for s in ("done", "reused", "failed")}
     for failure in result.failed:

@@ -14,6 +14,7 @@ from .._shared.atomic import atomic_path
 from .._table import Table
 from ..report._params_html import parameters_html
 from ..report._table_html import SORT_SCRIPT, format_value
+from ._summary import REFERENCE_PREFIX
 
 __all__ = ["index_html", "write_index"]
 
@@ -40,7 +41,9 @@ _COLUMNS = (
     ("porosity", "filled fraction [%]", 100.0),
     ("noise", "noise σ [intensity]", 1.0),
     ("threshold", "threshold [intensity]", 1.0),
-    ("seconds", "time [s]", 1.0),
+    ("walls_euler", "walls χ", 1.0),
+    ("connectivity_density", "loops per unit³ (²)", 1.0),
+    ("unit", "unit", 1.0),
 )
 
 
@@ -56,11 +59,12 @@ def _cell(value: Any, scale: float) -> str:
 
 
 def index_html(summary: Table, *, root: Path, params: Mapping[str, Any], version: str,
-               tables: Mapping[str, str]) -> str:
+               tables: Mapping[str, str], reference_name: str | None = None) -> str:
     """HTML text of the batch index for the rows of ``summary`` (see ``summary_table``).
 
-    One sortable row per input with its key figures (units once, in the headers) and a
-    link to its report; the parameters as a short list, the full record behind a fold.
+    One sortable row per input with its key figures (units once, in the headers; the
+    distances to ``reference_name`` when the summary has them) and a link to its report;
+    the parameters as a short list, the full record behind a fold.
     Every value from a file name or an error is escaped; links are relative, so the
     folder can be moved or shared as a whole.
 
@@ -75,6 +79,10 @@ def index_html(summary: Table, *, root: Path, params: Mapping[str, Any], version
     True
     """
     counts = {s: int((summary["status"] == s).sum()) for s in ("done", "reused", "failed")}
+    columns = [c for c in _COLUMNS if c[0] in summary] + [
+        (name, f"to reference H{name[len(REFERENCE_PREFIX):]} [intensity]", 1.0)
+        for name in summary.names if name.startswith(REFERENCE_PREFIX)] + [
+        ("seconds", "time [s]", 1.0)]
     rows = []
     for row in summary:
         name = row["output"]
@@ -84,19 +92,23 @@ def index_html(summary: Table, *, root: Path, params: Mapping[str, Any], version
             links.append(f'<a href="{quote(name)}/report.html">report</a>')
         if name:
             links.append(f'<a href="{quote(name)}/">folder</a>')
-        figures = "".join(_cell(row[key], scale) for key, _, scale in _COLUMNS)
+        figures = "".join(_cell(row[key], scale) for key, _, scale in columns)
         rows.append(
             f'<tr class="{_esc(row["status"])}"><td data-v="{_esc(row["input"])}">'
             f'{_esc(row["input"])}</td><td class="status" data-v="{_esc(row["status"])}">'
             f'{_esc(row["status"])}</td>{figures}<td data-v="">{" · ".join(links)}</td>'
             f'<td data-v="{_esc(row["error"])}">{_esc(row["error"])}</td></tr>'
         )
-    heads = ["input", "status", *(head for _, head, _ in _COLUMNS), "outputs", "problem"]
+    heads = ["input", "status", *(head for _, head, _ in columns), "outputs", "problem"]
     head_html = "".join(f'<th scope="col" aria-sort="none"><button type="button">'
                         f"{_esc(h)}</button></th>" for h in heads)
     table_links = " · ".join(f'<a href="{quote(f)}">{_esc(label)}</a>'
                              for label, f in tables.items())
     when = datetime.now(timezone.utc).strftime("%Y-%m-%d %H:%M UTC")
+    reference = (f" The distance to the reference scan {_esc(reference_name)} is the "
+                 "bottleneck distance between the persistence diagrams of the unsmoothed "
+                 "scans (intensity units): the largest shift that matching one diagram's "
+                 "features onto the other's needs." if reference_name else "")
     return f"""<!DOCTYPE html>
 <html lang="en"><head><meta charset="utf-8">
 <meta name="viewport" content="width=device-width, initial-scale=1">
@@ -110,7 +122,10 @@ def index_html(summary: Table, *, root: Path, params: Mapping[str, Any], version
 <p>Click a column name to sort. Regions cut by the scan border are listed in each report
 but left out of the count and of the filled fraction (the share of the image inside whole
 regions: area fraction in 2D, closed porosity in 3D). Noise and threshold are in the
-input's intensity units.</p>
+input's intensity units. The walls are every voxel in no region (regions cut by the
+border count as regions); χ is their Euler characteristic and their loops per unit volume
+(area in 2D) the connectivity density, per cubed (squared) unit of the unit
+column.{reference}</p>
 <div class="wrap"><table class="sortable" id="inputs"><thead><tr>{head_html}</tr></thead>
 <tbody>
 {chr(10).join(rows)}

@@ -28,6 +28,7 @@ from ._index import write_index
 from ._inputs import expand_inputs, missing_sentence
 from ._lock import folder_lock
 from ._memory import MEMORY_SHARE, available_memory, estimate_task_bytes
+from ._reference import add_reference_distances, reference_source
 from ._resume import json_ready, remove_stale
 from ._summary import combined_regions, summary_table
 from ._task import DEFAULT_WORKER, FAILED, Task
@@ -108,7 +109,8 @@ def run_batch(inputs: Sequence[str | os.PathLike], outdir: str | os.PathLike,
               scheduler: str | None = None, dask: bool = False, force: bool = False,
               progress: bool = True, read_options: Mapping[str, Any] | None = None,
               worker: str = DEFAULT_WORKER, memory_budget: int | None = None,
-              skip_memory_check: bool = False, report: bool = True) -> BatchResult:
+              skip_memory_check: bool = False, report: bool = True,
+              reference: str | os.PathLike | None = None) -> BatchResult:
     """Process many inputs into ``outdir``: one folder per input plus batch-wide tables.
 
     Each input gets ``outdir/<name>-<hash>/`` (its segmentation outputs and a ``done.json``
@@ -153,6 +155,12 @@ def run_batch(inputs: Sequence[str | os.PathLike], outdir: str | os.PathLike,
     report : bool, optional
         Write each input's ``report.html`` (False: tables, maps and ``run.json`` only;
         recorded like the parameters, so a folder made with the other choice is not reused).
+    reference : path or str, optional
+        An image, or a diagram file ``cavitas diagram`` wrote, to compare every input
+        with: the summary gets the bottleneck distance of each input's diagram to the
+        reference's per dimension (``to_reference_H0`` ...; unsmoothed images, the run's
+        walls, connectivity, mask and reading options). Computed by this process after
+        the inputs are done, so a new reference never makes an input run again.
 
     Returns
     -------
@@ -197,6 +205,8 @@ def run_batch(inputs: Sequence[str | os.PathLike], outdir: str | os.PathLike,
         record["read_options"] = json_ready(dict(read_options))
     if not report:
         record["report"] = False
+    ref = None if reference is None else reference_source(str(reference), params, options,
+                                                          read_options)
     tasks = [Task(path=str(item.path), name=item.name, root=str(root), params=params,
                   options=options, record=record, force=force, worker=worker,
                   read_options=dict(read_options or {}),
@@ -206,8 +216,11 @@ def run_batch(inputs: Sequence[str | os.PathLike], outdir: str | os.PathLike,
         remove_stale(root)
         results = _execute(tasks, jobs=jobs, scheduler=scheduler, dask=dask,
                            progress=progress, memory_budget=memory_budget)
+        if ref is not None:
+            add_reference_distances(results, ref, params, options, read_options)
         results += [_missing_result(text) for text in missing]
-        files = _write_batch_files(root, results, record, started)
+        files = _write_batch_files(root, results, record, started,
+                                   reference=None if ref is None else ref.path)
     return BatchResult(results, root, files)
 
 
@@ -249,7 +262,7 @@ def _execute(tasks: list[Task], *, jobs: int, scheduler: str | None, dask: bool,
 
 
 def _write_batch_files(root: Path, results: list[dict[str, Any]], record: dict[str, Any],
-                       started: datetime) -> dict[str, Path]:
+                       started: datetime, *, reference: str | None = None) -> dict[str, Path]:
     files = {name: root / name for name in (SUMMARY_NAME, REGIONS_NAME, INDEX_NAME,
                                              RECORD_NAME)}
     summary = summary_table(results)
@@ -257,10 +270,11 @@ def _write_batch_files(root: Path, results: list[dict[str, Any]], record: dict[s
     combined_regions(results, root).to_csv(files[REGIONS_NAME], force=True)
     write_index(files[INDEX_NAME], summary, root=root, params=record, version=__version__,
                 tables={"summary": SUMMARY_NAME, "all regions": REGIONS_NAME,
-                        "run record": RECORD_NAME})
+                        "run record": RECORD_NAME}, reference_name=reference)
     batch = {
         "version": __version__,
         "params": record,
+        "reference": reference,
         "started": started.isoformat(timespec="seconds"),
         "finished": datetime.now(timezone.utc).isoformat(timespec="seconds"),
         "inputs": [{k: r[k] for k in ("input", "name", "status", "error")} for r in results],

@@ -12,7 +12,10 @@ from .._caution import RESEARCH_ONLY
 from .._table import Table
 from ._task import FAILED
 
-__all__ = ["SUMMARY_COLUMNS", "combined_regions", "summary_table"]
+__all__ = ["REFERENCE_PREFIX", "SUMMARY_COLUMNS", "combined_regions", "summary_table"]
+
+#: Summary keys of the distances to a reference scan: ``to_reference_H0`` ...
+REFERENCE_PREFIX = "to_reference_H"
 
 #: Summary columns taken from each worker's figures: column name -> keys tried in order.
 SUMMARY_COLUMNS: dict[str, tuple[str, ...]] = {
@@ -22,6 +25,9 @@ SUMMARY_COLUMNS: dict[str, tuple[str, ...]] = {
     "porosity": ("porosity", "volume_fraction"),
     "noise": ("noise",),
     "threshold": ("threshold",),
+    "walls_euler": ("walls_euler",),
+    "connectivity_density": ("connectivity_density",),
+    "unit": ("unit",),
 }
 
 
@@ -33,6 +39,9 @@ def _figure(summary: Mapping[str, Any], keys: tuple[str, ...]) -> Any:
 def summary_table(results: Sequence[Mapping[str, Any]]) -> Table:
     """One row per input: where it went, its status, main figures, time and error sentence.
 
+    The figures are :data:`SUMMARY_COLUMNS`, then the distances to a reference scan
+    (``to_reference_H0`` ...) when the inputs' summaries have them.
+
     Examples
     --------
     >>> rows = [{"input": "/d/a.tif", "name": "a-1", "status": "done", "seconds": 1.5,
@@ -43,15 +52,18 @@ def summary_table(results: Sequence[Mapping[str, Any]]) -> Table:
     >>> t["status"].tolist(), t["regions"].tolist(), t.header()[-2]
     (['done', 'failed'], [3, nan], 'seconds [s]')
     """
+    figures = dict(SUMMARY_COLUMNS)
+    figures.update({key: (key,) for key in sorted(
+        {k for r in results for k in (r.get("summary") or {}) if k.startswith(REFERENCE_PREFIX)})})
     columns: dict[str, list[Any]] = {"input": [], "output": [], "status": []}
-    columns.update({name: [] for name in SUMMARY_COLUMNS})
+    columns.update({name: [] for name in figures})
     columns.update(seconds=[], error=[])
     for result in results:
         summary = result.get("summary") or {}
         columns["input"].append(str(result["input"]))
         columns["output"].append("" if result["status"] == FAILED else result["name"])
         columns["status"].append(result["status"])
-        for name, keys in SUMMARY_COLUMNS.items():
+        for name, keys in figures.items():
             columns[name].append(_figure(summary, keys))
         columns["seconds"].append(float(result.get("seconds") or 0.0))
         columns["error"].append(result.get("error", ""))

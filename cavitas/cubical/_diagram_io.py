@@ -30,7 +30,7 @@ from .._errors import InputFileError, ParameterError
 from .._shared.atomic import atomic_path
 from ._diagram import PAIR_DTYPE, Diagram
 
-__all__ = ["FORMAT_VERSION", "load_diagram", "save_diagram"]
+__all__ = ["FORMAT_VERSION", "is_diagram_file", "load_diagram", "save_diagram"]
 
 #: Version of both file layouts; bumped when a layout changes incompatibly.
 FORMAT_VERSION = 1
@@ -180,6 +180,34 @@ def _write_csv(dgm: Diagram, tmp: Path, extras: dict[str, dict[int, np.ndarray]]
             for per_dim in extras.values():
                 columns.append(_text(per_dim[dim]) if dim in per_dim else [""] * len(rows))
             writer.writerows(zip(*columns, strict=True))
+
+
+def is_diagram_file(path: str | os.PathLike) -> bool:
+    """Whether ``path`` looks like a file :func:`save_diagram` wrote (a quick look at its
+    first line or its list of arrays; :func:`load_diagram` checks the rest).
+
+    A ``.csv`` file is one when it starts with the format line; an ``.npz`` file when it
+    holds a ``format`` array (other ``.npz`` files are images).
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> folder = pathlib.Path(tempfile.mkdtemp())
+    >>> np.savez(folder / "image.npz", data=np.zeros((4, 4)))
+    >>> is_diagram_file(folder / "image.npz"), is_diagram_file(folder / "missing.csv")
+    (False, False)
+    """
+    path = Path(path)
+    try:
+        if path.suffix.lower() == ".csv":
+            with open(path, encoding="utf-8", errors="replace") as fh:
+                return fh.readline().startswith(f"# {_FORMAT_NAME} (format ")
+        if path.suffix.lower() == ".npz":
+            with zipfile.ZipFile(path) as archive:
+                return "format.npy" in archive.namelist()
+    except (OSError, zipfile.BadZipFile):
+        return False
+    return False
 
 
 def load_diagram(path: str | os.PathLike, *, extra: bool = False) -> Any:

@@ -13,11 +13,13 @@ from typing import Any
 
 import numpy as np
 
+from .._checks import number
 from .._errors import ParameterError
 from ._diagram import Diagram
 from ._geometric_matching import merge_matchings, saturate_heavy
 
-__all__ = ["BottleneckMatching", "bottleneck", "bottleneck_matching", "wasserstein"]
+__all__ = ["BottleneckMatching", "Matching", "WassersteinMatching", "bottleneck",
+           "bottleneck_matching", "wasserstein", "wasserstein_matching"]
 
 #: Largest number of finite points (both diagrams together) for the exact Wasserstein
 #: distance: its dense cost matrix holds this many squared float64 values.
@@ -49,13 +51,6 @@ def _rows(dgm: Any, dim: int, name: str) -> np.ndarray:
     return pts
 
 
-def _points(dgm: Any, dim: int, name: str) -> tuple[np.ndarray, np.ndarray]:
-    """Split one diagram's ``dim`` pairs into finite points (k, 2) and essential (birth, sign)."""
-    pts = _rows(dgm, dim, name)
-    finite = np.isfinite(pts[:, 1])
-    return pts[finite], pts[~finite]
-
-
 def _check_polarity(dgm_a: Any, dgm_b: Any) -> None:
     if isinstance(dgm_a, Diagram) and isinstance(dgm_b, Diagram) and dgm_a.walls != dgm_b.walls:
         raise ParameterError(
@@ -64,11 +59,28 @@ def _check_polarity(dgm_a: Any, dgm_b: Any) -> None:
         )
 
 
-def _split(dgm_a: Any, dgm_b: Any, dim: int) -> tuple[np.ndarray, ...]:
+@dataclass(frozen=True)
+class _Split:
+    """Two diagrams' ``dim`` rows, which of them are finite, and the essential matching:
+    rows ``(i, j)`` into ``rows_a`` and ``rows_b``, or ``None`` when the counts differ."""
+
+    rows_a: np.ndarray
+    rows_b: np.ndarray
+    finite_a: np.ndarray
+    finite_b: np.ndarray
+    essential: np.ndarray | None
+
+
+def _split(dgm_a: Any, dgm_b: Any, dim: int) -> _Split:
     _check_polarity(dgm_a, dgm_b)
-    fin_a, ess_a = _points(dgm_a, dim, "dgm_a")
-    fin_b, ess_b = _points(dgm_b, dim, "dgm_b")
-    return fin_a, ess_a, fin_b, ess_b
+    rows_a, rows_b = _rows(dgm_a, dim, "dgm_a"), _rows(dgm_b, dim, "dgm_b")
+    finite_a, finite_b = np.isfinite(rows_a[:, 1]), np.isfinite(rows_b[:, 1])
+    ess_a, ess_b = np.flatnonzero(~finite_a), np.flatnonzero(~finite_b)
+    pairs = _essential_pairs(rows_a[ess_a], rows_b[ess_b])
+    essential = None if pairs is None else np.column_stack(
+        [ess_a[pairs[:, 0]], ess_b[pairs[:, 1]]]).reshape(-1, 2)
+    return _Split(rows_a, rows_b, np.flatnonzero(finite_a), np.flatnonzero(finite_b),
+                  essential)
 
 
 def _essential_pairs(ess_a: np.ndarray, ess_b: np.ndarray) -> np.ndarray | None:
@@ -90,25 +102,19 @@ def _essential_pairs(ess_a: np.ndarray, ess_b: np.ndarray) -> np.ndarray | None:
     return np.concatenate(pairs)
 
 
-def _essential_costs(ess_a: np.ndarray, ess_b: np.ndarray) -> np.ndarray | None:
-    """Birth differences of the optimal essential matching, or ``None`` if counts differ."""
-    pairs = _essential_pairs(ess_a, ess_b)
-    return None if pairs is None else np.abs(ess_a[pairs[:, 0], 0] - ess_b[pairs[:, 1], 0])
-
-
 def _half_persistence(pts: np.ndarray) -> np.ndarray:
     return np.abs(pts[:, 0] - pts[:, 1]) / 2.0
 
 
 @dataclass(frozen=True)
-class BottleneckMatching:
-    """An optimal bottleneck matching of two diagrams and its cost.
+class Matching:
+    """An optimal matching of two diagrams' ``dim`` pairs and its cost.
 
     Attributes
     ----------
     distance : float
-        The bottleneck distance (``inf`` if the numbers of essential classes differ; the
-        matching is then empty).
+        The distance the matching attains (``inf`` if the numbers of essential classes
+        differ; the matching is then empty).
     pairs : ndarray of int64, shape (k, 2)
         Rows ``(i, j)``: row ``i`` of the first diagram's ``dim`` pairs is matched with row
         ``j`` of the second's (finite with finite, essential with essential).
@@ -120,6 +126,30 @@ class BottleneckMatching:
     pairs: np.ndarray
     diagonal_a: np.ndarray
     diagonal_b: np.ndarray
+
+
+@dataclass(frozen=True)
+class BottleneckMatching(Matching):
+    """A matching whose largest cost is the bottleneck distance (see :class:`Matching`)."""
+
+
+@dataclass(frozen=True)
+class WassersteinMatching(Matching):
+    """A matching whose costs give the ``order``-Wasserstein distance (see :class:`Matching`).
+
+    Attributes
+    ----------
+    order : float
+        The exponent ``q``: ``distance = (sum of cost**q) ** (1/q)``.
+    """
+
+    order: float = 1.0
+
+
+def _no_matching() -> tuple[float, np.ndarray, np.ndarray, np.ndarray]:
+    """The fields of the empty matching at infinite distance (essential counts differ)."""
+    nothing = np.empty(0, np.int64)
+    return float("inf"), nothing.reshape(0, 2), nothing, nothing
 
 
 def _float_bits(value: float) -> int:
@@ -232,16 +262,11 @@ def bottleneck_matching(dgm_a: Any, dgm_b: Any, dim: int) -> BottleneckMatching:
     >>> found.distance, found.pairs.tolist(), found.diagonal_a.tolist()
     (0.5, [[0, 0]], [1])
     """
-    _check_polarity(dgm_a, dgm_b)
-    rows_a, rows_b = _rows(dgm_a, dim, "dgm_a"), _rows(dgm_b, dim, "dgm_b")
-    finite_a, finite_b = np.isfinite(rows_a[:, 1]), np.isfinite(rows_b[:, 1])
-    index_a, index_b = np.flatnonzero(finite_a), np.flatnonzero(finite_b)
-    ess_a, ess_b = np.flatnonzero(~finite_a), np.flatnonzero(~finite_b)
-    ess_pairs = _essential_pairs(rows_a[ess_a], rows_b[ess_b])
-    if ess_pairs is None:
-        nothing = np.empty(0, np.int64)
-        return BottleneckMatching(float("inf"), nothing.reshape(0, 2), nothing, nothing)
-    ess = np.column_stack([ess_a[ess_pairs[:, 0]], ess_b[ess_pairs[:, 1]]])
+    split = _split(dgm_a, dgm_b, dim)
+    if split.essential is None:
+        return BottleneckMatching(*_no_matching())
+    rows_a, rows_b, ess = split.rows_a, split.rows_b, split.essential
+    index_a, index_b = split.finite_a, split.finite_b
     ess_cost = float(np.abs(rows_a[ess[:, 0], 0] - rows_b[ess[:, 1], 0]).max(initial=0.0))
     delta, partner = _matching_of_finite(rows_a[index_a], rows_b[index_b])
     matched = partner >= 0
@@ -292,8 +317,14 @@ def _lower_bound(fin_a: np.ndarray, fin_b: np.ndarray, tree_a: Any, tree_b: Any,
     return bound
 
 
-def wasserstein(dgm_a: Any, dgm_b: Any, dim: int, *, order: float = 1.0) -> float:
-    """Exact ``order``-Wasserstein distance between the ``dim`` pairs of two diagrams.
+def _checked_order(order: Any) -> float:
+    return number("order", order, low=1.0)
+
+
+def wasserstein_matching(dgm_a: Any, dgm_b: Any, dim: int, *,
+                         order: float = 1.0) -> WassersteinMatching:
+    """Exact ``order``-Wasserstein distance between the ``dim`` pairs of two diagrams, with
+    a matching that attains it.
 
     Parameters
     ----------
@@ -306,10 +337,11 @@ def wasserstein(dgm_a: Any, dgm_b: Any, dim: int, *, order: float = 1.0) -> floa
 
     Returns
     -------
-    float
-        ``(min over matchings of the sum of cost**q) ** (1/q)`` with L∞ costs between
-        points and half the persistence to the diagonal; ``inf`` if the numbers of
-        essential classes differ.
+    WassersteinMatching
+        ``distance = (min over matchings of the sum of cost**q) ** (1/q)`` with L∞ costs
+        between points and half the persistence to the diagonal, and which rows are
+        matched with which or with the diagonal. ``inf`` (and an empty matching) if the
+        numbers of essential classes differ.
 
     Raises
     ------
@@ -319,37 +351,44 @@ def wasserstein(dgm_a: Any, dgm_b: Any, dim: int, *, order: float = 1.0) -> floa
 
     Notes
     -----
-    The optimal matching is an assignment problem on the ``(n + m) x (n + m)`` augmented
-    cost matrix (each diagram plus the diagonal projections of the other's points),
-    solved exactly by :func:`scipy.optimize.linear_sum_assignment` in ``O((n + m)^3)``
-    time and ``O((n + m)^2)`` memory. Essential classes are matched in birth order.
+    Essential classes of the same death sign are matched among themselves in order of
+    birth, at cost ``|birth_a - birth_b|`` (on a line the sorted matching minimises any
+    convex cost). The finite points are an assignment problem on the ``(n + m) x (n + m)``
+    augmented cost matrix: each diagram plus one diagonal slot per point of the other, a
+    point to any diagonal slot at half its persistence, two diagonal slots at 0 (the
+    formulation of Kerber, Morozov & Nigmetov 2017, from memory), solved exactly by
+    :func:`scipy.optimize.linear_sum_assignment` in ``O((n + m)^3)`` time and
+    ``O((n + m)^2)`` memory.
 
     References
     ----------
     Y. Mileyko, S. Mukherjee, J. Harer, "Probability measures on the space of persistence
     diagrams", Inverse Problems 27 (2011) 124007. doi:10.1088/0266-5611/27/12/124007
+    D. Cohen-Steiner, H. Edelsbrunner, J. Harer, Y. Mileyko, "Lipschitz functions have
+    Lp-stable persistence", Found. Comput. Math. 10 (2010) 127-139 (from memory).
+    M. Kerber, D. Morozov, A. Nigmetov, "Geometry helps to compare persistence diagrams",
+    ACM J. Exp. Algorithmics 22 (2017) (from memory).
 
     Examples
     --------
-    >>> wasserstein([[3.0, 1.0], [6.0, 2.0]], [], dim=0)   # 1 + 2
-    3.0
-    >>> round(wasserstein([[3.0, 1.0], [6.0, 2.0]], [], dim=0, order=2), 6)  # sqrt(1 + 4)
-    2.236068
+    >>> found = wasserstein_matching([[5.0, 1.0], [2.0, 1.9]], [[4.5, 1.0]], dim=0)
+    >>> round(found.distance, 6), found.pairs.tolist(), found.diagonal_a.tolist()
+    (0.55, [[0, 0]], [1])
     """
-    order = float(order)
-    if not (np.isfinite(order) and order >= 1.0):
-        raise ParameterError(f"order must be a finite number >= 1; got {order}.")
-    fin_a, ess_a, fin_b, ess_b = _split(dgm_a, dgm_b, dim)
-    ess = _essential_costs(ess_a, ess_b)
-    if ess is None:
-        return float("inf")
+    order = _checked_order(order)
+    split = _split(dgm_a, dgm_b, dim)
+    if split.essential is None:
+        return WassersteinMatching(*_no_matching(), order=order)
+    rows_a, rows_b, ess = split.rows_a, split.rows_b, split.essential
+    fin_a, fin_b = rows_a[split.finite_a], rows_b[split.finite_b]
     n, m = len(fin_a), len(fin_b)
     if n + m > MAX_WASSERSTEIN_POINTS:
         raise ParameterError(
             f"The two diagrams hold {n + m} finite points in H{dim}; the exact Wasserstein "
-            f"distance is limited to {MAX_WASSERSTEIN_POINTS}. Drop low-persistence pairs first."
-        )
-    total = float(np.sum(ess**order))
+            f"distance is limited to {MAX_WASSERSTEIN_POINTS}. Leave out the pairs of low "
+            "persistence first (min_persistence=).", parameters=("min_persistence",))
+    total = float(np.sum(np.abs(rows_a[ess[:, 0], 0] - rows_b[ess[:, 1], 0]) ** order))
+    rows = cols = np.empty(0, np.int64)
     if n + m:
         cost = np.zeros((n + m, n + m))
         cost[:n, :m] = np.max(np.abs(fin_a[:, None, :] - fin_b[None, :, :]), axis=2)
@@ -360,4 +399,32 @@ def wasserstein(dgm_a: Any, dgm_b: Any, dim: int, *, order: float = 1.0) -> floa
 
         rows, cols = linear_sum_assignment(cost)
         total += float(cost[rows, cols].sum())
-    return total ** (1.0 / order)
+    real_a, real_b = rows < n, cols < m
+    pairs = np.column_stack([split.finite_a[rows[real_a & real_b]],
+                             split.finite_b[cols[real_a & real_b]]])
+    return WassersteinMatching(total ** (1.0 / order), np.concatenate([pairs, ess]),
+                               split.finite_a[rows[real_a & ~real_b]],
+                               split.finite_b[cols[~real_a & real_b]], order=order)
+
+
+def wasserstein(dgm_a: Any, dgm_b: Any, dim: int, *, order: float = 1.0) -> float:
+    """Exact ``order``-Wasserstein distance between the ``dim`` pairs of two diagrams.
+
+    The distance of :func:`wasserstein_matching` (see there for the parameters, the
+    method and the errors).
+
+    Returns
+    -------
+    float
+        ``(min over matchings of the sum of cost**q) ** (1/q)`` with L∞ costs between
+        points and half the persistence to the diagonal; ``inf`` if the numbers of
+        essential classes differ.
+
+    Examples
+    --------
+    >>> wasserstein([[3.0, 1.0], [6.0, 2.0]], [], dim=0)   # 1 + 2
+    3.0
+    >>> round(wasserstein([[3.0, 1.0], [6.0, 2.0]], [], dim=0, order=2), 6)  # sqrt(1 + 4)
+    2.236068
+    """
+    return wasserstein_matching(dgm_a, dgm_b, dim, order=order).distance

@@ -18,6 +18,7 @@ from .._shared.atomic import atomic_path, check_writable
 from .._table import Table
 from .._version import __version__
 from ..cubical._diagram import Diagram
+from ..cubical._euler import ConnectivityDensity, EulerCurve
 from ._browser import BROWSER_SCRIPT, browser_html, embed_scan
 from ._encode import data_uri, figure_png
 from ._findings import findings_html, gather_findings
@@ -28,8 +29,10 @@ from ._regions import region_centroids
 from ._render import intensity_window
 from ._slices import plot_region_slices
 from ._table_html import SORT_SCRIPT, TABLE_SCRIPT, region_table_html
+from ._topology_html import euler_caption, topology_html
 from ._words import Words
 from .diagram_plots import plot_barcode, plot_diagram
+from .euler_plot import plot_euler_curve
 
 __all__ = ["write_report"]
 
@@ -191,7 +194,8 @@ def write_report(path: str | os.PathLike, *, image: np.ndarray, labels: np.ndarr
                  figures: Mapping[str, Any], title: str | None = None,
                  source: str | os.PathLike | None = None, force: bool = False,
                  max_rows: int = 5000, scan_budget: int = 9_000_000,
-                 notes: Sequence[str] = ()) -> Path:
+                 notes: Sequence[str] = (), euler: EulerCurve | None = None,
+                 wall_topology: ConnectivityDensity | None = None) -> Path:
     """Write a single self-contained HTML page that shows a segmentation.
 
     The page opens with what was found (counts, the size distribution, the filled
@@ -199,11 +203,13 @@ def write_report(path: str | os.PathLike, *, image: np.ndarray, labels: np.ndarr
     overview picture (the slice crossing most regions, each region filled and numbered,
     a scale bar). Then a slice browser over every slice along every axis (the region
     under the pointer is named, a click picks its table row), the region table (sortable,
-    downloadable as CSV), the persistence diagram with a caption on how to read it, the
-    parameters (set by hand / chosen from the data, the full record behind a fold) and
-    closer looks at the least certain and the largest region. 2D images are described in
-    2D words (area, perimeter, circularity, pixels). The research-only caution stays at
-    the top and the bottom. Pictures are inlined; the page loads nothing and works offline.
+    downloadable as CSV), the persistence diagram with a caption on how to read it, how
+    the walls connect (when given: their Betti numbers, connectivity density and Euler
+    characteristic curve), the parameters (set by hand / chosen from the data, the full
+    record behind a fold) and closer looks at the least certain and the largest region.
+    2D images are described in 2D words (area, perimeter, circularity, pixels). The
+    research-only caution stays at the top and the bottom. Pictures are inlined; the page
+    loads nothing and works offline.
 
     Parameters
     ----------
@@ -239,6 +245,11 @@ def write_report(path: str | os.PathLike, *, image: np.ndarray, labels: np.ndarr
         scans are shown block-averaged.
     notes : sequence of str
         Warnings and remarks of the run, listed at the top (e.g. what set the threshold).
+    euler : EulerCurve, optional
+        The Euler characteristic curve of the image, drawn in the section on how the
+        walls connect (see :func:`cavitas.workflow.wall_topology`).
+    wall_topology : ConnectivityDensity, optional
+        Betti numbers and connectivity density of the segmented walls, listed there too.
 
     Returns
     -------
@@ -330,6 +341,13 @@ def write_report(path: str | os.PathLike, *, image: np.ndarray, labels: np.ndarr
         "dashed outlines mark regions cut by the scan border." if n else ""]))
     table = region_table_html(regions, centroids, ndim=image.ndim, max_rows=max_rows) if n \
         else ""
+    connect = ""
+    if euler is not None or wall_topology is not None:
+        facts = topology_html(wall_topology, ndim=image.ndim) if wall_topology else ""
+        curve = (_figure(plot_euler_curve(euler), euler_caption(euler, ndim=image.ndim))
+                 if euler is not None else "")
+        connect = (f'<section id="connectivity"><h2>How the walls connect</h2>{facts}'
+                   f'<div class="plots">{curve}</div></section>\n')
     page = f"""<!DOCTYPE html>
 <html lang="en"><head><meta charset="utf-8">
 <meta http-equiv="Content-Security-Policy" content="{_CSP}">
@@ -349,7 +367,7 @@ def write_report(path: str | os.PathLike, *, image: np.ndarray, labels: np.ndarr
 <section id="table"><h2>Regions</h2>{table or "<p>No region to list.</p>"}</section>
 <section id="persistence"><h2>How regions were told from noise</h2><div class="plots">
 {_diagram_figures(diagram, kept, threshold, smoothing, unit)}</div></section>
-<section id="parameters"><h2>Parameters</h2>
+{connect}<section id="parameters"><h2>Parameters</h2>
 {parameters_html(params, unit, element=words.element)}</section>
 <section id="plots"><h2>Closer looks</h2><div class="plots">{"".join(closer)}</div></section>
 </main>
