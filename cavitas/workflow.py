@@ -575,11 +575,40 @@ def image_note(image: np.ndarray, regions: int) -> str | None:
     return None
 
 
+def scale_note(params: dict[str, Any]) -> str | None:
+    """One sentence on regions taken from another smoothing scale (None when there are none).
+
+    Examples
+    --------
+    >>> scale_note({"regions_from_other_scales": {"split": 2, "pieces": 5, "added": 1},
+    ...             "smooth_sigma": 1.5, "unit": "µm"})[:62]
+    '2 regions that the smoothing (σ 1.5 µm) merged were separated '
+    >>> scale_note({"regions_from_other_scales": {"split": 0, "pieces": 0, "added": 0}})
+    """
+    taken = params.get("regions_from_other_scales") or {}
+    split, pieces, added = (int(taken.get(k, 0)) for k in ("split", "pieces", "added"))
+    if not (split or added):
+        return None
+    parts = []
+    if split:
+        parts.append(f"{split} region{'s' if split > 1 else ''} that the smoothing "
+                     f"(σ {params.get('smooth_sigma', 0):.3g} {params.get('unit', '')}) merged "
+                     f"{'were' if split > 1 else 'was'} separated into {pieces} at a finer "
+                     "one")
+    if added:
+        parts.append(f"{added} region{'s' if added > 1 else ''} that only another "
+                     f"smoothing found clearly {'were' if added > 1 else 'was'} added")
+    sentence = "; ".join(parts)
+    return (sentence[0].upper() + sentence[1:] + " (each region's scale is its "
+            "detection_scale in regions.csv).")
+
+
 def run_notes(seg: Any) -> dict[str, str | None]:
     """The sentences a run adds to its summary and report (None where there is nothing)."""
     chambers = int(np.count_nonzero(seg.regions["kind"] == "chamber")) if len(seg.regions) else 0
     return {"polarity_hint": seg.params.get("polarity_hint"),
             "threshold_basis": threshold_basis(seg.params),
+            "scale_note": scale_note(seg.params),
             "border_note": border_note(seg.regions),
             "image_note": image_note(np.asarray(seg.volume.data), chambers)}
 

@@ -209,7 +209,7 @@ def run(args: argparse.Namespace) -> int:
               f"{summary['threshold']:.4g} (intensity units), smoothing σ "
               f"{summary['smooth_sigma']:.3g} {unit}")
         for note in (summary["polarity_hint"], summary["threshold_basis"],
-                     summary["border_note"], summary["image_note"]):
+                     summary["scale_note"], summary["border_note"], summary["image_note"]):
             if note:
                 print(f"  {note}")
         if summary["porosity"] is not None and summary["regions"]:
