@@ -130,16 +130,19 @@ def plot_overview(image: np.ndarray, labels: np.ndarray, *, spacing: Sequence[fl
     sum_r = np.bincount(where[fill], rows[fill], minlength=len(ids))
     sum_c = np.bincount(where[fill], cols[fill], minlength=len(ids))
     font = 9 if len(ids) < 60 else 7
+    bar = nice_length(width)
+    pad, thick = 0.03 * width, 0.018 * height
+    box_x, box_y = pad / 2, height - 2 * pad - 0.09 * height
+    box_w, box_h = bar + pad, 0.09 * height + 1.5 * pad
     for k in np.argsort(-sizes)[:max_numbers]:
         if sizes[k] < 12:
             break
         y, x = (sum_r[k] / sizes[k] + 0.5) * factor * dy, (sum_c[k] / sizes[k] + 0.5) * factor * dx
+        if x < box_x + box_w + pad and y > box_y - pad:
+            continue  # under the scale bar: the table and the slice browser still name it
         ax.text(x, y, str(int(ids[k])), ha="center", va="center", fontsize=font,
                 color="black", path_effects=_HALO)
-    bar = nice_length(width)
-    pad, thick = 0.03 * width, 0.018 * height
-    ax.add_patch(Rectangle((pad / 2, height - 2 * pad - 0.09 * height), bar + pad,
-                           0.09 * height + 1.5 * pad, facecolor="white", alpha=0.85,
+    ax.add_patch(Rectangle((box_x, box_y), box_w, box_h, facecolor="white", alpha=0.85,
                            edgecolor="black", linewidth=0.8))
     ax.add_patch(Rectangle((pad, height - pad - thick), bar, thick, facecolor="black"))
     ax.text(pad + bar / 2, height - pad - 1.6 * thick, f"{bar:g} {unit}", ha="center",
