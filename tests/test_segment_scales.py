@@ -79,14 +79,16 @@ def test_plan_asks_the_coarsest_finer_scale_and_ignores_coarser_ones():
     base, _ = _two_cells()
     two = np.array([np.ravel_multi_index(p, base.shape) for p in [(2, 2), (2, 6)]])
     clear = np.full(2, 2.0)
-    finest = ScaleSeeds(np.array([0.0, 0.0]), two, clear)
-    finer = ScaleSeeds(np.array([0.5, 0.5]), two, clear)
-    coarser = ScaleSeeds(np.array([2.0, 2.0]), two, clear)
+    size = np.full(2, 9)
+    finest = ScaleSeeds(np.array([0.0, 0.0]), two, clear, size)
+    finer = ScaleSeeds(np.array([0.5, 0.5]), two, clear, size)
+    coarser = ScaleSeeds(np.array([2.0, 2.0]), two, clear, size)
     plans = plan(base, 2, np.array([1.0, 1.0]), [finest, finer, coarser])
     assert [(float(p.sigma[0]), p.separates) for p in plans] == [(0.5, [1])]
-    # unclear seeds count for nothing
+    # unclear seeds, and seeds of cavities too small to be a region, count for nothing
     assert plan(base, 2, np.array([1.0, 1.0]),
-                [ScaleSeeds(np.array([0.5, 0.5]), two, np.full(2, 1.0))]) == []
+                [ScaleSeeds(np.array([0.5, 0.5]), two, np.full(2, 1.0), size)]) == []
+    assert plan(base, 2, np.array([1.0, 1.0]), [finer], min_voxels=10) == []
 
 
 def test_a_region_seen_only_at_another_scale_is_added_where_it_is_free():

@@ -54,6 +54,7 @@ class ScaleSeeds:
     sigma: np.ndarray    # Gaussian sigma per axis, voxels
     core: np.ndarray     # flat index of each chamber's core
     clarity: np.ndarray  # each chamber's persistence over its scale's threshold
+    size: np.ndarray     # voxels of each chamber's cavity where it opens (its breach region)
 
 
 @dataclass
@@ -66,11 +67,13 @@ class Plan:
 
 
 def plan(labels: np.ndarray, n_chambers: int, base_sigma: np.ndarray,
-         seeds: list[ScaleSeeds]) -> list[Plan]:
+         seeds: list[ScaleSeeds], min_voxels: float = 0.0) -> list[Plan]:
     """The scales worth delineating, and what each contributes.
 
     ``labels`` is the base delineation (chambers ``1..n_chambers``, border-cut pieces
-    after them, 0 elsewhere).
+    after them, 0 elsewhere). Only seeds clear of their scale's threshold
+    (:data:`MIN_CLARITY`) whose cavity holds at least ``min_voxels`` count: the rest could
+    not change the result, and every scale planned costs a detection and a delineation.
 
     Examples
     --------
@@ -78,8 +81,9 @@ def plan(labels: np.ndarray, n_chambers: int, base_sigma: np.ndarray,
     no region:
 
     >>> labels = np.array([[1, 1, 0, 1, 1, 0, 0]])
-    >>> fine = ScaleSeeds(np.array([0.5, 0.5]), np.array([0, 4]), np.array([1.6, 1.3]))
-    >>> coarse = ScaleSeeds(np.array([2.0, 2.0]), np.array([1, 6]), np.array([3.0, 2.0]))
+    >>> big = np.array([9, 9])
+    >>> fine = ScaleSeeds(np.array([0.5, 0.5]), np.array([0, 4]), np.array([1.6, 1.3]), big)
+    >>> coarse = ScaleSeeds(np.array([2.0, 2.0]), np.array([1, 6]), np.array([3.0, 2.0]), big)
     >>> [(p.separates, p.adds) for p in plan(labels, 1, np.array([1.0, 1.0]),
     ...                                      [fine, coarse])]
     [([1], False), ([], True)]
@@ -90,7 +94,7 @@ def plan(labels: np.ndarray, n_chambers: int, base_sigma: np.ndarray,
     taken: set[int] = set()
     finer = [s for s in seeds if float(np.max(s.sigma)) < base]
     for s in sorted(finer, key=lambda s: -float(np.max(s.sigma))):  # coarsest first
-        ids = flat[s.core[s.clarity >= MIN_CLARITY]]
+        ids = flat[s.core[_useful(s, min_voxels)]]
         ids = ids[(ids >= 1) & (ids <= n_chambers)]
         counts = np.bincount(ids, minlength=n_chambers + 1)
         for chamber in np.flatnonzero(counts >= 2).tolist():
@@ -98,9 +102,14 @@ def plan(labels: np.ndarray, n_chambers: int, base_sigma: np.ndarray,
                 taken.add(chamber)
                 plans[id(s)].separates.append(chamber)
     for s in seeds:
-        if id(s) in plans and np.any(flat[s.core[s.clarity >= MIN_CLARITY]] == 0):
+        if id(s) in plans and np.any(flat[s.core[_useful(s, min_voxels)]] == 0):
             plans[id(s)].adds = True
     return [p for p in plans.values() if p.separates or p.adds]
+
+
+def _useful(seeds: ScaleSeeds, min_voxels: float) -> np.ndarray:
+    """Seeds that could become a region: clear of their threshold and large enough."""
+    return (seeds.clarity >= MIN_CLARITY) & (seeds.size >= min_voxels)
 
 
 @dataclass(frozen=True)

@@ -10,7 +10,7 @@ import time
 from collections import deque
 from collections.abc import Callable
 from concurrent.futures import ThreadPoolExecutor
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from typing import Any, NamedTuple
 
 import numpy as np
@@ -281,8 +281,7 @@ class Detection:
     face_breach: np.ndarray | None = None  # per node: breach on the closed faces (keep_border)
     rule: str | None = None      # what set the automatic threshold (THRESHOLD_RULES)
     texture_joined: int = 0      # significant pieces kept with their region (_texture)
-    seeds: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))  # chamber cores
-    clarity: np.ndarray = field(default_factory=lambda: np.zeros(0))  # their pers / threshold
+    seeds: ScaleSeeds | None = None  # the chambers this scale makes, as seeds
 
     @property
     def count(self) -> int:
@@ -432,7 +431,8 @@ def _detect(image: _Image, params: SegmentParams, *, noise: float, robust_range:
         kept[OUTSIDE] = False
         clarity = pers[kept] / tau if tau > 0 else np.full(int(kept.sum()), np.inf)
         return Detection(sig, smoothed, order, tree, tau, gap, eligible, passing, face_breach,
-                         rule, texture_joined, tree.core[kept], clarity)
+                         rule, texture_joined, ScaleSeeds(sig, tree.core[kept], clarity,
+                                                          _node_sizes(tree)[kept]))
 
     # Two scales at a time in two threads (smoothing, sort and sweep release the GIL);
     # results are taken in scale order, so the choice is the same as one after the other.
@@ -447,7 +447,8 @@ def _detect(image: _Image, params: SegmentParams, *, noise: float, robust_range:
             tried.append({"sigma": float((result.sigma * spacing).max()),
                           "threshold": result.threshold, "count": result.count,
                           "gap": result.gap, "rule": result.rule})
-            seeds.append(ScaleSeeds(result.sigma, result.seeds, result.clarity))
+            if result.seeds is not None:
+                seeds.append(result.seeds)
             if best is None or result.count > best.count:
                 best = result
             del result  # a losing candidate is freed before the next scale starts
@@ -554,7 +555,12 @@ def _refine_across_scales(base: ScaleRegions, seeds: list[ScaleSeeds],
                           tell: Callable[[str], None], **detect_options: Any) -> Refined | None:
     """Regions that another candidate scale separates or finds alone (:mod:`._scales`)."""
     n_ch = base.hier.n_chambers
-    plans = plan(base.regions.labels, n_ch, base.det.sigma, seeds)
+    regions, hier = base.regions, base.hier
+    # a region far smaller than the base's typical one is no region (as at every scale)
+    sizes = label_counts(regions.labels, n_ch + 1)[1:]
+    typical = float(np.median(sizes[sizes > 0])) if np.any(sizes > 0) else 0.0
+    min_voxels = SMALL_FRACTION * typical
+    plans = plan(regions.labels, n_ch, base.det.sigma, seeds, min_voxels)
     if not plans:
         return None
     image, spacing = geometry.image, geometry.spacing
@@ -571,12 +577,9 @@ def _refine_across_scales(base: ScaleRegions, seeds: list[ScaleSeeds],
         contributions.append(Contribution(step, labels, at.chamber_values(image.sign, spacing),
                                           at.regions.level))
         del other, at
-    regions, hier = base.regions, base.hier
-    sizes = label_counts(regions.labels, n_ch + 1)[1:]
-    typical = float(np.median(sizes[sizes > 0])) if np.any(sizes > 0) else 0.0
     merged = merge(regions.labels, base.chamber_values(image.sign, spacing), regions.level,
                    hier.parent[:n_ch], regions.enclosures, contributions,
-                   min_voxels=SMALL_FRACTION * typical)
+                   min_voxels=min_voxels)
     if not any(merged.summary.values()):
         return None
     shift = merged.shift
