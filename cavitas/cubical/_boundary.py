@@ -39,7 +39,15 @@ import numpy as np
 
 from ._diagram import PAIR_DTYPE
 from ._neighbors import dual_connectivity, neighbor_offsets
-from ._seam_kernels import BORDER, CLOSED, SEAM, chunk_sweep, graph_sweep
+from ._seam_kernels import (
+    BORDER,
+    CLOSED,
+    SEAM,
+    adjacency,
+    chunk_sweep,
+    graph_sweep,
+    merge_orders,
+)
 from ._sort import engine_array, sort_voxels
 
 __all__ = ["Box", "BoundaryTree", "PairRows", "SweepPlan", "Swept", "join_boxes",
@@ -119,7 +127,8 @@ class BoundaryTree:
     Attributes
     ----------
     voxel : (k,) int64
-        Global flat index of each node; ``-1`` for the outside (cavity sweeps).
+        Global flat index of each node, in sweep order; ``-1`` for the outside (cavity
+        sweeps), always node 0.
     value : (k,) float64
         Its value (the outside: ``-inf`` for bright walls, ``+inf`` for dark ones).
     parent : (k,) int64
@@ -227,6 +236,7 @@ def _chunk_tree(values: np.ndarray, order: np.ndarray, mask: np.ndarray | None, 
     nodes, pairs, open_roots = chunk_sweep(
         kernel_values, order, cavity, mask_u8, mask is not None, *offsets, nz, ny, nx,
         1 if plan.ndim == 3 else 0, sides)
+    nodes = _in_sweep_order(nodes)
     # The vertices named by the results (slot n: the outside), renumbered 0, 1, ...
     used = np.unique(np.concatenate((nodes[:, 0], pairs.ravel(), open_roots)))
     inside = used[used < n]
@@ -310,15 +320,25 @@ def _seam_edges(low_face: np.ndarray, high_face: np.ndarray,
     return np.concatenate(edges) if edges else np.empty((0, 2), np.int64)
 
 
-def _sweep_order(voxel: np.ndarray, value: np.ndarray, plan: SweepPlan,
-                 cavity: bool) -> np.ndarray:
-    """Vertices in the sweep's order: by value then global index, as in :mod:`._sort`
-    (the cavity sweep: increasing value for bright walls, ties by increasing index; H0: the
-    reverse). The outside (value ``-inf`` bright, ``+inf`` dark) comes first."""
-    ascending_value = cavity == plan.bright
-    value_key = value if ascending_value else -value
-    index_key = voxel if cavity else -voxel
-    return np.lexsort((index_key, value_key))
+def _in_sweep_order(nodes: np.ndarray) -> np.ndarray:
+    """A kernel's ``(vertex, parent node, position)`` rows sorted by sweep position, the
+    parents renumbered to match."""
+    by_position = np.argsort(nodes[:, 2], kind="stable")
+    new_id = np.empty(len(nodes), np.int64)
+    new_id[by_position] = np.arange(len(nodes))
+    out = nodes[by_position]
+    linked = out[:, 1] >= 0
+    out[linked, 1] = new_id[out[linked, 1]]
+    return out
+
+
+def _merged_order(voxel: np.ndarray, value: np.ndarray, split: int, plan: SweepPlan,
+                  cavity: bool) -> np.ndarray:
+    """The sweep order of two trees' nodes (ids below ``split``, then the rest), each
+    already in sweep order: by value, then global index, as :mod:`._sort` orders voxels
+    (the cavity sweep: increasing value for bright walls, ties by increasing index; H0:
+    the reverse). The outside (value ``-inf`` bright, ``+inf`` dark) comes first."""
+    return merge_orders(value, voxel, split, cavity == plan.bright, cavity)
 
 
 def _renumbered(face: np.ndarray, ids: np.ndarray) -> np.ndarray:
@@ -353,15 +373,6 @@ def _tree_edges(tree: BoundaryTree, ids: np.ndarray) -> np.ndarray:
     return np.stack((ids[child], ids[tree.parent[child]]), axis=1)
 
 
-def _adjacency(edges: np.ndarray, n: int) -> tuple[np.ndarray, np.ndarray]:
-    """Neighbour lists of an undirected graph: ``adjacent[start[i]:start[i + 1]]``."""
-    both = np.concatenate((edges, edges[:, ::-1]))
-    both = both[np.argsort(both[:, 0], kind="stable")]
-    start = np.zeros(n + 1, np.int64)
-    np.cumsum(np.bincount(both[:, 0], minlength=n), out=start[1:])
-    return start, np.ascontiguousarray(both[:, 1])
-
-
 def _join_trees(a: Summary, b: Summary, axis: int, plan: SweepPlan, cavity: bool,
                 box: Box) -> tuple[np.ndarray, BoundaryTree]:
     """Sweep the graph of two boundary trees and their seam: final rows, joined tree."""
@@ -383,16 +394,19 @@ def _join_trees(a: Summary, b: Summary, axis: int, plan: SweepPlan, cavity: bool
                        _seam_offsets(plan, cavity, axis))
     edges = np.concatenate((_tree_edges(tree_a, ids_a), _tree_edges(tree_b, ids_b),
                             np.stack((ids_a[seam[:, 0]], ids_b[seam[:, 1]]), axis=1)))
-    start, adjacent = _adjacency(edges[edges[:, 0] != edges[:, 1]], n)
+    edges = edges[edges[:, 0] != edges[:, 1]]
+    start, adjacent = adjacency(np.ascontiguousarray(edges[:, 0]),
+                                np.ascontiguousarray(edges[:, 1]), n)
     faces = _join_faces(axis, ids_a, ids_b, tree_a, tree_b, box, plan)
     on_seam = np.zeros(n, bool)
     for face in faces.values():
         on_seam[face[face >= 0]] = True
     if cavity and faces:
         on_seam[voxel == -1] = True  # the outside is shared with every other box
-    order = _sweep_order(voxel, value, plan, cavity)
+    order = _merged_order(voxel, value, na, plan, cavity)
     order = order[vertices[order]]
     nodes, final, open_roots = graph_sweep(value, order, start, adjacent, on_seam)
+    nodes = _in_sweep_order(nodes)
     rows = _rows(final, open_roots, voxel, value, cavity, plan.bright)
     new_id = np.full(n, -1, np.int64)
     new_id[nodes[:, 0]] = np.arange(len(nodes))

@@ -34,7 +34,7 @@ from numba import njit
 from ._kernels import add_distinct, eldest_root
 from ._neighbors import is_interior, neighbor_or_outside, unravel3
 
-__all__ = ["chunk_sweep", "graph_sweep"]
+__all__ = ["adjacency", "chunk_sweep", "graph_sweep", "merge_orders"]
 
 #: Face states of a chunk, per side (z low, z high, y low, y high, x low, x high).
 CLOSED = 0  # nothing lies beyond (the z sides of a 2D image)
@@ -57,7 +57,7 @@ def _find(parent, x):
 
 @njit(cache=True)
 def _grow_rows(a, n):
-    b = np.empty((max(2 * a.shape[0], n), 2), a.dtype)
+    b = np.empty((max(2 * a.shape[0], n), a.shape[1]), a.dtype)
     b[: a.shape[0]] = a
     return b
 
@@ -72,17 +72,25 @@ def _push(rows, count, first, second):
 
 
 @njit(cache=True, inline="always")
+def _push_node(nodes, count, vertex, parent_node, position):
+    nodes, count = _push(nodes, count, vertex, parent_node)
+    nodes[count - 1, 2] = position
+    return nodes, count
+
+
+@njit(cache=True, inline="always")
 def _arrive(v, code, on_seam, roots, nr, values, parent, last, nodes, nn, pairs, npairs):
     """Vertex ``v`` joins the components ``roots[:nr]`` of its visited neighbours.
 
-    ``nodes[i] = (vertex, parent node)`` is the boundary tree; ``pairs[i] = (dying root,
-    v)`` the final pairs of nonzero persistence. Returns the grown arrays and counts.
+    ``nodes[i] = (vertex, parent node, sweep position)`` is the boundary tree; ``pairs[i]
+    = (dying root, v)`` the final pairs of nonzero persistence. Returns the grown arrays
+    and counts.
     """
     if nr == 0:
         parent[v] = code
         last[v] = -1
         if on_seam:
-            nodes, nn = _push(nodes, nn, v, -1)
+            nodes, nn = _push_node(nodes, nn, v, -1, -code - 3)
             last[v] = nn - 1
         return nodes, nn, pairs, npairs
     best = eldest_root(parent, roots, nr)
@@ -93,13 +101,13 @@ def _arrive(v, code, on_seam, roots, nr, values, parent, last, nodes, nn, pairs,
     keep = on_seam or flagged >= 2 or (flagged == 1 and last[best] < 0)
     kv = nn
     if keep:
-        nodes, nn = _push(nodes, nn, v, -1)
+        nodes, nn = _push_node(nodes, nn, v, -1, -code - 3)
         for q in range(nr):
             r = roots[q]
             if last[r] >= 0:
                 nodes[last[r], 1] = kv
             elif r == best:  # the elder birth of a component that is flagged from now on
-                nodes, nn = _push(nodes, nn, r, kv)
+                nodes, nn = _push_node(nodes, nn, r, kv, -parent[r] - 3)
     for q in range(nr):
         r = roots[q]
         if r != best:
@@ -150,8 +158,9 @@ def chunk_sweep(values, order, cavity, mask, use_mask, offsets_flat, offsets_zyx
 
     Returns
     -------
-    nodes : (k, 2) int64
-        Boundary tree: local vertex (``n`` for the outside) and parent node (``-1``).
+    nodes : (k, 3) int64
+        Boundary tree: local vertex (``n`` for the outside), parent node (``-1``: none
+        yet) and position in the sweep (``-1`` for the outside).
     pairs : (p, 2) int64
         Final pairs: dying root and the vertex that merged it.
     roots : int64 array
@@ -160,13 +169,13 @@ def chunk_sweep(values, order, cavity, mask, use_mask, offsets_flat, offsets_zyx
     n = nz * ny * nx
     parent = np.full(n + 1, -1, order.dtype)
     last = np.empty(n + 1, order.dtype)
-    nodes = np.empty((64, 2), np.int64)
+    nodes = np.empty((64, 3), np.int64)
     pairs = np.empty((64, 2), np.int64)
     nn = 0
     npairs = 0
     if cavity:
         parent[n] = -2
-        nodes, nn = _push(nodes, nn, n, -1)
+        nodes, nn = _push_node(nodes, nn, n, -1, -1)
         last[n] = 0
         if use_mask:
             for i in range(n):
@@ -236,7 +245,7 @@ def graph_sweep(values, order, start, adjacent, on_seam):
     n = values.shape[0]
     parent = np.full(n, -1, np.int64)
     last = np.empty(n, np.int64)
-    nodes = np.empty((64, 2), np.int64)
+    nodes = np.empty((64, 3), np.int64)
     pairs = np.empty((64, 2), np.int64)
     nn = 0
     npairs = 0
@@ -265,3 +274,52 @@ def graph_sweep(values, order, start, adjacent, on_seam):
             open_roots[left] = v
             left += 1
     return nodes[:nn].copy(), pairs[:npairs].copy(), open_roots
+
+
+@njit(cache=True, nogil=True)
+def merge_orders(value, voxel, split, ascending_value, ascending_index):
+    """Merge two runs already in sweep order, ids ``[0, split)`` and ``[split, n)``, into
+    one sweep order: by value (ascending or not), ties by voxel index (ascending or not).
+    The same comparison as the voxel sort, so ``-0.0`` ties with ``+0.0``."""
+    n = value.shape[0]
+    out = np.empty(n, np.int64)
+    i = 0
+    j = split
+    for k in range(n):
+        if j == n:
+            take_first = True
+        elif i == split:
+            take_first = False
+        elif value[i] != value[j]:
+            take_first = (value[i] < value[j]) == ascending_value
+        else:
+            take_first = (voxel[i] < voxel[j]) == ascending_index
+        if take_first:
+            out[k] = i
+            i += 1
+        else:
+            out[k] = j
+            j += 1
+    return out
+
+
+@njit(cache=True, nogil=True)
+def adjacency(first, second, n):
+    """Neighbour lists of the undirected graph with edges ``first[e] -- second[e]`` over
+    ``n`` vertices: those of ``i`` are ``adjacent[start[i]:start[i + 1]]``."""
+    start = np.zeros(n + 1, np.int64)
+    for e in range(first.shape[0]):
+        start[first[e] + 1] += 1
+        start[second[e] + 1] += 1
+    for i in range(n):
+        start[i + 1] += start[i]
+    fill = start[:-1].copy()
+    adjacent = np.empty(start[n], np.int64)
+    for e in range(first.shape[0]):
+        a = first[e]
+        b = second[e]
+        adjacent[fill[a]] = b
+        fill[a] += 1
+        adjacent[fill[b]] = a
+        fill[b] += 1
+    return start, adjacent
