@@ -183,8 +183,10 @@ def _refused(box: Box, nonfinite: int) -> Swept:
 
 def _rows(pairs: np.ndarray, open_roots: np.ndarray, voxel: np.ndarray, value: np.ndarray,
           cavity: bool, bright: bool) -> np.ndarray:
-    """Diagram rows of final pairs ``(dying root, merging vertex)`` and, for H0, of the
-    roots that never die; ``voxel`` and ``value`` map a sweep's vertex ids."""
+    """Diagram rows of final pairs ``(dying root, merging vertex)`` of nonzero persistence
+    and, for H0, of the roots that never die; ``voxel`` and ``value`` map a sweep's vertex
+    ids."""
+    pairs = pairs[value[pairs[:, 0]] != value[pairs[:, 1]]]
     dying, merging = pairs[:, 0], pairs[:, 1]
     if cavity:  # birth at the breach, death at the core
         births, deaths = merging, dying
@@ -232,9 +234,8 @@ def _chunk_tree(values: np.ndarray, order: np.ndarray, mask: np.ndarray | None, 
     offsets = neighbor_offsets(local_shape, plan.sweep_connectivity(cavity))
     mask_u8 = mask.view(np.uint8) if mask is not None else np.zeros(1, np.uint8)
     sides = box.sides(plan)
-    kernel_values = values.view(np.uint8) if values.dtype == np.bool_ else values
     nodes, pairs, open_roots = chunk_sweep(
-        kernel_values, order, cavity, mask_u8, mask is not None, *offsets, nz, ny, nx,
+        order, cavity, mask_u8, mask is not None, *offsets, nz, ny, nx,
         1 if plan.ndim == 3 else 0, sides)
     nodes = _in_sweep_order(nodes)
     # The vertices named by the results (slot n: the outside), renumbered 0, 1, ...
@@ -405,7 +406,7 @@ def _join_trees(a: Summary, b: Summary, axis: int, plan: SweepPlan, cavity: bool
         on_seam[voxel == -1] = True  # the outside is shared with every other box
     order = _merged_order(voxel, value, na, plan, cavity)
     order = order[vertices[order]]
-    nodes, final, open_roots = graph_sweep(value, order, start, adjacent, on_seam)
+    nodes, final, open_roots = graph_sweep(n, order, start, adjacent, on_seam)
     nodes = _in_sweep_order(nodes)
     rows = _rows(final, open_roots, voxel, value, cavity, plan.bright)
     new_id = np.full(n, -1, np.int64)

@@ -79,12 +79,12 @@ def _push_node(nodes, count, vertex, parent_node, position):
 
 
 @njit(cache=True, inline="always")
-def _arrive(v, code, on_seam, roots, nr, values, parent, last, nodes, nn, pairs, npairs):
+def _arrive(v, code, on_seam, roots, nr, parent, last, nodes, nn, pairs, npairs):
     """Vertex ``v`` joins the components ``roots[:nr]`` of its visited neighbours.
 
     ``nodes[i] = (vertex, parent node, sweep position)`` is the boundary tree; ``pairs[i]
-    = (dying root, v)`` the final pairs of nonzero persistence. Returns the grown arrays
-    and counts.
+    = (dying root, v)`` the final pairs (those of zero persistence too: the caller, which
+    knows the values, drops them). Returns the grown arrays and counts.
     """
     if nr == 0:
         parent[v] = code
@@ -111,7 +111,7 @@ def _arrive(v, code, on_seam, roots, nr, values, parent, last, nodes, nn, pairs,
     for q in range(nr):
         r = roots[q]
         if r != best:
-            if last[r] < 0 and values[r] != values[v]:
+            if last[r] < 0:
                 pairs, npairs = _push(pairs, npairs, r, v)
             parent[r] = best
     parent[v] = best
@@ -136,17 +136,15 @@ def _beyond_border(zz, yy, xx, nz, ny, nx, faces):
 
 
 @njit(cache=True, nogil=True)
-def chunk_sweep(values, order, cavity, mask, use_mask, offsets_flat, offsets_zyx, nz, ny, nx,
-                zmargin, faces):
+def chunk_sweep(order, cavity, mask, use_mask, offsets_flat, offsets_zyx, nz, ny, nx, zmargin,
+                faces):
     """One chunk's sweep: its final pairs and its boundary tree.
 
     Parameters
     ----------
-    values : (n,) array
-        The chunk, raveled (C order, so local and global flat indices sort alike).
     order : (m,) int array
-        Cavity-sweep order of the chunk's voxels inside the mask; the H0 sweep reads it
-        backwards.
+        Cavity-sweep order of the chunk's voxels inside the mask (local flat indices in C
+        order, which sort like the global ones); the H0 sweep reads it backwards.
     cavity : bool
         True: the complement with the outside node (slot ``n``); False: H0 of the walls.
     mask, use_mask
@@ -162,7 +160,7 @@ def chunk_sweep(values, order, cavity, mask, use_mask, offsets_flat, offsets_zyx
         Boundary tree: local vertex (``n`` for the outside), parent node (``-1``: none
         yet) and position in the sweep (``-1`` for the outside).
     pairs : (p, 2) int64
-        Final pairs: dying root and the vertex that merged it.
+        Final pairs: dying root and the vertex that merged it (zero persistence included).
     roots : int64 array
         Unflagged roots left at the end (H0: essential classes), in sweep order.
     """
@@ -204,8 +202,8 @@ def chunk_sweep(values, order, cavity, mask, use_mask, offsets_flat, offsets_zyx
                 continue
             nr = add_distinct(roots, nr, _find(parent, w))
         on_seam = _on_seam(z, y, x, nz, ny, nx, faces)
-        nodes, nn, pairs, npairs = _arrive(v, -(j + 3), on_seam, roots, nr, values, parent,
-                                           last, nodes, nn, pairs, npairs)
+        nodes, nn, pairs, npairs = _arrive(v, -(j + 3), on_seam, roots, nr, parent, last,
+                                           nodes, nn, pairs, npairs)
     left = 0
     for j in range(m):
         v = order[j]
@@ -222,13 +220,13 @@ def chunk_sweep(values, order, cavity, mask, use_mask, offsets_flat, offsets_zyx
 
 
 @njit(cache=True, nogil=True)
-def graph_sweep(values, order, start, adjacent, on_seam):
+def graph_sweep(n, order, start, adjacent, on_seam):
     """The same sweep over a graph: the boundary trees of two boxes joined along a seam.
 
     Parameters
     ----------
-    values : (n,) float64
-        Value of each vertex (compared only for zero persistence).
+    n : int
+        Number of vertex ids.
     order : (m,) int64
         Sweep order of the vertices (the outside, if any, first); ids left out of it are
         not vertices.
@@ -242,7 +240,6 @@ def graph_sweep(values, order, start, adjacent, on_seam):
     nodes, pairs, roots
         As for :func:`chunk_sweep`, in vertex ids of the graph.
     """
-    n = values.shape[0]
     parent = np.full(n, -1, np.int64)
     last = np.empty(n, np.int64)
     nodes = np.empty((64, 3), np.int64)
@@ -260,8 +257,8 @@ def graph_sweep(values, order, start, adjacent, on_seam):
             w = adjacent[e]
             if parent[w] != -1:
                 nr = add_distinct(roots, nr, _find(parent, w))
-        nodes, nn, pairs, npairs = _arrive(v, -(j + 3), on_seam[v], roots, nr, values, parent,
-                                           last, nodes, nn, pairs, npairs)
+        nodes, nn, pairs, npairs = _arrive(v, -(j + 3), on_seam[v], roots, nr, parent, last,
+                                           nodes, nn, pairs, npairs)
     left = 0
     for v in range(n):
         if parent[v] < -2 and last[v] < 0:
