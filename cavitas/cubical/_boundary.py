@@ -26,7 +26,7 @@ Two halves of a 1 x 1 x 4 line, swept apart and joined, give the pairs of the wh
 >>> joined = join_boxes(left.summary, right.summary, 2, plan)
 >>> rows = np.concatenate([left.rows.h0, right.rows.h0, joined.rows.h0])
 >>> sorted(rows[["birth", "death"]].tolist())
-[(5.0, 2.0), (6.0, -inf)]
+[(5.0, 1.0), (6.0, -inf)]
 """
 
 from __future__ import annotations
