@@ -31,7 +31,7 @@ Two halves of a 1 x 1 x 4 line, swept apart and joined, give the pairs of the wh
 
 from __future__ import annotations
 
-from collections.abc import Iterable
+from collections.abc import Callable, Iterable
 from dataclasses import dataclass
 from typing import Any
 
@@ -50,7 +50,7 @@ from ._seam_kernels import (
 )
 from ._sort import engine_array, sort_voxels
 
-__all__ = ["Box", "BoundaryTree", "PairRows", "SweepPlan", "Swept", "join_boxes",
+__all__ = ["Box", "BoundaryTree", "PairRows", "Summary", "SweepPlan", "Swept", "join_boxes",
            "sweep_chunk"]
 
 
@@ -116,6 +116,7 @@ class Box:
         return cls((a, b, c), (d, e, f))
 
     def join(self, other: Box) -> Box:
+        """The smallest box holding both."""
         return Box.spanning(np.minimum(self.start, other.start),
                             np.maximum(self.stop, other.stop))
 
@@ -179,6 +180,17 @@ def _empty_rows() -> np.ndarray:
 def _refused(box: Box, nonfinite: int) -> Swept:
     """A box holding non-finite values: nothing swept, only the count."""
     return Swept(PairRows(_empty_rows(), _empty_rows()), Summary(box, None, None, nonfinite))
+
+
+def _each_sweep(box: Box, plan: SweepPlan,
+                sweep: Callable[[bool], tuple[np.ndarray, BoundaryTree]]) -> Swept:
+    """``sweep(cavity)`` for each sweep the plan asks for (H0, then cavities)."""
+    rows = {False: _empty_rows(), True: _empty_rows()}
+    trees: dict[bool, BoundaryTree | None] = {False: None, True: None}
+    for cavity, wanted in ((False, plan.h0), (True, plan.cavities)):
+        if wanted:
+            rows[cavity], trees[cavity] = sweep(cavity)
+    return Swept(PairRows(rows[False], rows[True]), Summary(box, trees[False], trees[True]))
 
 
 def _rows(pairs: np.ndarray, open_roots: np.ndarray, voxel: np.ndarray, value: np.ndarray,
@@ -279,15 +291,8 @@ def sweep_chunk(block: np.ndarray, mask: np.ndarray | None, box: Box,
     order, nonfinite = sort_voxels(values, flat_mask, descending=not plan.bright)
     if nonfinite:
         return _refused(box, nonfinite)
-    rows = {}
-    trees: dict[bool, BoundaryTree | None] = {False: None, True: None}
-    for cavity, wanted in ((False, plan.h0), (True, plan.cavities)):
-        if wanted:
-            rows[cavity], trees[cavity] = _chunk_tree(values, order, flat_mask, box, plan,
-                                                      cavity)
-        else:
-            rows[cavity] = _empty_rows()
-    return Swept(PairRows(rows[False], rows[True]), Summary(box, trees[False], trees[True]))
+    return _each_sweep(box, plan, lambda cavity: _chunk_tree(values, order, flat_mask, box,
+                                                             plan, cavity))
 
 
 def _seam_offsets(plan: SweepPlan, cavity: bool, axis: int) -> list[tuple[int, int]]:
@@ -298,10 +303,10 @@ def _seam_offsets(plan: SweepPlan, cavity: bool, axis: int) -> list[tuple[int, i
     steps = []
     for da in (-1, 0, 1):
         for db in (-1, 0, 1):
-            if (da and plan.ndim == 2 and others[0] == 0) or (db and plan.ndim == 2
-                                                              and others[1] == 0):
-                continue  # no z steps in a 2D image
-            if 1 + abs(da) + abs(db) <= conn:
+            moved = [ax for ax, step in zip(others, (da, db), strict=True) if step]
+            if plan.ndim == 2 and 0 in moved:
+                continue  # a 2D image has no z steps
+            if 1 + len(moved) <= conn:
                 steps.append((da, db))
     return steps
 
@@ -423,11 +428,4 @@ def join_boxes(a: Summary, b: Summary, axis: int, plan: SweepPlan) -> Swept:
     box = a.box.join(b.box)
     if a.nonfinite or b.nonfinite:
         return _refused(box, a.nonfinite + b.nonfinite)
-    rows = {}
-    trees: dict[bool, BoundaryTree | None] = {False: None, True: None}
-    for cavity, wanted in ((False, plan.h0), (True, plan.cavities)):
-        if wanted:
-            rows[cavity], trees[cavity] = _join_trees(a, b, axis, plan, cavity, box)
-        else:
-            rows[cavity] = _empty_rows()
-    return Swept(PairRows(rows[False], rows[True]), Summary(box, trees[False], trees[True]))
+    return _each_sweep(box, plan, lambda cavity: _join_trees(a, b, axis, plan, cavity, box))

@@ -31,7 +31,7 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
-from ._kernels import add_distinct, eldest_root
+from ._kernels import _find_neg, add_distinct, eldest_root
 from ._neighbors import is_interior, neighbor_or_outside, unravel3
 
 __all__ = ["adjacency", "chunk_sweep", "graph_sweep", "merge_orders"]
@@ -43,16 +43,22 @@ SEAM = 2  # another chunk lies beyond
 
 
 @njit(cache=True, inline="always")
-def _find(parent, x):
-    while True:
-        p = parent[x]
-        if p < 0:
-            return x
-        gp = parent[p]
-        if gp < 0:
-            return p
-        parent[x] = gp
-        x = gp
+def _open_roots(order, backwards, parent, last):
+    """The roots left unflagged at the end of a sweep (H0: its essential classes), in sweep
+    order (``order`` read backwards if ``backwards``)."""
+    m = order.shape[0]
+    count = 0
+    for j in range(m):
+        if parent[order[j]] < -2 and last[order[j]] < 0:
+            count += 1
+    out = np.empty(count, np.int64)
+    count = 0
+    for j in range(m):
+        v = order[m - 1 - j] if backwards else order[j]
+        if parent[v] < -2 and last[v] < 0:
+            out[count] = v
+            count += 1
+    return out
 
 
 @njit(cache=True)
@@ -200,23 +206,11 @@ def chunk_sweep(order, cavity, mask, use_mask, offsets_flat, offsets_zyx, nz, ny
                     w = n
             if parent[w] == -1:
                 continue
-            nr = add_distinct(roots, nr, _find(parent, w))
+            nr = add_distinct(roots, nr, _find_neg(parent, w))
         on_seam = _on_seam(z, y, x, nz, ny, nx, faces)
         nodes, nn, pairs, npairs = _arrive(v, -(j + 3), on_seam, roots, nr, parent, last,
                                            nodes, nn, pairs, npairs)
-    left = 0
-    for j in range(m):
-        v = order[j]
-        if parent[v] < -2 and last[v] < 0:
-            left += 1
-    open_roots = np.empty(left, np.int64)
-    left = 0
-    for j in range(m):
-        v = order[j] if cavity else order[m - 1 - j]
-        if parent[v] < -2 and last[v] < 0:
-            open_roots[left] = v
-            left += 1
-    return nodes[:nn].copy(), pairs[:npairs].copy(), open_roots
+    return nodes[:nn].copy(), pairs[:npairs].copy(), _open_roots(order, not cavity, parent, last)
 
 
 @njit(cache=True, nogil=True)
@@ -256,21 +250,10 @@ def graph_sweep(n, order, start, adjacent, on_seam):
         for e in range(start[v], start[v + 1]):
             w = adjacent[e]
             if parent[w] != -1:
-                nr = add_distinct(roots, nr, _find(parent, w))
+                nr = add_distinct(roots, nr, _find_neg(parent, w))
         nodes, nn, pairs, npairs = _arrive(v, -(j + 3), on_seam[v], roots, nr, parent, last,
                                            nodes, nn, pairs, npairs)
-    left = 0
-    for v in range(n):
-        if parent[v] < -2 and last[v] < 0:
-            left += 1
-    open_roots = np.empty(left, np.int64)
-    left = 0
-    for j in range(order.shape[0]):
-        v = order[j]
-        if parent[v] < -2 and last[v] < 0:
-            open_roots[left] = v
-            left += 1
-    return nodes[:nn].copy(), pairs[:npairs].copy(), open_roots
+    return nodes[:nn].copy(), pairs[:npairs].copy(), _open_roots(order, False, parent, last)
 
 
 @njit(cache=True, nogil=True)
