@@ -10,8 +10,9 @@ Per size and chunk shape: whether the diagram equals ``persistence(image)`` row 
 (at 96^3 for both connectivities and polarities), the wall time against the in-memory
 run in this process (its two sweeps in two threads), and the peaks: a worker's extra peak
 RSS over its chunk's voxels (the largest over the workers, its counter reset before the
-run) and the client's extra peak RSS. The in-memory figure beside it is the extra peak of
-``persistence(image)`` in a fresh process (bench/persistence.py's measurement).
+run) and the client's extra peak RSS, beside the model of ``cubical/_chunk_memory.py``
+(the largest task). The in-memory figure is the extra peak of ``persistence(image)`` in a
+fresh process (bench/persistence.py's measurement).
 """
 
 from __future__ import annotations
@@ -24,6 +25,7 @@ import numpy as np
 
 from bench.persistence import _rss_kib, _rss_peak_in_fresh_process, smoothed_noise
 from cavitas.cubical import persistence
+from cavitas.cubical._chunk_memory import worker_need
 
 NAME = "chunked"
 
@@ -53,6 +55,12 @@ def _stored(image: np.ndarray, chunks: tuple[int, ...], folder: Path):
                             dtype=image.dtype)
     store[...] = image
     return zarr.open_array(str(path), mode="r")
+
+
+def stored_chunks(shape: tuple[int, ...], chunk: tuple[int, ...]) -> tuple[tuple[int, ...], ...]:
+    """Dask's chunk sizes per axis for a regular chunk shape."""
+    return tuple((c,) * (s // c) + ((s % c,) if s % c else ()) for s, c in zip(shape, chunk,
+                                                                                strict=True))
 
 
 def _chunked_run(client, stored, **options):
@@ -93,14 +101,14 @@ def run(args) -> list[dict]:
             for chunks in ((side // 4,) * 3, (side // 2,) * 3, (16, side, side)):
                 stored = _stored(image, chunks, folder)
                 dgm, wall, worker, client_peak = _chunked_run(client, stored)
-                voxels = int(np.prod(chunks))
+                need = worker_need(image.shape, stored_chunks(image.shape, chunks), 2)
                 rows.append({
                     "metric": f"{tag} chunks {'x'.join(map(str, chunks))}",
                     "value": f"{wall:.2f} s ({wall / in_memory:.1f}x)",
                     "target": "identical",
                     "note": f"{'identical' if _same(ref, dgm) else 'DIFFERENT'}; worker peak "
-                            f"{worker / voxels:.1f} B per chunk voxel, client peak "
-                            f"{client_peak / 2**20:.0f} MiB"})
+                            f"{worker / 2**20:.0f} MiB (model {need.peak_bytes / 2**20:.0f}), "
+                            f"client peak {client_peak / 2**20:.0f} MiB"})
             if side == 96:
                 stored = _stored(image, (24, 24, 24), folder)
                 for conn in (1, 3):
