@@ -252,6 +252,9 @@ def chunked_persistence(image: Any, *, walls: str = "bright", connectivity: int 
     from dask import delayed
 
     image = as_dask_array(image)
+    if any(0 in sizes for sizes in image.chunks):  # empty chunks (after slicing) hold no box
+        image = image.rechunk(tuple(tuple(c for c in sizes if c) or (0,)
+                                    for sizes in image.chunks))
     wanted = _dims(dims, image.ndim)
     plan = _plan(tuple(image.shape), image.dtype, walls, connectivity, wanted)
     masks = None
