@@ -18,6 +18,7 @@ MODULES = [
     "bench.real_scans",
     "bench.report",
     "bench.topology",
+    "bench.chunked",
 ]
 
 

@@ -128,3 +128,32 @@ def test_metadata_warnings_are_in_the_block_not_repeated_on_stderr(capsys):
     captured = capsys.readouterr()
     assert "warning     the file gives a voxel size but no unit" in captured.out
     assert captured.err == ""
+
+
+def test_chunked_files_name_their_path_and_worker_memory(tmp_path, capsys):
+    # Reference: the chunk shape and chunk count that zarr's and h5py's own metadata give.
+    zarr = pytest.importorskip("zarr", reason="zarr (extra 'zarr') is not installed")
+    h5py = pytest.importorskip("h5py", reason="h5py (extra 'hdf5') is not installed")
+    data = np.arange(12 * 10 * 9, dtype=np.uint16).reshape(12, 10, 9)
+    store = zarr.open_array(str(tmp_path / "v.zarr"), mode="w", shape=data.shape,
+                            chunks=(5, 10, 4), dtype=data.dtype)
+    store[...] = data
+    with h5py.File(tmp_path / "v.h5", "w") as handle:
+        handle.create_dataset("scan", data=data, chunks=(3, 10, 9))
+    np.save(tmp_path / "v.npy", data)
+    assert main(["info", "--json", *(str(tmp_path / f"v.{ext}")
+                                     for ext in ("zarr", "h5", "npy"))]) == 0
+    zarr_facts, h5_facts, npy_facts = map(json.loads, capsys.readouterr().out.splitlines())
+    assert zarr_facts["chunked"]["chunk_shape"] == list(store.chunks)
+    assert zarr_facts["chunked"]["chunks"] == store.nchunks
+    with h5py.File(tmp_path / "v.h5", "r") as handle:
+        assert h5_facts["chunked"]["chunk_shape"] == list(handle["scan"].chunks)
+    assert h5_facts["chunked"]["chunks"] == 4
+    for facts in (zarr_facts, h5_facts):
+        chunked = facts["chunked"]
+        assert chunked["worker_bytes"] == max(chunked["chunk_sweep_bytes"],
+                                              chunked["largest_join_bytes"]) > 0
+    assert npy_facts["chunked"] is None  # read whole: no chunked path
+    assert main(["info", str(tmp_path / "v.zarr")]) == 0
+    text = capsys.readouterr().out
+    assert "chunk by chunk on Dask workers" in text and "per worker  about" in text

@@ -21,6 +21,12 @@ Show what each file holds: shape, data type, voxel spacing and unit, value range
 percentiles (1, 50, 99), NaN/Inf count, the memory a segmentation would need, and any
 problem found in the metadata. Large files are read in chunks.
 
+For a Zarr array or an HDF5 dataset it also says how its persistence diagram can be
+computed chunk by chunk on Dask workers from Python (cavitas.persistence of the array
+opened with zarr or h5py): the chunks and the memory each worker needs, the larger of one
+chunk's sweep (about 18 bytes per chunk voxel beyond the chunk) and the largest join of
+two blocks' seams (it grows with the middle planes of the volume; bench/chunked.py).
+
 Memory estimate = 340 MiB for the program (Python, the libraries, the compiled kernels) +
 voxels x (bytes per input voxel + the working memory of a segmentation: 52 bytes when the
 image is smoothed in float32 (data of 16 bits or less, float32), 76 in float64) + 40 bytes
@@ -58,7 +64,8 @@ def register(subparsers: Any, *, parents: list[argparse.ArgumentParser],
                         help="print one JSON object per file (keys: source, shape, dtype, "
                              "spacing, unit, min, max, percentiles, nonfinite, memory_bytes, "
                              "warnings, holds: the channels, time points or arrays of a file "
-                             "that has several ...)")
+                             "that has several, chunked: for a Zarr array or an HDF5 "
+                             "dataset, its chunks and what a Dask worker needs ...)")
     add_reading_options(parser)
     parser.set_defaults(func=run)
     return parser
@@ -142,6 +149,15 @@ def _text(facts: dict[str, Any]) -> str:
     lines[2:2] = [f"  {_HELD[option]:<11} {len(choices)}: {_listing(choices)}; shown: "
                   f"{choices[0]} (--{option} to choose)"
                   for option, choices in facts.get("holds", {}).items()]
+    chunked = facts.get("chunked")
+    if chunked:
+        lines += [
+            "  path        segment, diagram: whole, in memory; cavitas.persistence (Python): "
+            "chunk by chunk on Dask workers",
+            f"  per worker  about {_size(chunked['worker_bytes'])} beyond the program "
+            f"(chunk sweep {_size(chunked['chunk_sweep_bytes'])}, largest join "
+            f"{_size(chunked['largest_join_bytes'])}; {chunked['chunks']:,} chunks of "
+            f"{' × '.join(map(str, chunked['chunk_shape']))})"]
     lines += [f"  warning     {w}" for w in facts["warnings"]] or ["  warnings    none"]
     return "\n".join(lines)
 
@@ -185,10 +201,57 @@ def read_first_choice(name: str, options: dict[str, Any]) -> tuple[Volume, dict[
             options[option] = exc.choices[0]
 
 
+def _stored_chunks(name: str, volume: Volume) -> tuple[int, ...] | None:
+    """The chunk shape of a plain Zarr array or an HDF5 dataset (None: another format,
+    or an HDF5 dataset stored whole, which is read in 64-plane slabs)."""
+    meta = volume.meta
+    if meta.get("format") == "zarr":
+        import zarr
+
+        node: Any = zarr.open(name, mode="r")
+        array: Any = node[meta["array"]] if "array" in meta else node
+        return tuple(array.chunks)
+    if "dataset" in meta:
+        import h5py
+
+        with h5py.File(name, "r") as handle:
+            chunks = handle[meta["dataset"]].chunks
+        return tuple(chunks) if chunks else (64,) + tuple(volume.shape[1:])
+    return None
+
+
+def chunked_facts(name: str, volume: Volume) -> dict[str, Any] | None:
+    """For a Zarr array or an HDF5 dataset: its chunks and what a Dask worker needs when
+    ``cavitas.persistence`` computes its diagram chunk by chunk (None for other formats).
+
+    Examples
+    --------
+    >>> import tempfile, zarr, numpy as np
+    >>> from cavitas.io import read
+    >>> store = tempfile.mkdtemp() + "/cube.zarr"
+    >>> zarr.open_array(store, mode="w", shape=(8, 8, 8), chunks=(4, 8, 8), dtype="uint16")[:] = 1
+    >>> chunked_facts(store, read(store))["chunk_shape"]
+    [4, 8, 8]
+    """
+    from ..cubical._chunk_memory import worker_need
+
+    chunk = _stored_chunks(name, volume)
+    if chunk is None:
+        return None
+    chunk = tuple(min(c, s) for c, s in zip(chunk, volume.shape, strict=True))
+    per_axis = [(c,) * (s // c) + ((s % c,) if s % c else ())
+                for s, c in zip(volume.shape, chunk, strict=True)]
+    need = worker_need(volume.shape, per_axis, volume.dtype.itemsize)
+    return {"chunk_shape": list(chunk), "chunks": need.chunks,
+            "worker_bytes": need.peak_bytes, "chunk_sweep_bytes": need.sweep_bytes,
+            "largest_join_bytes": need.join_bytes}
+
+
 def _describe_file(name: str, options: dict[str, Any], quiet: bool) -> dict[str, Any]:
     volume, held = read_first_choice(name, options)
     facts = describe(volume, progress=_progress(quiet))
     facts["holds"] = held
+    facts["chunked"] = chunked_facts(name, volume)
     return facts
 
 

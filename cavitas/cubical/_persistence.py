@@ -13,6 +13,7 @@ from .. import _checks
 from .._cores import usable_cores
 from .._errors import ParameterError
 from ..io._volume import Volume
+from ._chunked import chunked_persistence, is_chunked
 from ._diagram import PAIR_DTYPE, Diagram
 from ._kernels import cavity_sweep_kernel, h0_sweep, neighbor_chain
 from ._neighbors import check_connectivity, dual_connectivity, grid_shape3
@@ -254,10 +255,13 @@ def persistence(
 
     Parameters
     ----------
-    image : (M, N) or (P, M, N) ndarray or Volume
+    image : (M, N) or (P, M, N) ndarray, Volume or chunked array
         Intensities, of an integer or float dtype; a memory map is read in place (it is
         copied once only if it is not C-contiguous). NaN and infinite values are rejected
-        unless they lie outside ``mask``.
+        unless they lie outside ``mask``. A Dask array, a Zarr array or an HDF5 dataset is
+        never loaded whole: it is computed chunk by chunk on Dask's current scheduler (the
+        workers of an active ``distributed.Client``), with the very same result
+        (:func:`cavitas.cubical._chunked.chunked_persistence`).
     walls : {"bright", "dark"}
         ``"bright"``: superlevel filtration, bright voxels enter the wall set first, so
         births are >= deaths and an essential H0 class dies at ``-inf``. ``"dark"``:
@@ -276,10 +280,10 @@ def persistence(
         Homology dimensions to compute; default ``(0, ndim - 1)``. The middle dimension of
         a 3D image (H1) is not available yet.
     parallel : bool, optional
-        Run the H0 and cavity sweeps at the same time, in two threads. Default: for images
-        of more than 65,536 voxels, when the process may use more than one CPU core. It
-        costs one more union-find array (4 bytes per voxel); ``False`` keeps memory at its
-        lowest.
+        Run the H0 and cavity sweeps of an in-memory image at the same time, in two
+        threads. Default: for images of more than 65,536 voxels, when the process may use
+        more than one CPU core. It costs one more union-find array (4 bytes per voxel);
+        ``False`` keeps memory at its lowest.
 
     Returns
     -------
@@ -332,6 +336,9 @@ def persistence(
     >>> dgm.pairs(0)[["birth", "death"]].tolist()
     [(9.0, -inf)]
     """
+    if is_chunked(image):
+        return chunked_persistence(image, walls=walls, connectivity=connectivity, mask=mask,
+                                   dims=dims)
     prep = _Prepared(image, walls, connectivity, mask)
     wanted = _check_dims(dims, prep.ndim)
     top = prep.ndim - 1

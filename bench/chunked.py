@@ -1,0 +1,121 @@
+"""Chunked persistence on a local Dask cluster: identity with the in-memory run, time, peaks.
+
+Input (invented, for this measurement only): the Gaussian-smoothed uint16 noise of
+``bench/persistence.py`` (96^3, 128^3, 256^3; 384^3 with ``--large``), written to a Zarr
+store in the chunk shape being measured, so the workers read it chunk by chunk and the
+client never holds it. Cluster: a ``distributed.LocalCluster`` of 2 worker processes with
+one thread each, on loopback.
+
+Per size and chunk shape: whether the diagram equals ``persistence(image)`` row for row
+(at 96^3 for both connectivities and polarities), the wall time against the in-memory
+run in this process (its two sweeps in two threads), and the peaks: a worker's extra peak
+RSS over its chunk's voxels (the largest over the workers, its counter reset before the
+run) and the client's extra peak RSS, beside the model of ``cubical/_chunk_memory.py``
+(the largest task). The in-memory figure is the extra peak of ``persistence(image)`` in a
+fresh process (bench/persistence.py's measurement).
+"""
+
+from __future__ import annotations
+
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+
+from bench.persistence import _rss_kib, _rss_peak_in_fresh_process, smoothed_noise
+from cavitas.cubical import persistence
+from cavitas.cubical._chunk_memory import worker_need
+
+NAME = "chunked"
+
+
+def _reset_peak() -> int:
+    """Reset this process's peak-RSS counter; its current RSS in bytes (-1: no counter)."""
+    try:
+        Path("/proc/self/clear_refs").write_text("5")
+    except OSError:
+        return -1
+    return _rss_kib("VmRSS") * 1024
+
+
+def _peak() -> int:
+    return _rss_kib("VmHWM") * 1024
+
+
+def _same(a, b) -> bool:
+    return a.dims == b.dims and all(np.array_equal(a.pairs(d), b.pairs(d)) for d in a.dims)
+
+
+def _stored(image: np.ndarray, chunks: tuple[int, ...], folder: Path):
+    import zarr
+
+    path = folder / f"v{image.shape[0]}_{'x'.join(map(str, chunks))}.zarr"
+    store = zarr.open_array(str(path), mode="w", shape=image.shape, chunks=chunks,
+                            dtype=image.dtype)
+    store[...] = image
+    return zarr.open_array(str(path), mode="r")
+
+
+def stored_chunks(shape: tuple[int, ...], chunk: tuple[int, ...]) -> tuple[tuple[int, ...], ...]:
+    """Dask's chunk sizes per axis for a regular chunk shape."""
+    return tuple((c,) * (s // c) + ((s % c,) if s % c else ()) for s, c in zip(shape, chunk,
+                                                                                strict=True))
+
+
+def _chunked_run(client, stored, **options):
+    """One chunked run: the diagram, wall time, worker and client extra peaks (bytes)."""
+    before = client.run(_reset_peak)
+    client_before = _reset_peak()
+    start = time.perf_counter()
+    dgm = persistence(stored, **options)
+    wall = time.perf_counter() - start
+    client_peak = _peak() - client_before
+    peaks = client.run(_peak)
+    worker_peak = max(peaks[w] - before[w] for w in peaks)
+    return dgm, wall, worker_peak, client_peak
+
+
+def run(args) -> list[dict]:
+    """Identity, time and peaks at 96^3, 128^3, 256^3 (384^3 with ``args.large``)."""
+    from distributed import Client, LocalCluster
+
+    sides = [96, 128, 256] + ([384] if getattr(args, "large", False) else [])
+    rows: list[dict] = []
+    persistence(smoothed_noise(16))  # compile (or load the cached kernels) in this process
+    with tempfile.TemporaryDirectory() as tmp, \
+            LocalCluster(n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1",
+                         dashboard_address=None) as cluster, Client(cluster) as client:
+        folder = Path(tmp)
+        warm = _stored(smoothed_noise(16), (8, 8, 8), folder)
+        persistence(warm)  # workers compile or load the kernels
+        for side in sides:
+            image = smoothed_noise(side)
+            start = time.perf_counter()
+            ref = persistence(image)
+            in_memory = time.perf_counter() - start
+            tag = f"{side}^3"
+            rows.append({"metric": f"{tag} in memory", "value": f"{in_memory:.2f} s",
+                         "note": f"extra peak {_rss_peak_in_fresh_process(side, True) / 2**20:.0f}"
+                                 f" MiB (fresh process); {len(ref)} pairs"})
+            for chunks in ((side // 4,) * 3, (side // 2,) * 3, (16, side, side)):
+                stored = _stored(image, chunks, folder)
+                dgm, wall, worker, client_peak = _chunked_run(client, stored)
+                need = worker_need(image.shape, stored_chunks(image.shape, chunks), 2)
+                rows.append({
+                    "metric": f"{tag} chunks {'x'.join(map(str, chunks))}",
+                    "value": f"{wall:.2f} s ({wall / in_memory:.1f}x)",
+                    "target": "identical",
+                    "note": f"{'identical' if _same(ref, dgm) else 'DIFFERENT'}; worker peak "
+                            f"{worker / 2**20:.0f} MiB (model {need.peak_bytes / 2**20:.0f}), "
+                            f"client peak {client_peak / 2**20:.0f} MiB"})
+            if side == 96:
+                stored = _stored(image, (24, 24, 24), folder)
+                for conn in (1, 3):
+                    for walls in ("bright", "dark"):
+                        same = _same(persistence(image, connectivity=conn, walls=walls),
+                                     persistence(stored, connectivity=conn, walls=walls))
+                        rows.append({"metric": f"{tag} connectivity {conn}, {walls} walls",
+                                     "value": "identical" if same else "DIFFERENT",
+                                     "target": "identical", "note": "chunks 24^3"})
+    return rows
