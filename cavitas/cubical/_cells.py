@@ -63,7 +63,7 @@ def wall_ranks(order, n, rank):
         rank[order[j]] = m - 1 - j
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _span(c, shift, n, top):
     """Voxel coordinates ``lo..hi`` touching doubled coordinate ``c`` along one axis, and
     whether the cell is an interval there (odd coordinate)."""
@@ -80,7 +80,7 @@ def _span(c, shift, n, top):
     return lo, hi, c % 2 == 1
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def cell_key(rank, cz, cy, cx, nz, ny, nx, top, absent):
     """Filtration key of the cell at doubled coordinates ``(cz, cy, cx)``, or -1 if the
     cell is not in the complex (outside the doubled grid, or outside the mask).
@@ -112,20 +112,20 @@ def cell_key(rank, cz, cy, cx, nz, ny, nx, top, absent):
     return (np.int64(best) * 4 + dim) * 27 + local
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def key_dim(key):
     """Dimension of the cell with this key."""
     return (key // 27) % 4
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def key_voxel(key, order):
     """Flat index of the voxel with which the cell of this key enters."""
     m = order.shape[0]
     return order[m - 1 - key // 108]
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def key_cell(key, order, ny, nx, top):
     """Doubled coordinates ``(cz, cy, cx)`` of the cell with this key."""
     v = key_voxel(key, order)

@@ -61,13 +61,13 @@ class TunnelPairs:
     reduced: int
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _axis_step(axis):
     """Unit steps ``(dz, dy, dx)`` along ``axis`` (0 = z, 1 = y, 2 = x)."""
     return (1 if axis == 0 else 0), (1 if axis == 1 else 0), (1 if axis == 2 else 0)
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _odd_axis(cz, cy, cx):
     """The axis along which an edge (one odd coordinate) is an interval."""
     if cz % 2 == 1:
@@ -77,13 +77,13 @@ def _odd_axis(cz, cy, cx):
     return 2
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _vertex_index(cz, cy, cx, ly, lx):
     """Index of the vertex at even doubled coordinates in the vertex lattice."""
     return ((cz // 2) * ly + cy // 2) * lx + cx // 2
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _find(parent, x):
     while parent[x] != x:
         parent[x] = parent[parent[x]]
@@ -124,7 +124,7 @@ def _mark_h0_deaths(order, rank, nz, ny, nx, top, vertex_codes, edge_codes, pare
                 killer[low] |= np.uint8(1 << axis)
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _cofaces(rank, cz, cy, cx, nz, ny, nx, top, absent, out):
     """Keys of the squares containing the edge at ``(cz, cy, cx)``; their count."""
     axis = _odd_axis(cz, cy, cx)
@@ -142,7 +142,7 @@ def _cofaces(rank, cz, cy, cx, nz, ny, nx, top, absent, out):
     return count
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _earliest_coface(rank, cz, cy, cx, nz, ny, nx, top, absent, out):
     count = _cofaces(rank, cz, cy, cx, nz, ny, nx, top, absent, out)
     best = np.int64(-1)
@@ -152,7 +152,7 @@ def _earliest_coface(rank, cz, cy, cx, nz, ny, nx, top, absent, out):
     return best
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _latest_face(rank, order, key, nz, ny, nx, top, absent):
     """Key of the last face to enter of the square with this key (all faces are present)."""
     cz, cy, cx = key_cell(key, order, ny, nx, top)
@@ -175,7 +175,7 @@ def _grow(a, n):
     return b
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _heap_push(heap, size, key):
     if size == heap.shape[0]:
         heap = _grow(heap, size + 1)
@@ -190,7 +190,7 @@ def _heap_push(heap, size, key):
     return heap, size + 1
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _heap_pop(heap, size):
     """Remove the smallest key (``heap[0]``); the new size."""
     size -= 1
@@ -209,7 +209,7 @@ def _heap_pop(heap, size):
     return size
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _heap_pivot(heap, size):
     """The smallest key present an odd number of times (-1 if none); pairs below it are
     removed (they cancel over Z/2). Returns the key and the new size."""
@@ -224,7 +224,7 @@ def _heap_pivot(heap, size):
     return np.int64(-1), heap, size
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _slot(keys, key):
     """Slot of ``key`` in the open-addressing table ``keys`` (its own, or the empty one)."""
     mask = keys.shape[0] - 1
@@ -248,11 +248,13 @@ def _rehash(keys, vals):
 
 
 @njit(cache=True, nogil=True)
-def _reduce_coboundaries(order, rank, values, nz, ny, nx, top, edge_codes, killer):
+def _reduce_coboundaries(order, rank, nz, ny, nx, top, edge_codes, killer):
     """Steps 2 to 4: pair every edge left by the clearing with a square, or as essential.
 
-    Returns the birth and death voxels of the pairs of nonzero persistence, the birth
-    voxels of the essential classes, and the numbers of apparent and reduced columns.
+    Returns the birth and death voxels of the pairs that enter with different voxels (the
+    others have zero persistence; the image values are not read here, so the kernel is
+    compiled once for every dtype), the birth voxels of the essential classes, and the
+    numbers of apparent and reduced columns.
     """
     m = order.shape[0]
     shift = 1 if top else 0
@@ -342,7 +344,7 @@ def _reduce_coboundaries(order, rank, values, nz, ny, nx, top, edge_codes, kille
                 n_essential += 1
                 continue
             dead = key_voxel(pivot, order)
-            if values[dead] != values[v]:
+            if dead != v:
                 if n_pairs == births.shape[0]:
                     births = _grow(births, n_pairs + 1)
                     deaths = _grow(deaths, n_pairs + 1)
@@ -360,7 +362,7 @@ def tunnel_pairs(values: np.ndarray, order: np.ndarray, shape: tuple[int, int, i
     Parameters
     ----------
     values : (n,) array
-        The image, raveled (only compared for equality: zero-persistence pairs are dropped).
+        The image, raveled (read only to drop the pairs of zero persistence).
     order : (m,) int array
         The cavity-sweep order of :func:`._sort.sort_voxels`; voxels outside the mask are
         absent from it, so they never enter.
@@ -398,5 +400,7 @@ def tunnel_pairs(values: np.ndarray, order: np.ndarray, shape: tuple[int, int, i
                     star_codes(1, not top), parent, killer)
     del parent
     births, deaths, essential, apparent, reduced = _reduce_coboundaries(
-        order, rank, values, nz, ny, nx, top, star_codes(1, not top, descending=True), killer)
-    return TunnelPairs(births, deaths, essential, int(apparent), int(reduced))
+        order, rank, nz, ny, nx, top, star_codes(1, not top, descending=True), killer)
+    persists = values[births] != values[deaths]
+    return TunnelPairs(births[persists], deaths[persists], essential, int(apparent),
+                       int(reduced))
