@@ -17,6 +17,7 @@ MODULES = [
     "bench.real_scans",
     "bench.report",
     "bench.topology",
+    "bench.whole_diagram",
 ]
 
 

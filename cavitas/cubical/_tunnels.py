@@ -34,9 +34,13 @@ import numpy as np
 from numba import njit
 
 from ._cells import cell_key, key_cell, key_voxel, star_codes, wall_ranks
+from ._kernels import prefetch_around
 from ._sort import index_dtype
 
 __all__ = ["TunnelPairs", "tunnel_pairs"]
+
+#: How many voxels ahead in the sweep order the neighbourhood is prefetched.
+_AHEAD = 8
 
 
 @dataclass(frozen=True)
@@ -100,6 +104,9 @@ def _mark_h0_deaths(order, rank, nz, ny, nx, top, vertex_codes, edge_codes, pare
     ly, lx = (ny + 1, nx + 1) if top else (ny, nx)
     plane = ny * nx
     for r in range(m):
+        prefetch_around(rank, order, m - 1 - r - _AHEAD, nz, ny, nx, 1, True)
+        if not top:  # the vertices are the voxels
+            prefetch_around(parent, order, m - 1 - r - _AHEAD, nz, ny, nx, 1, True)
         v = order[m - 1 - r]
         z = v // plane
         y = (v - z * plane) // nx
@@ -126,41 +133,35 @@ def _mark_h0_deaths(order, rank, nz, ny, nx, top, vertex_codes, edge_codes, pare
 
 @njit(cache=True)
 def _cofaces(rank, cz, cy, cx, nz, ny, nx, top, absent, out):
-    """Keys of the squares containing the edge at ``(cz, cy, cx)``; their count."""
+    """Keys of the squares containing the edge at ``(cz, cy, cx)`` into ``out``; their count
+    and the earliest of them with its doubled coordinates (key -1 if there is none)."""
     axis = _odd_axis(cz, cy, cx)
     count = 0
+    best = np.int64(-1)
+    bz = by = bx = 0
     for other in range(3):
         if other == axis:
             continue
         sz, sy, sx = _axis_step(other)
         for sign in (-1, 1):
-            k = cell_key(rank, cz + sign * sz, cy + sign * sy, cx + sign * sx, nz, ny, nx, top,
-                         absent)
+            qz, qy, qx = cz + sign * sz, cy + sign * sy, cx + sign * sx
+            k = cell_key(rank, qz, qy, qx, nz, ny, nx, top, absent)
             if k >= 0:
                 out[count] = k
                 count += 1
-    return count
+                if best < 0 or k < best:
+                    best, bz, by, bx = k, qz, qy, qx
+    return count, best, bz, by, bx
 
 
 @njit(cache=True)
-def _earliest_coface(rank, cz, cy, cx, nz, ny, nx, top, absent, out):
-    count = _cofaces(rank, cz, cy, cx, nz, ny, nx, top, absent, out)
-    best = np.int64(-1)
-    for i in range(count):
-        if best < 0 or out[i] < best:
-            best = out[i]
-    return best
-
-
-@njit(cache=True)
-def _latest_face(rank, order, key, nz, ny, nx, top, absent):
-    """Key of the last face to enter of the square with this key (all faces are present)."""
-    cz, cy, cx = key_cell(key, order, ny, nx, top)
+def _latest_face(rank, cz, cy, cx, nz, ny, nx, top, absent):
+    """Key of the last face to enter of the square at ``(cz, cy, cx)`` (all are present)."""
     best = np.int64(-1)
     for axis in range(3):
-        sz, sy, sx = _axis_step(axis)
         if (cz, cy, cx)[axis] % 2 == 0:
             continue
+        sz, sy, sx = _axis_step(axis)
         for sign in (-1, 1):
             k = cell_key(rank, cz + sign * sz, cy + sign * sy, cx + sign * sx, nz, ny, nx, top,
                          absent)
@@ -272,6 +273,7 @@ def _reduce_coboundaries(order, rank, nz, ny, nx, top, edge_codes, killer):
     essential = np.empty(16, np.int64)
     n_pairs = n_essential = n_apparent = n_reduced = 0
     for r in range(m - 1, -1, -1):
+        prefetch_around(rank, order, m - 1 - r + _AHEAD, nz, ny, nx, 1, True)
         v = order[m - 1 - r]
         z = v // plane
         y = (v - z * plane) // nx
@@ -286,12 +288,8 @@ def _reduce_coboundaries(order, rank, nz, ny, nx, top, edge_codes, killer):
             sz, sy, sx = _axis_step(axis)
             if killer[_vertex_index(cz - sz, cy - sy, cx - sx, ly, lx)] & (1 << axis):
                 continue  # cleared: this edge ends a component
-            count = _cofaces(rank, cz, cy, cx, nz, ny, nx, top, m, cof)
-            pivot = np.int64(-1)
-            for q in range(count):
-                if pivot < 0 or cof[q] < pivot:
-                    pivot = cof[q]
-            if pivot >= 0 and _latest_face(rank, order, pivot, nz, ny, nx, top, m) == edge:
+            count, pivot, qz, qy, qx = _cofaces(rank, cz, cy, cx, nz, ny, nx, top, m, cof)
+            if pivot >= 0 and _latest_face(rank, qz, qy, qx, nz, ny, nx, top, m) == edge:
                 n_apparent += 1
             else:
                 n_reduced += 1
@@ -308,12 +306,14 @@ def _reduce_coboundaries(order, rank, nz, ny, nx, top, edge_codes, killer):
                         for q in range(starts[col], starts[col + 1]):
                             heap, size = _heap_push(heap, size, pool[q])
                         continue
-                    other = _latest_face(rank, order, pivot, nz, ny, nx, top, m)
+                    qz, qy, qx = key_cell(pivot, order, ny, nx, top)
+                    other = _latest_face(rank, qz, qy, qx, nz, ny, nx, top, m)
                     if other != edge:
                         oz, oy, ox = key_cell(other, order, ny, nx, top)
-                        if _earliest_coface(rank, oz, oy, ox, nz, ny, nx, top, m, cof) == pivot:
-                            count = _cofaces(rank, oz, oy, ox, nz, ny, nx, top, m, cof)
-                            for q in range(count):  # an apparent pair's column, re-created
+                        count, first, _, _, _ = _cofaces(rank, oz, oy, ox, nz, ny, nx, top, m,
+                                                         cof)
+                        if first == pivot:  # an apparent pair's column, re-created
+                            for q in range(count):
                                 heap, size = _heap_push(heap, size, cof[q])
                             continue
                     break
