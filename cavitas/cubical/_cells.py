@@ -25,31 +25,65 @@ same voxel, with a lower dimension), and decode back to the cell (:func:`key_cel
 
 from __future__ import annotations
 
+import itertools
+
 import numpy as np
 from numba import njit
 
-__all__ = ["cell_key", "key_cell", "key_dim", "key_voxel", "star_codes", "wall_ranks"]
+__all__ = ["cell_key", "enters_with", "key_cell", "key_dim", "key_voxel", "star_codes",
+           "wall_ranks"]
 
 
-def star_codes(dim: int, vertices: bool, descending: bool = False) -> np.ndarray:
-    """Local codes (0..26) of the cells of dimension ``dim`` that a voxel's star holds, with
-    their offsets ``(dz, dy, dx)`` in doubled coordinates: shape ``(k, 4)``.
+def star_codes(dim: int, vertices: bool, descending: bool = False) -> tuple[np.ndarray,
+                                                                            np.ndarray]:
+    """The cells of dimension ``dim`` in a voxel's star, and the other voxels they touch.
+
+    Returns
+    -------
+    codes : (k, 4) int64
+        Per cell, its local code (0..26, ascending unless ``descending``) and its offset
+        ``(dz, dy, dx)`` in doubled coordinates.
+    others : (k, j, 3) int64
+        Per cell, the offsets (in voxels) of the ``j`` other voxels it touches: the same
+        in both constructions (``{0, d}`` along each axis where the offset ``d`` is not 0),
+        where only the dimension differs.
 
     Examples
     --------
-    >>> star_codes(1, vertices=True)[:, 0].tolist()
-    [4, 10, 12, 14, 16, 22]
-    >>> len(star_codes(1, vertices=False))
-    12
+    >>> codes, others = star_codes(1, vertices=True)
+    >>> codes[:, 0].tolist(), others.shape
+    ([4, 10, 12, 14, 16, 22], (6, 1, 3))
+    >>> star_codes(1, vertices=False)[1].shape
+    (12, 3, 3)
     """
-    rows = []
+    codes, others = [], []
     for code in range(27):
-        dz, dy, dx = code // 9 - 1, code // 3 % 3 - 1, code % 3 - 1
-        nonzero = (dz != 0) + (dy != 0) + (dx != 0)
+        offset = (code // 9 - 1, code // 3 % 3 - 1, code % 3 - 1)
+        nonzero = sum(d != 0 for d in offset)
         if (nonzero if vertices else 3 - nonzero) == dim:
-            rows.append((code, dz, dy, dx))
-    table = np.array(rows, np.int64).reshape(-1, 4)
-    return table[::-1].copy() if descending else table
+            codes.append((code, *offset))
+            steps = itertools.product(*[(0, d) if d else (0,) for d in offset])
+            others.append([s for s in steps if any(s)])
+    order = slice(None, None, -1) if descending else slice(None)
+    return (np.array(codes, np.int64).reshape(-1, 4)[order].copy(),
+            np.array(others, np.int64).reshape(len(codes), -1, 3)[order].copy())
+
+
+@njit(cache=True)
+def enters_with(rank, z, y, x, r, others, nz, ny, nx, top):
+    """Whether the star cell whose other voxels are at ``others`` (offsets from voxel
+    ``(z, y, x)`` of wall rank ``r``) enters with that voxel: all others in the grid and
+    earlier (voxels as vertices), or none of them earlier (voxels as top cells)."""
+    for j in range(others.shape[0]):
+        oz, oy, ox = z + others[j, 0], y + others[j, 1], x + others[j, 2]
+        if oz < 0 or oy < 0 or ox < 0 or oz >= nz or oy >= ny or ox >= nx:
+            if top:
+                continue
+            return False
+        earlier = rank[(oz * ny + oy) * nx + ox] < r
+        if earlier == top:
+            return False
+    return True
 
 
 @njit(cache=True, nogil=True)

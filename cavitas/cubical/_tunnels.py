@@ -33,7 +33,7 @@ from dataclasses import dataclass
 import numpy as np
 from numba import njit
 
-from ._cells import cell_key, key_cell, key_voxel, star_codes, wall_ranks
+from ._cells import cell_key, enters_with, key_cell, key_voxel, star_codes, wall_ranks
 from ._kernels import prefetch_around
 from ._sort import index_dtype
 
@@ -96,7 +96,8 @@ def _find(parent, x):
 
 
 @njit(cache=True, nogil=True)
-def _mark_h0_deaths(order, rank, nz, ny, nx, top, vertex_codes, edge_codes, parent, killer):
+def _mark_h0_deaths(order, rank, nz, ny, nx, top, vertex_codes, vertex_others, edge_codes,
+                    edge_others, parent, killer):
     """Step 1: set bit ``axis`` of ``killer[vertex]`` for each edge (from ``vertex`` along
     ``axis``) that joins two components when the vertices and edges enter in key order."""
     m = order.shape[0]
@@ -113,14 +114,14 @@ def _mark_h0_deaths(order, rank, nz, ny, nx, top, vertex_codes, edge_codes, pare
         x = v - z * plane - y * nx
         pz, py, px = 2 * z + shift, 2 * y + shift, 2 * x + shift
         for i in range(vertex_codes.shape[0]):
-            cz, cy, cx = pz + vertex_codes[i, 1], py + vertex_codes[i, 2], px + vertex_codes[i, 3]
-            if cell_key(rank, cz, cy, cx, nz, ny, nx, top, m) == r * 108 + vertex_codes[i, 0]:
-                u = _vertex_index(cz, cy, cx, ly, lx)
+            if enters_with(rank, z, y, x, r, vertex_others[i], nz, ny, nx, top):
+                u = _vertex_index(pz + vertex_codes[i, 1], py + vertex_codes[i, 2],
+                                  px + vertex_codes[i, 3], ly, lx)
                 parent[u] = u
         for i in range(edge_codes.shape[0]):
-            cz, cy, cx = pz + edge_codes[i, 1], py + edge_codes[i, 2], px + edge_codes[i, 3]
-            if cell_key(rank, cz, cy, cx, nz, ny, nx, top, m) != r * 108 + 27 + edge_codes[i, 0]:
+            if not enters_with(rank, z, y, x, r, edge_others[i], nz, ny, nx, top):
                 continue
+            cz, cy, cx = pz + edge_codes[i, 1], py + edge_codes[i, 2], px + edge_codes[i, 3]
             axis = _odd_axis(cz, cy, cx)
             sz, sy, sx = _axis_step(axis)
             low = _vertex_index(cz - sz, cy - sy, cx - sx, ly, lx)
@@ -249,7 +250,7 @@ def _rehash(keys, vals):
 
 
 @njit(cache=True, nogil=True)
-def _reduce_coboundaries(order, rank, nz, ny, nx, top, edge_codes, killer):
+def _reduce_coboundaries(order, rank, nz, ny, nx, top, edge_codes, edge_others, killer):
     """Steps 2 to 4: pair every edge left by the clearing with a square, or as essential.
 
     Returns the birth and death voxels of the pairs that enter with different voxels (the
@@ -280,10 +281,10 @@ def _reduce_coboundaries(order, rank, nz, ny, nx, top, edge_codes, killer):
         x = v - z * plane - y * nx
         pz, py, px = 2 * z + shift, 2 * y + shift, 2 * x + shift
         for i in range(edge_codes.shape[0]):
-            cz, cy, cx = pz + edge_codes[i, 1], py + edge_codes[i, 2], px + edge_codes[i, 3]
-            edge = cell_key(rank, cz, cy, cx, nz, ny, nx, top, m)
-            if edge != r * 108 + 27 + edge_codes[i, 0]:
+            if not enters_with(rank, z, y, x, r, edge_others[i], nz, ny, nx, top):
                 continue
+            cz, cy, cx = pz + edge_codes[i, 1], py + edge_codes[i, 2], px + edge_codes[i, 3]
+            edge = r * 108 + 27 + edge_codes[i, 0]
             axis = _odd_axis(cz, cy, cx)
             sz, sy, sx = _axis_step(axis)
             if killer[_vertex_index(cz - sz, cy - sy, cx - sx, ly, lx)] & (1 << axis):
@@ -391,16 +392,16 @@ def tunnel_pairs(values: np.ndarray, order: np.ndarray, shape: tuple[int, int, i
     nz, ny, nx = shape
     top = connectivity != 1
     n = nz * ny * nx
-    rank = np.empty(n, index_dtype(n + 1))
+    rank: np.ndarray = np.empty(n, index_dtype(n + 1))
     wall_ranks(order, n, rank)
     lattice = (nz + 1) * (ny + 1) * (nx + 1) if top else n
     killer = np.zeros(lattice, np.uint8)
-    parent = np.empty(lattice, index_dtype(lattice))
-    _mark_h0_deaths(order, rank, nz, ny, nx, top, star_codes(0, not top),
-                    star_codes(1, not top), parent, killer)
+    parent: np.ndarray = np.empty(lattice, index_dtype(lattice))
+    _mark_h0_deaths(order, rank, nz, ny, nx, top, *star_codes(0, not top),
+                    *star_codes(1, not top), parent, killer)
     del parent
     births, deaths, essential, apparent, reduced = _reduce_coboundaries(
-        order, rank, nz, ny, nx, top, star_codes(1, not top, descending=True), killer)
+        order, rank, nz, ny, nx, top, *star_codes(1, not top, descending=True), killer)
     persists = values[births] != values[deaths]
     return TunnelPairs(births[persists], deaths[persists], essential, int(apparent),
                        int(reduced))
