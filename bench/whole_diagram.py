@@ -87,26 +87,26 @@ def _against_gudhi(gudhi, side: int) -> list[dict]:
 
 
 def _child_peak(side: int, parallel: bool) -> str:
-    """Time and extra peak RSS (bytes) of one whole-diagram call, in this (fresh) process."""
+    """Wall and CPU time and extra peak RSS (bytes) of one whole-diagram call, in this
+    (fresh) process."""
     image = smoothed_noise(side)
     persistence(smoothed_noise(24), dims=ALL, parallel=parallel)  # kernels loaded
     try:
         Path("/proc/self/clear_refs").write_text("5")  # reset VmHWM to the current RSS
     except OSError:
-        return "-1 -1"
+        return "-1 -1 -1"
     before = _rss_kib("VmRSS")
-    start = time.perf_counter()
-    persistence(image, dims=ALL, parallel=parallel)
-    return f"{time.perf_counter() - start} {(_rss_kib('VmHWM') - before) * 1024}"
+    wall, cpu, _ = _timed(persistence, image, dims=ALL, parallel=parallel)
+    return f"{wall} {cpu} {(_rss_kib('VmHWM') - before) * 1024}"
 
 
-def _in_fresh_process(side: int, parallel: bool) -> tuple[float, int]:
+def _in_fresh_process(side: int, parallel: bool) -> tuple[float, float, int]:
     code = f"from bench.whole_diagram import _child_peak; print(_child_peak({side}, {parallel}))"
     root = Path(__file__).resolve().parent.parent
     out = subprocess.run([sys.executable, "-c", code], cwd=root, capture_output=True,
                          text=True, check=True)
-    seconds, peak = out.stdout.split()[-2:]
-    return float(seconds), int(peak)
+    wall, cpu, peak = out.stdout.split()[-3:]
+    return float(wall), float(cpu), int(peak)
 
 
 def run(args) -> list[dict]:
@@ -122,9 +122,10 @@ def run(args) -> list[dict]:
             rows += _against_gudhi(gudhi, side)
     n = 256**3
     for parallel, label in ((True, "default"), (False, "parallel=False")):
-        seconds, peak = _in_fresh_process(256, parallel)
+        wall, cpu, peak = _in_fresh_process(256, parallel)
         rows += [
-            {"metric": f"256^3 ours (H0 + H1 + H2), {label}", "value": f"{seconds:.1f} s",
+            {"metric": f"256^3 ours (H0 + H1 + H2), {label}",
+             "value": f"{wall:.1f} s (cpu {cpu:.1f} s)",
              "note": "fresh process, bright walls, connectivity 1"},
             {"metric": f"256^3   extra bytes per voxel (peak RSS), {label}",
              "value": f"{peak / n:.1f}", "note": "beyond the input"},

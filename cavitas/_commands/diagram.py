@@ -68,8 +68,9 @@ def register(subparsers: Any, *, parents: list[argparse.ArgumentParser],
                              "are analysed, the rest counts as outside")
     parser.add_argument("--one-thread", action="store_true",
                         help="run the steps one after the other instead of two at a time: "
-                             "for an image, 8 instead of 12 bytes per pixel beyond it, about "
-                             "1.7x slower; for a volume, 4 bytes per voxel less")
+                             "slower; a 2D image then needs about 6 instead of 10 bytes per "
+                             "pixel beyond it (a volume's whole diagram about 17 bytes per "
+                             "voxel either way)")
     parser.add_argument("--bars", type=int, default=50, metavar="K",
                         help="number of cavity bars drawn in barcode.png, longest first")
     parser.add_argument("--euler", action="store_true",

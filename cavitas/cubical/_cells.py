@@ -30,8 +30,7 @@ import itertools
 import numpy as np
 from numba import njit
 
-__all__ = ["cell_key", "enters_with", "key_cell", "key_dim", "key_voxel", "star_codes",
-           "wall_ranks"]
+__all__ = ["cell_key", "enters_with", "key_cell", "key_voxel", "star_codes", "wall_ranks"]
 
 
 def star_codes(dim: int, vertices: bool, descending: bool = False) -> tuple[np.ndarray,
@@ -144,12 +143,6 @@ def cell_key(rank, cz, cy, cx, nz, ny, nx, top, absent):
     local = ((cz - 2 * bz - shift + 1) * 9 + (cy - 2 * by - shift + 1) * 3
              + (cx - 2 * bx - shift + 1))
     return (np.int64(best) * 4 + dim) * 27 + local
-
-
-@njit(cache=True)
-def key_dim(key):
-    """Dimension of the cell with this key."""
-    return (key // 27) % 4
 
 
 @njit(cache=True)
