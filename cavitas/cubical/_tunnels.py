@@ -34,7 +34,8 @@ import numpy as np
 from numba import njit
 
 from ._cells import cell_key, enters_with, key_cell, key_voxel, star_codes, wall_ranks
-from ._kernels import prefetch_around
+from ._kernels import grow, prefetch_around
+from ._neighbors import unravel3
 from ._sort import index_dtype
 
 __all__ = ["TunnelPairs", "tunnel_pairs"]
@@ -103,15 +104,12 @@ def _mark_h0_deaths(order, rank, nz, ny, nx, top, vertex_codes, vertex_others, e
     m = order.shape[0]
     shift = 1 if top else 0
     ly, lx = (ny + 1, nx + 1) if top else (ny, nx)
-    plane = ny * nx
     for r in range(m):
         prefetch_around(rank, order, m - 1 - r - _AHEAD, nz, ny, nx, 1, True)
         if not top:  # the vertices are the voxels
             prefetch_around(parent, order, m - 1 - r - _AHEAD, nz, ny, nx, 1, True)
         v = order[m - 1 - r]
-        z = v // plane
-        y = (v - z * plane) // nx
-        x = v - z * plane - y * nx
+        z, y, x = unravel3(v, ny, nx)
         pz, py, px = 2 * z + shift, 2 * y + shift, 2 * x + shift
         for i in range(vertex_codes.shape[0]):
             if enters_with(rank, z, y, x, r, vertex_others[i], nz, ny, nx, top):
@@ -171,16 +169,9 @@ def _latest_face(rank, cz, cy, cx, nz, ny, nx, top, absent):
 
 
 @njit(cache=True)
-def _grow(a, n):
-    b = np.empty(max(2 * a.shape[0], n), a.dtype)
-    b[: a.shape[0]] = a
-    return b
-
-
-@njit(cache=True)
 def _heap_push(heap, size, key):
     if size == heap.shape[0]:
-        heap = _grow(heap, size + 1)
+        heap = grow(heap, size + 1)
     i = size
     heap[i] = key
     while i > 0:
@@ -261,7 +252,6 @@ def _reduce_coboundaries(order, rank, nz, ny, nx, top, edge_codes, edge_others, 
     m = order.shape[0]
     shift = 1 if top else 0
     ly, lx = (ny + 1, nx + 1) if top else (ny, nx)
-    plane = ny * nx
     cof = np.empty(4, np.int64)
     heap = np.empty(64, np.int64)
     keys = np.full(1024, -1, np.int64)  # pivot square -> stored column
@@ -276,9 +266,7 @@ def _reduce_coboundaries(order, rank, nz, ny, nx, top, edge_codes, edge_others, 
     for r in range(m - 1, -1, -1):
         prefetch_around(rank, order, m - 1 - r + _AHEAD, nz, ny, nx, 1, True)
         v = order[m - 1 - r]
-        z = v // plane
-        y = (v - z * plane) // nx
-        x = v - z * plane - y * nx
+        z, y, x = unravel3(v, ny, nx)
         pz, py, px = 2 * z + shift, 2 * y + shift, 2 * x + shift
         for i in range(edge_codes.shape[0]):
             if not enters_with(rank, z, y, x, r, edge_others[i], nz, ny, nx, top):
@@ -322,7 +310,7 @@ def _reduce_coboundaries(order, rank, nz, ny, nx, top, edge_codes, edge_others, 
                     if 2 * (n_stored + 1) > keys.shape[0]:
                         keys, vals = _rehash(keys, vals)
                     if n_stored + 2 > starts.shape[0]:
-                        starts = _grow(starts, n_stored + 2)
+                        starts = grow(starts, n_stored + 2)
                     slot = _slot(keys, pivot)
                     keys[slot] = pivot
                     vals[slot] = n_stored
@@ -333,22 +321,22 @@ def _reduce_coboundaries(order, rank, nz, ny, nx, top, edge_codes, edge_others, 
                             break
                         size = _heap_pop(heap, size)
                         if at == pool.shape[0]:
-                            pool = _grow(pool, at + 1)
+                            pool = grow(pool, at + 1)
                         pool[at] = top_key
                         at += 1
                     n_stored += 1
                     starts[n_stored] = at
             if pivot < 0:
                 if n_essential == essential.shape[0]:
-                    essential = _grow(essential, n_essential + 1)
+                    essential = grow(essential, n_essential + 1)
                 essential[n_essential] = v
                 n_essential += 1
                 continue
             dead = key_voxel(pivot, order)
             if dead != v:
                 if n_pairs == births.shape[0]:
-                    births = _grow(births, n_pairs + 1)
-                    deaths = _grow(deaths, n_pairs + 1)
+                    births = grow(births, n_pairs + 1)
+                    deaths = grow(deaths, n_pairs + 1)
                 births[n_pairs] = v
                 deaths[n_pairs] = dead
                 n_pairs += 1
