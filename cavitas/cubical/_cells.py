@@ -99,18 +99,15 @@ def wall_ranks(order, n, rank):
 @njit(cache=True)
 def _span(c, shift, n, top):
     """Voxel coordinates ``lo..hi`` touching doubled coordinate ``c`` along one axis, and
-    whether the cell is an interval there (odd coordinate)."""
+    whether the cell is an interval there (odd coordinate). Bit operations, as ``c - shift``
+    may be -1: ``>> 1`` is floor division by 2, ``& 1`` the parity."""
     t = c - shift
-    if t % 2 == 0:
-        lo = t // 2
-        hi = lo
-    else:
-        lo = (t - 1) // 2
-        hi = lo + 1
+    lo = t >> 1
+    hi = lo + (t & 1)
     if top:  # voxels as top cells: the neighbours beyond the border are absent
         lo = max(lo, 0)
         hi = min(hi, n - 1)
-    return lo, hi, c % 2 == 1
+    return lo, hi, c & 1
 
 
 @njit(cache=True)
