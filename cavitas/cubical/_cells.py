@@ -30,7 +30,8 @@ import itertools
 import numpy as np
 from numba import njit
 
-__all__ = ["cell_key", "enters_with", "key_cell", "key_voxel", "star_codes", "wall_ranks"]
+__all__ = ["cell_key", "enters_with", "key_cell", "key_voxel", "star_codes", "star_key",
+           "wall_ranks"]
 
 
 def star_codes(dim: int, vertices: bool, descending: bool = False) -> tuple[np.ndarray,
@@ -139,14 +140,21 @@ def cell_key(rank, cz, cy, cx, nz, ny, nx, top, absent):
     dim = np.int64(oz) + np.int64(oy) + np.int64(ox)
     local = ((cz - 2 * bz - shift + 1) * 9 + (cy - 2 * by - shift + 1) * 3
              + (cx - 2 * bx - shift + 1))
-    return (np.int64(best) * 4 + dim) * 27 + local
+    return star_key(best, dim, local)
+
+
+@njit(cache=True)
+def star_key(rank, dim, code):
+    """Key of the cell of dimension ``dim`` at ``code`` in the star of the voxel of wall
+    rank ``rank``, for a cell known to enter with that voxel."""
+    return (np.int64(rank) * 4 + dim) * 27 + code
 
 
 @njit(cache=True)
 def key_voxel(key, order):
     """Flat index of the voxel with which the cell of this key enters."""
     m = order.shape[0]
-    return order[m - 1 - key // 108]
+    return order[m - 1 - key // (4 * 27)]
 
 
 @njit(cache=True)

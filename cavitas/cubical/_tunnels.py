@@ -33,7 +33,7 @@ from dataclasses import dataclass
 import numpy as np
 from numba import njit
 
-from ._cells import cell_key, enters_with, key_cell, key_voxel, star_codes, wall_ranks
+from ._cells import cell_key, enters_with, key_cell, key_voxel, star_codes, star_key, wall_ranks
 from ._kernels import grow, prefetch_around
 from ._neighbors import unravel3
 from ._sort import index_dtype
@@ -272,7 +272,7 @@ def _reduce_coboundaries(order, rank, nz, ny, nx, top, edge_codes, edge_others, 
             if not enters_with(rank, z, y, x, r, edge_others[i], nz, ny, nx, top):
                 continue
             cz, cy, cx = pz + edge_codes[i, 1], py + edge_codes[i, 2], px + edge_codes[i, 3]
-            edge = r * 108 + 27 + edge_codes[i, 0]
+            edge = star_key(r, 1, edge_codes[i, 0])
             axis = _odd_axis(cz, cy, cx)
             sz, sy, sx = _axis_step(axis)
             if killer[_vertex_index(cz - sz, cy - sy, cx - sx, ly, lx)] & (1 << axis):
