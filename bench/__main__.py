@@ -19,6 +19,7 @@ MODULES = [
     "bench.report",
     "bench.topology",
     "bench.chunked",
+    "bench.whole_diagram",
 ]
 
 

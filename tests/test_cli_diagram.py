@@ -106,7 +106,8 @@ def test_help_teaches(capsys):
 
 def test_volume_cavity_dimension_is_h2(tmp_path):
     # scene of our own: a bright spherical shell around a dark core, in a 3D stack;
-    # reference: one enclosed dark component (scipy.ndimage.label), i.e. one H2 class
+    # reference: one enclosed dark component (scipy.ndimage.label), i.e. one H2 class, and
+    # no loop (a spherical shell has Betti numbers 1, 0, 1: textbook topology)
     zz, yy, xx = np.indices((14, 16, 16))
     r = np.hypot(np.hypot(zz - 7, yy - 8), xx - 8)
     volume = np.where((r >= 3.5) & (r < 5.5), 180, 10).astype(np.uint8)
@@ -116,13 +117,14 @@ def test_volume_cavity_dimension_is_h2(tmp_path):
     out = tmp_path / "out"
     assert main(["diagram", str(tmp_path / "shell.tif"), "-o", str(out), "-q"]) == 0
     dgm = load_diagram(out / "diagram.csv")
-    assert dgm.dims == (0, 2)
+    assert dgm.dims == (0, 1, 2)  # a volume's diagram has every dimension
     assert dgm.pairs(2)[["birth", "death"]].tolist() == [(180.0, 10.0)]
+    assert len(dgm.pairs(1)) == 0
     # the low-memory run (sweeps one after the other) writes the same diagram
     assert main(["diagram", str(tmp_path / "shell.tif"), "-o", str(tmp_path / "serial"),
                  "--one-thread", "-q"]) == 0
     serial = load_diagram(tmp_path / "serial" / "diagram.csv")
-    for dim in (0, 2):
+    for dim in (0, 1, 2):
         np.testing.assert_array_equal(serial.pairs(dim), dgm.pairs(dim))
 
 

@@ -70,8 +70,8 @@ def test_bad_connectivity_names_the_cubical_reason():
 
 
 def test_bad_dims():
-    with pytest.raises(ParameterError, match="not available yet"):
-        persistence(np.zeros((3, 3, 3)), dims=(1,))
+    with pytest.raises(ParameterError, match=r"dims must hold .* \[0, 2\]"):
+        persistence(np.zeros((3, 3, 3)), dims=(3,))
     with pytest.raises(ParameterError, match="dims"):
         persistence(np.zeros((3, 3)), dims=(2,))
     with pytest.raises(ParameterError, match="dims"):
@@ -86,6 +86,9 @@ def test_dims_select_what_is_computed():
     with pytest.raises(ParameterError, match="not computed"):
         dgm.pairs(0)
     assert persistence(np.zeros((3, 3, 3))).dims == (0, 2)
+    # H1 of a volume only when asked for, alone or with the others
+    assert persistence(np.zeros((3, 3, 3)), dims=(1,)).dims == (1,)
+    assert persistence(np.zeros((3, 3, 3)), dims=(0, 1, 2)).dims == (0, 1, 2)
 
 
 def test_helpers_document_their_layout():

@@ -36,8 +36,8 @@ from numba.cpython.unsafe.numbers import trailing_zeros
 from ._neighbors import is_interior, neighbor_offsets, neighbor_or_outside, unravel3
 from ._prefetch import prefetch
 
-__all__ = ["add_distinct", "cavity_sweep_kernel", "eldest_root", "h0_sweep", "neighbor_chain",
-           "prefetch_around"]
+__all__ = ["add_distinct", "cavity_sweep_kernel", "eldest_root", "grow", "h0_sweep",
+           "neighbor_chain", "prefetch_around"]
 
 #: How many voxels ahead in the sweep order the neighbourhood is prefetched.
 _AHEAD = 8
@@ -158,7 +158,8 @@ def eldest_root(parent, roots, nr):
 
 
 @njit(cache=True)
-def _grow(a, n):
+def grow(a, n):
+    """A copy of ``a`` with room for at least ``n`` entries (twice its size or more)."""
     b = np.empty(max(2 * a.shape[0], n), a.dtype)
     b[: a.shape[0]] = a
     return b
@@ -244,8 +245,8 @@ def h0_sweep(values, order, parent, offsets_flat, offsets_zyx, chain, nz, ny, nx
             rv = old
             if young != v and values[young] != values[v]:
                 if npairs == births.shape[0]:
-                    births = _grow(births, npairs + 1)
-                    deaths = _grow(deaths, npairs + 1)
+                    births = grow(births, npairs + 1)
+                    deaths = grow(deaths, npairs + 1)
                 births[npairs] = young
                 deaths[npairs] = v
                 npairs += 1
@@ -349,10 +350,10 @@ def cavity_sweep_kernel(order, parent, mask, use_mask, offsets_flat, offsets_zyx
             nr = add_distinct(roots, nr, _find_neg(parent, w))
         if nr == 0:
             if nnodes == core.shape[0]:
-                core = _grow(core, nnodes + 1)
-                breach = _grow(breach, nnodes + 1)
-                tparent = _grow(tparent, nnodes + 1)
-                size = _grow(size, nnodes + 1)
+                core = grow(core, nnodes + 1)
+                breach = grow(breach, nnodes + 1)
+                tparent = grow(tparent, nnodes + 1)
+                size = grow(size, nnodes + 1)
             core[nnodes] = v
             breach[nnodes] = -1
             tparent[nnodes] = -1

@@ -32,7 +32,7 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
-from ._kernels import _find_neg, _grow, add_distinct, eldest_root
+from ._kernels import _find_neg, add_distinct, eldest_root, grow
 from ._ring import RING_DX, RING_DY
 
 __all__ = ["plane_cavity_merges", "plane_critical", "plane_h0_merges", "plane_links"]
@@ -208,8 +208,8 @@ def plane_critical(values, mask, use_mask, bright, for_h0, ny, nx, count, reps, 
         if check_finite:
             nonfinite += _row_nonfinite(values[row:row + nx], mask[row:row + nx], use_mask)
         if critical.shape[0] < ncrit + nx:
-            critical = _grow(critical, ncrit + nx)
-            critical_codes = _grow(critical_codes, critical.shape[0])
+            critical = grow(critical, ncrit + nx)
+            critical_codes = grow(critical_codes, critical.shape[0])
         ncrit, pieces = _classify_row(codes, mask, use_mask, row, nx, interior_row, count,
                                       reps, off, parent, critical, critical_codes, ncrit,
                                       masked_out)
