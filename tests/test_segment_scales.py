@@ -75,7 +75,7 @@ def test_a_piece_barely_above_its_threshold_separates_nothing():
     assert merged.summary["split"] == 0
 
 
-def test_plan_asks_the_coarsest_finer_scale_and_ignores_coarser_ones():
+def test_plan_asks_the_next_finer_scale_for_separations():
     base, _ = _two_cells()
     two = np.array([np.ravel_multi_index(p, base.shape) for p in [(2, 2), (2, 6)]])
     clear = np.full(2, 2.0)

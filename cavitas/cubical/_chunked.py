@@ -200,7 +200,12 @@ def persistence_in_chunks(image: np.ndarray, chunks: Sequence[Sequence[int]], *,
 def _dims(dims: Any, ndim: int) -> tuple[int, ...]:
     from ._persistence import _check_dims
 
-    return _check_dims(dims, ndim)
+    wanted = _check_dims(dims, ndim)
+    if ndim == 3 and 1 in wanted:
+        raise ParameterError("dims: H1 (tunnels and loops) of a volume read in chunks is not "
+                             "available yet; ask for dims (0, 2), or compute it in memory "
+                             "from a NumPy array.", parameters=("dims",))
+    return wanted
 
 
 def _chunk_task(block: np.ndarray, mask: np.ndarray | None, box: Box,

@@ -220,6 +220,24 @@ class ChamberValues:
 
 
 @dataclass
+class EnclosureValues:
+    """What the table says of each enclosure (levels walls high), from its scale's sweep."""
+
+    birth: np.ndarray         # the level it closes at
+    death: np.ndarray         # the level it formed at
+    breach_voxel: np.ndarray
+    core_voxel: np.ndarray
+
+    @classmethod
+    def of(cls, sweep: Any, hier: Any) -> EnclosureValues:
+        """The enclosures of ``hier`` (ids after its chambers) on ``sweep``."""
+        close, formed = hier.close_rank[hier.n_chambers:], hier.formed_rank[hier.n_chambers:]
+        return cls(birth=sweep.level_of_rank(close), death=sweep.level_of_rank(formed),
+                   breach_voxel=sweep.order[close],
+                   core_voxel=sweep.tree.core[hier.node[hier.n_chambers:]])
+
+
+@dataclass
 class TableParts:
     """What :func:`build_table` hands to :meth:`Segmentation.assemble`."""
 
@@ -232,12 +250,14 @@ class TableParts:
     masked: bool                        # an ROI was given
 
 
-def build_table(*, vol: Volume, sign: float, chambers: ChamberValues, hier: Any, sweep: Any,
-                regions: Any, tau: float, scale: float, params: Any) -> TableParts:
+def build_table(*, vol: Volume, sign: float, chambers: ChamberValues,
+                enclosures: EnclosureValues, hier: Any, outside: np.ndarray, regions: Any,
+                tau: float, scale: float, params: Any) -> TableParts:
     """Apply the volume bounds, renumber, and build the regions table.
 
-    Chamber rows take their values from ``chambers``; enclosures from the base scale's
-    ``sweep`` (its tree and levels), with threshold ``tau`` and detection ``scale``.
+    Chamber rows take their values from ``chambers``; enclosures from ``enclosures``, with
+    threshold ``tau`` and detection ``scale`` (the base scale's); ``outside`` marks the
+    voxels beyond the ROI.
 
     ``regions`` (a :class:`~cavitas.segment._segment.Delineation`) holds chambers
     ``1..n_chambers`` and border-cut pieces after them; its ``open_to_border`` marks the
@@ -281,7 +301,6 @@ def build_table(*, vol: Volume, sign: float, chambers: ChamberValues, hier: Any,
             return 0
         return int(new_enc[p - n_ch - 1]) if p > n_ch else int(new_ch[p])
 
-    tree = sweep.tree
     mine = chambers.take(ok)
     ch_nodes = mine.node
     ch_parent = np.array([remap_parent(p) for p in hier.parent[:n_ch][ok]], np.int64)
@@ -310,18 +329,15 @@ def build_table(*, vol: Volume, sign: float, chambers: ChamberValues, hier: Any,
             enclosed[p - 1] += enclosed[i]
 
     ch_level = used_level[ok]
-    enc_close = hier.close_rank[n_ch:]
-    enc_formed = hier.formed_rank[n_ch:]
     nan_m = np.full(m, np.nan)
-    birth = np.concatenate([sign * mine.birth, sign * sweep.level_of_rank(enc_close), nan_m])
-    death = np.concatenate([sign * mine.death, sign * sweep.level_of_rank(enc_formed), nan_m])
+    birth = np.concatenate([sign * mine.birth, sign * enclosures.birth, nan_m])
+    death = np.concatenate([sign * mine.death, sign * enclosures.death, nan_m])
     persistence = np.abs(birth - death)
     threshold = np.concatenate([mine.threshold, np.full(n_enc, tau), nan_m])
     scales = np.concatenate([mine.scale, np.full(n_enc + m, scale)])
-    breach_voxel = np.concatenate([mine.breach_voxel, sweep.order[enc_close], np.full(m, -1)])
-    core_voxel = np.concatenate([mine.core_voxel, tree.core[hier.node[n_ch:]],
-                                 np.full(m, -1)])
-    level = np.concatenate([sign * ch_level, sign * sweep.level_of_rank(enc_close), nan_m])
+    breach_voxel = np.concatenate([mine.breach_voxel, enclosures.breach_voxel, np.full(m, -1)])
+    core_voxel = np.concatenate([mine.core_voxel, enclosures.core_voxel, np.full(m, -1)])
+    level = np.concatenate([sign * ch_level, sign * enclosures.birth, nan_m])
     touches = np.zeros(n, bool)
     touches[k + n_enc:] = True
     on_faces = face_labels(all_labels)
@@ -357,6 +373,6 @@ def build_table(*, vol: Volume, sign: float, chambers: ChamberValues, hier: Any,
     # neither a region of the label map nor a wall: the outside basin, regions not shown
     # (border-cut pieces, the medium, chambers outside the volume bounds) and beyond the ROI
     background = regions.outside_basin | ((work > 0) & (labels == 0))
-    background |= sweep.outside.reshape(work.shape)
+    background |= outside.reshape(work.shape)
     return TableParts(labels, all_labels, table, ch_nodes, enc_labels, background,
-                      bool(sweep.outside.any()))
+                      bool(outside.any()))

@@ -1,27 +1,28 @@
-"""Scale per region: regions that another detection scale sees more clearly.
+"""Scale per region: regions that a neighbouring detection scale sees more clearly.
 
 One detection scale per image is a compromise: small cells need little smoothing, noisy
 large cells much. :func:`cavitas.segment.segment` chooses the scale where most cavities
-are significant (the *base*), then looks at what every other candidate scale found,
+are significant (the *base*), then asks the candidate scales next to it what they found,
 tracking a cavity across scales by its core (its deepest voxel, which the smoothing
 moves little):
 
 * **separated at a finer scale** — a base region holding the cores of two or more
-  regions of a finer scale is two cells that the base smoothing merged: it is replaced by
-  those regions (cut to the base region's voxels) when each of them stands clearly above
-  that scale's threshold (:data:`MIN_CLARITY`). Of several finer scales that
-  separate it, the coarsest is asked (the least noise that still shows the wall);
-* **found only at another scale** — a region of another scale whose core lies in no base
-  region (the base saw wall, medium or an insignificant cavity there) is added when it
-  stands clearly above its scale's threshold too, at least :data:`MIN_FREE_SHARE` of its
-  voxels are still free, and those are not far smaller than the base's typical region
-  (:data:`cavitas.segment._evidence.SMALL_FRACTION` of its median); proposals are taken in order
-  of how clearly they stand out (persistence over their own scale's threshold).
+  regions of the next finer scale is two cells that the base smoothing merged: it is
+  replaced by those regions (cut to the base region's voxels) when each of them stands
+  clearly above that scale's threshold (:data:`MIN_CLARITY`);
+* **found only at a neighbouring scale** — a region of the next finer or coarser scale
+  whose core lies in no base region (the base saw wall, medium or an insignificant cavity
+  there) is added when it stands clearly above its scale's threshold too, at least
+  :data:`MIN_FREE_SHARE` of its voxels are still free, and those are not far smaller than
+  the base's typical region (:data:`cavitas.segment._evidence.SMALL_FRACTION` of its
+  median); the clearest proposals (persistence over their own scale's threshold) first.
 
 Every region keeps its own scale's values in the table (birth, death, persistence,
 threshold, ``detection_scale``). Each scale's regions passed all of that scale's tests
-(threshold, class test, texture, size, split rule), and each is delineated as at its own
-scale, at the fine delineation scale.
+(threshold, class test, texture, size, split rule) and are delineated as at their own
+scale, at the fine delineation scale. Each neighbour asked costs one more detection and
+delineation, and only while its regions and the base's are both held: a little more time
+and memory, only when a neighbour has something to offer.
 """
 
 from __future__ import annotations
@@ -68,10 +69,13 @@ class Plan:
 
 def plan(labels: np.ndarray, n_chambers: int, base_sigma: np.ndarray,
          seeds: list[ScaleSeeds], min_voxels: float = 0.0) -> list[Plan]:
-    """The scales worth delineating, and what each contributes.
+    """The neighbouring scales worth delineating, and what each contributes.
 
-    ``labels`` is the base delineation (chambers ``1..n_chambers``, border-cut pieces
-    after them, 0 elsewhere). Only seeds clear of their scale's threshold
+    The candidate scales next to the base are asked: the next finer one for separations
+    and both for added regions (a cavity is tracked to the neighbouring scales; every
+    scale asked costs one more detection and delineation). ``labels`` is the base
+    delineation (chambers ``1..n_chambers``, border-cut pieces after them, 0 elsewhere).
+    Only seeds clear of their scale's threshold
     (:data:`MIN_CLARITY`) whose cavity holds at least ``min_voxels`` count: the rest could
     not change the result, and every scale planned costs a detection and a delineation.
 
@@ -83,28 +87,31 @@ def plan(labels: np.ndarray, n_chambers: int, base_sigma: np.ndarray,
     >>> labels = np.array([[1, 1, 0, 1, 1, 0, 0]])
     >>> big = np.array([9, 9])
     >>> fine = ScaleSeeds(np.array([0.5, 0.5]), np.array([0, 4]), np.array([1.6, 1.3]), big)
+    >>> finest = ScaleSeeds(np.array([0.0, 0.0]), np.array([5]), np.array([2.0]), big[:1])
     >>> coarse = ScaleSeeds(np.array([2.0, 2.0]), np.array([1, 6]), np.array([3.0, 2.0]), big)
     >>> [(p.separates, p.adds) for p in plan(labels, 1, np.array([1.0, 1.0]),
-    ...                                      [fine, coarse])]
+    ...                                      [finest, fine, coarse])]
     [([1], False), ([], True)]
     """
     flat = labels.ravel()
     base = float(np.max(base_sigma))
-    plans = {id(s): Plan(s.sigma) for s in seeds if float(np.max(s.sigma)) != base}
-    taken: set[int] = set()
-    finer = [s for s in seeds if float(np.max(s.sigma)) < base]
-    for s in sorted(finer, key=lambda s: -float(np.max(s.sigma))):  # coarsest first
-        ids = flat[s.core[_useful(s, min_voxels)]]
-        ids = ids[(ids >= 1) & (ids <= n_chambers)]
-        counts = np.bincount(ids, minlength=n_chambers + 1)
-        for chamber in np.flatnonzero(counts >= 2).tolist():
-            if chamber not in taken:
-                taken.add(chamber)
-                plans[id(s)].separates.append(chamber)
-    for s in seeds:
-        if id(s) in plans and np.any(flat[s.core[_useful(s, min_voxels)]] == 0):
-            plans[id(s)].adds = True
-    return [p for p in plans.values() if p.separates or p.adds]
+    finer = max((s for s in seeds if float(np.max(s.sigma)) < base),
+                key=lambda s: float(np.max(s.sigma)), default=None)
+    coarser = min((s for s in seeds if float(np.max(s.sigma)) > base),
+                  key=lambda s: float(np.max(s.sigma)), default=None)
+    plans = []
+    for s in (finer, coarser):
+        if s is None:
+            continue
+        useful = flat[s.core[_useful(s, min_voxels)]]
+        step = Plan(s.sigma, adds=bool(np.any(useful == 0)))
+        if s is finer:
+            inside = useful[(useful >= 1) & (useful <= n_chambers)]
+            counts = np.bincount(inside, minlength=n_chambers + 1)
+            step.separates = np.flatnonzero(counts >= 2).tolist()
+        if step.separates or step.adds:
+            plans.append(step)
+    return plans
 
 
 def _useful(seeds: ScaleSeeds, min_voxels: float) -> np.ndarray:
@@ -173,18 +180,24 @@ def merge(base_labels: np.ndarray, base: ChamberValues, base_level: np.ndarray,
     hosts = [flat[c.chambers.core_voxel] for c in contributions]
 
     for c, host in zip(contributions, hosts, strict=True):
+        if not c.plan.separates:
+            continue
+        clear = _clarity(c.chambers) >= MIN_CLARITY
+        pieces_of = {}  # base chamber -> its pieces (rows of c), all clear and present
         other = c.labels.ravel()
+        split = np.isin(flat, c.plan.separates)
+        present = np.bincount(other[split], minlength=c.chambers.node.size + 1)[1:] > 0
         for chamber in c.plan.separates:
-            inside = flat == chamber
-            where = other[inside]
-            pieces = np.flatnonzero(host == chamber)
-            present = np.bincount(where, minlength=c.chambers.node.size + 1)[pieces + 1] > 0
-            pieces = pieces[present]
-            if pieces.size < 2 or _clarity(c.chambers)[pieces].min() < MIN_CLARITY:
-                continue
-            lut = np.zeros(int(other.max()) + 1, new.dtype)
-            lut[pieces + 1] = np.r_[chamber, np.arange(next_id, next_id + pieces.size - 1)]
-            new[inside] = lut[where]
+            pieces = np.flatnonzero((host == chamber) & present)
+            if pieces.size >= 2 and clear[pieces].all():
+                pieces_of[chamber] = pieces
+        if not pieces_of:
+            continue
+        piece_id = np.zeros(c.chambers.node.size + 1, new.dtype)
+        piece_host = np.full(c.chambers.node.size + 1, -1, np.int64)
+        for chamber, pieces in pieces_of.items():
+            piece_id[pieces + 1] = np.r_[chamber, np.arange(next_id, next_id + pieces.size - 1)]
+            piece_host[pieces + 1] = chamber
             rows.put(chamber - 1, c.chambers, int(pieces[0]))
             level[chamber - 1] = c.level[pieces[0]]
             extra_rows.append(c.chambers.take(pieces[1:]))
@@ -193,6 +206,9 @@ def merge(base_labels: np.ndarray, base: ChamberValues, base_level: np.ndarray,
             next_id += pieces.size - 1
             summary["split"] += 1
             summary["pieces"] += int(pieces.size)
+        where = np.flatnonzero(np.isin(flat, list(pieces_of)))
+        mine = other[where]
+        new[where] = np.where(piece_host[mine] == flat[where], piece_id[mine], 0)
 
     # regions seen only at another scale, the clearest first over every scale
     free = new == 0
@@ -205,12 +221,15 @@ def merge(base_labels: np.ndarray, base: ChamberValues, base_level: np.ndarray,
     open_counts = [np.bincount(c.labels.ravel()[free], minlength=c.chambers.node.size + 1)
                    for c in contributions]
     added = np.zeros(flat.size, bool)
+    voxels = [_voxels_by_label(c.labels.ravel()) if c.plan.adds else None
+              for c in contributions]
     for _, k, j in sorted(proposals, key=lambda p: -p[0]):
-        c, label = contributions[k], j + 1
-        if (open_counts[k][label] < max(min_voxels, 1)
+        c, label, by_label = contributions[k], j + 1, voxels[k]
+        if (by_label is None or open_counts[k][label] < max(min_voxels, 1)
                 or open_counts[k][label] < MIN_FREE_SHARE * totals[k][label]):
             continue
-        take = np.flatnonzero(free & (c.labels.ravel() == label))
+        take = by_label(label)
+        take = take[free[take]]
         new[take] = next_id
         free[take] = False
         added[take] = True
@@ -231,6 +250,13 @@ def merge(base_labels: np.ndarray, base: ChamberValues, base_level: np.ndarray,
                   chambers=ChamberValues.concatenate([rows, *extra_rows]),
                   level=np.concatenate([level, *extra_level]), parent=parent, shift=shift,
                   added=added.reshape(base_labels.shape), summary=summary)
+
+
+def _voxels_by_label(labels: np.ndarray):
+    """A function giving the flat indices of each label's voxels (one sort for all)."""
+    order = np.argsort(labels, kind="stable")
+    starts = np.searchsorted(labels[order], np.arange(int(labels.max(initial=0)) + 2))
+    return lambda label: order[starts[label]:starts[label + 1]]
 
 
 def _enclosure_at(enclosure_map: np.ndarray | None, core: np.ndarray) -> np.ndarray:

@@ -50,7 +50,7 @@ from ._regions import (
     remove_walls,
     reopen_faces,
 )
-from ._result import ChamberValues, Segmentation, build_table
+from ._result import ChamberValues, EnclosureValues, Segmentation, build_table
 from ._scales import Contribution, ScaleSeeds, merge, plan
 from ._select import persistence_threshold, select_nodes, split_rule
 from ._texture import texture_splits
@@ -202,19 +202,21 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
     t0 = time.perf_counter()
     tell("regions")
     geometry = _Geometry(image, outside, connectivity, vol.voxel_volume, spacing_arr)
-    base = _regions_at(det, params, geometry, tell)
+    base = _regions_at(det, params, geometry, tell).settle(image.sign, spacing_arr)
+    gap, rule, texture_joined = det.gap, det.rule, det.texture_joined
+    del det  # memory: the detection image and its sweep order are no longer needed
+    hier, regions, chambers = base.hier, base.regions, base.chambers
     refined = None
     if params.automatic and params.smooth is None and params.region == "basin":
         refined = _refine_across_scales(base, seeds, params, geometry, tell, noise=noise,
                                         robust_range=robust_range, roi=roi,
                                         white_noise=white_noise)
-    sweep, hier, regions = base.sweep, base.hier, base.regions
-    chambers = base.chamber_values(image.sign, spacing_arr)
     if refined is not None:
         hier, regions, chambers = refined.hier, refined.regions, refined.chambers
     timings["regions"] = time.perf_counter() - t0
 
-    seg = build_table(vol=vol, sign=image.sign, chambers=chambers, hier=hier, sweep=sweep,
+    seg = build_table(vol=vol, sign=image.sign, chambers=chambers,
+                      enclosures=base.enclosures, hier=hier, outside=base.outside,
                       regions=regions, tau=tau, scale=float((sig * spacing_arr).max()),
                       params=params)
     timings["total"] = time.perf_counter() - started
@@ -230,12 +232,12 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
                         "data" if params.automatic else "none"),
         "delineation_sigma": float((base.fine_sigma * spacing_arr).max()),
         "scales_tried": tried,
-        "gap": det.gap,
-        "threshold_rule": det.rule,
+        "gap": gap,
+        "threshold_rule": rule,
         "polarity_hint": hint,
-        "splits_joined": int(np.count_nonzero(base.significant & ~base.keep)),
-        "texture_pieces_joined": det.texture_joined,
-        "perforated_walls": int(np.count_nonzero(base.perforated)),
+        "splits_joined": base.splits_joined,
+        "texture_pieces_joined": texture_joined,
+        "perforated_walls": base.perforated,
         "regions_from_other_scales": (refined.summary if refined is not None
                                       else {"split": 0, "pieces": 0, "added": 0}),
         "automatic": params.automatic,
@@ -497,15 +499,35 @@ class ScaleRegions:
     perforated: np.ndarray       # per node: a split joined through a hole in its wall
     fine_sigma: np.ndarray       # Gaussian sigma per axis of the delineation image
 
-    def chamber_values(self, sign: float, spacing: np.ndarray) -> ChamberValues:
-        """The table's values of this scale's chambers."""
+    def settle(self, sign: float, spacing: np.ndarray) -> Settled:
+        """What the table and the other scales need, without the per-voxel sweep."""
         nodes = self.hier.node[:self.hier.n_chambers]
         tree, n = self.det.tree, nodes.size
-        return ChamberValues(
+        chambers = ChamberValues(
             birth=tree.breach_level[nodes], death=tree.core_level[nodes],
             breach_voxel=tree.breach[nodes], core_voxel=tree.core[nodes],
             threshold=np.full(n, self.det.threshold),
             scale=np.full(n, float((self.det.sigma * spacing).max())), node=nodes)
+        return Settled(self.det.sigma, self.hier, self.regions, chambers,
+                       EnclosureValues.of(self.sweep, self.hier), self.sweep.outside,
+                       self.fine_sigma,
+                       int(np.count_nonzero(self.significant & ~self.keep)),
+                       int(np.count_nonzero(self.perforated)))
+
+
+@dataclass
+class Settled:
+    """One scale's regions and table values, its per-voxel sweep let go."""
+
+    sigma: np.ndarray            # detection scale, Gaussian sigma per axis in voxels
+    hier: Hierarchy
+    regions: Delineation
+    chambers: ChamberValues
+    enclosures: EnclosureValues
+    outside: np.ndarray          # flat: beyond the ROI
+    fine_sigma: np.ndarray       # Gaussian sigma per axis of the delineation image
+    splits_joined: int           # significant splits the split rule and holes joined
+    perforated: int              # of those, joined through a hole in their wall
 
 
 def _regions_at(det: Detection, params: SegmentParams, geometry: _Geometry,
@@ -550,7 +572,7 @@ class Refined:
     summary: dict[str, int]
 
 
-def _refine_across_scales(base: ScaleRegions, seeds: list[ScaleSeeds],
+def _refine_across_scales(base: Settled, seeds: list[ScaleSeeds],
                           params: SegmentParams, geometry: _Geometry,
                           tell: Callable[[str], None], **detect_options: Any) -> Refined | None:
     """Regions that another candidate scale separates or finds alone (:mod:`._scales`)."""
@@ -560,7 +582,7 @@ def _refine_across_scales(base: ScaleRegions, seeds: list[ScaleSeeds],
     sizes = label_counts(regions.labels, n_ch + 1)[1:]
     typical = float(np.median(sizes[sizes > 0])) if np.any(sizes > 0) else 0.0
     min_voxels = SMALL_FRACTION * typical
-    plans = plan(regions.labels, n_ch, base.det.sigma, seeds, min_voxels)
+    plans = plan(regions.labels, n_ch, base.sigma, seeds, min_voxels)
     if not plans:
         return None
     image, spacing = geometry.image, geometry.spacing
@@ -571,13 +593,13 @@ def _refine_across_scales(base: ScaleRegions, seeds: list[ScaleSeeds],
         other, _, _ = _detect(image, params.replace(smooth=smooth), spacing=spacing,
                               connectivity=geometry.connectivity, tell=lambda text: None,
                               **detect_options)
-        at = _regions_at(other, params, geometry, lambda text: None)
+        at = _regions_at(other, params, geometry, lambda text: None).settle(image.sign, spacing)
+        del other
         n_other = at.hier.n_chambers
         labels = np.where(at.regions.labels <= n_other, at.regions.labels, 0)
-        contributions.append(Contribution(step, labels, at.chamber_values(image.sign, spacing),
-                                          at.regions.level))
-        del other, at
-    merged = merge(regions.labels, base.chamber_values(image.sign, spacing), regions.level,
+        contributions.append(Contribution(step, labels, at.chambers, at.regions.level))
+        del at
+    merged = merge(regions.labels, base.chambers, regions.level,
                    hier.parent[:n_ch], regions.enclosures, contributions,
                    min_voxels=min_voxels)
     if not any(merged.summary.values()):
