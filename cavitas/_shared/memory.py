@@ -25,7 +25,7 @@ _GUARD = contextvars.ContextVar("cavitas_memory_guard", default=True)
 #: Peak working memory of a whole ``segment_file`` run per voxel, beyond the input itself,
 #: by the float type the image is smoothed in (float32 for data of at most 16 bits and for
 #: float32 data, float64 otherwise; :func:`work_dtype`).
-WORK_BYTES_PER_VOXEL = {4: 52, 8: 76}
+WORK_BYTES_PER_VOXEL = {4: 66, 8: 96}
 #: Memory of the process before any data: Python, NumPy, SciPy, numba and the compiled
 #: kernels, matplotlib and the report (``python -m bench --only memory_guard``: 340 MiB
 #: fits the bundled samples' peaks less their data).
@@ -48,20 +48,24 @@ def data_memory_bytes(shape: Sequence[int], dtype: np.dtype | str | type) -> int
     the interpreter, 2 bytes of it the input)::
 
         256^3: 43.6 B/voxel    512^3: 44.8 B/voxel (5.8 GiB in all; 138 B/voxel before)
-        work for float32 smoothing: 43 -> 52 B/voxel, a margin of about 1/5
+        with a neighbouring scale delineated too (a scale per region) and the walls'
+        topology at the end: 256^3: 59.3 B/voxel
+        work for float32 smoothing: 57 -> 66 B/voxel, a margin of about 1/6
 
     The peak is in the region step: the detection image (4), sweep order and ranks (4 + 4),
     the work labels (4), and the nearest-label map of the island filling (an int32 index
     per axis, 12, plus scipy's int64 copy of the wall mask, 8, and the map, 4); the
-    segmentation's own steps (six smoothing scales, the sweeps) peak near 27. With float64
-    smoothing (32/64-bit integers, float64 data) the smoothed copies and the per-region
-    median sort double (derived, not measured): 76. Volumes of 128^3 voxels and below
-    measure 85 to 95 bytes per voxel: the small-volume term.
+    segmentation's own steps (six smoothing scales, the sweeps) peak near 27. A
+    neighbouring scale's regions are made while the base scale's label maps are held
+    (about 10 more). With float64 smoothing (32/64-bit integers, float64 data) the
+    smoothed copies and the per-region median sort double (derived, not measured): 96.
+    Volumes of 128^3 voxels and below measure 85 to 95 bytes per voxel: the small-volume
+    term.
 
     Examples
     --------
-    >>> data_memory_bytes((100, 200, 300), "uint16")  # 6e6 * (2 + 52) + 40 * 2**21
-    407886080
+    >>> data_memory_bytes((100, 200, 300), "uint16")  # 6e6 * (2 + 66) + 40 * 2**21
+    491886080
     """
     dtype = np.dtype(dtype)
     voxels = math.prod(int(n) for n in shape)
@@ -201,7 +205,7 @@ def check_memory(name: object, shape: Sequence[int], dtype: np.dtype | str | typ
     ...     check_memory("big.tif", (1024, 1024, 1024), np.uint16, available=2**30)
     ... except InputFileError as exc:
     ...     print(str(exc)[:75])
-    'big.tif' (1024 x 1024 x 1024 uint16) needs about 54.1 GiB of memory to seg
+    'big.tif' (1024 x 1024 x 1024 uint16) needs about 68.1 GiB of memory to seg
     """
     if not guarding():
         return
