@@ -341,7 +341,7 @@ def test_level_fraction_shrinks_breach_regions(rng):
 def test_detection_in_two_threads_equals_one_after_the_other(monkeypatch):
     # Common practice: a parallel path gives exactly what the serial one gives. On one
     # core the detection scales are tried one at a time; on more, two at a time.
-    import cavitas.segment._segment as segment_module
+    import cavitas.segment._detect as segment_module
     from cavitas.scenes import foam
 
     scene = foam((64, 64, 64), cells=120, noise=0.2, ramp=2.0, walls="bright", seed=5)

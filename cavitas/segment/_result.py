@@ -259,7 +259,7 @@ def build_table(*, vol: Volume, sign: float, chambers: ChamberValues,
     threshold ``tau`` and detection ``scale`` (the base scale's); ``outside`` marks the
     voxels beyond the ROI.
 
-    ``regions`` (a :class:`~cavitas.segment._segment.Delineation`) holds chambers
+    ``regions`` (a :class:`~cavitas.segment._delineate.Delineation`) holds chambers
     ``1..n_chambers`` and border-cut pieces after them; its ``open_to_border`` marks the
     chambers that became border-cut pieces. Final ids: chambers ``1..K``, enclosures
     ``K+1..K+E``, border-cut regions after.

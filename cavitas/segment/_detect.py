@@ -1,0 +1,271 @@
+"""Detection: at each candidate smoothing, the cavities that pass every test, and the
+scale with most of them (:func:`detect`).
+
+The tests are the image's own evidence (:mod:`cavitas.segment._evidence`), the first
+threshold rule of :data:`THRESHOLD_RULES` that applies, the texture rule where the noise is
+not white (:mod:`cavitas.segment._texture`) and the size rule; :func:`polarity_check`
+runs the same detection with the other polarity.
+"""
+
+from __future__ import annotations
+
+import itertools
+from collections import deque
+from collections.abc import Callable
+from concurrent.futures import ThreadPoolExecutor
+from dataclasses import dataclass
+from typing import Any, NamedTuple
+
+import numpy as np
+
+from .._cores import usable_cores
+from ..cubical._tree import OUTSIDE, CavityTree
+from . import _noise
+from ._discovery import false_discovery_threshold, share_passing
+from ._evidence import WHITE_NOISE_DIP, eligible_nodes, small_region_threshold
+from ._gap import find_empty_stretch, find_gap
+from ._params import AUTO_SCALES, SegmentParams
+from ._polarity import census, polarity_hint
+from ._regions import face_slices
+from ._scales import ScaleSeeds
+from ._select import persistence_threshold, select_nodes, split_rule
+from ._texture import texture_splits
+
+__all__ = ["THRESHOLD_RULES", "Detection", "ScanImage", "close_faces", "detect", "on_faces",
+           "polarity_check", "statistics_mask"]
+
+
+@dataclass
+class Detection:
+    """The detection scale's smoothed image, sweep, threshold and eligible nodes."""
+
+    sigma: np.ndarray            # Gaussian σ per axis, in voxels
+    smoothed: np.ndarray         # the image at that scale, walls high
+    order: np.ndarray            # its cavity-sweep order
+    tree: CavityTree             # its cavity tree
+    threshold: float             # persistence threshold
+    gap: float | None            # persistence at the diagram's gap (automatic mode), if any
+    eligible: np.ndarray | None  # per node: straddles the class split (automatic mode)
+    passing: np.ndarray          # per node: passes every criterion
+    face_breach: np.ndarray | None = None  # per node: breach on the closed faces (keep_border)
+    rule: str | None = None      # what set the automatic threshold (THRESHOLD_RULES)
+    texture_joined: int = 0      # significant pieces kept with their region (_texture)
+    seeds: ScaleSeeds | None = None  # the chambers this scale makes, as seeds
+
+    @property
+    def count(self) -> int:
+        """Nodes passing every criterion."""
+        return int(np.count_nonzero(self.passing))
+
+
+def node_sizes(tree: CavityTree) -> np.ndarray:
+    """Voxels per node: ``cavity_sweep`` counts them (only a hand-built tree lacks them)."""
+    if tree.size is None:
+        raise TypeError("the cavity tree carries no node sizes")
+    return tree.size
+
+
+class ScanImage(NamedTuple):
+    """The input as read, its polarity and the float type it is smoothed in."""
+
+    data: np.ndarray
+    sign: float  # 1 for bright walls, -1 for dark: smoothed images have walls high
+    dtype: np.dtype
+    closed_border: bool = False  # keep_border: the array's faces act as a wall
+    statistics_mask: np.ndarray | None = None  # voxels the class split is taken on
+
+    def smoothed(self, sigma: np.ndarray) -> np.ndarray:
+        out = _noise.smooth(self.data, tuple(sigma), dtype=self.dtype, sign=self.sign)
+        if self.closed_border:
+            close_faces(out)
+        return out
+
+
+def statistics_mask(roi: np.ndarray | None, shape: tuple[int, ...],
+                     closed_border: bool) -> np.ndarray | None:
+    """The voxels intensity statistics are taken on: the ROI, less the faces if closed."""
+    if not closed_border:
+        return roi
+    inner = np.ones(shape, bool) if roi is None else roi.copy()
+    for face in face_slices(inner.ndim):
+        inner[face] = False
+    return inner
+
+
+def close_faces(image: np.ndarray) -> None:
+    """Raise the outermost voxel layer of ``image`` to its maximum, in place.
+
+    With the faces a wall, a cell cut by the border is enclosed like any other and is
+    detected and delineated the same way (``keep_border``); :func:`reopen_faces` gives the
+    face voxels back to the regions afterwards.
+
+    Examples
+    --------
+    >>> img = np.arange(9.0).reshape(3, 3)
+    >>> close_faces(img); img.tolist()
+    [[8.0, 8.0, 8.0], [8.0, 4.0, 8.0], [8.0, 8.0, 8.0]]
+    """
+    top = image.max()
+    for face in face_slices(image.ndim):
+        image[face] = top
+
+
+def on_faces(flat_index: np.ndarray, shape: tuple[int, ...]) -> np.ndarray:
+    """Whether each flat index (-1: none) lies on a face of an array of ``shape``.
+
+    Examples
+    --------
+    >>> on_faces(np.array([0, 4, 7, -1]), (3, 3)).tolist()
+    [True, False, True, False]
+    """
+    valid = flat_index >= 0
+    coords = np.unravel_index(np.where(valid, flat_index, 0), shape)
+    face = np.zeros(flat_index.shape, bool)
+    for c, n in zip(coords, shape, strict=True):
+        face |= (c == 0) | (c == n - 1)
+    return face & valid
+
+
+def detect(image: ScanImage, params: SegmentParams, *, noise: float, robust_range: float,
+            spacing: np.ndarray, connectivity: int, roi: np.ndarray | None,
+            tell: Callable[[str], None], white_noise: bool = False
+            ) -> tuple[Detection, list[dict[str, Any]], list[ScaleSeeds]]:
+    """Detection scale, its sweep and threshold: the candidate with most significant cavities;
+    also what every scale tried found (for run.json), and the seeds of its chambers.
+
+    Candidates are :data:`AUTO_SCALES` (in voxels of the finest axis, the same physical σ on
+    every axis) in automatic mode, else the one given (or none). At each, the threshold is
+    the strictest criterion given, the automatic one being ``safety · noise · P(σ)``
+    (:mod:`cavitas.segment._noise`). Too little smoothing leaves the threshold high, too
+    much erases walls; both lose cavities, so the count peaks at the useful scale. Ties go
+    to the finer scale. With two or more cores, two scales are tried at a time in two
+    threads. Memory: the best candidate's smoothed image and order stay, plus the one or
+    two being tried (in the work type, :func:`_noise.work_dtype`).
+    """
+    from .. import cubical
+
+    if params.smooth is not None:
+        scales = [params.smooth / spacing]
+    elif params.automatic:
+        scales = [s * spacing.min() / spacing for s in AUTO_SCALES]
+    else:
+        scales = [np.zeros(len(spacing))]
+
+    analysed = int(np.count_nonzero(roi)) if roi is not None else image.data.size
+
+    def candidate(sig: np.ndarray) -> Detection:
+        # the null first: its simulation (first use per shape and scale) then peaks alone
+        null = (_noise.null_distribution(image.data.shape, tuple(sig), connectivity)
+                if params.automatic else None)
+        smoothed = image.smoothed(sig)
+        order, tree = cubical.cavity_sweep(smoothed, walls="bright", connectivity=connectivity,
+                                           mask=roi)
+        pers = tree.persistence
+        # a breach on the closed faces: the specimen as a whole, not a cavity
+        face_breach = on_faces(tree.breach, smoothed.shape) if image.closed_border else None
+        eligible = gap = rule = None
+        auto = None
+        texture_joined = 0
+        if null is not None:  # automatic mode
+            smoothed_noise = _noise.smoothed_noise_sigma(noise, tuple(sig))
+            eligible = eligible_nodes(
+                tree, smoothed, image.statistics_mask, smoothed_noise,
+                breach_dip=WHITE_NOISE_DIP * smoothed_noise if white_noise else 0.0)
+            if face_breach is not None:
+                eligible &= ~face_breach
+            rule, auto = automatic_threshold(pers[eligible], null, noise=noise,
+                                              voxels=analysed, safety=params.safety,
+                                              white_noise=white_noise)
+            gap = auto if rule == "gap" else None
+        tau = persistence_threshold(auto=auto, absolute=params.min_persistence,
+                                    relative=params.relative_persistence,
+                                    robust_range=robust_range)
+        passing = (pers > 0) & (pers >= tau)
+        if eligible is not None:
+            passing &= eligible
+            if passing.any():
+                area = node_sizes(tree).astype(np.float64)
+                area[OUTSIDE] = np.inf
+                eligible &= pers >= small_region_threshold(area, pers, passing)
+                passing &= eligible
+                if not white_noise:  # texture: a split must stand out from its region's
+                    texture = texture_splits(tree.parent, pers, passing)
+                    texture_joined = int(np.count_nonzero(texture))
+                    eligible &= ~texture
+                    passing &= ~texture
+        passing[OUTSIDE] = False
+        kept = split_rule(tree, select_nodes(pers, tree.parent, tau, params.top,
+                                             eligible=eligible),
+                          params.split_fraction, face_breach)
+        kept[OUTSIDE] = False
+        clarity = pers[kept] / tau if tau > 0 else np.full(int(kept.sum()), np.inf)
+        return Detection(sig, smoothed, order, tree, tau, gap, eligible, passing, face_breach,
+                         rule, texture_joined, ScaleSeeds(sig, tree.core[kept], clarity,
+                                                          node_sizes(tree)[kept]))
+
+    # Two scales at a time in two threads (smoothing, sort and sweep release the GIL);
+    # results are taken in scale order, so the choice is the same as one after the other.
+    workers = 2 if len(scales) > 1 and usable_cores() > 1 else 1
+    best, tried, seeds = None, [], []
+    todo = iter(scales)
+    tell(f"smoothing scale 1 of {len(scales)}")
+    with ThreadPoolExecutor(max_workers=workers, thread_name_prefix="cavitas-scale") as pool:
+        running = deque(pool.submit(candidate, sig) for sig in itertools.islice(todo, workers))
+        while running:
+            result = running.popleft().result()
+            tried.append({"sigma": float((result.sigma * spacing).max()),
+                          "threshold": result.threshold, "count": result.count,
+                          "gap": result.gap, "rule": result.rule})
+            if result.seeds is not None:
+                seeds.append(result.seeds)
+            if best is None or result.count > best.count:
+                best = result
+            del result  # a losing candidate is freed before the next scale starts
+            if len(tried) < len(scales):
+                tell(f"smoothing scale {len(tried) + 1} of {len(scales)}")
+            following = next(todo, None)
+            if following is not None:
+                running.append(pool.submit(candidate, following))
+    assert best is not None  # at least one scale is always tried
+    return best, tried, seeds
+
+
+#: What sets the automatic threshold, in the order tried: the valley between two populations
+#: above the noise null (:func:`find_gap`), an empty stretch below it
+#: (:func:`find_empty_stretch`), the false discovery rate (white noise only,
+#: :mod:`cavitas.segment._discovery`), else the null times the safety factor.
+THRESHOLD_RULES = ("gap", "empty stretch", "false discovery rate", "noise null")
+
+
+def automatic_threshold(candidates: np.ndarray, null: _noise.NullDistribution, *,
+                         noise: float, voxels: int, safety: float,
+                         white_noise: bool) -> tuple[str, float]:
+    """The rule of :data:`THRESHOLD_RULES` that applies to ``candidates``, and its threshold."""
+    floor = noise * null.largest
+    top = safety * floor
+    found = find_gap(candidates, floor)
+    if found is not None:
+        return "gap", found
+    found = find_empty_stretch(candidates, floor, top)
+    if found is not None:
+        return "empty stretch", found
+    if white_noise:
+        found = false_discovery_threshold(candidates, null, noise, voxels, top,
+                                          share_passing(candidates, null, noise, voxels))
+        if found is not None:
+            return "false discovery rate", found
+    return "noise null", top
+
+
+def polarity_check(det: Detection, image: ScanImage, params: SegmentParams, *,
+                    spacing: np.ndarray, **detect_options: Any) -> str | None:
+    """:func:`polarity_hint` of the detection against the other polarity at its scale."""
+    other_walls = "dark" if params.walls == "bright" else "bright"
+    flipped = image._replace(sign=-image.sign)
+    other, _, _ = detect(flipped, params.replace(walls=other_walls,
+                                               smooth=float((det.sigma * spacing).max())),
+                       spacing=spacing, tell=lambda text: None, **detect_options)
+    n = int(np.prod(image.data.shape))
+    return polarity_hint(census(det.tree.parent, node_sizes(det.tree), det.passing, n),
+                         census(other.tree.parent, node_sizes(other.tree), other.passing, n),
+                         other_walls, "pixels" if image.data.ndim == 2 else "voxels")
