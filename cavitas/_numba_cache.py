@@ -21,7 +21,8 @@ from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
-__all__ = ["COMPILING", "announce_compilation", "choose_cache_dir", "ensure_cache_dir"]
+__all__ = ["COMPILING", "announce_compilation", "choose_cache_dir", "ensure_cache_dir",
+           "stop_announcing"]
 
 #: The line shown when numba starts compiling (it does so once per install and version).
 COMPILING = "compiling kernels (first run only; later runs load them from the cache)"
@@ -94,6 +95,20 @@ def ensure_cache_dir() -> None:
 
 _armed: list[Callable[[str], None]] = []  # the writer to call at the next compilation
 _listening: list[bool] = []                # whether the listener is registered
+
+
+def stop_announcing() -> None:
+    """Disarm :func:`announce_compilation`: a later compilation writes nothing.
+
+    Examples
+    --------
+    >>> from numba import njit
+    >>> lines = []
+    >>> announce_compilation(lines.append); stop_announcing()
+    >>> njit(lambda x: x + 3)(1), lines
+    (4, [])
+    """
+    _armed.clear()
 
 
 def announce_compilation(write: Callable[[str], None]) -> None:

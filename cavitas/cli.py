@@ -162,9 +162,9 @@ def main(argv: Sequence[str] | None = None) -> int:
     # left half-drawn there would run into the next message
     args.progress = not args.quiet and sys.stderr.isatty()
     args.options = option_names(_subcommand(parser, args.command))  # for messages
-    if args.command in KERNEL_COMMANDS and not args.quiet:
-        from ._numba_cache import announce_compilation
+    from ._numba_cache import announce_compilation, stop_announcing
 
+    if args.command in KERNEL_COMMANDS and not args.quiet:
         announce_compilation(_line_above_the_bar(f"cavitas {args.command}: "))
     try:
         return int(args.func(args) or 0)
@@ -194,6 +194,8 @@ def main(argv: Sequence[str] | None = None) -> int:
               "(run again with --debug for the traceback, and please report it)",
               file=sys.stderr)
         return EXIT_INTERNAL
+    finally:
+        stop_announcing()  # a notice never outlives its command (main() called again)
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -66,7 +66,7 @@ def test_all_nan():
 def test_memory_estimate_formula():
     # the formula of cavitas/_shared/memory.py (input + measured work per voxel), common practice
     base, small = 340 * 2**20, 6000 * 40  # the program, and the small-volume term
-    assert estimate_memory_bytes((10, 20, 30), np.float32) == base + 6000 * (4 + 52) + small
-    assert estimate_memory_bytes((10, 20, 30), np.int32) == base + 6000 * (4 + 76) + small
+    assert estimate_memory_bytes((10, 20, 30), np.float32) == base + 6000 * (4 + 66) + small
+    assert estimate_memory_bytes((10, 20, 30), np.int32) == base + 6000 * (4 + 96) + small
     assert estimate_memory_bytes((2048, 2048, 2048), "uint8") == (  # no overflow
-        base + 2048**3 * 53 + 2**21 * 40)
+        base + 2048**3 * 67 + 2**21 * 40)

@@ -28,8 +28,8 @@ chunk's sweep (about 18 bytes per chunk voxel beyond the chunk) and the largest 
 two blocks' seams (it grows with the middle planes of the volume; bench/chunked.py).
 
 Memory estimate = 340 MiB for the program (Python, the libraries, the compiled kernels) +
-voxels x (bytes per input voxel + the working memory of a segmentation: 52 bytes when the
-image is smoothed in float32 (data of 16 bits or less, float32), 76 in float64) + 40 bytes
+voxels x (bytes per input voxel + the working memory of a segmentation: 66 bytes when the
+image is smoothed in float32 (data of 16 bits or less, float32), 96 in float64) + 40 bytes
 per voxel for the first 2 million voxels (small volumes), measured with
 bench/segment_scale.py and bench/memory_guard.py. `cavitas segment` refuses an input whose
 estimate exceeds the memory available (--skip-memory-check to try anyway).
@@ -80,7 +80,7 @@ def describe(volume: Volume, *, progress: Any = None) -> dict[str, Any]:
     >>> from cavitas.io import Volume
     >>> facts = describe(Volume(np.arange(8, dtype=np.uint8).reshape(2, 4)))
     >>> facts["shape"], facts["min"], facts["max"], facts["memory_bytes"]
-    ([2, 4], 0, 7, 356516584)
+    ([2, 4], 0, 7, 356516696)
     """
     from ..io import estimate_memory_bytes, summarize
 
