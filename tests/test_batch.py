@@ -248,7 +248,10 @@ def test_interrupted_batch_resumes_without_loss_or_repeats(tmp_path, rng, sig):
         np.save(src / f"v{i}.npy", _volume(rng))
     env = {**os.environ, "CAVITAS_STANDIN_LOG": str(log), "CAVITAS_STANDIN_SLEEP": "0.4"}
     script = _DRIVER.format(here=str(HERE), src=str(src), out=str(out))
-    proc = subprocess.Popen([sys.executable, "-c", script], env=env)
+    # a shell's background job inherits SIGINT ignored, and Python then never raises
+    # KeyboardInterrupt: the child gets the default disposition back, as from a terminal
+    proc = subprocess.Popen([sys.executable, "-c", script], env=env,
+                            preexec_fn=lambda: signal.signal(signal.SIGINT, signal.SIG_DFL))
     deadline = time.monotonic() + 60
     while len(list(out.glob(f"*/{DONE_NAME}"))) < 2 and time.monotonic() < deadline:
         time.sleep(0.05)
