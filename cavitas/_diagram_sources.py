@@ -41,6 +41,10 @@ class DiagramRecipe:
         Region of interest for every image (same shape as each).
     read_options : mapping
         Options of :func:`cavitas.io.read` (``channel``, ``spacing``, raw layout ...).
+    dims : tuple of int or None
+        Homology dimensions to compute for each image (those below its dimension);
+        ``None``: components and cavities (H1 of a volume only when asked for: it costs
+        more).
     """
 
     walls: str | None = None
@@ -48,6 +52,7 @@ class DiagramRecipe:
     smooth: float = 0.0
     mask: str | None = None
     read_options: Mapping[str, Any] = field(default_factory=dict)
+    dims: tuple[int, ...] | None = None
 
 
 @dataclass(frozen=True)
@@ -98,7 +103,10 @@ def _image_diagram(path: str, recipe: DiagramRecipe, walls: str,
     image: Any = volume
     if recipe.smooth > 0:
         image = _smoothed(np.asarray(volume.data), volume.spacing, recipe.smooth)
-    return persistence(image, walls=walls, connectivity=connectivity, mask=mask)
+    dims = None
+    if recipe.dims is not None:
+        dims = tuple(d for d in recipe.dims if d < volume.ndim) or None
+    return persistence(image, walls=walls, connectivity=connectivity, mask=mask, dims=dims)
 
 
 def diagram_sources(paths: Sequence[str | os.PathLike],

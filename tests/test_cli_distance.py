@@ -56,6 +56,27 @@ def test_ring_distances_by_hand(tmp_path, scans, capsys):
     assert "ring0.tif–ring2.tif 3.5" in printed and RESEARCH_ONLY in printed
 
 
+def test_tunnels_of_volumes_on_request(tmp_path):
+    # hand-worked: the same rings lying in one slice of a volume are loops of wall, H1
+    # points (9, 2) and (9, 5) (the loop closes at 9 and is filled through its inside at
+    # c); as in 2D their bottleneck distance is 3. Without --dimensions a volume's H1 is
+    # not computed (H0 and cavities only).
+    paths = []
+    for inside in (2.0, 5.0):
+        volume = np.zeros((5, 9, 9), np.float32)
+        volume[2] = ring(inside)
+        paths.append(tmp_path / f"loop{inside:g}.npy")
+        np.save(paths[-1], volume)
+    out = tmp_path / "out"
+    assert main(["distance", *map(str, paths), "-o", str(out), "--dimensions", "0,1,2"]) == 0
+    table = Table.from_csv(out / "distances.csv")
+    assert table["dimension"].tolist() == [0, 0, 1, 1, 2, 2]
+    assert table["loop5.npy"][2] == 3.0 and table["loop2.npy"][2] == 0.0
+    assert main(["distance", *map(str, paths), "-o", str(tmp_path / "plain")]) == 0
+    assert Table.from_csv(tmp_path / "plain" / "distances.csv")["dimension"].tolist() == [
+        0, 0, 2, 2]
+
+
 def test_wasserstein_by_hand_and_saved_diagrams(tmp_path, scans):
     # hand-worked, order 2: (9,2)-(9,8): matched 6, diagonal sqrt(3.5² + 0.5²) = 3.5355
     saved = tmp_path / "saved"

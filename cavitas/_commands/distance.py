@@ -20,7 +20,8 @@ TABLE, RECORD = "distances.csv", "distances.json"
 
 DESCRIPTION = f"""\
 Compare the structure of two or more scans through their persistence diagrams: wall
-components (H0) and cavities (H1 in 2D, H2 in 3D). Each INPUT is an image or volume (any
+components (H0) and cavities (H1 in 2D, H2 in 3D), and on request (--dimensions) the
+tunnels and loops of volumes (H1 in 3D). Each INPUT is an image or volume (any
 format cavitas reads; its diagram is computed with the options below) or a diagram file
 that `cavitas diagram` wrote (diagram.npz or diagram.csv, used as saved).
 
@@ -87,8 +88,10 @@ def register(subparsers: Any, *, parents: list[argparse.ArgumentParser],
                      help="exponent of the Wasserstein distance, Q >= 1: 1 adds the shifts, "
                           "2 adds their squares (a large shift weighs more) (default: 1)")
     how.add_argument("--dimensions", type=_dimensions, metavar="D[,D]",
-                     help="homology dimensions to compare, e.g. 0 or 0,2 (default: every "
-                          "dimension all inputs have)")
+                     help="homology dimensions to compare, e.g. 0 or 0,2; 1 for volumes "
+                          "computes their tunnels and loops too, which costs more (default: "
+                          "every dimension all inputs have: components and cavities for "
+                          "images)")
     how.add_argument("--min-persistence", type=float, metavar="P",
                      help="leave out pairs of persistence below P (intensity units) first: "
                           "noise near the diagonal; the exact Wasserstein distance handles "
@@ -199,7 +202,8 @@ def run(args: argparse.Namespace) -> int:
                for name in (TABLE, RECORD, *figures)}
     recipe = DiagramRecipe(walls=args.walls, connectivity=args.connectivity,
                            smooth=args.smooth, mask=args.mask,
-                           read_options=reading_from_args(args).kwargs())
+                           read_options=reading_from_args(args).kwargs(),
+                           dims=args.dimensions)
     with tqdm(total=3, desc="distance", unit="step", file=sys.stderr,
               disable=not args.progress, delay=1.0, leave=False) as bar:
         bar.set_postfix_str(f"diagrams of {len(args.inputs)} inputs")
