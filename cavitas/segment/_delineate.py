@@ -36,7 +36,6 @@ from ._regions import (
     reopen_faces,
 )
 from ._result import ChamberValues, EnclosureValues
-from ._select import select_nodes, split_rule
 from ._tree import Hierarchy, prune
 
 __all__ = ["DELINEATION_SIGMA", "Delineation", "Geometry", "ScaleRegions", "Settled",
@@ -119,9 +118,7 @@ def regions_at(det: Detection, params: SegmentParams, geometry: Geometry,
     image, outside, connectivity, voxel_volume, spacing = geometry
     tree, tau = det.tree, det.threshold
     sweep = Sweep(det.smoothed, det.order, tree, connectivity, outside)
-    significant = select_nodes(tree.persistence, tree.parent, tau, params.top,
-                               eligible=det.eligible)
-    keep = split_rule(tree, significant, params.split_fraction, det.face_breach)
+    significant, keep = det.significant, det.keep.copy()  # keep loses perforated splits
     hier = prune(tree, keep, sweep.rank, sweep.level_of_rank, tau)
     # never delineate on an image smoother than the one the regions were detected on
     fine_sigma = np.minimum(DELINEATION_SIGMA * spacing.min() / spacing, det.sigma)

@@ -47,10 +47,12 @@ class Detection:
     gap: float | None            # persistence at the diagram's gap (automatic mode), if any
     eligible: np.ndarray | None  # per node: straddles the class split (automatic mode)
     passing: np.ndarray          # per node: passes every criterion
-    face_breach: np.ndarray | None = None  # per node: breach on the closed faces (keep_border)
-    rule: str | None = None      # what set the automatic threshold (THRESHOLD_RULES)
-    texture_joined: int = 0      # significant pieces kept with their region (_texture)
-    seeds: ScaleSeeds | None = None  # the chambers this scale makes, as seeds
+    face_breach: np.ndarray | None  # per node: breach on the closed faces (keep_border)
+    rule: str | None             # what set the automatic threshold (THRESHOLD_RULES)
+    texture_joined: int          # significant pieces kept with their region (_texture)
+    significant: np.ndarray      # per node: selected (closed upward)
+    keep: np.ndarray             # ... less the splits the split rule joins
+    seeds: ScaleSeeds            # the chambers this scale makes, as seeds
 
     @property
     def count(self) -> int:
@@ -194,14 +196,14 @@ def detect(image: ScanImage, params: SegmentParams, *, noise: float, robust_rang
                     eligible &= ~texture
                     passing &= ~texture
         passing[OUTSIDE] = False
-        kept = split_rule(tree, select_nodes(pers, tree.parent, tau, params.top,
-                                             eligible=eligible),
-                          params.split_fraction, face_breach)
+        significant = select_nodes(pers, tree.parent, tau, params.top, eligible=eligible)
+        keep = split_rule(tree, significant, params.split_fraction, face_breach)
+        kept = keep.copy()
         kept[OUTSIDE] = False
         clarity = pers[kept] / tau if tau > 0 else np.full(int(kept.sum()), np.inf)
         return Detection(sig, smoothed, order, tree, tau, gap, eligible, passing, face_breach,
-                         rule, texture_joined, ScaleSeeds(sig, tree.core[kept], clarity,
-                                                          node_sizes(tree)[kept]))
+                         rule, texture_joined, significant, keep,
+                         ScaleSeeds(sig, tree.core[kept], clarity, node_sizes(tree)[kept]))
 
     # Two scales at a time in two threads (smoothing, sort and sweep release the GIL);
     # results are taken in scale order, so the choice is the same as one after the other.
@@ -216,8 +218,7 @@ def detect(image: ScanImage, params: SegmentParams, *, noise: float, robust_rang
             tried.append({"sigma": float((result.sigma * spacing).max()),
                           "threshold": result.threshold, "count": result.count,
                           "gap": result.gap, "rule": result.rule})
-            if result.seeds is not None:
-                seeds.append(result.seeds)
+            seeds.append(result.seeds)
             if best is None or result.count > best.count:
                 best = result
             del result  # a losing candidate is freed before the next scale starts

@@ -30,6 +30,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 
 import numpy as np
+from scipy import ndimage as ndi
 
 from ._result import ChamberValues
 
@@ -211,30 +212,31 @@ def merge(base_labels: np.ndarray, base: ChamberValues, base_level: np.ndarray,
         new[where] = np.where(piece_host[mine] == flat[where], piece_id[mine], 0)
 
     # regions seen only at another scale, the clearest first over every scale
-    free = new == 0
-    proposals = [(float(_clarity(c.chambers)[j]), k, int(j))
-                 for k, (c, host) in enumerate(zip(contributions, hosts, strict=True))
-                 if c.plan.adds for j in np.flatnonzero(host == 0)
-                 if _clarity(c.chambers)[j] >= MIN_CLARITY]
-    totals = [np.bincount(c.labels.ravel(), minlength=c.chambers.node.size + 1)
-              for c in contributions]
-    open_counts = [np.bincount(c.labels.ravel()[free], minlength=c.chambers.node.size + 1)
-                   for c in contributions]
-    added = np.zeros(flat.size, bool)
-    voxels = [_voxels_by_label(c.labels.ravel()) if c.plan.adds else None
-              for c in contributions]
+    free = (new == 0).reshape(base_labels.shape)
+    adding = [k for k, c in enumerate(contributions) if c.plan.adds]
+    proposals = [(float(_clarity(contributions[k].chambers)[j]), k, int(j))
+                 for k in adding for j in np.flatnonzero(hosts[k] == 0)
+                 if _clarity(contributions[k].chambers)[j] >= MIN_CLARITY]
+    size = {k: contributions[k].chambers.node.size + 1 for k in adding}
+    totals = {k: np.bincount(contributions[k].labels.ravel(), minlength=size[k])
+              for k in adding}
+    open_counts = {k: np.bincount(contributions[k].labels[free], minlength=size[k])
+                   for k in adding}
+    boxes = {k: ndi.find_objects(contributions[k].labels) for k in adding}
+    added = np.zeros(base_labels.shape, bool)
     for _, k, j in sorted(proposals, key=lambda p: -p[0]):
-        c, label, by_label = contributions[k], j + 1, voxels[k]
-        if (by_label is None or open_counts[k][label] < max(min_voxels, 1)
+        c, label = contributions[k], j + 1
+        if (open_counts[k][label] < max(min_voxels, 1)
                 or open_counts[k][label] < MIN_FREE_SHARE * totals[k][label]):
             continue
-        take = by_label(label)
-        take = take[free[take]]
-        new[take] = next_id
-        free[take] = False
-        added[take] = True
-        for source, counts in zip(contributions, open_counts, strict=True):
-            counts -= np.bincount(source.labels.ravel()[take], minlength=counts.size)
+        box = boxes[k][j]
+        take = (c.labels[box] == label) & free[box]
+        for m in adding:  # what the others could still take
+            open_counts[m] -= np.bincount(contributions[m].labels[box][take],
+                                          minlength=size[m])
+        new.reshape(base_labels.shape)[box][take] = next_id
+        free[box] &= ~take
+        added[box] |= take
         extra_rows.append(c.chambers.take(np.array([j])))
         extra_level.append(c.level[[j]])
         extra_parent.append(_enclosure_at(enclosure_map, c.chambers.core_voxel[[j]]))
@@ -249,14 +251,7 @@ def merge(base_labels: np.ndarray, base: ChamberValues, base_level: np.ndarray,
     return Merged(labels=new.reshape(base_labels.shape),
                   chambers=ChamberValues.concatenate([rows, *extra_rows]),
                   level=np.concatenate([level, *extra_level]), parent=parent, shift=shift,
-                  added=added.reshape(base_labels.shape), summary=summary)
-
-
-def _voxels_by_label(labels: np.ndarray):
-    """A function giving the flat indices of each label's voxels (one sort for all)."""
-    order = np.argsort(labels, kind="stable")
-    starts = np.searchsorted(labels[order], np.arange(int(labels.max(initial=0)) + 2))
-    return lambda label: order[starts[label]:starts[label + 1]]
+                  added=added, summary=summary)
 
 
 def _enclosure_at(enclosure_map: np.ndarray | None, core: np.ndarray) -> np.ndarray:
