@@ -204,7 +204,7 @@ def run(args: argparse.Namespace) -> int:
                   f"{summary['border_cut']}")
         correlated = (f" (correlated: {summary['noise'] / summary['noise_pixel']:.2g}× the "
                       f"pixel-level {summary['noise_pixel']:.4g})"
-                      if summary["noise"] > 1.001 * summary["noise_pixel"] else "")
+                      if summary["noise"] >= 1.05 * summary["noise_pixel"] else "")
         print(f"  noise σ {summary['noise']:.4g}{correlated}, persistence threshold "
               f"{summary['threshold']:.4g} (intensity units), smoothing σ "
               f"{summary['smooth_sigma']:.3g} {unit}")
@@ -213,11 +213,11 @@ def run(args: argparse.Namespace) -> int:
             if note:
                 print(f"  {note}")
         if summary["porosity"] is not None and summary["regions"]:
+            from .._shared.units import size_unit
             from ..report._words import Words
 
             words = Words(len(summary["shape"]))
-            power = "³" if words.ndim == 3 else "²"
-            size = f"{unit}{power}" if unit != "voxel" else f"{words.element}s"
+            size = size_unit(unit, words.ndim)
             porosity = " (closed porosity)" if words.ndim == 3 else ""
             print(f"  {words.fraction} of the regions{porosity} {summary['porosity']:.4f}; "
                   f"mean region {words.size} {summary['mean_volume']:.4g} {size}")

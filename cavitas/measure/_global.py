@@ -7,6 +7,7 @@ from typing import Any
 
 import numpy as np
 
+from .._shared.units import size_unit
 from .._table import Table
 from ._checks import check_labels, check_mask, check_spacing
 
@@ -66,7 +67,7 @@ def global_figures(table: Table, *, labels: Any, spacing: Sequence[float] | None
                     for a in ("z", "y", "x")[3 - ndim:])
         in_roi = int(np.count_nonzero(inside[idx]))
     roi_volume = roi_voxels * vvox
-    power = "³" if ndim == 3 else "²"
+    size = size_unit(unit, ndim)
     return {
         "region_count": count,
         "border_region_count": int(np.count_nonzero(table["touches_border"])) if count else 0,
@@ -75,6 +76,6 @@ def global_figures(table: Table, *, labels: Any, spacing: Sequence[float] | None
         "roi_volume": roi_volume,
         "volume_fraction": filled / roi_voxels if roi_voxels else float("nan"),
         "regions_per_volume": in_roi / roi_volume if roi_voxels else float("nan"),
-        "units": {"total_volume": f"{unit}{power}", "mean_volume": f"{unit}{power}",
-                  "roi_volume": f"{unit}{power}", "regions_per_volume": f"1/{unit}{power}"},
+        "units": {"total_volume": size, "mean_volume": size, "roi_volume": size,
+                  "regions_per_volume": f"1/{size_unit(unit, ndim, plural=False)}"},
     }

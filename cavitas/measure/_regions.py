@@ -11,6 +11,7 @@ import numpy as np
 
 from .._caution import RESEARCH_ONLY
 from .._errors import ParameterError
+from .._shared.units import length_unit, size_unit
 from .._table import Table
 from ._basic import region_sums
 from ._checks import as_3d, check_labels, check_mask, check_spacing, dense_labels, face_offsets
@@ -219,8 +220,8 @@ def _columns(values: np.ndarray, stats: dict[str, np.ndarray], volume: np.ndarra
 
 
 def _units(unit: str, ndim: int) -> dict[str, str]:
-    length, boundary = unit, (f"{unit}²" if ndim == 3 else unit)
-    units = {"volume": f"{unit}{'³' if ndim == 3 else '²'}", "surface_area": boundary,
+    length, boundary = length_unit(unit, ndim), size_unit(unit, ndim, power=ndim - 1)
+    units = {"volume": size_unit(unit, ndim), "surface_area": boundary,
              "equivalent_diameter": length, "major_axis": length, "intermediate_axis": length,
              "minor_axis": length, "wall_thickness_mean": length, "wall_thickness_max": length}
     units.update({f"centroid_{a}": length for a in _AXES})

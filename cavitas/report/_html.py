@@ -15,6 +15,7 @@ from .. import _checks
 from .._caution import RESEARCH_ONLY
 from .._errors import ParameterError
 from .._shared.atomic import atomic_path, check_writable
+from .._shared.units import length_unit
 from .._table import Table
 from .._version import __version__
 from ..cubical._diagram import Diagram
@@ -285,7 +286,8 @@ def write_report(path: str | os.PathLike, *, image: np.ndarray, labels: np.ndarr
     sizes = " × ".join(f"{s:g}" for s in spacing)
     stamp = datetime.datetime.now(datetime.timezone.utc).strftime("%Y-%m-%d %H:%M UTC")
     meta = (f"{f'Input {_esc(source)} · ' if source else ''}{_esc(geometry)} "
-            f"{words.element}s of {_esc(sizes)} {_esc(unit)} · cavitas {_esc(__version__)}"
+            f"{words.element}s of {_esc(sizes)} {_esc(length_unit(unit, image.ndim))} · "
+            f"cavitas {_esc(__version__)}"
             f" · {stamp}")
 
     n = len(regions)

@@ -16,6 +16,7 @@ from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 from matplotlib.patches import Patch, Rectangle
 
+from .._shared.units import length_unit
 from ._render import block_reduce, intensity_window, outline_mask, take_slice
 
 __all__ = ["nice_length", "plot_overview", "representative_slice"]
@@ -98,6 +99,7 @@ def plot_overview(image: np.ndarray, labels: np.ndarray, *, spacing: Sequence[fl
     >>> sorted(t.get_text() for t in fig.axes[0].texts if t.get_text().isdigit())
     ['1', '2']
     """
+    unit = length_unit(unit, np.ndim(image))
     z = representative_slice(labels)
     plane = take_slice(image, 0, z)
     lab = np.asarray(take_slice(labels, 0, z))

@@ -10,6 +10,7 @@ from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 
 from .._errors import ParameterError
+from .._shared.units import length_unit
 from .._table import Table
 from ._regions import pick_region, region_centroids
 from ._render import OUTLINE_LIGHT, intensity_window, render_slice, take_slice, to_rgb
@@ -77,7 +78,7 @@ def plot_slices(image: np.ndarray, labels: np.ndarray | None = None, *,
         )
     ndim = image.ndim
     spacing = tuple(float(s) for s in (spacing or (1.0,) * ndim))
-    unit = unit or "voxel"
+    unit = length_unit(unit or "voxel", ndim)
     shape = tuple(image.shape)
     if point is None:
         point = [(n - 1) / 2 for n in shape]

@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import html
 
+from .._shared.units import size_unit
 from ..cubical._euler import ConnectivityDensity, EulerCurve
 from ._words import Words, round_number
 
@@ -12,7 +13,6 @@ __all__ = ["euler_caption", "topology_html"]
 
 
 def _facts(topology: ConnectivityDensity, words: Words) -> list[tuple[str, str]]:
-    power = "³" if words.ndim == 3 else "²"
     loops = "Loops β1 (tunnels, handles)" if words.ndim == 3 else "Holes β1"
     rows = [("Pieces of wall β0", f"{topology.betti0:,}"), (loops, f"{topology.betti1:,}")]
     if words.ndim == 3:
@@ -20,7 +20,8 @@ def _facts(topology: ConnectivityDensity, words: Words) -> list[tuple[str, str]]
     rows += [
         ("Euler characteristic χ", f"{topology.chi:,}"),
         ("Connectivity density (β1 per " + words.size + ")",
-         f"{round_number(topology.density)} per {topology.unit}{power}"),
+         f"{round_number(topology.density)} per "
+         f"{size_unit(topology.unit, words.ndim, plural=False)}"),
     ]
     return rows
 

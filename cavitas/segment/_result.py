@@ -9,6 +9,7 @@ from typing import Any
 import numpy as np
 
 from .._caution import RESEARCH_ONLY
+from .._shared.units import size_unit
 from .._table import Table
 from ..cubical._diagram import PAIR_DTYPE, Diagram
 from ..io._volume import Volume
@@ -344,7 +345,7 @@ def build_table(*, vol: Volume, sign: float, chambers: ChamberValues,
     touches[on_faces[(on_faces > 0) & (on_faces <= k)] - 1] = True  # keep_border chambers
     kind = np.array(["chamber"] * k + ["enclosure"] * n_enc + ["cut"] * m, dtype=object)
     unit = vol.unit
-    vunit = f"{unit}{'²' if vol.ndim == 2 else '³'}" if unit != "voxel" else "voxel"
+    vunit = size_unit(unit, vol.ndim)
     table = Table(
         {
             "label": np.arange(1, n + 1),
