@@ -204,7 +204,7 @@ def run(args: argparse.Namespace) -> int:
                   f"{summary['border_cut']}")
         correlated = (f" (correlated: {summary['noise'] / summary['noise_pixel']:.2g}× the "
                       f"pixel-level {summary['noise_pixel']:.4g})"
-                      if summary["noise"] >= 1.05 * summary["noise_pixel"] else "")
+                      if summary["noise"] > 1.05 * summary["noise_pixel"] > 0 else "")
         print(f"  noise σ {summary['noise']:.4g}{correlated}, persistence threshold "
               f"{summary['threshold']:.4g} (intensity units), smoothing σ "
               f"{summary['smooth_sigma']:.3g} {unit}")
