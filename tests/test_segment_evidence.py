@@ -187,13 +187,14 @@ def _haar_detail_std(kernel: np.ndarray, block: int) -> float:
     return float(np.sqrt(np.sum(combined ** 2)))
 
 
-@pytest.mark.parametrize("width", [0.0, 1.0])
+@pytest.mark.parametrize("width", [0.0, 0.7, 1.0])
 def test_noise_levels_match_the_variance_of_filtered_white_noise(width):
     # Reference: the variance of a linear filter of white noise is the sum of its squared
     # weights (any probability text); MAD / 0.6745 estimates a Gaussian's standard
     # deviation (Donoho & Johnstone 1994); one estimate per wavelet level (Johnstone &
     # Silverman 1997). White noise: both levels agree; Gaussian-filtered noise (correlated):
-    # the coarser level is markedly larger, as predicted by the weights.
+    # the coarser level is markedly larger, as predicted by the weights, and the noise model
+    # recovers the filter's width and the unit amplitude of the noise before it.
     from cavitas.segment._noise import noise_level
 
     field = np.random.default_rng(7).normal(0, 1.0, (1024, 1024))
@@ -206,10 +207,13 @@ def test_noise_levels_match_the_variance_of_filtered_white_noise(width):
     assert levels.pixel == pytest.approx(_haar_detail_std(kernel, 1), rel=0.03)
     assert levels.two_pixel == pytest.approx(2 * _haar_detail_std(kernel, 2), rel=0.03)
     if width:
-        assert levels.ratio > 2 and levels.effective == pytest.approx(levels.two_pixel)
+        assert levels.ratio > 2 and not levels.white
+        assert levels.correlation == pytest.approx(width, rel=0.03)
+        assert levels.amplitude == pytest.approx(1.0, rel=0.06)
     else:
         assert levels.ratio == pytest.approx(1.0, abs=0.03)
-        assert levels.effective == levels.pixel
+        assert levels.white and levels.correlation == 0.0
+        assert levels.amplitude == levels.pixel
 
 
 def test_wrong_polarity_is_named_in_the_run_summary(tmp_path, capsys):

@@ -202,10 +202,12 @@ def run(args: argparse.Namespace) -> int:
             print(f"  border-cut regions (listed in regions.csv, "
                   f"{'kept' if params.keep_border else 'not'} in labels): "
                   f"{summary['border_cut']}")
-        correlated = (f" (correlated: {summary['noise'] / summary['noise_pixel']:.2g}× the "
-                      f"pixel-level {summary['noise_pixel']:.4g})"
-                      if summary["noise"] > 1.05 * summary["noise_pixel"] > 0 else "")
-        print(f"  noise σ {summary['noise']:.4g}{correlated}, persistence threshold "
+        element = "pixel" if len(summary["shape"]) == 2 else "voxel"
+        correlated = (f", correlated over {summary['noise_correlation']:.2g} {element}s (as "
+                      f"white noise of σ {summary['noise']:.4g} blurred that much)"
+                      if summary["noise_correlation"] > 0 else "")
+        print(f"  noise σ {summary['noise_pixel']:.4g} per {element}{correlated}, persistence "
+              f"threshold "
               f"{summary['threshold']:.4g} (intensity units), smoothing σ "
               f"{summary['smooth_sigma']:.3g} {unit}")
         for note in (summary["polarity_hint"], summary["threshold_basis"],

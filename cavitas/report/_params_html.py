@@ -29,6 +29,7 @@ _SETTINGS = {
 _CHOSEN = {
     "smooth_sigma": "smoothing σ", "noise_sigma": "noise σ the threshold is scaled by",
     "noise_pixel_sigma": "noise σ of single {element}s", "threshold": "persistence threshold",
+    "noise_correlation": "noise correlation (blur of white noise, {element}s)",
     "gap": "gap in the diagram", "delineation_sigma": "smoothing of the region borders",
     "connectivity": "wall connectivity", "scales_tried": "smoothing scales tried",
 }

@@ -128,21 +128,23 @@ def on_faces(flat_index: np.ndarray, shape: tuple[int, ...]) -> np.ndarray:
     return face & valid
 
 
-def detect(image: ScanImage, params: SegmentParams, *, noise: float, robust_range: float,
-            spacing: np.ndarray, connectivity: int, roi: np.ndarray | None,
-            tell: Callable[[str], None], white_noise: bool = False
-            ) -> tuple[Detection, list[dict[str, Any]], list[ScaleSeeds]]:
+def detect(image: ScanImage, params: SegmentParams, *, noise: _noise.NoiseLevel,
+           robust_range: float, spacing: np.ndarray, connectivity: int,
+           roi: np.ndarray | None, tell: Callable[[str], None]
+           ) -> tuple[Detection, list[dict[str, Any]], list[ScaleSeeds]]:
     """Detection scale, its sweep and threshold: the candidate with most significant cavities;
     also what every scale tried found (for run.json), and the seeds of its chambers.
 
     Candidates are :data:`AUTO_SCALES` (in voxels of the finest axis, the same physical σ on
     every axis) in automatic mode, else the one given (or none). At each, the threshold is
-    the strictest criterion given, the automatic one being ``safety · noise · P(σ)``
-    (:mod:`cavitas.segment._noise`). Too little smoothing leaves the threshold high, too
-    much erases walls; both lose cavities, so the count peaks at the useful scale. Ties go
-    to the finer scale. With two or more cores, two scales are tried at a time in two
-    threads. Memory: the best candidate's smoothed image and order stay, plus the one or
-    two being tried (in the work type, :func:`_noise.work_dtype`).
+    the strictest criterion given, the automatic one being ``safety · s · P(σ')``
+    (:mod:`cavitas.segment._noise`): the image's noise is white noise of amplitude ``s``
+    blurred by its own correlation (:class:`_noise.NoiseLevel`), so the null at smoothing
+    σ is that of white noise at both blurs combined, σ'. Too little smoothing leaves the
+    threshold high, too much erases walls; both lose cavities, so the count peaks at the
+    useful scale. Ties go to the finer scale. With two or more cores, two scales are tried
+    at a time in two threads. Memory: the best candidate's smoothed image and order stay,
+    plus the one or two being tried (in the work type, :func:`_noise.work_dtype`).
     """
     from .. import cubical
 
@@ -157,7 +159,8 @@ def detect(image: ScanImage, params: SegmentParams, *, noise: float, robust_rang
 
     def candidate(sig: np.ndarray) -> Detection:
         # the null first: its simulation (first use per shape and scale) then peaks alone
-        null = (_noise.null_distribution(image.data.shape, tuple(sig), connectivity)
+        blurred = noise.null_sigma(tuple(sig))
+        null = (_noise.null_distribution(image.data.shape, blurred, connectivity)
                 if params.automatic else None)
         smoothed = image.smoothed(sig)
         order, tree = cubical.cavity_sweep(smoothed, walls="bright", connectivity=connectivity,
@@ -169,15 +172,15 @@ def detect(image: ScanImage, params: SegmentParams, *, noise: float, robust_rang
         auto = None
         texture_joined = 0
         if null is not None:  # automatic mode
-            smoothed_noise = _noise.smoothed_noise_sigma(noise, tuple(sig))
+            smoothed_noise = _noise.smoothed_noise_sigma(noise.amplitude, blurred)
             eligible = eligible_nodes(
                 tree, smoothed, image.statistics_mask, smoothed_noise,
-                breach_dip=WHITE_NOISE_DIP * smoothed_noise if white_noise else 0.0)
+                breach_dip=WHITE_NOISE_DIP * smoothed_noise if noise.white else 0.0)
             if face_breach is not None:
                 eligible &= ~face_breach
-            rule, auto = automatic_threshold(pers[eligible], null, noise=noise,
+            rule, auto = automatic_threshold(pers[eligible], null, noise=noise.amplitude,
                                               voxels=analysed, safety=params.safety,
-                                              white_noise=white_noise)
+                                              white_noise=noise.white)
             gap = auto if rule == "gap" else None
         tau = persistence_threshold(auto=auto, absolute=params.min_persistence,
                                     relative=params.relative_persistence,
@@ -190,7 +193,7 @@ def detect(image: ScanImage, params: SegmentParams, *, noise: float, robust_rang
                 area[OUTSIDE] = np.inf
                 eligible &= pers >= small_region_threshold(area, pers, passing)
                 passing &= eligible
-                if not white_noise:  # texture: a split must stand out from its region's
+                if not noise.white:  # texture: a split must stand out from its region's
                     texture = texture_splits(tree.parent, pers, passing)
                     texture_joined = int(np.count_nonzero(texture))
                     eligible &= ~texture

@@ -19,7 +19,7 @@ pockets pass the class test more easily than shallow ones, so the share is a low
 estimate at higher levels; measured, the false discoveries stay rare (below).
 
 It applies only when the noise is white (its two wavelet levels agree,
-:func:`cavitas.segment._noise.correlation_factor` is 1): with correlated noise or texture
+:attr:`cavitas.segment._noise.NoiseLevel.white`): with correlated noise or texture
 only the null's scaled maximum is a fair bound, its distribution is not (on the EM slices
 of ``bench/real_scans.py`` the rule would add 56 spurious regions). Measured on the
 invented hard sheets (400 cells of 10-16 pixels, 2-pixel walls, a 0.35-1 gain), dark

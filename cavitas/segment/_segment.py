@@ -144,26 +144,24 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
 
     tell("noise level")
     # integers: quantisation noise at least (uniform, 1 step); correlated noise or
-    # texture: the null scales with the noise one wavelet level up
+    # texture: the null is that of white noise blurred as much as the two wavelet levels say
     levels = _noise.noise_level(raw, floor=_noise.QUANTISATION_SIGMA if np.issubdtype(
         vol.dtype, np.integer) else 0.0)
-    noise = levels.effective
+    noise = levels.amplitude  # what the threshold is scaled by
     # integers: the same figures as in float64, without a float64 copy of the image
     lo, hi = np.percentile(raw if raw.dtype.kind in "iu" else raw.astype(np.float64),
                            [0.5, 99.5])
     robust_range = float(hi - lo)
     spacing_arr = np.asarray(vol.spacing, float)
-    white_noise = _noise.correlation_factor(levels.ratio) == 1.0
-    det, tried, seeds = detect(
-        image, params, noise=noise, robust_range=robust_range, spacing=spacing_arr,
-        connectivity=connectivity, roi=roi, tell=tell, white_noise=white_noise)
+    det, tried, seeds = detect(image, params, noise=levels, robust_range=robust_range,
+                               spacing=spacing_arr, connectivity=connectivity, roi=roi,
+                               tell=tell)
     sig, tree, tau = det.sigma, det.tree, det.threshold
     hint = None
     if params.automatic:
         tell("polarity check")
-        hint = polarity_check(det, image, params, noise=noise, robust_range=robust_range,
-                               spacing=spacing_arr, connectivity=connectivity, roi=roi,
-                               white_noise=white_noise)
+        hint = polarity_check(det, image, params, noise=levels, robust_range=robust_range,
+                              spacing=spacing_arr, connectivity=connectivity, roi=roi)
     timings["detect"] = time.perf_counter() - started
     log.info("%s: noise σ %.4g, detection σ %.3g %s, persistence threshold %.4g (%s)",
              vol.name, noise, float((sig * spacing_arr).max()), vol.unit, tau,
@@ -177,9 +175,8 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
     hier, regions, chambers = base.hier, base.regions, base.chambers
     refined = None
     if params.automatic and params.smooth is None and params.region == "basin":
-        refined = _refine_across_scales(base, seeds, params, geometry, tell, noise=noise,
-                                        robust_range=robust_range, roi=roi,
-                                        white_noise=white_noise)
+        refined = _refine_across_scales(base, seeds, params, geometry, tell, noise=levels,
+                                        robust_range=robust_range, roi=roi)
     if refined is not None:
         hier, regions, chambers = refined.hier, refined.regions, refined.chambers
     timings["regions"] = time.perf_counter() - t0
@@ -193,6 +190,7 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
         "noise_sigma": noise,
         "noise_pixel_sigma": levels.pixel,
         "noise_level_ratio": levels.ratio,
+        "noise_correlation": levels.correlation,
         "threshold": tau,
         "robust_range": robust_range,
         "smooth_sigma": float((sig * spacing_arr).max()),
