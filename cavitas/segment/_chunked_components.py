@@ -6,9 +6,9 @@ number, and no step holds more than one chunk of voxels:
 1. Each chunk is labelled alone (a *piece* per local component) and reports, per piece, the
    global flat index of its first voxel: in C order local flat indices sort like global
    ones, so that is the piece's smallest global index.
-2. Each chunk with a halo of one voxel (its neighbours' first planes, corners included)
-   reports the pairs of different pieces that touch across a seam: every pair of
-   neighbouring voxels in different chunks lies in one such block.
+2. Each chunk's faces, framed by the faces of the chunks around it (corners included),
+   give the pairs of different pieces that touch across a seam: two neighbouring voxels in
+   different chunks both lie on a face of their own chunk, next to each other.
 3. The client joins the pieces along those pairs (a graph of the pieces only, not of the
    voxels) and numbers each component by its smallest flat index: ``scipy.ndimage.label``
    numbers components in the raster order of their first voxel.
@@ -41,9 +41,11 @@ class ChunkedComponents:
 
 @dataclass(frozen=True)
 class _Pieces:
-    """One chunk's local components: the global flat index of each one's first voxel."""
+    """One chunk's local components: where each starts, and the keys on the chunk's faces."""
 
-    first: np.ndarray  # int64, per local label 1..n
+    first: np.ndarray                  # int64: global flat index of each one's first voxel
+    shape: tuple[int, ...]             # the chunk's shape
+    faces: dict[tuple[int, int], np.ndarray]  # (axis, -1 low / 1 high): keys on that face
 
 
 def label_in_chunks(mask: Any, connectivity: int = 1) -> ChunkedComponents:
@@ -65,8 +67,10 @@ def label_in_chunks(mask: Any, connectivity: int = 1) -> ChunkedComponents:
     Notes
     -----
     Runs on Dask's current scheduler (a ``distributed.Client``'s workers if one is active).
-    The client holds one entry per piece (a component cut by ``k`` chunks is ``k`` pieces)
-    and the seam pairs; a worker one chunk with a one-voxel halo and its labels.
+    A worker holds one chunk with its labels (and a frame one voxel wider, of face
+    voxels); what passes between tasks is each chunk's faces and pieces. The client holds
+    one entry per piece (a component cut by ``k`` chunks is ``k`` pieces) and the seam
+    pairs.
 
     Examples
     --------
@@ -81,42 +85,27 @@ def label_in_chunks(mask: Any, connectivity: int = 1) -> ChunkedComponents:
     from dask import delayed
 
     structure = ndi.generate_binary_structure(mask.ndim, connectivity)
-    grid = mask.numblocks
-    keys = mask.map_blocks(_piece_keys, structure=structure, dtype=np.int64,
-                           meta=np.empty((0,) * mask.ndim, np.int64))
-    with_halo = da.overlap.overlap(keys, depth=dict.fromkeys(range(mask.ndim), 1),
-                                   boundary="none")
-    firsts = [delayed(_first_voxels, pure=True)(block, _origin(mask.chunks, index),
-                                                tuple(mask.shape))
-              for index, block in zip(np.ndindex(*grid), keys.to_delayed().ravel(),
-                                      strict=True)]
-    offsets = _forward_offsets(structure)
-    touching = [delayed(_touching_pairs, pure=True)(block, offsets)
-                for block in with_halo.to_delayed().ravel()]
-    computed = dask.compute(*firsts, *touching)
-    pieces: list[_Pieces] = list(computed[:len(firsts)])
-    pairs = np.concatenate([np.empty((0, 2), np.int64), *computed[len(firsts):]])
-    tables, count = _number_components(pieces, pairs)
+    grid = tuple(mask.numblocks)
     blocks = mask.to_delayed()
+    pieces = np.empty(grid, object)
+    for index in np.ndindex(*grid):
+        pieces[index] = delayed(_chunk_pieces, pure=True)(
+            blocks[index], structure, int(np.ravel_multi_index(index, grid)),
+            _origin(mask.chunks, index), tuple(mask.shape))
+    offsets = _forward_offsets(structure)
+    touching = [delayed(_touching_pairs, pure=True)(pieces[index], _neighbours(pieces, index),
+                                                     offsets)
+                for index in np.ndindex(*grid)]
+    computed = dask.compute(list(pieces.ravel()), touching)
+    found: list[_Pieces] = computed[0]
+    pairs = np.concatenate([np.empty((0, 2), np.int64), *computed[1]])
+    tables, count = _number_components(found, pairs)
     relabelled = np.empty(grid, object)
     for i, index in enumerate(np.ndindex(*grid)):
         shape = tuple(mask.chunks[axis][k] for axis, k in enumerate(index))
         part = delayed(_relabel, pure=True)(blocks[index], structure, tables[i])
         relabelled[index] = da.from_delayed(part, shape=shape, dtype=np.int32)
-    labels = da.block(relabelled.tolist())
-    return ChunkedComponents(labels, count)
-
-
-def _piece_keys(block: np.ndarray, *, structure: np.ndarray,
-                block_info: dict | None = None) -> np.ndarray:
-    """Local labels keyed by chunk number (0 outside the mask)."""
-    assert block_info is not None  # Dask passes it to every block
-    number = int(np.ravel_multi_index(block_info[0]["chunk-location"],
-                                      block_info[0]["num-chunks"]))
-    local, _ = ndi.label(block, structure)
-    keys = local.astype(np.int64)
-    keys[local > 0] += np.int64(number) << _LOCAL_BITS
-    return keys
+    return ChunkedComponents(da.block(relabelled.tolist()), count)
 
 
 def _origin(chunks: tuple[tuple[int, ...], ...], index: tuple[int, ...]) -> tuple[int, ...]:
@@ -124,15 +113,54 @@ def _origin(chunks: tuple[tuple[int, ...], ...], index: tuple[int, ...]) -> tupl
     return tuple(int(sum(sizes[:k])) for sizes, k in zip(chunks, index, strict=True))
 
 
-def _first_voxels(keys: np.ndarray, origin: tuple[int, ...],
-                  shape: tuple[int, ...]) -> _Pieces:
-    """The global flat index of the first voxel of each local piece of one chunk."""
-    local = (keys & ((1 << _LOCAL_BITS) - 1)).ravel()
-    labels, first = np.unique(local, return_index=True)
+def _chunk_pieces(block: np.ndarray, structure: np.ndarray, number: int,
+                  origin: tuple[int, ...], shape: tuple[int, ...]) -> _Pieces:
+    """One chunk labelled alone: its pieces' first voxels and its faces' keys."""
+    local, _ = ndi.label(block, structure)
+    labels, first = np.unique(local.ravel(), return_index=True)
     first = first[labels > 0]
-    coords = np.unravel_index(first, keys.shape)
+    coords = np.unravel_index(first, local.shape)
     global_coords = tuple(c + o for c, o in zip(coords, origin, strict=True))
-    return _Pieces(np.ravel_multi_index(global_coords, shape).astype(np.int64))
+    faces = {}
+    for axis in range(local.ndim):
+        for side, end in ((-1, 0), (1, -1)):
+            plane = np.take(local, end, axis=axis).astype(np.int64)
+            plane[plane > 0] += np.int64(number) << _LOCAL_BITS
+            faces[axis, side] = plane
+    return _Pieces(np.ravel_multi_index(global_coords, shape).astype(np.int64),
+                   local.shape, faces)
+
+
+def _neighbours(pieces: np.ndarray, index: tuple[int, ...]) -> dict[tuple[int, ...], Any]:
+    """The chunks around ``index`` (diagonal ones too), by their offset from it."""
+    around = {}
+    for step in np.ndindex(*(3,) * len(index)):
+        delta = tuple(s - 1 for s in step)
+        other = tuple(i + d for i, d in zip(index, delta, strict=True))
+        if any(delta) and all(0 <= o < n for o, n in zip(other, pieces.shape, strict=True)):
+            around[delta] = pieces[other]
+    return around
+
+
+def _frame(own: _Pieces, around: dict[tuple[int, ...], _Pieces]) -> np.ndarray:
+    """A chunk one voxel wider on every side, holding only face voxels' keys: its own and
+    its neighbours' next to it (0 elsewhere, and beyond the volume)."""
+    ndim = len(own.shape)
+    frame = np.zeros(tuple(n + 2 for n in own.shape), np.int64)
+    inner = tuple(slice(1, n + 1) for n in own.shape)
+    for (axis, side), plane in own.faces.items():
+        index: list[Any] = list(inner)
+        index[axis] = 1 if side < 0 else own.shape[axis]
+        frame[tuple(index)] = plane
+    for delta, other in around.items():
+        axis = next(a for a in range(ndim) if delta[a])  # a face of theirs holds the part
+        plane = other.faces[axis, -delta[axis]]
+        take = tuple(slice(None) if d == 0 else (0 if d > 0 else -1)
+                     for a, d in enumerate(delta) if a != axis)
+        put = tuple(inner[a] if d == 0 else (0 if d < 0 else own.shape[a] + 1)
+                    for a, d in enumerate(delta))
+        frame[put] = plane[take]
+    return frame
 
 
 def _forward_offsets(structure: np.ndarray) -> list[tuple[int, ...]]:
@@ -143,8 +171,10 @@ def _forward_offsets(structure: np.ndarray) -> list[tuple[int, ...]]:
     return [s for s in steps if s > (0,) * structure.ndim]
 
 
-def _touching_pairs(keys: np.ndarray, offsets: list[tuple[int, ...]]) -> np.ndarray:
-    """Distinct pairs of different pieces that are neighbours in this block (with halo)."""
+def _touching_pairs(own: _Pieces, around: dict[tuple[int, ...], _Pieces],
+                    offsets: list[tuple[int, ...]]) -> np.ndarray:
+    """Distinct pairs of different pieces that are neighbours across this chunk's sides."""
+    keys = _frame(own, around)
     found = [np.empty((0, 2), np.int64)]
     for step in offsets:
         a = tuple(slice(0, n - s) if s >= 0 else slice(-s, n)
