@@ -34,13 +34,9 @@ def _lattice(shape=(12, 10, 11), pitch=4, seed=3) -> np.ndarray:
 
 
 @pytest.fixture(scope="module")
-def address():
-    import distributed
-
-    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=False,
-                                  host="127.0.0.1", protocol="tcp",
-                                  dashboard_address=None) as cluster:
-        yield cluster.scheduler_address
+def address(client):
+    """The loopback scheduler of tests/conftest.py's client, for --scheduler."""
+    return client.scheduler.address
 
 
 def _same_pairs(written, expected) -> None:

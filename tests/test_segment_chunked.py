@@ -99,18 +99,7 @@ def test_components_of_an_empty_and_a_full_mask():
         assert np.array_equal(got.labels.compute(), mask.astype(np.int32))
 
 
-# -- on a Dask cluster ---------------------------------------------------------------------
-
-@pytest.fixture(scope="module")
-def client():
-    distributed = pytest.importorskip(
-        "distributed", reason="Dask distributed (extra 'cluster') is not installed")
-    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=False,
-                                  host="127.0.0.1", protocol="tcp",
-                                  dashboard_address=None) as cluster, \
-            distributed.Client(cluster) as dask_client:
-        yield dask_client
-
+# -- on a Dask cluster (tests/conftest.py: client) -------------------------------------------
 
 @pytest.mark.cluster
 @pytest.mark.parametrize("conn,walls", [(1, "bright"), (3, "dark")])
