@@ -100,3 +100,25 @@ def test_refusals_are_one_sentence_with_their_exit_code(address, tmp_path, capsy
     assert not (tmp_path / "out").exists()  # nothing written by a refused run
     assert main(["diagram", zarr_in, "-o", str(tmp_path / "out"), "--dask-local", "0"]) == 2
     assert "expected a whole number of workers" in capsys.readouterr().err
+
+
+@pytest.mark.cluster
+def test_workers_that_die_are_an_input_problem(address, tmp_path, capsys, monkeypatch):
+    # A worker killed (out of memory, as a chunk too large for it) ends the run with exit
+    # code 3 and one sentence, not as an internal error (5).
+    import distributed
+
+    import cavitas.cubical._chunked
+
+    def killed(*args, **kwargs):
+        raise distributed.KilledWorker("task", "worker", 3)
+
+    monkeypatch.setattr(cavitas.cubical._chunked, "chunked_persistence", killed)
+    image = _lattice((6, 6, 6))
+    zarr.open_array(str(tmp_path / "v.zarr"), mode="w", shape=image.shape, chunks=3,
+                    dtype=image.dtype)[...] = image
+    code = main(["diagram", str(tmp_path / "v.zarr"), "-o", str(tmp_path / "out"),
+                 "--scheduler", address])
+    err = capsys.readouterr().err.strip().splitlines()
+    assert code == 3 and len(err) == 1 and "Dask workers died" in err[0]
+    assert not (tmp_path / "out").exists()

@@ -14,7 +14,7 @@ from collections.abc import Iterator
 from typing import Any
 
 from .._cores import usable_cores
-from .._errors import ParameterError
+from .._errors import InputFileError, ParameterError
 
 __all__ = ["add_cluster_options", "chunked_route", "dask_client"]
 
@@ -53,11 +53,13 @@ def chunked_route(args: argparse.Namespace) -> bool:
 
 
 @contextlib.contextmanager
-def dask_client(args: argparse.Namespace) -> Iterator[Any]:
+def dask_client(args: argparse.Namespace, source: str) -> Iterator[Any]:
     """A ``distributed.Client`` for ``--scheduler`` or ``--dask-local``, closed afterwards.
 
-    Errors (exit code 2): distributed not installed, an address that is not one, or a
-    scheduler that does not answer within :data:`cavitas.batch._dask.CONNECT_TIMEOUT`.
+    Errors: exit code 2 when distributed is not installed, for an address that is not one,
+    or a scheduler that does not answer within
+    :data:`cavitas.batch._dask.CONNECT_TIMEOUT`; exit code 3 when workers die while
+    computing on ``source`` (the file's chunks were too large for them, most likely).
     """
     from ..batch._dask import CONNECT_TIMEOUT, _import_distributed
 
@@ -76,7 +78,14 @@ def dask_client(args: argparse.Namespace) -> Iterator[Any]:
             except (OSError, TimeoutError, ValueError, TypeError) as exc:
                 raise ParameterError(f"Cannot reach a Dask scheduler at --scheduler "
                                      f"{args.scheduler!r}: {_reason(exc)}.") from exc
-        yield client
+        try:
+            yield client
+        except distributed.KilledWorker as exc:
+            raise InputFileError(
+                f"Dask workers died while computing on '{source}' (most likely out of "
+                "memory: `cavitas info` says what each needs for its chunks; give the workers "
+                "more memory, start fewer of them, or store the file in smaller chunks)."
+            ) from exc
 
 
 def _reason(exc: BaseException) -> str:

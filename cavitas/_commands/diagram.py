@@ -197,7 +197,7 @@ def _run_chunked(args: argparse.Namespace, options: dict[str, Any], targets: lis
             raise InputFileError(f"Mask '{args.mask}' has shape {tuple(mask.shape)}; the "
                                  f"image has shape {tuple(image.data.shape)}.")
     ndim = image.data.ndim
-    with dask_client(args) as client:
+    with dask_client(args, image.name) as client:
         workers = len(client.scheduler_info().get("workers", {}))
         dgm = chunked_persistence(image.data, walls=args.walls,
                                   connectivity=args.connectivity, mask=mask,
