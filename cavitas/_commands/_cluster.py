@@ -26,13 +26,14 @@ def add_cluster_options(parser: argparse.ArgumentParser, *, what: str) -> None:
         "the input must be a Zarr store or an HDF5 file, read in its own chunks)")
     where = group.add_mutually_exclusive_group()
     where.add_argument("--scheduler", metavar="ADDRESS",
-                       help=f"address of a running Dask scheduler, e.g. "
-                            f"tcp://10.0.0.5:8786: {what} on its workers, which must read "
-                            f"the input file at the same path")
+                       help=f"address of a running Dask scheduler (e.g. "
+                            f"tcp://10.0.0.5:8786): {what} is computed on its workers, "
+                            f"which must be able to read the input file at the same path")
     where.add_argument("--dask-local", type=_worker_count, nargs="?", const=0, metavar="N",
                        help=f"start N Dask worker processes on this machine (default: one per "
-                            f"usable core, at most 4) and compute {what} on them; each "
-                            f"worker then holds one chunk at a time, not the image")
+                            f"usable core, at most 4) and compute {what} on them; no process "
+                            f"holds the whole image (`cavitas info FILE` says what each "
+                            f"worker needs)")
 
 
 def _worker_count(text: str) -> int:

@@ -67,7 +67,7 @@ def smooth_in_chunks(image: Any, sigma_voxels: tuple[float, ...], *, dtype: np.d
     # a halo reaching both faces of an axis holds all of it: never more is needed
     depth = {axis: min(gaussian_radius(s), size - 1)
              for axis, (s, size) in enumerate(zip(sigma_voxels, image.shape, strict=True))}
-    if not any(s > 1e-15 for s in sigma_voxels):  # as in memory: a converted copy
+    if not any(s > 0 for s in sigma_voxels):  # as in memory: a converted copy
         out = -image.astype(dtype) if sign < 0 else image.astype(dtype)
     else:
         out = image.map_overlap(_smooth_block, depth=depth, boundary="none", trim=True,
