@@ -34,7 +34,8 @@ from cavitas.cubical import persistence
 from cavitas.cubical._chunk_memory import worker_need
 from cavitas.segment._chunked_components import label_in_chunks
 from cavitas.segment._chunked_smooth import smooth_in_chunks
-from cavitas.segment._noise import smooth
+from cavitas.segment._chunked_statistics import noise_level_in_chunks, percentiles_in_chunks
+from cavitas.segment._noise import noise_level, smooth
 
 NAME = "chunked"
 
@@ -190,12 +191,32 @@ def _step_rows_at(client, folder: Path, side: int) -> list[dict]:
 
     found, wall, worker, client_peak = _timed_on_cluster(client, components)
     same = found == count and np.array_equal(np.asarray(da.from_zarr(labels_at)), expected)
+    rows.append(_statistics_row(client, image, lazy, side, chunk))
     rows.append({"metric": f"{side}^3 components below the median, chunks {chunk[0]}^3",
                  "value": f"{wall:.2f} s ({wall / t_ref:.1f}x)", "target": "identical",
                  "note": f"{'identical' if same else 'DIFFERENT'} ({count} components); in "
                          f"memory {t_ref:.2f} s, peak {p_ref / 2**20:.0f} MiB; worker peak "
                          f"{worker / 2**20:.0f} MiB, client {client_peak / 2**20:.0f} MiB"})
     return rows
+
+
+def _statistics_row(client, image: np.ndarray, lazy, side: int, chunk) -> dict:
+    """The robust range (0.5th and 99.5th percentiles) and the noise level, chunked."""
+    def both(read):
+        return read(lambda values: np.percentile(values, [0.5, 99.5]),
+                    lambda values: noise_level(values, 0.29))
+
+    (ref_range, ref_noise), t_ref, p_ref = _timed_here(lambda: both(
+        lambda pct, noise: (pct(image), noise(image))))
+    (got_range, got_noise), wall, worker, client_peak = _timed_on_cluster(
+        client, lambda: (percentiles_in_chunks(lazy, [0.5, 99.5]),
+                         noise_level_in_chunks(lazy, 0.29)))
+    same = np.array_equal(got_range, ref_range) and got_noise == ref_noise
+    return {"metric": f"{side}^3 robust range and noise level, chunks {chunk[0]}^3",
+            "value": f"{wall:.2f} s ({wall / t_ref:.1f}x)", "target": "identical",
+            "note": f"{'identical' if same else 'DIFFERENT'}; in memory {t_ref:.2f} s, peak "
+                    f"{p_ref / 2**20:.0f} MiB; worker peak {worker / 2**20:.0f} MiB, client "
+                    f"{client_peak / 2**20:.0f} MiB"}
 
 
 def segmentation_steps_only(sides=(128, 256)) -> list[dict]:

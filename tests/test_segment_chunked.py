@@ -11,6 +11,10 @@ Checks and their sources:
   ``scipy.ndimage.label`` of the whole volume: the same label for every voxel (scipy's
   numbering, in raster order of each component's first voxel) and the same count, for
   every connectivity from faces to full.
+* Whole-image statistics (``segment/_chunked_statistics.py``) against ``numpy.percentile``
+  (its ``"linear"`` rule; order statistics against ``numpy.sort``) and against the in-memory
+  noise level (:func:`cavitas.segment._noise.noise_level`, a wavelet MAD on a central crop,
+  Donoho & Johnstone 1994): equal, for integer and float types, ties and extreme values.
 * Both on a loopback Dask LocalCluster with an invented foam (``cavitas.scenes.foam``;
   invented data, so only an identity check) cut by chunks through every cell.
 
@@ -26,8 +30,13 @@ from scipy import ndimage as ndi
 
 from cavitas.segment._chunked_components import label_in_chunks
 from cavitas.segment._chunked_smooth import gaussian_radius, smooth_in_chunks
+from cavitas.segment._chunked_statistics import (
+    noise_level_in_chunks,
+    order_statistics_in_chunks,
+    percentiles_in_chunks,
+)
 from cavitas.segment._detect import close_faces
-from cavitas.segment._noise import smooth
+from cavitas.segment._noise import noise_level, smooth
 
 da = pytest.importorskip("dask.array", reason="Dask (extra 'cluster') is not installed")
 
@@ -99,6 +108,42 @@ def test_components_of_an_empty_and_a_full_mask():
         assert np.array_equal(got.labels.compute(), mask.astype(np.int32))
 
 
+def test_percentiles_and_order_statistics_equal_numpy():
+    # Reference: numpy.percentile ("linear", as segment() computes the robust range) and
+    # numpy.sort; integers stay integers until the blend, floats are blended in float64.
+    rng = np.random.default_rng(99)
+    types = (np.uint8, np.int16, np.uint16, np.int32, np.int64, np.float32, np.float64)
+    for case in range(14):
+        dtype = np.dtype(types[case % len(types)])
+        shape = tuple(int(rng.integers(1, 10)) for _ in range(1 + case % 3))
+        if dtype.kind == "f":
+            values = (rng.standard_normal(shape) * (1e-30, 1.0, 1e30)[case % 3]).astype(dtype)
+            if case % 2:
+                values = np.round(values)  # ties
+        else:
+            info = np.iinfo(dtype)  # the type's extremes included
+            values = rng.integers(info.min, info.max, size=shape, endpoint=True, dtype=dtype)
+        lazy = da.from_array(values, chunks=tuple(int(rng.integers(1, 4)) for _ in shape))
+        ranks = rng.integers(0, values.size, size=3)
+        assert np.array_equal(order_statistics_in_chunks(lazy, ranks),
+                              np.sort(values.ravel())[ranks])
+        whole = values if dtype.kind in "iu" else values.astype(np.float64)
+        percents = [0, 0.5, 33.3, 50, 99.5, 100]
+        expected = np.percentile(whole, percents)
+        got = percentiles_in_chunks(lazy, percents)
+        assert got.dtype == expected.dtype and np.array_equal(got, expected), (dtype, shape)
+
+
+def test_noise_level_reads_the_same_voxels():
+    # Reference: the in-memory noise_level (wavelet MAD, Donoho & Johnstone 1994) on a
+    # volume above its 4 Mi-voxel crop and on a small image read whole.
+    rng = np.random.default_rng(4)
+    for shape, chunks in (((170, 170, 171), (64, 50, 171)), ((40, 33), (7, 5))):
+        values = rng.integers(0, 4000, shape).astype(np.uint16)
+        assert noise_level_in_chunks(da.from_array(values, chunks=chunks), 0.3) == \
+            noise_level(values, 0.3)
+
+
 # -- on a Dask cluster (tests/conftest.py: client) -------------------------------------------
 
 @pytest.mark.cluster
@@ -111,7 +156,7 @@ def test_foam_on_a_cluster(client, conn, walls):
     scene = foam((32, 32, 32), cells=12, walls=walls, seed=3)
     low, high = scene.image.min(), scene.image.max()
     image = np.round((scene.image - low) / (high - low) * 1000).astype(np.uint16)
-    chunks = ((1, 9, 1, 21), (7, 1, 11, 13), (16, 16))
+    chunks = ((1, 9, 1, 21), (7, 1, 11, 13), (32,))
     sign = 1.0 if walls == "bright" else -1.0
     ref = smooth(image, (1.0, 1.0, 1.0), dtype=np.float32, sign=sign)
     got = smooth_in_chunks(da.from_array(image, chunks=chunks), (1.0, 1.0, 1.0),
