@@ -1,5 +1,10 @@
 """Chunked persistence on a local Dask cluster: identity with the in-memory run, time, peaks.
 
+Also the segmentation's chunked steps built so far (:func:`segmentation_step_rows`): the
+smoothing (``segment/_chunked_smooth.py``) and the connected components of a level set
+(``segment/_chunked_components.py``), each written to a Zarr store chunk by chunk, against
+``scipy.ndimage.gaussian_filter`` and ``scipy.ndimage.label`` of the whole volume.
+
 Input (invented, for this measurement only): the Gaussian-smoothed uint16 noise of
 ``bench/persistence.py`` (96^3, 128^3, 256^3; 384^3 with ``--large``), written to a Zarr
 store in the chunk shape being measured, so the workers read it chunk by chunk and the
@@ -22,10 +27,15 @@ import time
 from pathlib import Path
 
 import numpy as np
+from scipy import ndimage as ndi
 
 from bench.persistence import _rss_kib, _rss_peak_in_fresh_process, smoothed_noise
 from cavitas.cubical import persistence
 from cavitas.cubical._chunk_memory import worker_need
+from cavitas.segment._chunked_components import label_in_chunks
+from cavitas.segment._chunked_smooth import smooth_in_chunks
+from cavitas.segment._chunked_statistics import noise_level_in_chunks, percentiles_in_chunks
+from cavitas.segment._noise import noise_level, smooth
 
 NAME = "chunked"
 
@@ -118,4 +128,102 @@ def run(args) -> list[dict]:
                         rows.append({"metric": f"{tag} connectivity {conn}, {walls} walls",
                                      "value": "identical" if same else "DIFFERENT",
                                      "target": "identical", "note": "chunks 24^3"})
+        rows += segmentation_step_rows(client, folder, sides=[s for s in sides if s >= 128])
     return rows
+
+
+def _timed_on_cluster(client, compute):
+    """``compute()``'s result, wall time, worker and client extra peaks (bytes)."""
+    before = client.run(_reset_peak)
+    client_before = _reset_peak()
+    start = time.perf_counter()
+    result = compute()
+    wall = time.perf_counter() - start
+    client_peak = _peak() - client_before
+    peaks = client.run(_peak)
+    return result, wall, max(peaks[w] - before[w] for w in peaks), client_peak
+
+
+def _timed_here(compute):
+    """``compute()``'s result, wall time and this process's extra peak (bytes)."""
+    before = _reset_peak()
+    start = time.perf_counter()
+    result = compute()
+    return result, time.perf_counter() - start, _peak() - before
+
+
+def segmentation_step_rows(client, folder: Path, sides=(128, 256)) -> list[dict]:
+    """Smoothing (sigma 1 voxel, float32) and the components of the voxels below the
+    smoothed median (faces connectivity), chunk by chunk into Zarr stores, against the
+    whole-volume scipy calls: identity, time, worker and client peaks (after a first run at
+    32^3 that lets the workers import and warm up)."""
+    _step_rows_at(client, folder, 32)
+    return [row for side in sides for row in _step_rows_at(client, folder, side)]
+
+
+def _step_rows_at(client, folder: Path, side: int) -> list[dict]:
+    import dask.array as da
+
+    sigma = (1.0, 1.0, 1.0)
+    image = smoothed_noise(side)
+    chunk = (side // 4,) * 3
+    lazy = da.from_zarr(_stored(image, chunk, folder))
+    ref, t_ref, p_ref = _timed_here(lambda: smooth(image, sigma, dtype=np.float32))
+    smoothed_at = str(folder / f"smooth{side}.zarr")
+    _, wall, worker, client_peak = _timed_on_cluster(client, lambda: smooth_in_chunks(
+        lazy, sigma, dtype=np.float32).to_zarr(smoothed_at, overwrite=True))
+    same = np.array_equal(np.asarray(da.from_zarr(smoothed_at)).view(np.uint32),
+                          ref.view(np.uint32))
+    rows = [{"metric": f"{side}^3 smoothing, chunks {chunk[0]}^3",
+             "value": f"{wall:.2f} s ({wall / t_ref:.1f}x)", "target": "identical",
+             "note": f"{'identical' if same else 'DIFFERENT'} bit for bit; in memory "
+                     f"{t_ref:.2f} s, peak {p_ref / 2**20:.0f} MiB; worker peak "
+                     f"{worker / 2**20:.0f} MiB, client {client_peak / 2**20:.0f} MiB"}]
+    level = float(np.median(ref))
+    (expected, count), t_ref, p_ref = _timed_here(lambda: ndi.label(ref < level))
+    smoothed = da.from_zarr(smoothed_at)
+    labels_at = str(folder / f"labels{side}.zarr")
+
+    def components() -> int:
+        found = label_in_chunks(smoothed < level, 1)
+        found.labels.to_zarr(labels_at, overwrite=True)
+        return found.count
+
+    found, wall, worker, client_peak = _timed_on_cluster(client, components)
+    same = found == count and np.array_equal(np.asarray(da.from_zarr(labels_at)), expected)
+    rows.append(_statistics_row(client, image, lazy, side, chunk))
+    rows.append({"metric": f"{side}^3 components below the median, chunks {chunk[0]}^3",
+                 "value": f"{wall:.2f} s ({wall / t_ref:.1f}x)", "target": "identical",
+                 "note": f"{'identical' if same else 'DIFFERENT'} ({count} components); in "
+                         f"memory {t_ref:.2f} s, peak {p_ref / 2**20:.0f} MiB; worker peak "
+                         f"{worker / 2**20:.0f} MiB, client {client_peak / 2**20:.0f} MiB"})
+    return rows
+
+
+def _statistics_row(client, image: np.ndarray, lazy, side: int, chunk) -> dict:
+    """The robust range (0.5th and 99.5th percentiles) and the noise level, chunked."""
+    def both(read):
+        return read(lambda values: np.percentile(values, [0.5, 99.5]),
+                    lambda values: noise_level(values, 0.29))
+
+    (ref_range, ref_noise), t_ref, p_ref = _timed_here(lambda: both(
+        lambda pct, noise: (pct(image), noise(image))))
+    (got_range, got_noise), wall, worker, client_peak = _timed_on_cluster(
+        client, lambda: (percentiles_in_chunks(lazy, [0.5, 99.5]),
+                         noise_level_in_chunks(lazy, 0.29)))
+    same = np.array_equal(got_range, ref_range) and got_noise == ref_noise
+    return {"metric": f"{side}^3 robust range and noise level, chunks {chunk[0]}^3",
+            "value": f"{wall:.2f} s ({wall / t_ref:.1f}x)", "target": "identical",
+            "note": f"{'identical' if same else 'DIFFERENT'}; in memory {t_ref:.2f} s, peak "
+                    f"{p_ref / 2**20:.0f} MiB; worker peak {worker / 2**20:.0f} MiB, client "
+                    f"{client_peak / 2**20:.0f} MiB"}
+
+
+def segmentation_steps_only(sides=(128, 256)) -> list[dict]:
+    """:func:`segmentation_step_rows` on a cluster of its own (2 worker processes)."""
+    from distributed import Client, LocalCluster
+
+    with tempfile.TemporaryDirectory() as tmp, \
+            LocalCluster(n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1",
+                         dashboard_address=None) as cluster, Client(cluster) as client:
+        return segmentation_step_rows(client, Path(tmp), sides)

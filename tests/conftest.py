@@ -26,3 +26,15 @@ def square_ring():
     img[4:20, 4:20] = 200
     img[7:17, 7:17] = 10
     return img
+
+
+@pytest.fixture(scope="module")
+def client():
+    """A Dask client of a loopback LocalCluster (2 workers in this process), per module."""
+    distributed = pytest.importorskip(
+        "distributed", reason="Dask distributed (extra 'cluster') is not installed")
+    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=False,
+                                  host="127.0.0.1", protocol="tcp",
+                                  dashboard_address=None) as cluster, \
+            distributed.Client(cluster) as dask_client:
+        yield dask_client

@@ -108,21 +108,10 @@ def test_only_one_dimension():
                                                                           dims=dims))
 
 
-# -- on a Dask cluster ---------------------------------------------------------------------
+# -- on a Dask cluster (tests/conftest.py: client) -------------------------------------------
 
 #: Both connectivities and polarities (every combination runs in the tests without Dask).
 CLUSTER_CASES = [(1, "bright"), (3, "dark")]
-
-
-@pytest.fixture(scope="module")
-def client():
-    distributed = pytest.importorskip(
-        "distributed", reason="Dask distributed (extra 'cluster') is not installed")
-    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=False,
-                                  host="127.0.0.1", protocol="tcp",
-                                  dashboard_address=None) as cluster, \
-            distributed.Client(cluster) as dask_client:
-        yield dask_client
 
 
 @pytest.mark.cluster

@@ -10,6 +10,7 @@ from typing import Any
 from .._caution import RESEARCH_ONLY
 from .._checks import WALLS
 from .._errors import InputFileError, ParameterError
+from ._cluster import add_cluster_options, chunked_route, dask_client
 from ._reading import add_reading_options, reading_from_args
 
 __all__ = ["register", "run"]
@@ -42,6 +43,12 @@ examples:
       a raw volume without a header: its layout
   cavitas diagram foam.tif -o out --euler
       also the Euler characteristic of the walls at every level (euler.csv, euler.png)
+  cavitas diagram big.zarr -o out --dask-local 4
+      a volume larger than memory: 4 local Dask workers compute it chunk by chunk (the
+      chunks of the Zarr store); the diagram is the same, except that a volume's loops
+      (H1) are not computed this way
+  cavitas diagram big.h5 -o out --dataset /scan --scheduler tcp://10.0.0.5:8786
+      the same on the workers of a running Dask scheduler (they read big.h5 themselves)
 """
 
 
@@ -80,6 +87,7 @@ def register(subparsers: Any, *, parents: list[argparse.ArgumentParser],
     parser.add_argument("--force", action="store_true",
                         help="replace output files that already exist")
     add_reading_options(parser)
+    add_cluster_options(parser, what="the diagram")
     parser.set_defaults(func=run)
     return parser
 
@@ -125,6 +133,8 @@ def run(args: argparse.Namespace) -> int:
     targets = [check_writable(args.out / name, force=args.force, inputs=inputs)
                for name in names]
     options = reading_from_args(args).kwargs()
+    if chunked_route(args):
+        return _run_chunked(args, options, targets, names)
     with tqdm(total=6 if args.euler else 5, desc="diagram", unit="step", file=sys.stderr,
               disable=not args.progress, delay=1.0, leave=False) as bar:
         bar.set_postfix_str(f"reading {Path(args.file).name}")
@@ -152,6 +162,57 @@ def run(args: argparse.Namespace) -> int:
             bar.update()
     if not args.quiet:
         print(f"{vol.name}: {format_summary(dgm)}")
+        print(f"wrote {', '.join(names)} to {args.out}")
+        print(RESEARCH_ONLY)
+    return 0
+
+
+#: Reading options that only raw, NumPy or calibration-less files need (the chunked route
+#: reads Zarr and HDF5 only, and the diagram's levels and voxels need no spacing).
+_NOT_CHUNKED_OPTIONS = ("key", "shape", "dtype", "byte_order", "offset", "spacing", "unit")
+
+
+def _run_chunked(args: argparse.Namespace, options: dict[str, Any], targets: list[Path],
+                 names: tuple[str, ...]) -> int:
+    """The diagram of a Zarr or HDF5 input, chunk by chunk on Dask workers."""
+    from ..cubical import format_summary, save_diagram
+    from ..cubical._chunked import chunked_persistence
+    from ..io._lazy import open_chunked
+    from ..report.diagram_plots import plot_barcode, plot_diagram, save_figure
+
+    for option, given in (("--euler", args.euler), ("--one-thread", args.one_thread)):
+        if given:
+            raise ParameterError(f"{option} applies to an image read whole; leave it out with "
+                                 "--scheduler or --dask-local.")
+    unused = [name for name in _NOT_CHUNKED_OPTIONS if name in options]
+    if unused:
+        raise ParameterError(f"{unused[0]}= does not apply with --scheduler or --dask-local, "
+                             "which read a Zarr store or an HDF5 file as stored.",
+                             parameters=(unused[0],))
+    image = open_chunked(args.file, **options)
+    mask = None
+    if args.mask:
+        mask = open_chunked(args.mask, role="Mask").data != 0
+        if tuple(mask.shape) != tuple(image.data.shape):
+            raise InputFileError(f"Mask '{args.mask}' has shape {tuple(mask.shape)}; the "
+                                 f"image has shape {tuple(image.data.shape)}.")
+    ndim = image.data.ndim
+    with dask_client(args, image.name) as client:
+        workers = len(client.scheduler_info().get("workers", {}))
+        dgm = chunked_persistence(image.data, walls=args.walls,
+                                  connectivity=args.connectivity, mask=mask,
+                                  dims=(0, ndim - 1))
+    save_diagram(dgm, targets[0], force=args.force)
+    save_diagram(dgm, targets[1], force=args.force)
+    save_figure(plot_diagram(dgm), targets[2], force=args.force)
+    save_figure(plot_barcode(dgm, dim=dgm.cavity_dim, top=args.bars), targets[3],
+                force=args.force)
+    if not args.quiet:
+        shape = " x ".join(map(str, image.chunk_shape))
+        print(f"{image.name}: {format_summary(dgm)}")
+        print(f"computed chunk by chunk on {workers} Dask worker(s), chunks of {shape} voxels"
+              + ("; the loops of the walls (H1) are not computed this way (leave out "
+                 "--scheduler / --dask-local for them)" if ndim == 3 else ""))
         print(f"wrote {', '.join(names)} to {args.out}")
         print(RESEARCH_ONLY)
     return 0

@@ -22,10 +22,12 @@ percentiles (1, 50, 99), NaN/Inf count, the memory a segmentation would need, an
 problem found in the metadata. Large files are read in chunks.
 
 For a Zarr array or an HDF5 dataset it also says how its persistence diagram can be
-computed chunk by chunk on Dask workers from Python (cavitas.persistence of the array
-opened with zarr or h5py): the chunks and the memory each worker needs, the larger of one
-chunk's sweep (about 18 bytes per chunk voxel beyond the chunk) and the largest join of
-two blocks' seams (it grows with the middle planes of the volume; bench/chunked.py).
+computed chunk by chunk on Dask workers (`cavitas diagram FILE -o OUT --dask-local N` or
+`--scheduler ADDRESS`; from Python, cavitas.persistence of the array opened with zarr or
+h5py): the chunks and the memory each worker needs, the larger of one chunk's sweep (about
+18 bytes per chunk voxel beyond the chunk) and the largest join of two blocks' seams (it
+grows with the middle planes of the volume; bench/chunked.py). A segmentation still reads
+the file whole.
 
 Memory estimate = 340 MiB for the program (Python, the libraries, the compiled kernels) +
 voxels x (bytes per input voxel + the working memory of a segmentation: 66 bytes when the
@@ -152,8 +154,8 @@ def _text(facts: dict[str, Any]) -> str:
     chunked = facts.get("chunked")
     if chunked:
         lines += [
-            "  path        segment, diagram: whole, in memory; cavitas.persistence (Python): "
-            "chunk by chunk on Dask workers",
+            "  path        segment: whole, in memory; diagram with --dask-local or "
+            "--scheduler, and cavitas.persistence (Python): chunk by chunk on Dask workers",
             f"  per worker  about {_size(chunked['worker_bytes'])} beyond the program "
             f"(chunk sweep {_size(chunked['chunk_sweep_bytes'])}, largest join "
             f"{_size(chunked['largest_join_bytes'])}; {chunked['chunks']:,} chunks of "

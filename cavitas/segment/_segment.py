@@ -39,7 +39,9 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
     Parameters
     ----------
     volume : Volume or array_like
-        The image. An array takes its geometry from ``spacing``.
+        The image. An array takes its geometry from ``spacing``. A Dask, Zarr or HDF5
+        array is read whole: the segmentation is not computed chunk by chunk yet (the
+        diagram is, :func:`cavitas.persistence`).
     spacing : sequence of float, optional
         Voxel size per axis (arrays only; a ``Volume`` carries its own).
     params : SegmentParams, optional
