@@ -32,6 +32,7 @@ class Findings:
     size_unit: str
     fraction: float | None
     noise: float | None
+    noise_correlation: float | None
     threshold: float | None
     smoothing: float | None
     unit: str
@@ -100,6 +101,7 @@ def gather_findings(regions: Table, *, ndim: int, unit: str, params: Mapping[str
         fraction=_number(figures.get("volume_fraction")),
         noise=_number(params.get("noise_pixel_sigma", params.get(
             "noise_sigma", figures.get("noise_sigma")))),
+        noise_correlation=_number(params.get("noise_correlation")),
         threshold=_number(params.get("threshold", figures.get("persistence_threshold"))),
         smoothing=_number(params.get("smooth_sigma")), unit=unit,
         least_certain=least, warnings=tuple(warnings))
@@ -136,8 +138,10 @@ def findings_html(f: Findings) -> str:
     if f.threshold is not None:
         smooth = (f" after smoothing with σ = {round_number(f.smoothing)} {f.unit}"
                   if f.smoothing else "")
+        correlated = (f", correlated over about {round_number(f.noise_correlation)} "
+                      f"{f.words.element}s" if f.noise_correlation else "")
         noise = (f"The noise in the image is about σ = {round_number(f.noise)} intensity "
-                 f"units. " if f.noise is not None else "")
+                 f"units{correlated}. " if f.noise is not None else "")
         least = ""
         if f.least_certain is not None:
             label, margin = f.least_certain
