@@ -35,6 +35,6 @@ def client():
         "distributed", reason="Dask distributed (extra 'cluster') is not installed")
     with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=False,
                                   host="127.0.0.1", protocol="tcp",
-                                  dashboard_address=None) as cluster, \
+                                  dashboard_address="127.0.0.1:0") as cluster, \
             distributed.Client(cluster) as dask_client:
         yield dask_client

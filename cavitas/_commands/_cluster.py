@@ -70,7 +70,7 @@ def dask_client(args: argparse.Namespace, source: str) -> Iterator[Any]:
             workers = args.dask_local or min(4, usable_cores())  # 0: given without N
             cluster = stack.enter_context(distributed.LocalCluster(
                 n_workers=workers, threads_per_worker=1, processes=True, host="127.0.0.1",
-                dashboard_address=None))
+                dashboard_address="127.0.0.1:0"))
             client = stack.enter_context(distributed.Client(cluster))
         else:
             try:

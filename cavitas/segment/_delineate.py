@@ -21,7 +21,9 @@ from ._detect import Detection, ScanImage
 from ._evidence import class_split
 from ._params import SegmentParams
 from ._perforation import perforated_splits
+from ._pockets import shallow_pockets
 from ._regions import (
+    BasinLevels,
     Sweep,
     basin_map,
     below_levels,
@@ -56,6 +58,7 @@ class Delineation:
     level: np.ndarray                # per chamber: the level its region was cut at (walls high)
     enclosures: np.ndarray | None    # innermost enclosure per voxel (ids n+1...), if any
     outside_basin: np.ndarray        # voxels of the outside basin below its walls
+    pockets: int = 0                 # chambers given back to the walls (_pockets)
 
 
 class Geometry(NamedTuple):
@@ -123,7 +126,7 @@ def regions_at(det: Detection, params: SegmentParams, geometry: Geometry,
     # never delineate on an image smoother than the one the regions were detected on
     fine_sigma = np.minimum(DELINEATION_SIGMA * spacing.min() / spacing, det.sigma)
     regions = delineate(params, sweep, hier, image, fine_sigma, outside, connectivity,
-                         voxel_volume)
+                         voxel_volume, det.textured)
     perforated = np.zeros(len(keep), bool)
     if params.split_fraction > 0 and params.region == "basin" and hier.n_chambers > 1:
         # Walls with a hole that the detection smoothing closed. The delineation image is
@@ -138,14 +141,18 @@ def regions_at(det: Detection, params: SegmentParams, geometry: Geometry,
         hier = prune(tree, keep, sweep.rank, sweep.level_of_rank, tau)
         del regions
         regions = delineate(params, sweep, hier, image, fine_sigma, outside, connectivity,
-                             voxel_volume)
+                             voxel_volume, det.textured)
     return ScaleRegions(det, sweep, significant, keep, hier, regions, perforated, fine_sigma)
 
 
 def delineate(params: SegmentParams, sweep: Sweep, hier, image: ScanImage,
                fine_sigma: np.ndarray, outside: np.ndarray | None, connectivity: int,
-               voxel_volume: float) -> Delineation:
-    """Chamber regions (basin or breach), border-cut pieces, islands and enclosures."""
+               voxel_volume: float, textured: bool = False) -> Delineation:
+    """Chamber regions (basin or breach), border-cut pieces, islands and enclosures.
+
+    ``textured`` (the noise is not white): small shallow chambers are texture pockets and
+    go back to the walls (:mod:`cavitas.segment._pockets`).
+    """
     tree = sweep.tree
     n_ch = hier.n_chambers
     ids = np.arange(1, len(hier.node) + 1)
@@ -162,21 +169,31 @@ def delineate(params: SegmentParams, sweep: Sweep, hier, image: ScanImage,
     cores = tree.core[hier.node[:n_ch]]
     fine = image.smoothed(fine_sigma)
     basins = basin_map(sweep, cores, n_ch + 1)
-    interior = None
+    interior = split = None
+    n_pockets = 0
     if params.region == "basin":
         # Each chamber's inside, from its breach region (its basin below its close level at
         # the detection scale; a pore in a matrix: the part of it in the interior class, see
         # wall_levels).
+        split = class_split(fine, image.statistics_mask)
         interior = interior_levels(
             below_levels(basins, sweep.values.reshape(basins.shape),
                          sweep.level_of_rank(close_rank)), fine, n_ch,
-            class_split(fine, image.statistics_mask).at(cores, fine.shape))
+            split.at(cores, fine.shape))
     cleared, basin_levels = remove_walls(basins, fine, n_ch + 1, connectivity, cores=cores,
                                          interior=interior)
     del fine, basins  # memory: full-size arrays are dropped as soon as they are used up
     if params.region == "basin":
         labels = np.where(cleared <= n_ch, cleared, 0)
-        used_level = basin_levels[:n_ch]
+        used_level = basin_levels.level[:n_ch]
+        if textured and split is not None and n_ch:  # texture pockets go back to the walls
+            own = label_counts(labels, n_ch + 1)[1:]
+            pockets = shallow_pockets(own, BasinLevels(basin_levels.inside[:n_ch],
+                                                       basin_levels.wall[:n_ch],
+                                                       used_level), split.low)
+            if pockets.any():
+                labels[np.isin(labels, np.flatnonzero(pockets) + 1)] = 0
+                n_pockets = int(np.count_nonzero(pockets))
     else:
         labels = nested_map(sweep, hier.node[:n_ch], level_rank, ids[:n_ch])
         used_level = sweep.level_of_rank(level_rank)
@@ -215,4 +232,5 @@ def delineate(params: SegmentParams, sweep: Sweep, hier, image: ScanImage,
         if enclosure_map is not None:
             reopen_faces(enclosure_map)
         open_cut |= medium_at_faces(work, n_ch)
-    return Delineation(work, n_cut, open_cut, nested, used_level, enclosure_map, outside_basin)
+    return Delineation(work, n_cut, open_cut, nested, used_level, enclosure_map, outside_basin,
+                       n_pockets)

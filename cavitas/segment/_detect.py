@@ -53,6 +53,7 @@ class Detection:
     significant: np.ndarray      # per node: selected (closed upward)
     keep: np.ndarray             # ... less the splits the split rule joins
     seeds: ScaleSeeds            # the chambers this scale makes, as seeds
+    textured: bool = False       # the noise is not white (texture, correlated noise)
 
     @property
     def count(self) -> int:
@@ -206,7 +207,8 @@ def detect(image: ScanImage, params: SegmentParams, *, noise: _noise.NoiseLevel,
         clarity = pers[kept] / tau if tau > 0 else np.full(int(kept.sum()), np.inf)
         return Detection(sig, smoothed, order, tree, tau, gap, eligible, passing, face_breach,
                          rule, texture_joined, significant, keep,
-                         ScaleSeeds(sig, tree.core[kept], clarity, node_sizes(tree)[kept]))
+                         ScaleSeeds(sig, tree.core[kept], clarity, node_sizes(tree)[kept]),
+                         textured=not noise.white)
 
     # Two scales at a time in two threads (smoothing, sort and sweep release the GIL);
     # results are taken in scale order, so the choice is the same as one after the other.

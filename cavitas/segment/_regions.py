@@ -62,8 +62,9 @@ _SLAB = 16
 #: Voxels per chunk of the flat passes of :func:`_label_quantile_f32`.
 _CHUNK = 1 << 22
 
-__all__ = ["Interior", "Sweep", "basin_map", "below_levels", "cut_pieces", "face_labels",
-           "face_slices", "fill_islands", "interior_levels", "label_counts", "medium_at_faces",
+__all__ = ["BasinLevels", "Interior", "Sweep", "basin_map", "below_levels", "cut_pieces",
+           "face_labels", "face_slices", "fill_islands", "interior_levels", "label_counts",
+           "medium_at_faces",
            "nested_map", "remove_walls", "reopen_faces"]
 
 
@@ -145,10 +146,21 @@ def _meeting_lines(basins: np.ndarray) -> np.ndarray:
     return line
 
 
+@dataclass(frozen=True)
+class BasinLevels:
+    """Per basin: its inside value, its meeting-line median (its wall) and the level it is
+    cut at, :data:`WALL_FRACTION` of the way from the first to the second."""
+
+    inside: np.ndarray
+    wall: np.ndarray
+    level: np.ndarray
+
+
 def remove_walls(basins: np.ndarray, image: np.ndarray, n_labels: int, connectivity: int,
                  cores: np.ndarray | None = None,
-                 interior: Interior | None = None) -> tuple[np.ndarray, np.ndarray]:
-    """Cut each basin at its own wall level; keep one piece of it. Returns (labels, levels).
+                 interior: Interior | None = None) -> tuple[np.ndarray, BasinLevels]:
+    """Cut each basin at its own wall level; keep one piece of it. Returns the labels and
+    each basin's :class:`BasinLevels`.
 
     Label ``n_labels`` is the outside basin: all its pieces are kept (they are the regions
     cut by the border). ``cores`` (flat index per basin ``1..n_labels - 1``) picks the piece
@@ -156,9 +168,10 @@ def remove_walls(basins: np.ndarray, image: np.ndarray, n_labels: int, connectiv
     chambers' inside values (see :func:`wall_levels`).
     """
     if n_labels == 0:
-        return np.zeros_like(basins), np.full(0, np.inf)
+        none = np.full(0, np.inf)
+        return np.zeros_like(basins), BasinLevels(none, none, none)
     levels = wall_levels(basins, image, n_labels, interior, cores)
-    lut = np.concatenate([[-np.inf], levels])
+    lut = np.concatenate([[-np.inf], levels.level])
     labels = np.zeros_like(basins)
     for z in range(0, basins.shape[0], _SLAB):  # slabs: no full-size float64 temporary
         part = slice(z, z + _SLAB)
@@ -171,7 +184,8 @@ def remove_walls(basins: np.ndarray, image: np.ndarray, n_labels: int, connectiv
 
 
 def wall_levels(basins: np.ndarray, image: np.ndarray, n_labels: int,
-                interior: Interior | None = None, cores: np.ndarray | None = None) -> np.ndarray:
+                interior: Interior | None = None, cores: np.ndarray | None = None
+                ) -> BasinLevels:
     """Each basin's wall level: :data:`WALL_FRACTION` of the way from its inside value to its
     meeting-line median.
 
@@ -196,7 +210,7 @@ def wall_levels(basins: np.ndarray, image: np.ndarray, n_labels: int,
         inside[:n][known] = own[known]
     ok = np.isfinite(wall) & np.isfinite(inside)
     levels[ok] = inside[ok] + WALL_FRACTION * (wall[ok] - inside[ok])
-    return levels
+    return BasinLevels(inside, wall, levels)
 
 
 @dataclass(frozen=True)

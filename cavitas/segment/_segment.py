@@ -206,6 +206,7 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
         "polarity_hint": hint,
         "splits_joined": base.splits_joined,
         "texture_pieces_joined": texture_joined,
+        "texture_pockets": base.regions.pockets,
         "perforated_walls": base.perforated,
         "regions_from_other_scales": (refined.summary if refined is not None
                                       else {"split": 0, "pieces": 0, "added": 0}),
@@ -292,7 +293,7 @@ def _refine_across_scales(base: Settled, seeds: list[ScaleSeeds],
         nested={int(moved(np.array(k))): int(moved(np.array(v)))
                 for k, v in regions.nested.items()},
         level=merged.level, enclosures=enclosures,
-        outside_basin=regions.outside_basin & ~merged.added)
+        outside_basin=regions.outside_basin & ~merged.added, pockets=regions.pockets)
     none = np.full(n_extra, -1, hier.node.dtype)
     zero = np.zeros(n_extra, hier.close_rank.dtype)
     new_hier = Hierarchy(
