@@ -89,30 +89,50 @@ def _voronoi_line(line, d, c0, c1, c2, f, g):
 
 
 @njit(cache=True, nogil=True)
-def _axis_pass(mask, feat, d, start, stop):
-    """The lines along axis ``d`` whose first other coordinate lies in ``[start, stop)``;
-    axis 0 first sets each voxel's own coordinates, or none (-1)."""
+def _own_features(mask, feat, start, stop):
+    """Each voxel of planes ``[start, stop)`` of axis 1 its own coordinates, or none (-1)."""
     n0, n1, n2 = mask.shape
-    length = mask.shape[d]
+    for i1 in range(start, stop):
+        for i0 in range(n0):
+            for i2 in range(n2):
+                if mask[i0, i1, i2]:
+                    feat[0, i0, i1, i2] = -1
+                else:
+                    feat[0, i0, i1, i2] = i0
+                    feat[1, i0, i1, i2] = i1
+                    feat[2, i0, i1, i2] = i2
+
+
+@njit(cache=True, nogil=True)
+def _axis_pass(feat, d, outer_axis, start, stop):
+    """The lines along axis ``d`` whose coordinate on ``outer_axis`` lies in
+    ``[start, stop)``."""
+    n0, n1, n2 = feat.shape[1:]
+    length = feat.shape[1 + d]
     f = np.empty((length, 3), np.int64)
     g = np.empty(length, np.int64)
     for outer in range(start, stop):
         if d == 0:
-            for i2 in range(n2):
-                for i0 in range(n0):
-                    if mask[i0, outer, i2]:
-                        feat[0, i0, outer, i2] = -1
-                    else:
-                        feat[0, i0, outer, i2] = i0
-                        feat[1, i0, outer, i2] = outer
-                        feat[2, i0, outer, i2] = i2
-                _voronoi_line(feat[:, :, outer, i2], 0, 0, outer, i2, f, g)
+            for inner in range(n2 if outer_axis == 1 else n1):
+                i1, i2 = (outer, inner) if outer_axis == 1 else (inner, outer)
+                _voronoi_line(feat[:, :, i1, i2], 0, 0, i1, i2, f, g)
         elif d == 1:
-            for i2 in range(n2):
-                _voronoi_line(feat[:, outer, :, i2], 1, outer, 0, i2, f, g)
+            for inner in range(n2 if outer_axis == 0 else n0):
+                i0, i2 = (outer, inner) if outer_axis == 0 else (inner, outer)
+                _voronoi_line(feat[:, i0, :, i2], 1, i0, 0, i2, f, g)
         else:
-            for i1 in range(n1):
-                _voronoi_line(feat[:, outer, i1, :], 2, outer, i1, 0, f, g)
+            for inner in range(n1 if outer_axis == 0 else n0):
+                i0, i1 = (outer, inner) if outer_axis == 0 else (inner, outer)
+                _voronoi_line(feat[:, i0, i1, :], 2, i0, i1, 0, f, g)
+
+
+def _share(pool: ThreadPoolExecutor, workers: int, count: int, kernel, *args) -> None:
+    """``kernel(*args, start, stop)`` over ``range(count)`` cut into ``workers`` pieces."""
+    cuts = np.linspace(0, count, workers + 1).astype(int)
+    jobs = [pool.submit(kernel, *args, int(a), int(b))
+            for a, b in zip(cuts[:-1], cuts[1:], strict=True) if b > a]
+    for job in jobs:
+        job.result()
 
 
 def nearest_feature(mask: np.ndarray) -> np.ndarray:
@@ -136,11 +156,10 @@ def nearest_feature(mask: np.ndarray) -> np.ndarray:
     feat = np.zeros((3, *cube.shape), np.int32)
     workers = min(usable_cores(), 8)
     with ThreadPoolExecutor(max_workers=workers, thread_name_prefix="cavitas-nearest") as pool:
+        _share(pool, workers, cube.shape[1], _own_features, cube, feat)
         for d in range(3):  # one axis after the other; its lines in parallel
-            outer = cube.shape[1 if d == 0 else 0]
-            cuts = np.linspace(0, outer, workers + 1).astype(int)
-            done = [pool.submit(_axis_pass, cube, feat, d, int(a), int(b))
-                    for a, b in zip(cuts[:-1], cuts[1:], strict=True) if b > a]
-            for job in done:
-                job.result()
+            if cube.shape[d] == 1:
+                continue  # a line of one voxel keeps its own feature
+            outer = max((a for a in range(3) if a != d), key=lambda a: cube.shape[a])
+            _share(pool, workers, cube.shape[outer], _axis_pass, feat, d, outer)
     return feat[3 - mask.ndim:].reshape((mask.ndim, *shape))
