@@ -268,7 +268,9 @@ def _refine_across_scales(base: Settled, seeds: list[ScaleSeeds],
         other, _, _ = detect(image, params.replace(smooth=smooth), spacing=spacing,
                               connectivity=geometry.connectivity, tell=lambda text: None,
                               **detect_options)
-        at = regions_at(other, params, geometry, lambda text: None).settle(image.sign, spacing)
+        # its chambers only: the merge takes the base's enclosures
+        at = regions_at(other, params, geometry, lambda text: None,
+                        enclosures=False).settle(image.sign, spacing)
         del other
         n_other = at.hier.n_chambers
         labels = np.where(at.regions.labels <= n_other, at.regions.labels, 0)
