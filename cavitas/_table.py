@@ -121,7 +121,7 @@ class Table:
                                                          encoding=CSV_ENCODING) as fh:
             writer = csv.writer(fh)
             writer.writerow(self.header())
-            writer.writerows(zip(*(_csv_column(c) for c in self._columns.values())))
+            writer.writerows(zip(*(_csv_column(c) for c in self._columns.values()), strict=True))
 
     def to_dict(self) -> dict[str, Any]:
         """A JSON-ready dict: ``columns`` (lists), ``units`` and ``meta``."""

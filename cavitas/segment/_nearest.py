@@ -14,7 +14,9 @@ Pattern Anal. Mach. Intell. 25(2), 265-270. doi:10.1109/TPAMI.2003.1177156
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from concurrent.futures import ThreadPoolExecutor
+from typing import Any
 
 import numpy as np
 from numba import njit
@@ -126,10 +128,11 @@ def _axis_pass(feat, d, outer_axis, start, stop):
                 _voronoi_line(feat[:, i0, i1, :], 2, i0, i1, 0, f, g)
 
 
-def _share(pool: ThreadPoolExecutor, workers: int, count: int, kernel, *args) -> None:
+def _share(pool: ThreadPoolExecutor, workers: int, count: int, kernel: Callable[..., None],
+           *args: Any) -> None:
     """``kernel(*args, start, stop)`` over ``range(count)`` cut into ``workers`` pieces."""
     cuts = np.linspace(0, count, workers + 1).astype(int)
-    jobs = [pool.submit(kernel, *args, int(a), int(b))
+    jobs = [pool.submit(kernel, *(*args, int(a), int(b)))
             for a, b in zip(cuts[:-1], cuts[1:], strict=True) if b > a]
     for job in jobs:
         job.result()
@@ -152,14 +155,15 @@ def nearest_feature(mask: np.ndarray) -> np.ndarray:
         from scipy import ndimage as ndi
 
         return ndi.distance_transform_edt(mask, return_distances=False, return_indices=True)
-    cube = np.ascontiguousarray(mask, np.bool_).reshape((1,) * (3 - mask.ndim) + shape)
-    feat = np.zeros((3, *cube.shape), np.int32)
+    sides = (*(1,) * (3 - mask.ndim), *shape)  # a 2D image as one plane
+    cube = np.ascontiguousarray(mask, np.bool_).reshape(sides)
+    feat = np.zeros((3, *sides), np.int32)
     workers = min(usable_cores(), 8)
     with ThreadPoolExecutor(max_workers=workers, thread_name_prefix="cavitas-nearest") as pool:
-        _share(pool, workers, cube.shape[1], _own_features, cube, feat)
+        _share(pool, workers, sides[1], _own_features, cube, feat)
         for d in range(3):  # one axis after the other; its lines in parallel
-            if cube.shape[d] == 1:
+            if sides[d] == 1:
                 continue  # a line of one voxel keeps its own feature
-            outer = max((a for a in range(3) if a != d), key=lambda a: cube.shape[a])
-            _share(pool, workers, cube.shape[outer], _axis_pass, feat, d, outer)
+            outer = max((a for a in range(3) if a != d), key=lambda a: sides[a])
+            _share(pool, workers, sides[outer], _axis_pass, feat, d, outer)
     return feat[3 - mask.ndim:].reshape((mask.ndim, *shape))
