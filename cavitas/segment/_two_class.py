@@ -129,14 +129,14 @@ def otsu_split(sample: np.ndarray) -> tuple[float, float, float]:
         return otsu_reference(sample)
     first, last = float(sample.min()), float(sample.max())
     edges = np.linspace(first, last, NBINS + 1)
-    bins = np.empty(sample.size, np.int16 if NBINS < 2**15 else np.int64)
+    bins = np.empty(sample.size, np.int16)  # NBINS < 2**15
     counts, ordered = _bin_pass(sample, edges, first, last - first, bins)
+    if not ordered:  # bins out of value order (never seen): the general way then
+        return otsu_reference(sample)
     centers = (edges[:-1] + edges[1:]) / 2.0
     t = float(threshold_otsu(hist=(counts, centers)))
     # ``sample <= t`` compares in the sample's type (a Python float is cast to it)
     t_cast = np.asarray(t).astype(sample.dtype)[()]
-    if not ordered:  # the bins out of order (never seen): the general way then
-        return otsu_reference(sample)
     n_low = int(_count_at_most(sample, t_cast))
     starts = np.r_[0, np.cumsum(counts)[:-1]]
     sorted_bins: dict = {}
