@@ -126,7 +126,7 @@ class Table:
     def to_dict(self) -> dict[str, Any]:
         """A JSON-ready dict: ``columns`` (lists), ``units`` and ``meta``."""
         return {
-            "columns": {k: [_json_value(_scalar(x)) for x in v] for k, v in self._columns.items()},
+            "columns": {k: _json_column(v) for k, v in self._columns.items()},
             "units": self.units,
             "meta": self.meta,
         }
@@ -178,6 +178,19 @@ def _csv_column(column: np.ndarray) -> list[str]:
     if column.dtype.kind in "iu":
         return [str(v) for v in column.tolist()]
     return [_csv_cell(v) for v in column.tolist()]
+
+
+def _json_column(column: np.ndarray) -> list[Any]:
+    """``[_json_value(_scalar(v)) for v in column]``, the values taken out of NumPy at once.
+
+    Examples
+    --------
+    >>> _json_column(np.array([1.5, np.nan])), _json_column(np.array([2], np.int64))
+    ([1.5, None], [2])
+    """
+    if column.dtype == object or column.ndim != 1:  # NumPy scalars inside stay as they are
+        return [_json_value(_scalar(v)) for v in column]
+    return [_json_value(v) for v in column.tolist()]
 
 
 def _csv_cell(value: Any) -> str:

@@ -86,3 +86,17 @@ def test_cells_taken_column_by_column_equal_cell_by_cell():
                np.array(["a", "µm³", ""]), np.array([1, "x", None, 2.5], dtype=object)]
     for column in columns:
         assert _csv_column(column) == [_csv_cell(column[i]) for i in range(len(column))]
+
+
+def test_json_values_taken_column_by_column_equal_value_by_value():
+    # the same list, element types included, as converting each NumPy scalar on its own
+    from cavitas._table import _json_column, _json_value, _scalar
+
+    rng = np.random.default_rng(4)
+    columns = [rng.normal(size=20), np.r_[np.nan, np.inf, 0.5], rng.random(9).astype(np.float32),
+               rng.integers(-5, 5, 9), rng.random(6) < 0.5, np.array(["a", "µm³"]),
+               np.array([np.int64(3), "x", None, np.float32(2.5)], dtype=object)]
+    for column in columns:
+        fast = _json_column(column)
+        slow = [_json_value(_scalar(v)) for v in column]
+        assert fast == slow and [type(v) for v in fast] == [type(v) for v in slow]
