@@ -10,6 +10,8 @@ both connectivities, with and without a region of interest.
   asked for regions) equal those delineated with it: the same label map, levels, nesting
   and border-cut pieces (a frame around a plateau holding two pockets: an enclosure, by
   construction; random integer noise for ties; both connectivities).
+* The polarity check run beside the regions (small images, two cores) gives the same hint,
+  labels and table as run before them.
 """
 
 from __future__ import annotations
@@ -78,3 +80,23 @@ def test_chambers_without_the_enclosure_map_are_the_same(connectivity):
             assert np.array_equal(getattr(full.regions, name), getattr(lean.regions, name))
         assert full.regions.nested == lean.regions.nested
         assert full.regions.n_cut == lean.regions.n_cut
+
+
+@pytest.mark.parametrize("walls", ["bright", "dark"])
+def test_polarity_check_beside_the_regions_changes_nothing(walls, monkeypatch):
+    # an invented sheet of bright membranes (cavitas.scenes): with dark walls the hint says
+    # so; both ways the same labels, table and hint as when the check runs first
+    from cavitas.scenes import cell_sheet
+    from cavitas.segment import _segment, segment
+
+    image = cell_sheet((160, 160), cells=40, seed=3).image.astype(np.float32)
+    monkeypatch.setattr(_segment, "usable_cores", lambda: 2)
+    beside = segment(image, walls=walls)
+    monkeypatch.setattr(_segment, "OVERLAP_VOXELS", 0)
+    before = segment(image, walls=walls)
+    assert (beside.params["polarity_hint"] is None) == (walls == "bright")
+    assert beside.params["polarity_hint"] == before.params["polarity_hint"]
+    assert np.array_equal(beside.labels, before.labels)
+    for name in before.regions.names:
+        assert np.array_equal(beside.regions[name], before.regions[name], equal_nan=
+                              before.regions[name].dtype.kind == "f")

@@ -2,17 +2,21 @@
 
 from __future__ import annotations
 
+import functools
 import logging
 import os
 import time
 from collections.abc import Callable
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
 
 from .. import _checks
+from .._cores import usable_cores
 from .._errors import ParameterError
+from .._shared.memory import SMALL_VOXELS
 from ..cubical._neighbors import check_connectivity
 from ..cubical._sort import engine_array
 from ..io._volume import Volume
@@ -26,7 +30,11 @@ from ._result import ChamberValues, Segmentation, build_table
 from ._scales import Contribution, ScaleSeeds, merge, plan
 from ._tree import Hierarchy
 
-__all__ = ["segment"]
+__all__ = ["OVERLAP_VOXELS", "segment"]
+
+#: Images of at most this many voxels run the polarity check beside their regions
+#: (:data:`cavitas._shared.memory.SMALL_VOXELS`, whose allowance covers the extra arrays).
+OVERLAP_VOXELS = SMALL_VOXELS
 
 log = logging.getLogger("cavitas.segment")
 
@@ -159,19 +167,27 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
         connectivity=connectivity, roi=roi, tell=tell, white_noise=white_noise)
     sig, tree, tau = det.sigma, det.tree, det.threshold
     hint = None
-    if params.automatic:
-        tell("polarity check")
-        hint = polarity_check(det, image, params, noise=noise, robust_range=robust_range,
-                               spacing=spacing_arr, connectivity=connectivity, roi=roi,
-                               white_noise=white_noise)
+    check = None if not params.automatic else functools.partial(
+        polarity_check, det, image, params, noise=noise, robust_range=robust_range,
+        spacing=spacing_arr, connectivity=connectivity, roi=roi, white_noise=white_noise)
     timings["detect"] = time.perf_counter() - started
     log.info("%s: noise σ %.4g, detection σ %.3g %s, persistence threshold %.4g (%s)",
              vol.name, noise, float((sig * spacing_arr).max()), vol.unit, tau,
              det.rule or "given")
     t0 = time.perf_counter()
-    tell("regions")
+    tell("polarity check and regions" if check is not None else "regions")
     geometry = Geometry(image, outside, connectivity, vol.voxel_volume, spacing_arr)
-    base = regions_at(det, params, geometry, tell).settle(image.sign, spacing_arr)
+    # A small image's polarity check runs beside its regions (another detection image and
+    # sweep held meanwhile, within the small-volume allowance of the memory estimate); a
+    # large one's before them, where memory peaks. Both read the detection only.
+    beside = check is not None and raw.size <= OVERLAP_VOXELS and usable_cores() > 1
+    with ThreadPoolExecutor(max_workers=1, thread_name_prefix="cavitas-polarity") as pool:
+        polarity = pool.submit(check) if beside and check is not None else None
+        if check is not None and polarity is None:
+            hint = check()
+        base = regions_at(det, params, geometry, tell).settle(image.sign, spacing_arr)
+        if polarity is not None:
+            hint = polarity.result()
     gap, rule, texture_joined = det.gap, det.rule, det.texture_joined
     del det  # memory: the detection image and its sweep order are no longer needed
     hier, regions, chambers = base.hier, base.regions, base.chambers
