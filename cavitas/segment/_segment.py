@@ -104,7 +104,9 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
     Cost: one sort and one union-find pass per candidate smoothing scale (six in automatic
     mode), one labelling pass, and for basins a few linear passes; near-linear overall. A
     neighbouring scale with regions to offer (:mod:`cavitas.segment._scales`) costs one
-    more detection and delineation. The noise null is looked up in a shipped table.
+    more detection and delineation. The noise null is looked up in a shipped table. With
+    two cores, an image of at most :data:`OVERLAP_VOXELS` runs the polarity check (one more
+    detection) beside its regions.
     Memory: about 60 bytes per voxel at the peak for uint16 input (the image is read in
     place; the smoothed copies, sweep order and ranks and the label maps are
     float32/int32; :func:`cavitas.io.estimate_memory_bytes`).
@@ -166,25 +168,26 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
         image, params, noise=noise, robust_range=robust_range, spacing=spacing_arr,
         connectivity=connectivity, roi=roi, tell=tell, white_noise=white_noise)
     sig, tree, tau = det.sigma, det.tree, det.threshold
-    hint = None
     check = None if not params.automatic else functools.partial(
         polarity_check, det, image, params, noise=noise, robust_range=robust_range,
         spacing=spacing_arr, connectivity=connectivity, roi=roi, white_noise=white_noise)
+    # A small image's polarity check runs beside its regions (another detection image and
+    # sweep held meanwhile, within the small-volume allowance of the memory estimate); a
+    # large one's before them, where memory peaks. Both read the detection only.
+    beside = check is not None and raw.size <= OVERLAP_VOXELS and usable_cores() > 1
+    hint = None
+    if check is not None and not beside:
+        tell("polarity check")
+        hint = check()
     timings["detect"] = time.perf_counter() - started
     log.info("%s: noise σ %.4g, detection σ %.3g %s, persistence threshold %.4g (%s)",
              vol.name, noise, float((sig * spacing_arr).max()), vol.unit, tau,
              det.rule or "given")
     t0 = time.perf_counter()
-    tell("polarity check and regions" if check is not None else "regions")
+    tell("polarity check and regions" if beside else "regions")
     geometry = Geometry(image, outside, connectivity, vol.voxel_volume, spacing_arr)
-    # A small image's polarity check runs beside its regions (another detection image and
-    # sweep held meanwhile, within the small-volume allowance of the memory estimate); a
-    # large one's before them, where memory peaks. Both read the detection only.
-    beside = check is not None and raw.size <= OVERLAP_VOXELS and usable_cores() > 1
     with ThreadPoolExecutor(max_workers=1, thread_name_prefix="cavitas-polarity") as pool:
         polarity = pool.submit(check) if beside and check is not None else None
-        if check is not None and polarity is None:
-            hint = check()
         base = regions_at(det, params, geometry, tell).settle(image.sign, spacing_arr)
         if polarity is not None:
             hint = polarity.result()
