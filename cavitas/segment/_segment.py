@@ -176,15 +176,16 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
     # large one's before them, where memory peaks. Both read the detection only.
     beside = check is not None and raw.size <= OVERLAP_VOXELS and usable_cores() > 1
     hint = None
-    if check is not None and not beside:
+    if check is not None:
         tell("polarity check")
+    if check is not None and not beside:
         hint = check()
     timings["detect"] = time.perf_counter() - started
     log.info("%s: noise σ %.4g, detection σ %.3g %s, persistence threshold %.4g (%s)",
              vol.name, noise, float((sig * spacing_arr).max()), vol.unit, tau,
              det.rule or "given")
     t0 = time.perf_counter()
-    tell("polarity check and regions" if beside else "regions")
+    tell("regions")
     geometry = Geometry(image, outside, connectivity, vol.voxel_volume, spacing_arr)
     with ThreadPoolExecutor(max_workers=1, thread_name_prefix="cavitas-polarity") as pool:
         polarity = pool.submit(check) if beside and check is not None else None
