@@ -16,7 +16,6 @@ import numpy as np
 from .. import _checks
 from .._cores import usable_cores
 from .._errors import ParameterError
-from .._shared.memory import SMALL_VOXELS
 from ..cubical._neighbors import check_connectivity
 from ..cubical._sort import engine_array
 from ..io._volume import Volume
@@ -32,9 +31,10 @@ from ._tree import Hierarchy
 
 __all__ = ["OVERLAP_VOXELS", "segment"]
 
-#: Images of at most this many voxels run the polarity check beside their regions
-#: (:data:`cavitas._shared.memory.SMALL_VOXELS`, whose allowance covers the extra arrays).
-OVERLAP_VOXELS = SMALL_VOXELS
+#: Images of at most this many voxels (a 512² image) run the polarity check beside their
+#: regions: its detection image, sweep and tree (about 12 bytes per voxel) are then held at
+#: once with the regions' arrays, at most 3 MiB more.
+OVERLAP_VOXELS = 2**18
 
 log = logging.getLogger("cavitas.segment")
 
@@ -172,8 +172,8 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
         polarity_check, det, image, params, noise=noise, robust_range=robust_range,
         spacing=spacing_arr, connectivity=connectivity, roi=roi, white_noise=white_noise)
     # A small image's polarity check runs beside its regions (another detection image and
-    # sweep held meanwhile, within the small-volume allowance of the memory estimate); a
-    # large one's before them, where memory peaks. Both read the detection only.
+    # sweep held meanwhile, OVERLAP_VOXELS); a larger one's before them, where memory
+    # peaks. Both read the detection only.
     beside = check is not None and raw.size <= OVERLAP_VOXELS and usable_cores() > 1
     hint = None
     if check is not None:
