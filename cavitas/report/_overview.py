@@ -142,8 +142,9 @@ def plot_overview(image: np.ndarray, labels: np.ndarray, *, spacing: Sequence[fl
         y, x = (sum_r[k] / sizes[k] + 0.5) * factor * dy, (sum_c[k] / sizes[k] + 0.5) * factor * dx
         if x < box_x + box_w + pad and y > box_y - pad:
             continue  # under the scale bar: the table and the slice browser still name it
+        # inside the picture: the layout need not measure them (hundreds of texts)
         ax.text(x, y, str(int(ids[k])), ha="center", va="center", fontsize=font,
-                color="black", path_effects=_HALO)
+                color="black", path_effects=_HALO, in_layout=False)
     ax.add_patch(Rectangle((box_x, box_y), box_w, box_h, facecolor="white", alpha=0.85,
                            edgecolor="black", linewidth=0.8))
     ax.add_patch(Rectangle((pad, height - pad - thick), bar, thick, facecolor="black"))

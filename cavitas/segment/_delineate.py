@@ -116,8 +116,9 @@ class Settled:
 
 
 def regions_at(det: Detection, params: SegmentParams, geometry: Geometry,
-                tell: Callable[[str], None]) -> ScaleRegions:
-    """Selection, split rule, pruning and delineation on one detection scale."""
+                tell: Callable[[str], None], *, enclosures: bool = True) -> ScaleRegions:
+    """Selection, split rule, pruning and delineation on one detection scale
+    (``enclosures=False``: without the enclosures' label map, see :func:`delineate`)."""
     image, outside, connectivity, voxel_volume, spacing = geometry
     tree, tau = det.tree, det.threshold
     sweep = Sweep(det.smoothed, det.order, tree, connectivity, outside)
@@ -126,7 +127,7 @@ def regions_at(det: Detection, params: SegmentParams, geometry: Geometry,
     # never delineate on an image smoother than the one the regions were detected on
     fine_sigma = np.minimum(DELINEATION_SIGMA * spacing.min() / spacing, det.sigma)
     regions = delineate(params, sweep, hier, image, fine_sigma, outside, connectivity,
-                         voxel_volume, det.textured)
+                         voxel_volume, det.textured, enclosures=enclosures)
     perforated = np.zeros(len(keep), bool)
     if params.split_fraction > 0 and params.region == "basin" and hier.n_chambers > 1:
         # Walls with a hole that the detection smoothing closed. The delineation image is
@@ -141,17 +142,20 @@ def regions_at(det: Detection, params: SegmentParams, geometry: Geometry,
         hier = prune(tree, keep, sweep.rank, sweep.level_of_rank, tau)
         del regions
         regions = delineate(params, sweep, hier, image, fine_sigma, outside, connectivity,
-                             voxel_volume, det.textured)
+                             voxel_volume, det.textured, enclosures=enclosures)
     return ScaleRegions(det, sweep, significant, keep, hier, regions, perforated, fine_sigma)
 
 
 def delineate(params: SegmentParams, sweep: Sweep, hier, image: ScanImage,
                fine_sigma: np.ndarray, outside: np.ndarray | None, connectivity: int,
-               voxel_volume: float, textured: bool = False) -> Delineation:
+               voxel_volume: float, textured: bool = False, *,
+               enclosures: bool = True) -> Delineation:
     """Chamber regions (basin or breach), border-cut pieces, islands and enclosures.
 
     ``textured`` (the noise is not white): small shallow chambers are texture pockets and
-    go back to the walls (:mod:`cavitas.segment._pockets`).
+    go back to the walls (:mod:`cavitas.segment._pockets`). ``enclosures=False`` leaves the
+    enclosures' label map out (``None``): a pass over the sweep that nothing else depends
+    on, skipped where only the chambers are wanted.
     """
     tree = sweep.tree
     n_ch = hier.n_chambers
@@ -224,7 +228,7 @@ def delineate(params: SegmentParams, sweep: Sweep, hier, image: ScanImage,
     work[outside_basin] = 0
 
     enclosure_map = None
-    if hier.n_enclosures:
+    if hier.n_enclosures and enclosures:
         enclosure_map = nested_map(sweep, hier.node[n_ch:], enclosure_rank, ids[n_ch:])
     if image.closed_border:
         reopen_faces(work)

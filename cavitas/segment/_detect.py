@@ -143,7 +143,8 @@ def on_faces(flat_index: np.ndarray, shape: tuple[int, ...]) -> np.ndarray:
 
 def detect(image: ScanImage, params: SegmentParams, *, noise: _noise.NoiseLevel,
            robust_range: float, spacing: np.ndarray, connectivity: int,
-           roi: np.ndarray | None, tell: Callable[[str], None]
+           roi: np.ndarray | None, tell: Callable[[str], None],
+           smoothed_at: tuple[np.ndarray, np.ndarray] | None = None
            ) -> tuple[Detection, list[dict[str, Any]], list[ScaleSeeds]]:
     """Detection scale, its sweep and threshold: the candidate with most significant cavities;
     also what every scale tried found (for run.json), and the seeds of its chambers.
@@ -161,6 +162,8 @@ def detect(image: ScanImage, params: SegmentParams, *, noise: _noise.NoiseLevel,
     second time when it was not kept). With two or more cores, two scales are tried
     at a time in two threads. Memory: the best candidate's smoothed image and order stay,
     plus the one or two being tried (in the work type, :func:`_noise.work_dtype`).
+    ``smoothed_at`` (``(sigma, image)``): the image already smoothed at one scale, taken by
+    a candidate at exactly that scale instead of smoothing again.
     """
     from .. import cubical
 
@@ -178,7 +181,10 @@ def detect(image: ScanImage, params: SegmentParams, *, noise: _noise.NoiseLevel,
         blurred = noise.null_sigma(tuple(sig))
         null = (_noise.null_distribution(image.data.shape, blurred, connectivity)
                 if params.automatic else None)
-        smoothed = image.smoothed(sig)
+        if smoothed_at is not None and np.array_equal(smoothed_at[0], sig):
+            smoothed = smoothed_at[1]
+        else:
+            smoothed = image.smoothed(sig)
         order, tree = cubical.cavity_sweep(smoothed, walls="bright", connectivity=connectivity,
                                            mask=roi)
         pers = tree.persistence
@@ -291,9 +297,13 @@ def polarity_check(det: Detection, image: ScanImage, params: SegmentParams, *,
     """:func:`polarity_hint` of the detection against the other polarity at its scale."""
     other_walls = "dark" if params.walls == "bright" else "bright"
     flipped = image._replace(sign=-image.sign)
+    # the other polarity's image is this one negated (the smoothing commutes with negation
+    # exactly, _noise.smooth); closed faces are raised to each image's own maximum
+    negated = None if image.closed_border else (det.sigma, np.negative(det.smoothed))
     other, _, _ = detect(flipped, params.replace(walls=other_walls,
                                                smooth=float((det.sigma * spacing).max())),
-                       spacing=spacing, tell=lambda text: None, **detect_options)
+                       spacing=spacing, tell=lambda text: None, smoothed_at=negated,
+                       **detect_options)
     n = int(np.prod(image.data.shape))
     return polarity_hint(census(det.tree.parent, node_sizes(det.tree), det.passing, n),
                          census(other.tree.parent, node_sizes(other.tree), other.passing, n),

@@ -42,6 +42,8 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import ndimage as ndi
 
+from ._two_class import otsu_split
+
 __all__ = ["MIN_CLASS_SEPARATION", "WALL_REACH", "WHITE_NOISE_DIP", "ClassSplit", "class_split",
            "eligible_nodes", "small_region_threshold", "straddles"]
 
@@ -137,9 +139,9 @@ def class_split(values: np.ndarray, roi: np.ndarray | None = None) -> ClassSplit
 
 
 def _otsu(values: np.ndarray, roi: np.ndarray | None) -> tuple[float, float, float]:
-    """Otsu's threshold and the two class medians, from a regular subsample."""
-    from skimage.filters import threshold_otsu
-
+    """Otsu's threshold and the two class medians, from a regular subsample (skimage's
+    ``threshold_otsu`` with 1024 bins and ``np.median`` of each class, computed in a few
+    passes by :func:`cavitas.segment._two_class.otsu_split`)."""
     flat = values.ravel()
     if roi is not None:
         flat = flat[roi.ravel()]
@@ -150,8 +152,7 @@ def _otsu(values: np.ndarray, roi: np.ndarray | None) -> tuple[float, float, flo
     if sample.min() == sample.max():
         v = float(sample[0])
         return v, v, v
-    t = float(threshold_otsu(sample.astype(np.float64), nbins=1024))
-    return t, float(np.median(sample[sample <= t])), float(np.median(sample[sample > t]))
+    return otsu_split(sample)
 
 
 def eligible_nodes(tree, smoothed: np.ndarray, roi: np.ndarray | None,

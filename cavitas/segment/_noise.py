@@ -27,8 +27,8 @@ The automatic significance rule
    Measured (``python -m bench.real_scans``, ``em_variants``): F on the slices as they
    are, at half and double the pixel density, a 300² crop and with added noise went from
    0.858 / 0.800 / 0.748 / 0.709 / 0.785 with the earlier rule (the pixel level times
-   ``c`` at every scale) to 0.853 / 0.802 / 0.816 / 0.715 / 0.778; the other real scans
-   are unchanged.
+   ``c`` at every scale) to 0.853 / 0.802 / 0.816 / 0.715 / 0.778 (before the texture
+   pockets and the textured scale choice); the other real scans are unchanged.
 2. **Null**: persistence scales with the noise amplitude, so the largest cavity
    persistence that noise alone produces at smoothing ``σ`` is ``s · P(σ')``, with
    ``σ' = sqrt(σ² + w²)`` (Gaussian blurs compose by adding variances), where ``P``

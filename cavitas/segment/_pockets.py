@@ -16,12 +16,13 @@ chambers of ordinary size) is a pocket: its voxels go back to the walls (and a p
 wholly inside one region goes to that region with the rest of its walls).
 
 Measured on the public EM slices of ``bench/real_scans.py`` (dark membranes, 228 reference
-cells; found / spurious / F): 209 / 53 / 0.853 without the rule, 209 / 39 / 0.878 with it;
-POCKET_DEPTH 0.4 keeps 12 of those pockets, 0.6 drops 4 more and a cell (208 / 35);
-POCKET_SIZE 1/8 keeps 2 more pockets, 1/2 gives the same as 1/4. On the same slices at half
-and double the pixel density, with added noise and cropped, F rises by 0.003 to 0.036. The
-cells3d slice loses one 15-pixel pocket in a wall junction; the embryo and the concrete
-voids are unchanged (1 of 289 concrete regions goes).
+cells; found / spurious / F; with the largest count choosing the scale, before
+:data:`cavitas.segment._detect.TEXTURED_SCALE_SHARE`): 209 / 53 / 0.853 without the rule,
+209 / 39 / 0.878 with it; POCKET_DEPTH 0.4 keeps 12 of those pockets, 0.6 drops 4 more
+and a cell (208 / 35); POCKET_SIZE 1/8 keeps 2 more pockets, 1/2 gives the same as 1/4. On
+the same slices at half and double the pixel density, with added noise and cropped, F rises
+by 0.003 to 0.036. The cells3d slice loses one 15-pixel pocket in a wall junction; the
+embryo and the concrete voids are unchanged (1 of 289 concrete regions goes).
 With white noise (the invented scenes) the rule does not apply: there is no texture to
 close pockets, and small capsules blurred by the optics are shallow and real.
 """

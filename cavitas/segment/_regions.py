@@ -46,6 +46,7 @@ from ._label_kernels import (
     owner_pass,
     resolve_regions,
 )
+from ._nearest import nearest_feature
 from ._result import label_dtype
 
 #: Where a basin's wall level sits between its interior and its wall (see module notes).
@@ -555,8 +556,9 @@ def fill_islands(labels: np.ndarray, connectivity: int,
     if not zero.any() or zero.all():
         return labels, {}
     # the label of the nearest labelled voxel: what skimage's expand_labels gives with an
-    # unbounded distance, without its float64 distances (int32 indices only)
-    index = ndi.distance_transform_edt(zero, return_distances=False, return_indices=True)
+    # unbounded distance, without its float64 distances (int32 indices only; scipy's
+    # feature transform, computed on every core)
+    index = nearest_feature(zero)
     nearest = labels[tuple(index)]
     del index
     offset = int(labels.max()) + 1

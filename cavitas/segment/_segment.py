@@ -2,16 +2,19 @@
 
 from __future__ import annotations
 
+import functools
 import logging
 import os
 import time
 from collections.abc import Callable
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
 
 from .. import _checks
+from .._cores import usable_cores
 from .._errors import ParameterError
 from ..cubical._neighbors import check_connectivity
 from ..cubical._sort import engine_array
@@ -26,7 +29,12 @@ from ._result import ChamberValues, Segmentation, build_table
 from ._scales import Contribution, ScaleSeeds, merge, plan
 from ._tree import Hierarchy
 
-__all__ = ["segment"]
+__all__ = ["OVERLAP_VOXELS", "segment"]
+
+#: Images of at most this many voxels (a 512² image) run the polarity check beside their
+#: regions: its detection image, sweep and tree (about 12 bytes per voxel) are then held at
+#: once with the regions' arrays, at most 3 MiB more.
+OVERLAP_VOXELS = 2**18
 
 log = logging.getLogger("cavitas.segment")
 
@@ -98,7 +106,9 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
     Cost: one sort and one union-find pass per candidate smoothing scale (six in automatic
     mode), one labelling pass, and for basins a few linear passes; near-linear overall. A
     neighbouring scale with regions to offer (:mod:`cavitas.segment._scales`) costs one
-    more detection and delineation. The noise null is looked up in a shipped table.
+    more detection and delineation. The noise null is looked up in a shipped table. With
+    two cores, an image of at most :data:`OVERLAP_VOXELS` runs the polarity check (one more
+    detection) beside its regions.
     Memory: about 60 bytes per voxel at the peak for uint16 input (the image is read in
     place; the smoothed copies, sweep order and ranks and the label maps are
     float32/int32; :func:`cavitas.io.estimate_memory_bytes`).
@@ -159,11 +169,18 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
                                spacing=spacing_arr, connectivity=connectivity, roi=roi,
                                tell=tell)
     sig, tree, tau = det.sigma, det.tree, det.threshold
+    check = None if not params.automatic else functools.partial(
+        polarity_check, det, image, params, noise=levels, robust_range=robust_range,
+        spacing=spacing_arr, connectivity=connectivity, roi=roi)
+    # A small image's polarity check runs beside its regions (another detection image and
+    # sweep held meanwhile, OVERLAP_VOXELS); a larger one's before them, where memory
+    # peaks. Both read the detection only.
+    beside = check is not None and raw.size <= OVERLAP_VOXELS and usable_cores() > 1
     hint = None
-    if params.automatic:
+    if check is not None:
         tell("polarity check")
-        hint = polarity_check(det, image, params, noise=levels, robust_range=robust_range,
-                              spacing=spacing_arr, connectivity=connectivity, roi=roi)
+    if check is not None and not beside:
+        hint = check()
     timings["detect"] = time.perf_counter() - started
     log.info("%s: noise σ %.4g, detection σ %.3g %s, persistence threshold %.4g (%s)",
              vol.name, noise, float((sig * spacing_arr).max()), vol.unit, tau,
@@ -171,7 +188,11 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
     t0 = time.perf_counter()
     tell("regions")
     geometry = Geometry(image, outside, connectivity, vol.voxel_volume, spacing_arr)
-    base = regions_at(det, params, geometry, tell).settle(image.sign, spacing_arr)
+    with ThreadPoolExecutor(max_workers=1, thread_name_prefix="cavitas-polarity") as pool:
+        polarity = pool.submit(check) if beside and check is not None else None
+        base = regions_at(det, params, geometry, tell).settle(image.sign, spacing_arr)
+        if polarity is not None:
+            hint = polarity.result()
     gap, rule, texture_joined = det.gap, det.rule, det.texture_joined
     del det  # memory: the detection image and its sweep order are no longer needed
     hier, regions, chambers = base.hier, base.regions, base.chambers
@@ -269,7 +290,9 @@ def _refine_across_scales(base: Settled, seeds: list[ScaleSeeds],
         other, _, _ = detect(image, params.replace(smooth=smooth), spacing=spacing,
                               connectivity=geometry.connectivity, tell=lambda text: None,
                               **detect_options)
-        at = regions_at(other, params, geometry, lambda text: None).settle(image.sign, spacing)
+        # its chambers only: the merge takes the base's enclosures
+        at = regions_at(other, params, geometry, lambda text: None,
+                        enclosures=False).settle(image.sign, spacing)
         del other
         n_other = at.hier.n_chambers
         labels = np.where(at.regions.labels <= n_other, at.regions.labels, 0)
