@@ -14,7 +14,7 @@ from collections.abc import Iterator
 from typing import Any
 
 from .._cores import usable_cores
-from .._errors import InputFileError, ParameterError
+from .._errors import InputFileError
 
 __all__ = ["add_cluster_options", "chunked_route", "dask_client"]
 
@@ -62,23 +62,12 @@ def dask_client(args: argparse.Namespace, source: str) -> Iterator[Any]:
     :data:`cavitas.batch._dask.CONNECT_TIMEOUT`; exit code 3 when workers die while
     computing on ``source`` (the file's chunks were too large for them, most likely).
     """
-    from ..batch._dask import CONNECT_TIMEOUT, _import_distributed
+    from ..batch._dask import _import_distributed, connect
 
     distributed = _import_distributed()
     with contextlib.ExitStack() as stack:
-        if args.scheduler is None:
-            workers = args.dask_local or min(4, usable_cores())  # 0: given without N
-            cluster = stack.enter_context(distributed.LocalCluster(
-                n_workers=workers, threads_per_worker=1, processes=True, host="127.0.0.1",
-                dashboard_address="127.0.0.1:0"))
-            client = stack.enter_context(distributed.Client(cluster))
-        else:
-            try:
-                client = stack.enter_context(
-                    distributed.Client(args.scheduler, timeout=CONNECT_TIMEOUT))
-            except (OSError, TimeoutError, ValueError, TypeError) as exc:
-                raise ParameterError(f"Cannot reach a Dask scheduler at --scheduler "
-                                     f"{args.scheduler!r}: {_reason(exc)}.") from exc
+        workers = args.dask_local or min(4, usable_cores())  # 0: given without N
+        client = connect(stack, args.scheduler, workers)
         try:
             yield client
         except distributed.KilledWorker as exc:
@@ -87,9 +76,3 @@ def dask_client(args: argparse.Namespace, source: str) -> Iterator[Any]:
                 "memory: `cavitas info` says what each needs for its chunks; give the workers "
                 "more memory, start fewer of them, or store the file in smaller chunks)."
             ) from exc
-
-
-def _reason(exc: BaseException) -> str:
-    """The first line of ``exc``'s message, without a trailing full stop."""
-    text = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
-    return text.rstrip(".")

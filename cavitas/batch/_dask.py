@@ -66,20 +66,9 @@ def run_dask(tasks: Sequence[Task], *, scheduler: str | None, jobs: int,
     """
     distributed = _import_distributed()
     with contextlib.ExitStack() as stack:
-        if scheduler is None:
-            cluster = stack.enter_context(distributed.LocalCluster(
-                n_workers=jobs, threads_per_worker=1, processes=True, host="127.0.0.1",
-                dashboard_address="127.0.0.1:0"))
-            client = stack.enter_context(distributed.Client(cluster))
-        else:
-            try:
-                client = stack.enter_context(distributed.Client(scheduler, timeout=CONNECT_TIMEOUT))
-            except (OSError, TimeoutError) as exc:
-                raise ParameterError(
-                    f"Cannot reach the Dask scheduler at --scheduler {scheduler!r}: {exc}."
-                ) from exc
-            if budget is None:
-                budget = _cluster_budget(client)
+        client = connect(stack, scheduler, jobs)
+        if scheduler is not None and budget is None:
+            budget = _cluster_budget(client)
         batch_id = uuid.uuid4().hex[:8]
         pending = deque(range(len(tasks)))
         in_flight: dict[str, tuple[int, int, Any]] = {}  # key: (task, bytes, future)
@@ -125,3 +114,26 @@ def _cluster_budget(client: Any) -> int | None:
     if not limits or min(limits) <= 0:
         return None
     return int(sum(limits) * MEMORY_SHARE)
+
+
+def connect(stack: contextlib.ExitStack, scheduler: str | None, workers: int) -> Any:
+    """A ``distributed.Client`` entered on ``stack``: of the scheduler at ``scheduler``, or
+    of a new local cluster of ``workers`` single-threaded processes on the loopback
+    interface (its dashboard on a free port).
+
+    An address that is not one, or a scheduler that does not answer within
+    :data:`CONNECT_TIMEOUT`, is refused in one sentence (exit code 2).
+    """
+    distributed = _import_distributed()
+    if scheduler is None:
+        cluster = stack.enter_context(distributed.LocalCluster(
+            n_workers=workers, threads_per_worker=1, processes=True, host="127.0.0.1",
+            dashboard_address="127.0.0.1:0"))
+        return stack.enter_context(distributed.Client(cluster))
+    try:
+        return stack.enter_context(distributed.Client(scheduler, timeout=CONNECT_TIMEOUT))
+    except (OSError, TimeoutError, ValueError, TypeError) as exc:
+        text = str(exc).strip()
+        reason = (text.splitlines()[0] if text else type(exc).__name__).rstrip(".")
+        raise ParameterError(f"Cannot reach a Dask scheduler at --scheduler {scheduler!r}: "
+                             f"{reason}.") from exc
