@@ -202,14 +202,17 @@ def run(args: argparse.Namespace) -> int:
             print(f"  border-cut regions (listed in regions.csv, "
                   f"{'kept' if params.keep_border else 'not'} in labels): "
                   f"{summary['border_cut']}")
+        from .._shared.units import length_unit
+        from ..segment._noise import NEGLIGIBLE_CORRELATION
+
         element = "pixel" if len(summary["shape"]) == 2 else "voxel"
         correlated = (f", correlated over {summary['noise_correlation']:.2g} {element}s (as "
                       f"white noise of σ {summary['noise']:.4g} blurred that much)"
-                      if summary["noise_correlation"] > 0 else "")
+                      if summary["noise_correlation"] >= NEGLIGIBLE_CORRELATION else "")
         print(f"  noise σ {summary['noise_pixel']:.4g} per {element}{correlated}, persistence "
               f"threshold "
               f"{summary['threshold']:.4g} (intensity units), smoothing σ "
-              f"{summary['smooth_sigma']:.3g} {unit}")
+              f"{summary['smooth_sigma']:.3g} {length_unit(unit, len(summary['shape']))}")
         for note in (summary["polarity_hint"], summary["threshold_basis"],
                      summary["scale_note"], summary["border_note"], summary["image_note"]):
             if note:

@@ -138,8 +138,11 @@ def findings_html(f: Findings) -> str:
     if f.threshold is not None:
         smooth = (f" after smoothing with σ = {round_number(f.smoothing)} {f.unit}"
                   if f.smoothing else "")
+        from ..segment._noise import NEGLIGIBLE_CORRELATION
+
         correlated = (f", correlated over about {round_number(f.noise_correlation)} "
-                      f"{f.words.element}s" if f.noise_correlation else "")
+                      f"{f.words.element}s"
+                      if (f.noise_correlation or 0.0) >= NEGLIGIBLE_CORRELATION else "")
         noise = (f"The noise in the image is about σ = {round_number(f.noise)} intensity "
                  f"units{correlated}. " if f.noise is not None else "")
         least = ""

@@ -80,9 +80,9 @@ from scipy import ndimage as ndi
 from .._shared.memory import work_dtype  # the dtype policy lives beside the memory estimate
 from ._null_table import NULL_SEEDS, REFERENCE_SHAPE, tabulated_null
 
-__all__ = ["NULL_SEEDS", "QUANTISATION_SIGMA", "NoiseLevel", "correlation_width",
-           "estimate_noise", "haar_gains", "noise_level", "null_persistence", "smooth",
-           "smoothed_noise_sigma", "work_dtype"]
+__all__ = ["NEGLIGIBLE_CORRELATION", "NULL_SEEDS", "QUANTISATION_SIGMA", "NoiseLevel",
+           "correlation_width", "estimate_noise", "haar_gains", "noise_level", "null_persistence",
+           "smooth", "smoothed_noise_sigma", "work_dtype"]
 
 #: Standard deviation of rounding to integers (uniform over one step: 1/sqrt(12)); the
 #: noise floor of integer images, whose MAD can be 0 where the signal is flat.
@@ -125,6 +125,9 @@ CORRELATION_START = 1.5
 CORRELATION_FULL = 2.0
 #: Widest correlation the model is solved for, voxels (a Gaussian σ).
 _WIDEST = 8.0
+#: Correlations below this (voxels) are not worth a word in the summaries: such a blur
+#: changes the null by under 1 %.
+NEGLIGIBLE_CORRELATION = 0.05
 
 
 @dataclass(frozen=True)
