@@ -1,5 +1,6 @@
 """Texture pockets: small shallow chambers go back to the walls where the noise is not white
-(cavitas.segment._pockets).
+(cavitas.segment._pockets); and the detection scale where the noise is not white
+(cavitas.segment._detect.chosen_scale).
 
 The figures that set the rule come from the public EM slices (``bench/real_scans.py``, module
 notes); here, regression on a constructed scene (invented data): a grid of 16 cells with
@@ -47,3 +48,30 @@ def test_shallow_pocket_goes_back_to_its_cell(middle, white, chambers):
         assert seg.labels[62, 62] == host and seg.labels[62, 67] == host
     else:
         assert seg.labels[62, 62] not in (0, host)
+
+
+@pytest.mark.parametrize(("counts", "white", "index"), [
+    ([8, 19, 20, 12], True, 2),    # white noise: the most cavities
+    ([8, 19, 20, 12], False, 1),   # texture: 19 >= 0.9 * 20, the finer one
+    ([8, 17, 20, 12], False, 2),   # 17 < 18: the largest count after all
+    ([20, 20, 5], True, 0),        # ties go to the finer scale
+    ([0, 0, 0], False, 0),         # nothing anywhere: the finest
+])
+def test_detection_scale_choice(counts, white, index):
+    # The rule's definition (cavitas.segment._detect.chosen_scale), on constructed counts.
+    from cavitas.segment._detect import TEXTURED_SCALE_SHARE, chosen_scale
+
+    assert TEXTURED_SCALE_SHARE == 0.9  # the cases above are built for this share
+    assert chosen_scale(counts, white=white) == index
+
+
+@pytest.mark.parametrize("white", [False, True])
+def test_the_run_reports_the_scale_its_rule_chose(white):
+    # Read back from run.json's scales_tried: the chosen smoothing is the one the rule
+    # picks from the counts the run reports.
+    from cavitas.segment._detect import chosen_scale
+
+    seg = cavitas.segment(_grid_with_pocket(0.0, white))
+    tried = seg.params["scales_tried"]
+    index = chosen_scale([t["count"] for t in tried], white=white)
+    assert seg.params["smooth_sigma"] == pytest.approx(tried[index]["sigma"])

@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import itertools
 from collections import deque
-from collections.abc import Callable
+from collections.abc import Callable, Sequence
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 from typing import Any, NamedTuple
@@ -31,8 +31,8 @@ from ._scales import ScaleSeeds
 from ._select import persistence_threshold, select_nodes, split_rule
 from ._texture import texture_splits
 
-__all__ = ["TEXTURED_SCALE_SHARE", "THRESHOLD_RULES", "Detection", "ScanImage", "close_faces",
-           "detect", "on_faces", "polarity_check", "statistics_mask"]
+__all__ = ["TEXTURED_SCALE_SHARE", "THRESHOLD_RULES", "Detection", "ScanImage", "chosen_scale",
+           "close_faces", "detect", "on_faces", "polarity_check", "statistics_mask"]
 
 
 #: Where the noise is not white: the finest scale whose count of cavities passing every
@@ -256,13 +256,26 @@ def detect(image: ScanImage, params: SegmentParams, *, noise: _noise.NoiseLevel,
             if following is not None:
                 running.append(pool.submit(candidate, following))
     assert best is not None  # at least one scale is always tried
-    top = max(counts)
-    if not noise.white and top > 0:  # texture: the finest scale nearly as good as the best
-        finest = next(i for i, c in enumerate(counts) if c >= TEXTURED_SCALE_SHARE * top)
-        if not np.array_equal(scales[finest], best.sigma):
-            del best  # memory: one detection at a time
-            best = candidate(scales[finest])
+    chosen = chosen_scale(counts, white=noise.white)
+    if not np.array_equal(scales[chosen], best.sigma):  # texture: a finer scale than the best
+        del best  # memory: one detection at a time
+        best = candidate(scales[chosen])
     return best, tried, seeds
+
+
+def chosen_scale(counts: Sequence[int], *, white: bool) -> int:
+    """Index of the detection scale among candidates (finest first) with these counts of
+    cavities passing every test: the largest count (ties: the finer); where the noise is
+    not ``white``, the finest whose count reaches :data:`TEXTURED_SCALE_SHARE` of it.
+
+    Examples
+    --------
+    >>> chosen_scale([8, 19, 20, 12], white=True), chosen_scale([8, 19, 20, 12], white=False)
+    (2, 1)
+    """
+    top = max(counts)
+    share = 1.0 if white else TEXTURED_SCALE_SHARE
+    return next(i for i, c in enumerate(counts) if c >= share * top)
 
 
 #: What sets the automatic threshold, in the order tried: the valley between two populations
