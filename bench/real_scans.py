@@ -32,6 +32,10 @@ Scans without a reference are described by counts: the *Arabidopsis* embryo (reg
 embryo vs in its empty surround) and the concrete micro-CT (regions vs dark air voids found
 by a simple independent threshold).
 
+``em_variants`` remakes the EM slices as other scans of the same kind would show them (half
+and double the pixel density, a 300² crop, added noise) and scores cavitas with its defaults
+against the watershed tuned again on each: the same kind of data, not the same file.
+
 Run: ``python -m bench --only real_scans`` or
 ``python -m bench.real_scans [--only-scan NAME] [--quick] [--verbose] [--figures DIR]``.
 """
