@@ -29,6 +29,7 @@ row naming the step and the size, not an exception.
 from __future__ import annotations
 
 import argparse
+import os
 import sys
 import tempfile
 import time
@@ -126,12 +127,14 @@ def in_memory_run(path: str) -> InMemoryRun:
 @dataclass(frozen=True)
 class ChunkedRun:
     """One chunked run on the cluster: the diagram, wall time (s), every worker's peak RSS
-    (absolute, bytes), the client's extra peak, the workers restarted on the way, and
-    the compute time of the last join and the median chunk sweep (s)."""
+    (absolute, bytes) and its extra over the worker's RSS before the run, the client's
+    extra peak, the workers restarted on the way, and the compute time of the last join
+    and the median chunk sweep (s)."""
 
     diagram: Diagram
     seconds: float
     worker_peaks: list[int]
+    worker_extra: list[int]
     client_peak: int
     restarted: int
     last_join: float
@@ -157,7 +160,7 @@ def chunked_run(client, path: str, chunk: int) -> ChunkedRun:
 
     lazy = da.from_zarr(path, chunks=(chunk,) * 3)
     workers = set(client.scheduler_info()["workers"])
-    client.run(_reset_peak)
+    before = client.run(_reset_peak)
     client_before = _reset_peak()
     with get_task_stream(client) as stream:
         start = time.perf_counter()
@@ -168,7 +171,9 @@ def chunked_run(client, path: str, chunk: int) -> ChunkedRun:
     restarted = len(workers - set(client.scheduler_info()["workers"]))
     joins = _compute_seconds(stream.data, "_join_task")
     sweeps = [s for _, s in _compute_seconds(stream.data, "_chunk_task")]
-    return ChunkedRun(dgm, seconds, sorted(peaks.values()), client_peak, restarted,
+    return ChunkedRun(dgm, seconds, [peaks[w] for w in sorted(peaks)],
+                      [peaks[w] - before[w] for w in sorted(peaks) if w in before],
+                      client_peak, restarted,
                       joins[-1][1] if joins else 0.0,
                       float(np.median(sweeps)) if sweeps else 0.0)
 
@@ -177,9 +182,14 @@ def _gib(nbytes: float) -> str:
     return f"{nbytes / GIB:.2f} GiB" if abs(nbytes) >= GIB else f"{nbytes / 2**20:.0f} MiB"
 
 
+def _sizes(values: list[int]) -> str:
+    return ", ".join(_gib(v) for v in values)
+
+
 def _failure(step: str, error: BaseException) -> dict:
-    return {"metric": step, "value": "FAILED",
-            "note": f"{type(error).__name__}: {str(error).splitlines()[0][:200] if str(error) else ''}"}
+    """A row for a step that failed: the exception's type and first line."""
+    first = (str(error).splitlines() or [""])[0][:200]
+    return {"metric": step, "value": "FAILED", "note": f"{type(error).__name__}: {first}"}
 
 
 @dataclass(frozen=True)
@@ -222,9 +232,8 @@ def _comparison_rows(client, setup: Setup, folder: Path) -> list[dict]:
                  "value": f"{got.seconds:.1f} s ({got.seconds / ref.seconds:.1f}x)",
                  "target": "identical",
                  "note": f"{'identical' if _same(ref.diagram, got.diagram) else 'DIFFERENT'}"
-                         f" row for row; worker peaks "
-                         f"{', '.join(_gib(p) for p in got.worker_peaks)}; client extra "
-                         f"{_gib(got.client_peak)}"})
+                         f" row for row; worker peaks {_sizes(got.worker_peaks)} (extra "
+                         f"{_sizes(got.worker_extra)}); client extra {_gib(got.client_peak)}"})
     return rows
 
 
@@ -246,9 +255,10 @@ def _full_rows(client, setup: Setup, path: Path, half_seconds: float | None) -> 
          "value": f"{got.seconds:.1f} s",
          "note": f"{setup.workers} workers of {_gib(setup.worker_bytes)}; {len(got.diagram)} "
                  f"pairs; workers restarted: {got.restarted}{versus}"},
-        {"metric": f"{tag} worker peaks", "value": ", ".join(_gib(p) for p in got.worker_peaks),
+        {"metric": f"{tag} worker peaks", "value": _sizes(got.worker_peaks),
          "target": f"< {_gib(0.95 * setup.worker_bytes)}",
-         "note": f"model's largest task {_gib(need.peak_bytes)} (sweep "
+         "note": f"extra over the run's start {_sizes(got.worker_extra)}; model's largest "
+                 f"task {_gib(need.peak_bytes)} (sweep "
                  f"{_gib(need.sweep_bytes)}, last join {_gib(need.join_bytes)}); "
                  f"{need.chunks} chunks"},
         {"metric": f"{tag} client extra peak", "value": _gib(got.client_peak),
@@ -280,8 +290,8 @@ def _whole_in_memory_rows(setup: Setup, path: Path, chunked: Diagram | None) -> 
                      f"{_gib(need)}); chunked diagram: {same} row for row"}]
 
 
-def measure(setup: Setup) -> list[dict]:
-    """Every row (printed as each step ends)."""
+def measure(setup: Setup, whole_in_memory: bool = True) -> list[dict]:
+    """Every row (printed as each step ends, with the machine's load average then)."""
     from distributed import Client, LocalCluster
 
     from bench.__main__ import _print_table
@@ -289,6 +299,9 @@ def measure(setup: Setup) -> list[dict]:
     rows: list[dict] = []
 
     def report(new: list[dict]) -> None:
+        load = os.getloadavg()[0]
+        for row in new:
+            row["note"] = f"{row.get('note', '')}; load {load:.1f}"
         rows.extend(new)
         _print_table(f"{NAME} (so far)", new)
 
@@ -317,7 +330,8 @@ def measure(setup: Setup) -> list[dict]:
                 half[0]["value"].split()[0])
             full, chunked = _full_rows(client, setup, path, half_seconds)
             report(full)
-        report(_whole_in_memory_rows(setup, path, chunked))
+        if whole_in_memory:
+            report(_whole_in_memory_rows(setup, path, chunked))
     return rows
 
 
@@ -333,13 +347,15 @@ def _parser() -> argparse.ArgumentParser:
     parser.add_argument("--workers", type=int, default=2, help="worker processes (default 2)")
     parser.add_argument("--worker-gib", type=float, default=4.0,
                         help="memory limit of each worker in GiB (default 4)")
+    parser.add_argument("--no-whole-in-memory", action="store_true",
+                        help="leave out the in-memory run of the whole volume in this process")
     return parser
 
 
 def main(argv: list[str] | None = None) -> int:
     args = _parser().parse_args(argv)
     setup = Setup(args.side, args.chunk, args.workers, int(args.worker_gib * GIB))
-    measure(setup)
+    measure(setup, whole_in_memory=not args.no_whole_in_memory)
     return 0
 
 
