@@ -5,10 +5,10 @@ Run on its own (it takes many minutes and several GiB, so ``python -m bench`` le
 
 Input (invented, for this measurement only): white noise smoothed by a Gaussian (sigma 2
 voxels), plane ``z`` of the noise drawn from ``numpy.random.default_rng([seed, z])``. It is
-written to a Zarr store in /tmp slab by slab, each slab filtered with a halo of the
-kernel's radius, so the volume equals the whole-volume filter without ever being whole
-(:func:`smoothed_noise_slab`), and scaled to uint16 by the filtered noise's exact standard
-deviation (32768 + 5000 per standard deviation).
+written to a Zarr store in the temporary folder (/tmp) slab by slab, each slab filtered
+with a halo of the kernel's radius, so the volume equals the whole-volume filter without
+ever being whole (:func:`smoothed_noise_slab`), and scaled to uint16 by the filtered
+noise's exact standard deviation (32768 + 5000 per standard deviation).
 
 Cluster: ``distributed.LocalCluster`` of ``--workers`` single-threaded worker processes on
 loopback, each with a memory limit of ``--worker-gib`` (default 4 GiB: the in-memory
@@ -210,8 +210,9 @@ class Setup:
         return side**3 * (2 + IN_MEMORY_BYTES_PER_VOXEL)
 
 
-def _comparison_rows(client, setup: Setup, folder: Path) -> list[dict]:
-    """In-memory (in one worker) and chunked at half the side: time, peaks, identity."""
+def _comparison_rows(client, setup: Setup, folder: Path) -> tuple[list[dict], float | None]:
+    """In-memory (in one worker) and chunked at half the side: time, peaks, identity; and
+    the in-memory time (None if it failed)."""
     side = setup.half
     path = folder / f"v{side}.zarr"
     write_volume(path, side, setup.chunk)
@@ -219,7 +220,7 @@ def _comparison_rows(client, setup: Setup, folder: Path) -> list[dict]:
     try:
         ref = client.submit(in_memory_run, str(path), pure=False).result()
     except Exception as error:  # a worker killed or out of memory is the finding
-        return [_failure(f"{tag} in memory, in one worker", error)]
+        return [_failure(f"{tag} in memory, in one worker", error)], None
     rows = [{"metric": f"{tag} in memory, in one worker", "value": f"{ref.seconds:.1f} s",
              "note": f"worker peak {_gib(ref.peak)} (extra {_gib(ref.extra_peak)}; model "
                      f"{_gib(setup.in_memory_need(side))} with the input); "
@@ -227,14 +228,14 @@ def _comparison_rows(client, setup: Setup, folder: Path) -> list[dict]:
     try:
         got = chunked_run(client, str(path), setup.chunk)
     except Exception as error:
-        return rows + [_failure(f"{tag} chunked, chunks {setup.chunk}^3", error)]
+        return rows + [_failure(f"{tag} chunked, chunks {setup.chunk}^3", error)], ref.seconds
     rows.append({"metric": f"{tag} chunked, chunks {setup.chunk}^3",
                  "value": f"{got.seconds:.1f} s ({got.seconds / ref.seconds:.1f}x)",
                  "target": "identical",
                  "note": f"{'identical' if _same(ref.diagram, got.diagram) else 'DIFFERENT'}"
                          f" row for row; worker peaks {_sizes(got.worker_peaks)} (extra "
                          f"{_sizes(got.worker_extra)}); client extra {_gib(got.client_peak)}"})
-    return rows
+    return rows, ref.seconds
 
 
 def _full_rows(client, setup: Setup, path: Path, half_seconds: float | None) -> tuple[
@@ -290,19 +291,16 @@ def _whole_in_memory_rows(setup: Setup, path: Path, chunked: Diagram | None) -> 
                      f"{_gib(need)}); chunked diagram: {same} row for row"}]
 
 
-def measure(setup: Setup, whole_in_memory: bool = True) -> list[dict]:
-    """Every row (printed as each step ends, with the machine's load average then)."""
+def measure(setup: Setup, whole_in_memory: bool = True) -> None:
+    """Print every row as its step ends, with the machine's load average then."""
     from distributed import Client, LocalCluster
 
     from bench.__main__ import _print_table
-
-    rows: list[dict] = []
 
     def report(new: list[dict]) -> None:
         load = os.getloadavg()[0]
         for row in new:
             row["note"] = f"{row.get('note', '')}; load {load:.1f}"
-        rows.extend(new)
         _print_table(f"{NAME} (so far)", new)
 
     with tempfile.TemporaryDirectory(prefix="cavitas-bigvol-") as tmp:
@@ -317,22 +315,19 @@ def measure(setup: Setup, whole_in_memory: bool = True) -> list[dict]:
                          f"{_gib(_peak() - before)}"}])
         chunked = None
         with LocalCluster(n_workers=setup.workers, threads_per_worker=1, processes=True,
-                          host="127.0.0.1", dashboard_address=None,
+                          host="127.0.0.1", dashboard_address="127.0.0.1:0",
                           memory_limit=setup.worker_bytes) as cluster, \
                 Client(cluster) as client:
             warm = folder / "warm.zarr"
             write_volume(warm, 16, 8)
             chunked_run(client, str(warm), 8)  # the workers load the kernels
             persistence(smoothed_noise_slab(16, 0, 16))  # and this process
-            half = _comparison_rows(client, setup, folder)
+            half, half_seconds = _comparison_rows(client, setup, folder)
             report(half)
-            half_seconds = None if half[0]["value"] == "FAILED" else float(
-                half[0]["value"].split()[0])
             full, chunked = _full_rows(client, setup, path, half_seconds)
             report(full)
         if whole_in_memory:
             report(_whole_in_memory_rows(setup, path, chunked))
-    return rows
 
 
 def _parser() -> argparse.ArgumentParser:
