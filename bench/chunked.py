@@ -95,7 +95,7 @@ def run(args) -> list[dict]:
     persistence(smoothed_noise(16))  # compile (or load the cached kernels) in this process
     with tempfile.TemporaryDirectory() as tmp, \
             LocalCluster(n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1",
-                         dashboard_address=None) as cluster, Client(cluster) as client:
+                         dashboard_address="127.0.0.1:0") as cluster, Client(cluster) as client:
         folder = Path(tmp)
         warm = _stored(smoothed_noise(16), (8, 8, 8), folder)
         persistence(warm)  # workers compile or load the kernels
@@ -225,5 +225,5 @@ def segmentation_steps_only(sides=(128, 256)) -> list[dict]:
 
     with tempfile.TemporaryDirectory() as tmp, \
             LocalCluster(n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1",
-                         dashboard_address=None) as cluster, Client(cluster) as client:
+                         dashboard_address="127.0.0.1:0") as cluster, Client(cluster) as client:
         return segmentation_step_rows(client, Path(tmp), sides)
