@@ -196,7 +196,7 @@ def delineate(params: SegmentParams, sweep: Sweep, hier, image: ScanImage,
                                                        basin_levels.wall[:n_ch],
                                                        used_level), split.low)
             if pockets.any():
-                labels[np.isin(labels, np.flatnonzero(pockets) + 1)] = 0
+                labels[np.r_[False, pockets][labels]] = 0  # a lookup, not a search
                 n_pockets = int(np.count_nonzero(pockets))
     else:
         labels = nested_map(sweep, hier.node[:n_ch], level_rank, ids[:n_ch])

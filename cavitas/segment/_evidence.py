@@ -45,7 +45,7 @@ from scipy import ndimage as ndi
 from ._two_class import otsu_split
 
 __all__ = ["MIN_CLASS_SEPARATION", "WALL_REACH", "WHITE_NOISE_DIP", "ClassSplit", "class_split",
-           "eligible_nodes", "small_region_threshold", "straddles"]
+           "eligible_nodes", "small_region_threshold", "straddles", "typical_size"]
 
 #: Largest number of voxels a two-class threshold is computed from.
 _SAMPLE = 1 << 18
@@ -194,6 +194,22 @@ def straddles(core_level: np.ndarray, breach_level: np.ndarray,
         return (core_level < core_threshold) & (breach_level >= breach_threshold)
 
 
+def typical_size(sizes: np.ndarray) -> float:
+    """The area-weighted median of ``sizes``: the size of the region that holds the median
+    voxel, so a crowd of tiny pockets does not make itself typical (NaN for none).
+
+    Examples
+    --------
+    >>> typical_size(np.array([10.0, 12.0, 1000.0, 1200.0]))
+    1200.0
+    """
+    ordered = np.sort(np.asarray(sizes, np.float64))
+    if ordered.size == 0:
+        return float("nan")
+    weight = np.cumsum(ordered)
+    return float(ordered[np.searchsorted(weight, 0.5 * weight[-1])])
+
+
 def small_region_threshold(area: np.ndarray, persistence: np.ndarray,
                            candidates: np.ndarray) -> np.ndarray:
     """The persistence each node needs for its size (0 for regions of ordinary size).
@@ -214,11 +230,9 @@ def small_region_threshold(area: np.ndarray, persistence: np.ndarray,
     """
     need = np.zeros(area.shape)
     finite = candidates & np.isfinite(area)
-    sizes = np.sort(area[finite])
-    if sizes.size == 0:
+    if not finite.any():
         return need
-    cum = np.cumsum(sizes)
-    small = area < SMALL_FRACTION * sizes[np.searchsorted(cum, 0.5 * cum[-1])]
+    small = area < SMALL_FRACTION * typical_size(area[finite])
     ordinary = finite & ~small
     if ordinary.any():
         need[small] = SMALL_CONTRAST * float(np.median(persistence[ordinary]))

@@ -156,7 +156,7 @@ class NoiseLevel:
         """Whether fine structure alone explains the ratio (at most :data:`CORRELATION_START`)."""
         return self.ratio <= CORRELATION_START
 
-    @property
+    @functools.cached_property
     def correlation(self) -> float:
         """σ (voxels) of the Gaussian blur of white noise that shows this ratio, times the
         share of the excess that counts as noise (0 at :data:`CORRELATION_START`, all from

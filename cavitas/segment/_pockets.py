@@ -11,8 +11,9 @@ image's lower class (the two-class split of :mod:`cavitas.segment._evidence`)::
     depth = (wall - inside) / (wall - low)
 
 A chamber smaller than :data:`POCKET_SIZE` of the typical one (the area-weighted median
-size) whose depth is below :data:`POCKET_DEPTH` of the typical depth (the median over the
-chambers of ordinary size) is a pocket: its voxels go back to the walls (and a pocket
+size, :func:`cavitas.segment._evidence.typical_size`) whose depth is below
+:data:`POCKET_DEPTH` of the typical depth (the median over the chambers of ordinary size)
+is a pocket: its voxels go back to the walls (and a pocket
 wholly inside one region goes to that region with the rest of its walls).
 
 Measured on the public EM slices of ``bench/real_scans.py`` (dark membranes, 228 reference
@@ -31,6 +32,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from ._evidence import typical_size
 from ._regions import BasinLevels
 
 __all__ = ["POCKET_DEPTH", "POCKET_SIZE", "shallow_pockets"]
@@ -57,12 +59,9 @@ def shallow_pockets(sizes: np.ndarray, levels: BasinLevels, low: float) -> np.nd
     with np.errstate(invalid="ignore", divide="ignore"):
         depth = (levels.wall - levels.inside) / (levels.wall - low)
     known = (sizes > 0) & np.isfinite(depth)
-    ordered = np.sort(sizes[known])
-    if ordered.size == 0:
+    if not known.any():
         return pockets
-    weight = np.cumsum(ordered)
-    typical = ordered[np.searchsorted(weight, 0.5 * weight[-1])]
-    small = known & (sizes < POCKET_SIZE * typical)
+    small = known & (sizes < POCKET_SIZE * typical_size(sizes[known]))
     ordinary = known & ~small
     if not ordinary.any():
         return pockets
