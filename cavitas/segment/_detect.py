@@ -21,6 +21,7 @@ import numpy as np
 from .._cores import usable_cores
 from ..cubical._tree import OUTSIDE, CavityTree
 from . import _noise
+from ._cell_sized import cell_sized_splits
 from ._discovery import false_discovery_threshold, share_passing
 from ._evidence import WHITE_NOISE_DIP, eligible_nodes, small_region_threshold
 from ._gap import find_empty_stretch, find_gap
@@ -28,7 +29,7 @@ from ._params import AUTO_SCALES, SegmentParams
 from ._polarity import census, polarity_hint
 from ._regions import face_slices
 from ._scales import ScaleSeeds
-from ._select import persistence_threshold, select_nodes, split_rule
+from ._select import close_upward, persistence_threshold, select_nodes, split_rule
 from ._texture import texture_splits
 
 __all__ = ["TEXTURED_SCALE_SHARE", "THRESHOLD_RULES", "Detection", "ScanImage", "chosen_scale",
@@ -66,6 +67,7 @@ class Detection:
     keep: np.ndarray             # ... less the splits the split rule joins
     seeds: ScaleSeeds            # the chambers this scale makes, as seeds
     textured: bool = False       # the noise is not white (texture, correlated noise)
+    cell_sized: int = 0          # nodes promoted as cell-sized splits (_cell_sized)
 
     @property
     def count(self) -> int:
@@ -193,6 +195,7 @@ def detect(image: ScanImage, params: SegmentParams, *, noise: _noise.NoiseLevel,
         eligible = gap = rule = None
         auto = None
         texture_joined = 0
+        promoted = None
         if null is not None:  # automatic mode
             smoothed_noise = _noise.smoothed_noise_sigma(noise.amplitude, blurred)
             eligible = eligible_nodes(
@@ -220,8 +223,14 @@ def detect(image: ScanImage, params: SegmentParams, *, noise: _noise.NoiseLevel,
                     texture_joined = int(np.count_nonzero(texture))
                     eligible &= ~texture
                     passing &= ~texture
+                elif params.top is None:  # an oversized region: two cells whose wall dips
+                    promoted = cell_sized_splits(tree.parent, pers, area, passing, eligible,
+                                                 tau)
+                    passing |= promoted
         passing[OUTSIDE] = False
         significant = select_nodes(pers, tree.parent, tau, params.top, eligible=eligible)
+        if promoted is not None and promoted.any():
+            significant = close_upward(significant | promoted, tree.parent)
         keep = split_rule(tree, significant, params.split_fraction, face_breach)
         kept = keep.copy()
         kept[OUTSIDE] = False
@@ -229,7 +238,8 @@ def detect(image: ScanImage, params: SegmentParams, *, noise: _noise.NoiseLevel,
         return Detection(sig, smoothed, order, tree, tau, gap, eligible, passing, face_breach,
                          rule, texture_joined, significant, keep,
                          ScaleSeeds(sig, tree.core[kept], clarity, node_sizes(tree)[kept]),
-                         textured=not noise.white)
+                         textured=not noise.white,
+                         cell_sized=0 if promoted is None else int(np.count_nonzero(promoted)))
 
     # Two scales at a time in two threads (smoothing, sort and sweep release the GIL);
     # results are taken in scale order, so the choice is the same as one after the other.

@@ -193,7 +193,7 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
         base = regions_at(det, params, geometry, tell).settle(image.sign, spacing_arr)
         if polarity is not None:
             hint = polarity.result()
-    gap, rule, texture_joined = det.gap, det.rule, det.texture_joined
+    gap, rule, texture_joined, cell_sized = det.gap, det.rule, det.texture_joined, det.cell_sized
     del det  # memory: the detection image and its sweep order are no longer needed
     hier, regions, chambers = base.hier, base.regions, base.chambers
     refined = None
@@ -227,6 +227,7 @@ def segment(volume: Any, *, spacing: Any = None, params: SegmentParams | None = 
         "polarity_hint": hint,
         "splits_joined": base.splits_joined,
         "texture_pieces_joined": texture_joined,
+        "cell_sized_splits": cell_sized,
         "texture_pockets": base.regions.pockets,
         "perforated_walls": base.perforated,
         "regions_from_other_scales": (refined.summary if refined is not None
