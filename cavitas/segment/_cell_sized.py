@@ -37,8 +37,8 @@ merged pairs stands at 0.45-0.55 of the threshold), and cell fractions of 0.2-0.
 oversize 1.15-1.5 moved found by less than a point on average. Bright walls gain little
 (seed 1: 96.5 -> 97.1 %): their merged cells fail the class test (in the dim corner the
 dipping wall lies below the wall class), and admitting cavities that fail it split a cell
-at noise 0.18, so they stay out. Every other
-scene of the bench and every real scan of ``bench/real_scans.py`` is unchanged.
+at noise 0.18, so they stay out. Every other scene of the bench and every real scan of
+``bench/real_scans.py`` is unchanged.
 """
 
 from __future__ import annotations
