@@ -35,7 +35,7 @@ from ._kernels import _find_neg, add_distinct, eldest_root
 from ._neighbors import is_interior, neighbor_or_outside, unravel3
 
 __all__ = ["adjacency", "chunk_roots", "chunk_sweep", "graph_sweep", "is_seam_voxel",
-           "merge_orders"]
+           "merge_orders", "outside_first"]
 
 #: Face states of a chunk, per side (z low, z high, y low, y high, x low, x high).
 CLOSED = 0  # nothing lies beyond (the z sides of a 2D image)
@@ -153,6 +153,18 @@ def _beyond_border(zz, yy, xx, nz, ny, nx, faces):
 
 
 @njit(cache=True, inline="always")
+def outside_first(parent, mask, use_mask):
+    """Start a cavity sweep's union-find: the outside (the last slot) visited, the eldest
+    root, and every voxel outside the mask already in it."""
+    n = parent.shape[0] - 1
+    parent[n] = -2
+    if use_mask:
+        for i in range(n):
+            if not mask[i]:
+                parent[i] = n
+
+
+@njit(cache=True, inline="always")
 def chunk_roots(v, z, y, x, cavity, parent, roots, offsets_flat, offsets_zyx, nz, ny, nx,
                 zmargin, faces):
     """The distinct roots of the visited neighbours of chunk voxel ``v`` (at ``z, y, x``)
@@ -216,13 +228,9 @@ def chunk_sweep(order, cavity, mask, use_mask, offsets_flat, offsets_zyx, nz, ny
     nn = 0
     npairs = 0
     if cavity:
-        parent[n] = -2
+        outside_first(parent, mask, use_mask)
         nodes, nn = _push_node(nodes, nn, n, -1, -1)
         last[n] = 0
-        if use_mask:
-            for i in range(n):
-                if not mask[i]:
-                    parent[i] = n
     roots = np.empty(offsets_flat.shape[0] + 1, parent.dtype)
     m = order.shape[0]
     for j in range(m):

@@ -15,17 +15,10 @@ from numba import njit
 
 from ._kernels import eldest_root
 from ._neighbors import unravel3
-from ._seam_kernels import chunk_roots, is_seam_voxel
+from ._seam_kernels import chunk_roots, is_seam_voxel, outside_first
+from ._tunnels import _find
 
 __all__ = ["ancestors", "chunk_counts", "link_parents", "subtree_sizes"]
-
-
-@njit(cache=True, inline="always")
-def _find(uf, x):
-    while uf[x] != x:
-        uf[x] = uf[uf[x]]
-        x = uf[x]
-    return x
 
 
 @njit(cache=True, nogil=True)
@@ -147,12 +140,8 @@ def chunk_counts(values, order, mask, use_mask, offsets_flat, offsets_zyx, nz, n
     at = root_start.copy()
     chain_count = np.zeros(chain_parent.shape[0], np.int64)
     outside_count = 0
-    parent[out] = -2
+    outside_first(parent, mask, use_mask)
     flagged[out] = 1
-    if use_mask:
-        for i in range(n):
-            if not mask[i]:
-                parent[i] = out
     roots = np.empty(offsets_flat.shape[0] + 1, parent.dtype)
     for j in range(order.shape[0]):
         u = order[j]
