@@ -221,14 +221,16 @@ def _refused(box: Box, nonfinite: int) -> Swept:
 def _each_sweep(box: Box, plan: SweepPlan,
                 sweep: Callable[[bool], tuple[np.ndarray, BoundaryTree, MergeRecords | None]]
                 ) -> Swept:
-    """``sweep(cavity)`` for each sweep the plan asks for (H0, then cavities)."""
+    """``sweep(cavity)`` for each sweep the plan asks for (H0, then cavities). With merge
+    records the cavity rows are left out: the records hold every pair and more."""
     rows = {False: _empty_rows(), True: _empty_rows()}
     trees: dict[bool, BoundaryTree | None] = {False: None, True: None}
     merges = None
     for cavity, wanted in ((False, plan.h0), (True, plan.cavities)):
         if wanted:
             rows[cavity], trees[cavity], found = sweep(cavity)
-            merges = found if cavity else merges
+            if found is not None:
+                rows[cavity], merges = _empty_rows(), found
     return Swept(PairRows(rows[False], rows[True], merges),
                  Summary(box, trees[False], trees[True]))
 

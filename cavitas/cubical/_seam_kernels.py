@@ -139,6 +139,7 @@ def _arrive(v, code, on_seam, roots, nr, parent, last, nodes, nn, pairs, npairs)
 
 @njit(cache=True, inline="always")
 def is_seam_voxel(z, y, x, nz, ny, nx, faces):
+    """Whether chunk voxel ``(z, y, x)`` lies on a side that is a :data:`SEAM`."""
     return ((z == 0 and faces[0] == SEAM) or (z == nz - 1 and faces[1] == SEAM)
             or (y == 0 and faces[2] == SEAM) or (y == ny - 1 and faces[3] == SEAM)
             or (x == 0 and faces[4] == SEAM) or (x == nx - 1 and faces[5] == SEAM))
