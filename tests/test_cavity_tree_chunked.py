@@ -5,10 +5,10 @@ Checks and their sources:
 * A tree built from its definition with ``scipy.ndimage.label`` (SciPy's connected
   components, an outside library) on tiny volumes cut into chunks of one voxel and of random
   sizes: the merge tree of the complement's sublevel sets with the elder rule (join trees:
-  Carr, Snoeyink & Axen 2003, doi:10.1016/S0925-7721(02)00093-7; the elder rule:
-  Edelsbrunner, Letscher & Zomorodian 2002, doi:10.1007/s00454-002-2885-2), voxels entering
-  by (value, flat index) as DEVELOPERS.md fixes ties. Every node (of zero persistence too),
-  its core, breach, parent and size.
+  Carr, Snoeyink & Axen 2003, doi:10.1016/S0925-7721(02)00093-7, cited from memory; the
+  elder rule: Edelsbrunner, Letscher & Zomorodian 2002, doi:10.1007/s00454-002-2885-2),
+  voxels entering by (value, flat index) as DEVELOPERS.md fixes ties. Every node (of zero
+  persistence too), its core, breach, parent and size.
 * The pairs of nonzero persistence against the textbook Z/2 boundary-matrix reduction
   (``tests/oracle_reduction.py``) on the same volumes: the cavity diagram.
 * Identity with the in-memory tree (``cavity_sweep``), field for field, on many random
