@@ -3,7 +3,9 @@
 Also the segmentation's chunked steps built so far (:func:`segmentation_step_rows`): the
 smoothing (``segment/_chunked_smooth.py``) and the connected components of a level set
 (``segment/_chunked_components.py``), each written to a Zarr store chunk by chunk, against
-``scipy.ndimage.gaussian_filter`` and ``scipy.ndimage.label`` of the whole volume.
+``scipy.ndimage.gaussian_filter`` and ``scipy.ndimage.label`` of the whole volume; and the
+cavity tree (``cubical/_chunked_tree.py``, :func:`cavity_tree_rows`) against
+``cavity_sweep``'s tree, field for field.
 
 Input (invented, for this measurement only): the Gaussian-smoothed uint16 noise of
 ``bench/persistence.py`` (96^3, 128^3, 256^3; 384^3 with ``--large``), written to a Zarr
@@ -30,8 +32,9 @@ import numpy as np
 from scipy import ndimage as ndi
 
 from bench.persistence import _rss_kib, _rss_peak_in_fresh_process, smoothed_noise
-from cavitas.cubical import persistence
+from cavitas.cubical import cavity_sweep, persistence
 from cavitas.cubical._chunk_memory import worker_need
+from cavitas.cubical._chunked_tree import chunked_cavity_tree
 from cavitas.segment._chunked_components import label_in_chunks
 from cavitas.segment._chunked_smooth import smooth_in_chunks
 from cavitas.segment._chunked_statistics import noise_level_in_chunks, percentiles_in_chunks
@@ -129,6 +132,33 @@ def run(args) -> list[dict]:
                                      "value": "identical" if same else "DIFFERENT",
                                      "target": "identical", "note": "chunks 24^3"})
         rows += segmentation_step_rows(client, folder, sides=[s for s in sides if s >= 128])
+        rows += cavity_tree_rows(client, folder, sides=[s for s in sides if s >= 128])
+    return rows
+
+
+_TREE_FIELDS = ("core", "core_level", "breach", "breach_level", "parent", "size")
+
+
+def cavity_tree_rows(client, folder: Path, sides=(128, 256)) -> list[dict]:
+    """The cavity tree of the smoothed noise in chunks of a quarter side, against
+    ``cavity_sweep``'s (identity field for field, time, worker and client extra peaks)."""
+    rows = []
+    chunked_cavity_tree(_stored(smoothed_noise(16), (8, 8, 8), folder))  # workers warm up
+    for side in sides:
+        image = smoothed_noise(side)
+        (_, ref), t_ref, p_ref = _timed_here(lambda image=image: cavity_sweep(image))
+        chunk = (side // 4,) * 3
+        stored = _stored(image, chunk, folder)
+        got, wall, worker, client_peak = _timed_on_cluster(
+            client, lambda stored=stored: chunked_cavity_tree(stored))
+        same = all(np.array_equal(getattr(ref, f), getattr(got, f), equal_nan=True)
+                   for f in _TREE_FIELDS)
+        rows.append({"metric": f"{side}^3 cavity tree, chunks {chunk[0]}^3",
+                     "value": f"{wall:.2f} s ({wall / t_ref:.1f}x)", "target": "identical",
+                     "note": f"{'identical' if same else 'DIFFERENT'} ({ref.n_nodes} nodes); "
+                             f"in memory {t_ref:.2f} s, peak {p_ref / 2**20:.0f} MiB; worker "
+                             f"peak {worker / 2**20:.0f} MiB, client "
+                             f"{client_peak / 2**20:.0f} MiB"})
     return rows
 
 

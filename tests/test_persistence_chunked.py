@@ -28,31 +28,14 @@ from scipy import ndimage as ndi
 from cavitas import InputFileError, ParameterError
 from cavitas.cubical import persistence
 from cavitas.cubical._chunked import persistence_in_chunks
+from tests.chunked_volumes import cell_lattice, lattice_case, random_cases, random_chunks
 from tests.oracle_reduction import oracle_pairs
-
-
-def _random_chunks(rng, size, largest):
-    sizes = []
-    while sum(sizes) < size:
-        sizes.append(int(rng.integers(1, min(largest, size - sum(sizes)) + 1)))
-    return tuple(sizes)
 
 
 def _assert_same(ref, got):
     assert got.dims == ref.dims and got.shape == ref.shape and got.masked == ref.masked
     for dim in ref.dims:
         np.testing.assert_array_equal(got.pairs(dim), ref.pairs(dim))
-
-
-def _cell_lattice(rng, shape, pitch=4):
-    """Bright walls on a lattice of period ``pitch`` around dark cells, with noise: one
-    cavity per cell (invented data)."""
-    grid = np.indices(shape)
-    wall = np.zeros(shape, bool)
-    for axis_coord in grid:
-        wall |= axis_coord % pitch == 0
-    image = np.where(wall, 180, 40) + rng.integers(0, 30, size=shape)
-    return image.astype(np.uint16)
 
 
 def test_matches_boundary_matrix_reduction_in_one_voxel_chunks():
@@ -65,7 +48,7 @@ def test_matches_boundary_matrix_reduction_in_one_voxel_chunks():
                 image = rng.integers(0, 4, size=shape).astype(np.uint8)
                 finite, essential, _ = oracle_pairs(image, conn, walls=walls)
                 for chunks in (tuple((1,) * s for s in shape),
-                               tuple(_random_chunks(rng, s, 3) for s in shape)):
+                               tuple(random_chunks(rng, s, 3) for s in shape)):
                     dgm = persistence_in_chunks(image, chunks, walls=walls, connectivity=conn)
                     for dim in (0, ndim - 1):
                         rows = dgm.pairs(dim)
@@ -79,20 +62,11 @@ def test_matches_boundary_matrix_reduction_in_one_voxel_chunks():
 @pytest.mark.parametrize("ndim", [2, 3])
 def test_equals_in_memory_on_random_volumes_and_chunks(ndim):
     # Identity with the whole-volume engine (common practice), ties and masks included.
-    rng = np.random.default_rng(ndim)
-    for case in range(40):
-        shape = tuple(int(rng.integers(1, 9)) for _ in range(ndim))
-        image = rng.integers(0, int(rng.choice([2, 5, 300])), size=shape)
-        image = image.astype(np.float32) - 2 if case % 3 == 0 else image.astype(np.uint16)
-        conn = (1, ndim)[case % 2]
-        walls = ("bright", "dark")[case // 2 % 2]
-        mask = None
-        if case % 4 == 3:
-            mask = rng.random(shape) < 0.7
-            mask.flat[0] = True
-        chunks = tuple(_random_chunks(rng, s, int(rng.integers(1, 5))) for s in shape)
+    for case in random_cases(np.random.default_rng(ndim), ndim, 40):
+        image, conn, walls, mask = case.image, case.connectivity, case.walls, case.mask
         ref = persistence(image, walls=walls, connectivity=conn, mask=mask)
-        got = persistence_in_chunks(image, chunks, walls=walls, connectivity=conn, mask=mask)
+        got = persistence_in_chunks(image, case.chunks, walls=walls, connectivity=conn,
+                                    mask=mask)
         _assert_same(ref, got)
         if mask is not None:  # essential H0 = components of the ROI (scipy.ndimage.label)
             count = ndi.label(mask, ndi.generate_binary_structure(ndim, conn))[1]
@@ -101,7 +75,7 @@ def test_equals_in_memory_on_random_volumes_and_chunks(ndim):
 
 def test_only_one_dimension():
     rng = np.random.default_rng(5)
-    image = _cell_lattice(rng, (9, 9, 9))
+    image = cell_lattice(rng, (9, 9, 9))
     chunks = ((2, 7), (5, 4), (3, 3, 3))
     for dims in ([0], [2]):
         _assert_same(persistence(image, dims=dims), persistence_in_chunks(image, chunks,
@@ -119,14 +93,9 @@ CLUSTER_CASES = [(1, "bright"), (3, "dark")]
 def test_dask_cluster_equals_in_memory(client, conn, walls):
     import dask.array as da
 
-    rng = np.random.default_rng([conn, walls == "bright"])
-    image = _cell_lattice(rng, (9, 9, 10))  # 8 cells, interiors 1..3 and 5..7 on each axis
-    if walls == "dark":
-        image = image.max() - image
-    mask = np.ones(image.shape, bool)
-    mask[:, :, 8:] = rng.random((9, 9, 2)) < 0.5  # a ragged ROI edge
-    chunks = ((2, 1, 3, 1, 2), (2, 4, 3), (3, 3, 4))  # slices 1 voxel thick through cells
-    lazy = da.from_array(image, chunks=chunks)
+    case = lattice_case(conn, walls)  # slices 1 voxel thick through cells, a ragged ROI
+    image, mask = case.image, case.mask
+    lazy = da.from_array(image, chunks=case.chunks)
     ref = persistence(image, walls=walls, connectivity=conn, mask=mask)
     got = persistence(lazy, walls=walls, connectivity=conn, mask=da.from_array(mask, chunks=5))
     _assert_same(ref, got)
@@ -138,7 +107,7 @@ def test_zarr_and_hdf5_are_read_chunk_by_chunk(client, tmp_path):
     zarr = pytest.importorskip("zarr", reason="zarr (extra 'zarr') is not installed")
     h5py = pytest.importorskip("h5py", reason="h5py (extra 'hdf5') is not installed")
     rng = np.random.default_rng(7)
-    image = _cell_lattice(rng, (9, 7, 9))
+    image = cell_lattice(rng, (9, 7, 9))
     ref = persistence(image, connectivity=3)
     stored = zarr.open_array(str(tmp_path / "v.zarr"), mode="w", shape=image.shape,
                              chunks=(4, 3, 9), dtype=image.dtype)
@@ -156,7 +125,7 @@ def test_dask_cluster_2d_image(client):  # with an empty chunk, as slicing leave
     import dask.array as da
 
     rng = np.random.default_rng(9)
-    image = _cell_lattice(rng, (11, 13))
+    image = cell_lattice(rng, (11, 13))
     for conn, walls in ((1, "dark"), (2, "bright")):
         _assert_same(persistence(image, connectivity=conn, walls=walls),
                      persistence(da.from_array(image, chunks=((3, 0, 8), (1, 5, 7))),

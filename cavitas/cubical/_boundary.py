@@ -50,8 +50,8 @@ from ._seam_kernels import (
 )
 from ._sort import engine_array, sort_voxels
 
-__all__ = ["Box", "BoundaryTree", "PairRows", "Summary", "SweepPlan", "Swept", "join_boxes",
-           "sweep_chunk"]
+__all__ = ["Box", "BoundaryTree", "MergeRecords", "PairRows", "Summary", "SweepPlan", "Swept",
+           "join_boxes", "sweep_chunk"]
 
 
 @dataclass(frozen=True)
@@ -68,6 +68,7 @@ class SweepPlan:
     h0: bool
     cavities: bool
     name: str = "image"
+    merges: bool = False  # also record what the cavity tree needs (MergeRecords)
 
     @property
     def bright(self) -> bool:
@@ -158,11 +159,46 @@ class Summary:
 
 
 @dataclass(frozen=True)
+class MergeRecords:
+    """The merges of the cavity sweep settled by one chunk sweep or one join, for the
+    cavity tree (:mod:`._chunked_tree`); voxels are global flat indices, ``-1`` the outside.
+
+    Attributes
+    ----------
+    dying, dying_value : (p,) int64, float64
+        Root voxel of each component whose death is final (a node of the tree: its core)
+        and its value; zero persistence included.
+    breach, breach_value : (p,) int64, float64
+        The voxel whose arrival merged it, and its value.
+    anchor : (p,) int64
+        The eldest root it merged into here: the node's parent is the root of the anchor's
+        component, in the whole volume, right after the breach.
+    redirect_from, redirect_to : (r,) int64
+        A seam voxel found here to start no component, and the root whose component it
+        joined on arrival.
+    flagged_roots : (f,) int64
+        Chunk sweeps only: the roots of the components that reached a seam (the births of
+        the boundary tree), whose root in the whole volume changes over the sweep.
+    """
+
+    dying: np.ndarray
+    dying_value: np.ndarray
+    breach: np.ndarray
+    breach_value: np.ndarray
+    anchor: np.ndarray
+    redirect_from: np.ndarray
+    redirect_to: np.ndarray
+    flagged_roots: np.ndarray
+
+
+@dataclass(frozen=True)
 class PairRows:
-    """Final pairs (:data:`PAIR_DTYPE` rows) settled by one chunk sweep or one join."""
+    """Final pairs (:data:`PAIR_DTYPE` rows) settled by one chunk sweep or one join, and
+    the cavity sweep's merge records when the plan asks for them."""
 
     h0: np.ndarray
     cavities: np.ndarray
+    merges: MergeRecords | None = None
 
 
 @dataclass(frozen=True)
@@ -183,14 +219,32 @@ def _refused(box: Box, nonfinite: int) -> Swept:
 
 
 def _each_sweep(box: Box, plan: SweepPlan,
-                sweep: Callable[[bool], tuple[np.ndarray, BoundaryTree]]) -> Swept:
-    """``sweep(cavity)`` for each sweep the plan asks for (H0, then cavities)."""
+                sweep: Callable[[bool], tuple[np.ndarray, BoundaryTree, MergeRecords | None]]
+                ) -> Swept:
+    """``sweep(cavity)`` for each sweep the plan asks for (H0, then cavities). With merge
+    records the cavity rows are left out: the records hold every pair and more."""
     rows = {False: _empty_rows(), True: _empty_rows()}
     trees: dict[bool, BoundaryTree | None] = {False: None, True: None}
+    merges = None
     for cavity, wanted in ((False, plan.h0), (True, plan.cavities)):
         if wanted:
-            rows[cavity], trees[cavity] = sweep(cavity)
-    return Swept(PairRows(rows[False], rows[True]), Summary(box, trees[False], trees[True]))
+            rows[cavity], trees[cavity], found = sweep(cavity)
+            if found is not None:
+                rows[cavity], merges = _empty_rows(), found
+    return Swept(PairRows(rows[False], rows[True], merges),
+                 Summary(box, trees[False], trees[True]))
+
+
+def _merge_records(pairs: np.ndarray, voxel: np.ndarray, value: np.ndarray,
+                   redirects: np.ndarray, flagged_roots: np.ndarray) -> MergeRecords:
+    """:class:`MergeRecords` of a sweep's final ``(dying, merging, eldest)`` rows and its
+    ``(vertex, eldest root)`` redirects, in a sweep's vertex ids (``voxel`` and ``value``
+    map them)."""
+    return MergeRecords(
+        dying=voxel[pairs[:, 0]], dying_value=value[pairs[:, 0]], breach=voxel[pairs[:, 1]],
+        breach_value=value[pairs[:, 1]], anchor=voxel[pairs[:, 2]],
+        redirect_from=voxel[redirects[:, 0]], redirect_to=voxel[redirects[:, 1]],
+        flagged_roots=voxel[flagged_roots])
 
 
 def _rows(pairs: np.ndarray, open_roots: np.ndarray, voxel: np.ndarray, value: np.ndarray,
@@ -238,8 +292,10 @@ def _outside_value(plan: SweepPlan) -> float:
 
 
 def _chunk_tree(values: np.ndarray, order: np.ndarray, mask: np.ndarray | None, box: Box,
-                plan: SweepPlan, cavity: bool) -> tuple[np.ndarray, BoundaryTree]:
-    """One sweep of a chunk: its final rows and its boundary tree."""
+                plan: SweepPlan, cavity: bool
+                ) -> tuple[np.ndarray, BoundaryTree, MergeRecords | None]:
+    """One sweep of a chunk: its final rows, its boundary tree and (cavity sweep, if the
+    plan asks) its merge records."""
     nz, ny, nx = box.shape
     n = nz * ny * nx
     local_shape = box.shape if plan.ndim == 3 else box.shape[1:]
@@ -275,7 +331,20 @@ def _chunk_tree(values: np.ndarray, order: np.ndarray, mask: np.ndarray | None, 
     tree = BoundaryTree(voxel=vertex_voxel[compact(nodes[:, 0])],
                         value=vertex_value[compact(nodes[:, 0])], parent=nodes[:, 1].copy(),
                         faces=faces)
-    return rows, tree
+    merges = None
+    if cavity and plan.merges:
+        merges = _merge_records(compact(pairs), vertex_voxel, vertex_value,
+                                np.empty((0, 2), np.int64), compact(_births(nodes, n)))
+    return rows, tree, merges
+
+
+def _births(nodes: np.ndarray, outside: int) -> np.ndarray:
+    """The vertices of a boundary tree's leaves but the outside: the births of the
+    components that reached a seam (every other node joins a component below it)."""
+    has_child = np.zeros(len(nodes), bool)
+    has_child[nodes[nodes[:, 1] >= 0, 1]] = True
+    leaves = nodes[~has_child, 0]
+    return leaves[leaves != outside]
 
 
 def sweep_chunk(block: np.ndarray, mask: np.ndarray | None, box: Box,
@@ -380,8 +449,9 @@ def _tree_edges(tree: BoundaryTree, ids: np.ndarray) -> np.ndarray:
 
 
 def _join_trees(a: Summary, b: Summary, axis: int, plan: SweepPlan, cavity: bool,
-                box: Box) -> tuple[np.ndarray, BoundaryTree]:
-    """Sweep the graph of two boundary trees and their seam: final rows, joined tree."""
+                box: Box) -> tuple[np.ndarray, BoundaryTree, MergeRecords | None]:
+    """Sweep the graph of two boundary trees and their seam: final rows, joined tree and
+    (cavity sweep, if the plan asks) merge records."""
     tree_a = a.cavities if cavity else a.h0
     tree_b = b.cavities if cavity else b.h0
     assert tree_a is not None and tree_b is not None
@@ -411,15 +481,24 @@ def _join_trees(a: Summary, b: Summary, axis: int, plan: SweepPlan, cavity: bool
         on_seam[voxel == -1] = True  # the outside is shared with every other box
     order = _merged_order(voxel, value, na, plan, cavity)
     order = order[vertices[order]]
-    nodes, final, open_roots = graph_sweep(n, order, start, adjacent, on_seam)
+    undecided = np.zeros(n, bool)  # vertices on a seam of their own box
+    for tree, ids in ((tree_a, ids_a), (tree_b, ids_b)):
+        for face in tree.faces.values():
+            undecided[ids[face[face >= 0]]] = True
+    undecided[voxel == -1] = False
+    nodes, final, open_roots, redirects = graph_sweep(n, order, start, adjacent, on_seam,
+                                                      undecided)
     nodes = _in_sweep_order(nodes)
     rows = _rows(final, open_roots, voxel, value, cavity, plan.bright)
+    merges = None
+    if cavity and plan.merges:
+        merges = _merge_records(final, voxel, value, redirects, np.empty(0, np.int64))
     new_id = np.full(n, -1, np.int64)
     new_id[nodes[:, 0]] = np.arange(len(nodes))
     tree = BoundaryTree(voxel=voxel[nodes[:, 0]], value=value[nodes[:, 0]],
                         parent=nodes[:, 1].copy(),
                         faces={side: _renumbered(face, new_id) for side, face in faces.items()})
-    return rows, tree
+    return rows, tree, merges
 
 
 def join_boxes(a: Summary, b: Summary, axis: int, plan: SweepPlan) -> Swept:

@@ -29,8 +29,9 @@ from ._diagram import Diagram
 from ._neighbors import check_connectivity, grid_shape3
 from ._sort import supported
 
-__all__ = ["as_dask_array", "chunked_persistence", "is_chunked", "join_in_pairs",
-           "persistence_in_chunks"]
+__all__ = ["as_dask_array", "chunk_window", "chunked_persistence", "is_chunked",
+           "join_in_pairs", "lazy_image", "lazy_mask_blocks", "persistence_in_chunks",
+           "swept_here", "swept_on_dask"]
 
 Item = TypeVar("Item")
 
@@ -173,18 +174,27 @@ def persistence_in_chunks(image: np.ndarray, chunks: Sequence[Sequence[int]], *,
     image = np.asarray(image)
     wanted = _dims(dims, image.ndim)
     plan = _plan(image.shape, image.dtype, walls, connectivity, wanted)
+    parts, root = swept_here(image, mask, chunks, plan)
+    return _diagram(parts, root, plan, mask is not None)
+
+
+def chunk_window(box: Box, plan: SweepPlan) -> tuple[slice, ...]:
+    """The slices of the image that ``box`` covers (2D images: without the z axis)."""
+    where = tuple(slice(lo, hi) for lo, hi in zip(box.start, box.stop, strict=True))
+    return where if plan.ndim == 3 else where[1:]
+
+
+def swept_here(image: np.ndarray, mask: np.ndarray | None, chunks: Sequence[Sequence[int]],
+               plan: SweepPlan) -> tuple[list[PairRows], Summary]:
+    """Every chunk swept and every join made in this process: the settled rows of each
+    step (the chunks first, in :func:`_boxes` order) and the last summary."""
     boxes = _boxes(chunks, image.ndim)
     parts: list[PairRows] = []
-
-    def window(box: Box) -> tuple[slice, ...]:
-        where = tuple(slice(lo, hi) for lo, hi in zip(box.start, box.stop, strict=True))
-        return where if plan.ndim == 3 else where[1:]
-
     summaries = np.empty(boxes.shape, object)
     for idx in np.ndindex(*boxes.shape):
-        box = boxes[idx]
-        swept = sweep_chunk(image[window(box)], None if mask is None else mask[window(box)],
-                            box, plan)
+        where = chunk_window(boxes[idx], plan)
+        swept = sweep_chunk(image[where], None if mask is None else mask[where], boxes[idx],
+                            plan)
         parts.append(swept.rows)
         summaries[idx] = swept.summary
 
@@ -194,7 +204,7 @@ def persistence_in_chunks(image: np.ndarray, chunks: Sequence[Sequence[int]], *,
         return swept.summary
 
     root = join_in_pairs(summaries, join)
-    return _diagram(parts, root, plan, mask is not None)
+    return parts, root
 
 
 def _dims(dims: Any, ndim: int) -> tuple[int, ...]:
@@ -253,19 +263,36 @@ def chunked_persistence(image: Any, *, walls: str = "bright", connectivity: int 
     >>> dgm.pairs(1)[["birth", "death"]].tolist()
     [(9.0, 1.0)]
     """
+    image = lazy_image(image)
+    wanted = _dims(dims, image.ndim)
+    plan = _plan(tuple(image.shape), image.dtype, walls, connectivity, wanted)
+    computed = swept_on_dask(image, lazy_mask_blocks(mask, image), plan)
+    return _diagram(computed[:-1], computed[-1], plan, mask is not None)
+
+
+def lazy_image(image: Any) -> Any:
+    """``image`` as a Dask array without empty chunks (slicing leaves them)."""
+    image = as_dask_array(image)
+    if any(0 in sizes for sizes in image.chunks):
+        image = image.rechunk(tuple(tuple(c for c in sizes if c) or (0,)
+                                    for sizes in image.chunks))
+    return image
+
+
+def lazy_mask_blocks(mask: Any, image: Any) -> np.ndarray | None:
+    """``mask`` (checked as in memory) as one delayed block per chunk of ``image``, in
+    :func:`_boxes` order; None stays None."""
+    if mask is None:
+        return None
+    return _checked_mask(mask, tuple(image.shape), image.chunks).to_delayed().reshape(-1)
+
+
+def swept_on_dask(image: Any, masks: np.ndarray | None, plan: SweepPlan) -> list[Any]:
+    """Every chunk swept and every join made on Dask's scheduler: the settled rows of each
+    step (the chunks first, in :func:`_boxes` order), then the last summary."""
     import dask
     from dask import delayed
 
-    image = as_dask_array(image)
-    if any(0 in sizes for sizes in image.chunks):  # empty chunks (after slicing) hold no box
-        image = image.rechunk(tuple(tuple(c for c in sizes if c) or (0,)
-                                    for sizes in image.chunks))
-    wanted = _dims(dims, image.ndim)
-    plan = _plan(tuple(image.shape), image.dtype, walls, connectivity, wanted)
-    masks = None
-    if mask is not None:
-        mask = _checked_mask(mask, tuple(image.shape), image.chunks)
-        masks = mask.to_delayed().reshape(-1)
     boxes = _boxes(image.chunks, image.ndim)
     blocks = image.to_delayed().reshape(-1)
     sweep = delayed(_chunk_task, nout=2, pure=True)
@@ -283,8 +310,7 @@ def chunked_persistence(image: Any, *, walls: str = "bright", connectivity: int 
         return summary
 
     root = join_in_pairs(summaries, joined)
-    computed = dask.compute(*parts, root)
-    return _diagram(computed[:-1], computed[-1], plan, mask is not None)
+    return list(dask.compute(*parts, root))
 
 
 def _checked_mask(mask: Any, shape: tuple[int, ...], chunks: Any) -> Any:

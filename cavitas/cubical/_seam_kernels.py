@@ -34,7 +34,8 @@ from numba import njit
 from ._kernels import _find_neg, add_distinct, eldest_root
 from ._neighbors import is_interior, neighbor_or_outside, unravel3
 
-__all__ = ["adjacency", "chunk_sweep", "graph_sweep", "merge_orders"]
+__all__ = ["adjacency", "chunk_roots", "chunk_sweep", "graph_sweep", "is_seam_voxel",
+           "merge_orders", "outside_first"]
 
 #: Face states of a chunk, per side (z low, z high, y low, y high, x low, x high).
 CLOSED = 0  # nothing lies beyond (the z sides of a 2D image)
@@ -85,12 +86,22 @@ def _push_node(nodes, count, vertex, parent_node, position):
 
 
 @njit(cache=True, inline="always")
+def _push_pair(pairs, count, dying, vertex, eldest):
+    pairs, count = _push(pairs, count, dying, vertex)
+    pairs[count - 1, 2] = eldest
+    return pairs, count
+
+
+@njit(cache=True, inline="always")
 def _arrive(v, code, on_seam, roots, nr, parent, last, nodes, nn, pairs, npairs):
     """Vertex ``v`` joins the components ``roots[:nr]`` of its visited neighbours.
 
     ``nodes[i] = (vertex, parent node, sweep position)`` is the boundary tree; ``pairs[i]
-    = (dying root, v)`` the final pairs (those of zero persistence too: the caller, which
-    knows the values, drops them). Returns the grown arrays and counts.
+    = (dying root, v, eldest root)`` the final pairs (those of zero persistence too: the
+    caller, which knows the values, drops them for the diagram; the cavity tree keeps
+    them). The eldest root is the *anchor* of the death: the dying node's parent in the
+    whole volume is the root of the anchor's component right after ``v``
+    (:mod:`._chunked_tree`). Returns the grown arrays and counts.
     """
     if nr == 0:
         parent[v] = code
@@ -118,7 +129,7 @@ def _arrive(v, code, on_seam, roots, nr, parent, last, nodes, nn, pairs, npairs)
         r = roots[q]
         if r != best:
             if last[r] < 0:
-                pairs, npairs = _push(pairs, npairs, r, v)
+                pairs, npairs = _push_pair(pairs, npairs, r, v, best)
             parent[r] = best
     parent[v] = best
     if keep:
@@ -127,7 +138,8 @@ def _arrive(v, code, on_seam, roots, nr, parent, last, nodes, nn, pairs, npairs)
 
 
 @njit(cache=True, inline="always")
-def _on_seam(z, y, x, nz, ny, nx, faces):
+def is_seam_voxel(z, y, x, nz, ny, nx, faces):
+    """Whether chunk voxel ``(z, y, x)`` lies on a side that is a :data:`SEAM`."""
     return ((z == 0 and faces[0] == SEAM) or (z == nz - 1 and faces[1] == SEAM)
             or (y == 0 and faces[2] == SEAM) or (y == ny - 1 and faces[3] == SEAM)
             or (x == 0 and faces[4] == SEAM) or (x == nx - 1 and faces[5] == SEAM))
@@ -139,6 +151,44 @@ def _beyond_border(zz, yy, xx, nz, ny, nx, faces):
     return ((zz < 0 and faces[0] == BORDER) or (zz >= nz and faces[1] == BORDER)
             or (yy < 0 and faces[2] == BORDER) or (yy >= ny and faces[3] == BORDER)
             or (xx < 0 and faces[4] == BORDER) or (xx >= nx and faces[5] == BORDER))
+
+
+@njit(cache=True, inline="always")
+def outside_first(parent, mask, use_mask):
+    """Start a cavity sweep's union-find: the outside (the last slot) visited, the eldest
+    root, and every voxel outside the mask already in it."""
+    n = parent.shape[0] - 1
+    parent[n] = -2
+    if use_mask:
+        for i in range(n):
+            if not mask[i]:
+                parent[i] = n
+
+
+@njit(cache=True, inline="always")
+def chunk_roots(v, z, y, x, cavity, parent, roots, offsets_flat, offsets_zyx, nz, ny, nx,
+                zmargin, faces):
+    """The distinct roots of the visited neighbours of chunk voxel ``v`` (at ``z, y, x``)
+    into ``roots``; their count. In a cavity sweep a border side's beyond is the outside
+    (slot ``nz * ny * nx``); a seam side's beyond is not seen."""
+    n = nz * ny * nx
+    interior = is_interior(z, y, x, nz, ny, nx, zmargin)
+    nr = 0
+    for k in range(offsets_flat.shape[0]):
+        if interior:
+            w = v + offsets_flat[k]
+        else:
+            w = neighbor_or_outside(v, z, y, x, k, offsets_flat, offsets_zyx, nz, ny, nx)
+            if w < 0:
+                if not cavity or not _beyond_border(
+                        z + offsets_zyx[k, 0], y + offsets_zyx[k, 1], x + offsets_zyx[k, 2],
+                        nz, ny, nx, faces):
+                    continue
+                w = n
+        if parent[w] == -1:
+            continue
+        nr = add_distinct(roots, nr, _find_neg(parent, w))
+    return nr
 
 
 @njit(cache=True, nogil=True)
@@ -165,8 +215,9 @@ def chunk_sweep(order, cavity, mask, use_mask, offsets_flat, offsets_zyx, nz, ny
     nodes : (k, 3) int64
         Boundary tree: local vertex (``n`` for the outside), parent node (``-1``: none
         yet) and position in the sweep (``-1`` for the outside).
-    pairs : (p, 2) int64
-        Final pairs: dying root and the vertex that merged it (zero persistence included).
+    pairs : (p, 3) int64
+        Final pairs: dying root, the vertex that merged it and the eldest root it merged
+        into (zero persistence included).
     roots : int64 array
         Unflagged roots left at the end (H0: essential classes), in sweep order.
     """
@@ -174,47 +225,28 @@ def chunk_sweep(order, cavity, mask, use_mask, offsets_flat, offsets_zyx, nz, ny
     parent = np.full(n + 1, -1, order.dtype)
     last = np.empty(n + 1, order.dtype)
     nodes = np.empty((64, 3), np.int64)
-    pairs = np.empty((64, 2), np.int64)
+    pairs = np.empty((64, 3), np.int64)
     nn = 0
     npairs = 0
     if cavity:
-        parent[n] = -2
+        outside_first(parent, mask, use_mask)
         nodes, nn = _push_node(nodes, nn, n, -1, -1)
         last[n] = 0
-        if use_mask:
-            for i in range(n):
-                if not mask[i]:
-                    parent[i] = n
-    nk = offsets_flat.shape[0]
-    roots = np.empty(nk + 1, parent.dtype)
+    roots = np.empty(offsets_flat.shape[0] + 1, parent.dtype)
     m = order.shape[0]
     for j in range(m):
         v = order[j] if cavity else order[m - 1 - j]
         z, y, x = unravel3(v, ny, nx)
-        interior = is_interior(z, y, x, nz, ny, nx, zmargin)
-        nr = 0
-        for k in range(nk):
-            if interior:
-                w = v + offsets_flat[k]
-            else:
-                w = neighbor_or_outside(v, z, y, x, k, offsets_flat, offsets_zyx, nz, ny, nx)
-                if w < 0:
-                    if not cavity or not _beyond_border(
-                            z + offsets_zyx[k, 0], y + offsets_zyx[k, 1], x + offsets_zyx[k, 2],
-                            nz, ny, nx, faces):
-                        continue
-                    w = n
-            if parent[w] == -1:
-                continue
-            nr = add_distinct(roots, nr, _find_neg(parent, w))
-        on_seam = _on_seam(z, y, x, nz, ny, nx, faces)
+        nr = chunk_roots(v, z, y, x, cavity, parent, roots, offsets_flat, offsets_zyx, nz, ny,
+                         nx, zmargin, faces)
+        on_seam = is_seam_voxel(z, y, x, nz, ny, nx, faces)
         nodes, nn, pairs, npairs = _arrive(v, -(j + 3), on_seam, roots, nr, parent, last,
                                            nodes, nn, pairs, npairs)
     return nodes[:nn].copy(), pairs[:npairs].copy(), _open_roots(order, not cavity, parent, last)
 
 
 @njit(cache=True, nogil=True)
-def graph_sweep(n, order, start, adjacent, on_seam):
+def graph_sweep(n, order, start, adjacent, on_seam, undecided):
     """The same sweep over a graph: the boundary trees of two boxes joined along a seam.
 
     Parameters
@@ -228,18 +260,27 @@ def graph_sweep(n, order, start, adjacent, on_seam):
         Neighbours of vertex ``i``: ``adjacent[start[i]:start[i + 1]]``.
     on_seam : (n,) bool
         Vertices on a seam of the joined box.
+    undecided : (n,) bool
+        Vertices that lay on a seam of their own box: whether they start a component of
+        the whole volume was not known before this sweep.
 
     Returns
     -------
     nodes, pairs, roots
         As for :func:`chunk_sweep`, in vertex ids of the graph.
+    redirects : (r, 2) int64
+        ``(vertex, eldest root)`` for each undecided vertex that leaves the seams here and
+        joins a component on arrival (so it starts none): from its arrival on it shares
+        the component of that root.
     """
     parent = np.full(n, -1, np.int64)
     last = np.empty(n, np.int64)
     nodes = np.empty((64, 3), np.int64)
-    pairs = np.empty((64, 2), np.int64)
+    pairs = np.empty((64, 3), np.int64)
+    redirects = np.empty((64, 2), np.int64)
     nn = 0
     npairs = 0
+    nred = 0
     degree = 0
     for i in range(n):
         degree = max(degree, start[i + 1] - start[i])
@@ -251,9 +292,12 @@ def graph_sweep(n, order, start, adjacent, on_seam):
             w = adjacent[e]
             if parent[w] != -1:
                 nr = add_distinct(roots, nr, _find_neg(parent, w))
+        if nr > 0 and undecided[v] and not on_seam[v]:
+            redirects, nred = _push(redirects, nred, v, eldest_root(parent, roots, nr))
         nodes, nn, pairs, npairs = _arrive(v, -(j + 3), on_seam[v], roots, nr, parent, last,
                                            nodes, nn, pairs, npairs)
-    return nodes[:nn].copy(), pairs[:npairs].copy(), _open_roots(order, False, parent, last)
+    return (nodes[:nn].copy(), pairs[:npairs].copy(), _open_roots(order, False, parent, last),
+            redirects[:nred].copy())
 
 
 @njit(cache=True, nogil=True)
