@@ -62,7 +62,23 @@ def test_detection_scale_choice(counts, white, index):
     from cavitas.segment._detect import TEXTURED_SCALE_SHARE, chosen_scale
 
     assert TEXTURED_SCALE_SHARE == 0.9  # the cases above are built for this share
-    assert chosen_scale(counts, white=white) == index
+    assert chosen_scale(counts, [0.0, 0.5, 1.0, 1.5][:len(counts)], white=white) == index
+
+
+@pytest.mark.parametrize(("grain", "index"), [
+    (0.0, 2),   # scales up to 1 voxel: [3, 5, 9] -> 9 is the largest, 5 < 8.1
+    (0.7, 2),   # a grain below one voxel: the same
+    (1.6, 3),   # up to 1.6 voxels: [3, 5, 9, 11] -> 11 (9 < 9.9)
+    (3.0, 4),   # every scale: 14 is the largest, 11 < 12.6
+])
+def test_textured_scale_choice_stays_within_the_grain(grain, index):
+    # The rule's definition (cavitas.segment._detect.chosen_scale), on constructed counts
+    # that grow with the smoothing as organelles turn into blobs (EM crops, measured).
+    from cavitas.segment._detect import chosen_scale
+
+    counts, sigmas = [3, 5, 9, 11, 14], [0.0, 0.5, 1.0, 1.5, 3.0]
+    assert chosen_scale(counts, sigmas, white=False, grain=grain) == index
+    assert chosen_scale(counts, sigmas, white=True, grain=grain) == 4
 
 
 @pytest.mark.parametrize("white", [False, True])
@@ -73,5 +89,6 @@ def test_the_run_reports_the_scale_its_rule_chose(white):
 
     seg = cavitas.segment(_grid_with_pocket(0.0, white))
     tried = seg.params["scales_tried"]
-    index = chosen_scale([t["count"] for t in tried], white=white)
+    index = chosen_scale([t["count"] for t in tried], [t["sigma"] for t in tried],
+                         white=white, grain=seg.params["noise_correlation"])
     assert seg.params["smooth_sigma"] == pytest.approx(tried[index]["sigma"])
