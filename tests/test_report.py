@@ -205,11 +205,12 @@ def test_histogram_counts_equal_the_table():
     fig = plot_histograms(table)
     assert [ax.get_xlabel() for ax in fig.axes] == ["volume [µm³]", "sphericity"]
     for ax, values in zip(fig.axes, (volume, sphericity[:197]), strict=True):
-        heights = np.array([p.get_height() for p in ax.patches])
-        edges = np.array([p.get_x() for p in ax.patches] + [ax.patches[-1].get_x()
-                                                             + ax.patches[-1].get_width()])
+        (bars,) = [c for c in ax.collections if c.get_gid() == "bars"]
+        corners = np.array([path.vertices[:4] for path in bars.get_paths()])
+        heights, edges = corners[:, 2, 1], np.r_[corners[:, 0, 0], corners[-1, 1, 0]]
         assert heights.sum() == len(values)
         np.testing.assert_array_equal(heights, np.histogram(values, bins=edges)[0])
+        assert ax.get_ylim()[0] == 0  # the bars rest on the axis
     assert fig.axes[0].get_xscale() == "log"  # volumes span more than 100×
     assert "3 not finite" in fig.axes[1].get_title()
     assert plot_histograms(Table({"label": [1, 2]})) is None
