@@ -38,7 +38,7 @@ def _bars(values: np.ndarray, edges: np.ndarray, *, color: str, hatch: str) -> P
     left, right, ground = edges[:-1], edges[1:], np.zeros(len(counts))
     corners = np.stack([np.c_[left, ground], np.c_[right, ground], np.c_[right, counts],
                         np.c_[left, counts]], axis=1)
-    bars = PolyCollection(corners, closed=True, facecolors=color, edgecolors="black",
+    bars = PolyCollection(list(corners), closed=True, facecolors=color, edgecolors="black",
                           linewidths=0.6, hatch=hatch, gid="bars")
     bars.sticky_edges.y.append(0)
     return bars

@@ -11,6 +11,7 @@ collections: the white halos, then the dark glyphs.
 from __future__ import annotations
 
 from collections.abc import Sequence
+from dataclasses import dataclass
 from functools import lru_cache
 
 import numpy as np
@@ -25,34 +26,56 @@ from matplotlib.transforms import Affine2D
 __all__ = ["add_numbers", "number_paths"]
 
 
-@lru_cache(maxsize=8)
-def _glyphs(size: float, dpi: float) -> tuple[dict[str, Path], dict[str, float],
-                                              dict[str, float], float]:
-    """What Matplotlib's Agg text layout uses for a digit string, in points.
+@dataclass(frozen=True)
+class _Digits:
+    """What Matplotlib's Agg text layout uses for a digit string at one size, in points.
 
-    Each digit's outline and advance (where the next glyph starts); its width in the
-    layout at ``dpi`` (hinted whole pixels), which ``ha="center"`` halves; and how far the
-    baseline lies below the centre of the line box that ``va="center"`` centres (the
-    font's typographic ascender and descender, which a digit never exceeds).
+    ``vertices`` and ``codes``: each digit's outline; ``advance``: where the next glyph
+    starts; ``laid``: the digit's width in the layout at the drawing resolution (hinted
+    whole pixels), which ``ha="center"`` halves; ``drop``: how far the baseline lies below
+    the centre of the line box that ``va="center"`` centres (:func:`_drop`; a digit never
+    reaches beyond the font's ascender and descender).
     """
+
+    vertices: dict[str, np.ndarray]
+    codes: dict[str, np.ndarray]
+    advance: dict[str, float]
+    laid: dict[str, float]
+    drop: float
+
+
+def _drop(prop: FontProperties, layout: RendererAgg) -> float:
+    """How far the baseline lies below the centre of a one-line text box, in points: the
+    box of the font's typographic ascender and descender (else its horizontal header's),
+    or, for a font with neither, of ``"lp"`` as laid out (Matplotlib's own order)."""
+    font = get_font(findfont(prop))
+    head, os2, hhea = (font.get_sfnt_table("head"), font.get_sfnt_table("OS/2"),
+                       font.get_sfnt_table("hhea"))
+    size = prop.get_size_in_points()
+    if head is not None and os2 is not None:
+        return (os2["sTypoAscender"] + os2["sTypoDescender"]) / 2 / head["unitsPerEm"] * size
+    if head is not None and hhea is not None:
+        return (hhea["ascent"] + hhea["descent"]) / 2 / head["unitsPerEm"] * size
+    _, height, descent = layout.get_text_width_height_descent("lp", prop, ismath=False)
+    return (height / 2 - descent) * 72 / layout.dpi
+
+
+@lru_cache(maxsize=8)
+def _digits(size: float, dpi: float) -> _Digits:
+    """The :class:`_Digits` of the default font at ``size`` points drawn at ``dpi``."""
     prop = FontProperties(size=size)
-    outlines = {c: TextPath((0, 0), c, prop=prop) for c in "0123456789"}
-    advance, laid = {}, {}
     layout = RendererAgg(1, 1, dpi)
-    for c in outlines:
+    vertices, codes, advance, laid = {}, {}, {}, {}
+    for c in "0123456789":
+        outline = TextPath((0, 0), c, prop=prop)
+        vertices[c] = np.asarray(outline.vertices, np.float64)
+        codes[c] = np.asarray(outline.codes, Path.code_type)
         one = text_to_path.get_text_width_height_descent(c, prop, ismath=False)[0]
         two = text_to_path.get_text_width_height_descent(c + c, prop, ismath=False)[0]
-        advance[c] = two - one
-        laid[c] = layout.get_text_width_height_descent(c, prop, ismath=False)[0] * 72 / dpi
-    font = get_font(findfont(prop))
-    em = font.get_sfnt_table("head")["unitsPerEm"]
-    os2 = font.get_sfnt_table("OS/2")
-    if os2 is not None:
-        ascent, descent = os2["sTypoAscender"], -os2["sTypoDescender"]
-    else:  # a font without the OS/2 table: its horizontal header
-        hhea = font.get_sfnt_table("hhea")
-        ascent, descent = hhea["ascent"], -hhea["descent"]
-    return outlines, advance, laid, (ascent - descent) / 2 / em * size
+        advance[c] = float(two - one)
+        width = layout.get_text_width_height_descent(c, prop, ismath=False)[0]
+        laid[c] = float(width) * 72 / dpi
+    return _Digits(vertices, codes, advance, laid, _drop(prop, layout))
 
 
 def number_paths(texts: Sequence[str], size: float, *, dpi: float = 100) -> list[Path]:
@@ -65,14 +88,14 @@ def number_paths(texts: Sequence[str], size: float, *, dpi: float = 100) -> list
     >>> len(paths), bool(paths[1].get_extents().width > paths[0].get_extents().width)
     (2, True)
     """
-    outlines, advance, laid, drop = _glyphs(float(size), float(dpi))
+    digits = _digits(float(size), float(dpi))
     paths = []
     for text in texts:
-        parts, codes, x = [], [], -sum(laid[c] for c in text) / 2
+        parts, codes, x = [], [], -sum(digits.laid[c] for c in text) / 2
         for c in text:
-            parts.append(outlines[c].vertices + (x, -drop))
-            codes.append(outlines[c].codes)
-            x += advance[c]
+            parts.append(digits.vertices[c] + np.array([x, -digits.drop]))
+            codes.append(digits.codes[c])
+            x += digits.advance[c]
         paths.append(Path(np.concatenate(parts), np.concatenate(codes)))
     return paths
 
