@@ -40,17 +40,16 @@ from bench.segment_accuracy import classical
 NAME = "whole_run"
 #: run.json's steps, in the order a run takes them.
 STEPS = ("read", "segment", "measure", "write", "report")
-#: The ratios of this benchmark before the kernels for Otsu's split and the nearest labelled
-#: voxel, the polarity check on the negated detection image and the column-wise CSV
-#: cells (measured at commit 4e7eacc on the same 2-core machine, busy): printed beside
-#: today's.
+#: The figures of this benchmark, with this method, before the report's region numbers
+#: became two collections and its diagram was no longer drawn twice (commit 943dc7c, two
+#: runs on the same 2-core machine, busy): printed beside today's.
 BEFORE = {
-    "2D 512²: segment() / watershed pipeline": "2.84",
-    "3D 128³: segment() / watershed pipeline": "1.05",
-    "2D 512²: cavitas segment / segment()": "8.32 (2.7 s)",
-    "3D 128³: cavitas segment / segment()": "3.17 (7.5 s)",
-    "2D 512²: report / run without it": "41 %",
-    "3D 128³: report / run without it": "21 %",
+    "2D 512²: segment() / watershed pipeline": "2.27–2.67",
+    "3D 128³: segment() / watershed pipeline": "0.98–1.54",
+    "2D 512²: cavitas segment / segment()": "10.2–10.5 (2.65–2.75 s)",
+    "3D 128³: cavitas segment / segment()": "1.74–1.86 (5.1–6.1 s)",
+    "2D 512²: report / run without it": "37–38 %",
+    "3D 128³: report / run without it": "23 %",
 }
 
 
