@@ -88,12 +88,17 @@ def _diagram_table(seg: Any) -> Table:
 
 
 def _diagram_plot(seg: Any, path: Path, *, force: bool) -> None:
-    """The cavity diagram, kept features filled, the threshold band shaded."""
-    from .report.diagram_plots import plot_diagram, save_figure
+    """The cavity diagram, kept features filled, the threshold band shaded (the report
+    shows this picture too)."""
+    from ._shared.units import length_unit
+    from .report.diagram_plots import plot_diagram, save_figure, smoothing_phrase
 
     dim = seg.diagram.cavity_dim
     fig = plot_diagram(seg.diagram, dims=dim, highlight={dim: seg.kept},
                        threshold=seg.threshold)
+    at = smoothing_phrase(seg.params.get("smooth_sigma"),
+                          length_unit(seg.volume.unit, seg.volume.ndim))
+    fig.axes[0].set_title(f"Persistence diagram {at}".strip(), fontsize=10)
     save_figure(fig, path, force=force)
 
 
@@ -344,7 +349,8 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
                 params=seg.params, figures=figures, title=safe_text(source.name),
                 source=safe_text(str(source)),
                 notes=[note for note in notes.values() if note],
-                euler=topology.curve, wall_topology=topology.walls, force=force)
+                euler=topology.curve, wall_topology=topology.walls, force=force,
+                diagram_png=staged["diagram_plot"].read_bytes())
         tick = done("report", tick)
         summary = _summary(seg, source, figures, written, notes, topology)
         relative = _relative(summary["outputs"], staging)

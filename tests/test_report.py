@@ -19,6 +19,8 @@ import numpy as np
 import pytest
 from hypothesis import given
 from hypothesis import strategies as st
+from matplotlib import patheffects
+from matplotlib.figure import Figure
 from PIL import Image
 from skimage.segmentation import find_boundaries
 
@@ -31,11 +33,19 @@ from cavitas.report import (
     write_report,
 )
 from cavitas.report._browser import embed_scan
+from cavitas.report._encode import figure_png
 from cavitas.report._findings import gather_findings
+from cavitas.report._numbers import add_numbers
 from cavitas.report._overview import plot_overview
 from cavitas.report._params_html import parameter_lists
 from cavitas.report._regions import pick_region, region_centroids
-from cavitas.report._render import OUTLINE_DARK, OUTLINE_LIGHT, intensity_window, render_slice
+from cavitas.report._render import (
+    OUTLINE_DARK,
+    OUTLINE_LIGHT,
+    intensity_window,
+    outline_mask,
+    render_slice,
+)
 from cavitas.report._table_html import format_value
 from tests.report_scene import diagram, regions_of, scene
 
@@ -112,6 +122,50 @@ def test_outline_pixels_are_the_inner_boundaries(ndim, walls):
     assert set(np.unique(code[expected])) == ({1} if walls == "bright" else {2})
 
 
+@pytest.mark.parametrize("shape", [(1, 7), (23, 31), (9, 11, 13)])
+def test_outline_mask_equals_find_boundaries_on_random_labels(shape):
+    # Reference: skimage.segmentation.find_boundaries(mode="inner") restricted to the
+    # regions, on random label maps (few labels, so runs and ties with 0 are common).
+    rng = np.random.default_rng(sum(shape))
+    for _ in range(5):
+        lab = rng.integers(0, 4, size=shape)
+        expected = find_boundaries(lab, mode="inner") & (lab > 0)
+        np.testing.assert_array_equal(outline_mask(lab), expected)
+    np.testing.assert_array_equal(outline_mask(np.zeros(shape, int)), np.zeros(shape, bool))
+
+
+def _numbers_picture(draw) -> np.ndarray:
+    """Grey pixels of a small figure (a grey picture, then ``draw(ax)``), as the report
+    renders figures."""
+    fig = Figure(figsize=(2.0, 0.8))
+    ax = fig.add_axes((0, 0, 1, 1))
+    ax.imshow(np.full((2, 2, 3), 0.3), extent=(0, 1, 0, 1))
+    ax.set_xlim(0, 1)
+    ax.set_ylim(0, 1)
+    draw(ax)
+    return np.asarray(Image.open(io.BytesIO(figure_png(fig))).convert("L"), dtype=int)
+
+
+@pytest.mark.parametrize("size", [7, 9])
+def test_region_numbers_look_like_matplotlib_text_with_a_halo(size):
+    # Reference: Matplotlib's own text drawing (ax.text, centred, with a withStroke halo),
+    # which the overview used for its region numbers before they became two collections.
+    xs, ys, texts = [0.2, 0.5, 0.8], [0.3, 0.6, 0.4], ["7", "128", "40"]
+    halo = [patheffects.withStroke(linewidth=2.6, foreground="white")]
+
+    def as_text(ax):
+        for x, y, text in zip(xs, ys, texts, strict=True):
+            ax.text(x, y, text, ha="center", va="center", fontsize=size, color="black",
+                    path_effects=halo)
+
+    expected = _numbers_picture(as_text)
+    got = _numbers_picture(lambda ax: add_numbers(ax, xs, ys, texts, size=size, halo=2.6))
+    assert (expected > 200).sum() > 50 and (expected < 40).sum() > 20  # halos and glyphs
+    difference = np.abs(got - expected)
+    assert difference.max() <= 40, difference.max()  # anti-aliasing, not a shifted glyph
+    assert difference.mean() < 0.5
+
+
 @pytest.mark.parametrize("ndim", [2, 3])
 @pytest.mark.parametrize("dtype", DTYPES)
 def test_plot_slices_draws_outlines(ndim, dtype):
@@ -151,11 +205,12 @@ def test_histogram_counts_equal_the_table():
     fig = plot_histograms(table)
     assert [ax.get_xlabel() for ax in fig.axes] == ["volume [µm³]", "sphericity"]
     for ax, values in zip(fig.axes, (volume, sphericity[:197]), strict=True):
-        heights = np.array([p.get_height() for p in ax.patches])
-        edges = np.array([p.get_x() for p in ax.patches] + [ax.patches[-1].get_x()
-                                                             + ax.patches[-1].get_width()])
+        (bars,) = [c for c in ax.collections if c.get_gid() == "bars"]
+        corners = np.array([path.vertices[:4] for path in bars.get_paths()])
+        heights, edges = corners[:, 2, 1], np.r_[corners[:, 0, 0], corners[-1, 1, 0]]
         assert heights.sum() == len(values)
         np.testing.assert_array_equal(heights, np.histogram(values, bins=edges)[0])
+        assert ax.get_ylim()[0] == 0  # the bars rest on the axis
     assert fig.axes[0].get_xscale() == "log"  # volumes span more than 100×
     assert "3 not finite" in fig.axes[1].get_title()
     assert plot_histograms(Table({"label": [1, 2]})) is None

@@ -1,5 +1,6 @@
 """``cavitas segment`` and :func:`cavitas.workflow.segment_file`: outputs, geometry, errors."""
 
+import base64
 import json
 
 import numpy as np
@@ -55,7 +56,12 @@ def test_segment_command_writes_every_output(scan, tmp_path, capsys):
     assert len(record["input_sha256"]) == 64
     assert record["parameters"]["min_persistence"] == 50.0
     assert (out / "shells.tif").exists() and (out / "enclosures.tif").exists()
-    assert (out / "diagram.png").read_bytes()[:4] == b"\x89PNG"
+    drawn = (out / "diagram.png").read_bytes()
+    assert drawn[:4] == b"\x89PNG"
+    # the report shows this very picture (drawn once), titled with the scale it is of
+    page = (out / "report.html").read_text(encoding="utf-8")
+    assert base64.b64encode(drawn).decode("ascii") in page
+    assert "Persistence diagram on the image without smoothing" in page
 
 
 def test_summary_and_caution_are_printed(scan, tmp_path, capsys):

@@ -110,3 +110,41 @@ def test_segment_numpy_peak_per_voxel_stays_low():
         tracemalloc.stop()
     assert seg.labels.max() > 0
     assert peak / img.size < 48
+
+
+def _sorted_by_order(values: np.ndarray) -> np.ndarray:
+    """``values`` sorted by value, ``-0.0`` before ``+0.0`` (numpy's lexsort)."""
+    return values[np.lexsort((~np.signbit(values), values))]
+
+
+def _before(values: np.ndarray, level: np.float32) -> np.ndarray:
+    """Which ``values`` come before ``level`` in that order."""
+    tie = (values == level) & np.signbit(values) & ~np.signbit(level)
+    return (values < level) | tie
+
+
+@pytest.mark.parametrize("dtype", [np.int32, np.int64])
+def test_label_quantile_selects_what_a_sort_of_each_label_gives(dtype):
+    # Reference: numpy's lexsort of each label's values (the order of the old one-sort
+    # implementation, -0.0 before +0.0), the element at floor(q * (n - 1)); bit for bit,
+    # with ties, signed zeros, labels beyond n_labels and an empty label, also for the
+    # quantile of the values under a level per label.
+    rng = np.random.default_rng(11)
+    lab = rng.integers(0, 9, (41, 37)).astype(dtype)  # 8 beyond n_labels = 7
+    img = rng.integers(-3, 4, lab.shape).astype(np.float32) * np.float32(0.5)
+    img[rng.random(lab.shape) < 0.1] = -0.0
+    img[lab == 3] = 1.25  # one label of equal values
+    lab[lab == 5] = 0  # label 5 empty
+    levels = np.array([0.0, -0.0, 1.0, 1.25, 2.0, -1.5, 0.5], np.float32)
+    for q in (0.0, 0.1, 0.5, 0.9, 1.0):
+        got, got_under = _label_quantile(img, lab, 7, q, below=levels)
+        assert got.dtype == got_under.dtype == np.float64  # what the callers compute in
+        for value in range(1, 8):
+            vals = _sorted_by_order(img[lab == value])
+            under = _sorted_by_order(vals[_before(vals, levels[value - 1])])
+            for result, ref in ((got, vals), (got_under, under)):
+                if not len(ref):
+                    assert np.isnan(result[value - 1])
+                    continue
+                want = ref[int(np.floor(q * (len(ref) - 1)))]
+                assert np.float32(result[value - 1]).tobytes() == want.tobytes()

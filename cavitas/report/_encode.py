@@ -4,12 +4,16 @@ from __future__ import annotations
 
 import base64
 import io
+import struct
 
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 from matplotlib.image import imsave
 
-__all__ = ["data_uri", "figure_png"]
+__all__ = ["REPORT_DPI", "data_uri", "figure_png", "png_size"]
+
+#: Resolution of the report's pictures (dots per inch): drawn at the size shown.
+REPORT_DPI = 100
 
 
 def data_uri(png: bytes) -> str:
@@ -23,7 +27,20 @@ def data_uri(png: bytes) -> str:
     return "data:image/png;base64," + base64.b64encode(png).decode("ascii")
 
 
-def figure_png(fig: Figure, *, dpi: int = 100) -> bytes:
+def png_size(png: bytes) -> tuple[int, int]:
+    """Width and height in pixels of a PNG (its header chunk).
+
+    Examples
+    --------
+    >>> fig = Figure(figsize=(2, 1))
+    >>> png_size(figure_png(fig))
+    (200, 100)
+    """
+    width, height = struct.unpack(">II", png[16:24])
+    return int(width), int(height)
+
+
+def figure_png(fig: Figure, *, dpi: int = REPORT_DPI) -> bytes:
     """Render a Matplotlib figure to PNG bytes (Agg, no display needed).
 
     One drawing pass lays the figure out and paints it (``savefig`` paints twice when

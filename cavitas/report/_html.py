@@ -21,7 +21,7 @@ from .._version import __version__
 from ..cubical._diagram import Diagram
 from ..cubical._euler import ConnectivityDensity, EulerCurve
 from ._browser import BROWSER_SCRIPT, browser_html, embed_scan
-from ._encode import data_uri, figure_png
+from ._encode import REPORT_DPI, data_uri, figure_png, png_size
 from ._findings import findings_html, gather_findings
 from ._histograms import plot_histograms
 from ._overview import plot_overview
@@ -32,7 +32,7 @@ from ._slices import plot_region_slices
 from ._table_html import SORT_SCRIPT, TABLE_SCRIPT, region_table_html
 from ._topology_html import euler_caption, topology_html
 from ._words import Words
-from .diagram_plots import plot_barcode, plot_diagram
+from .diagram_plots import SAVE_DPI, plot_barcode, plot_diagram, smoothing_phrase
 from .euler_plot import plot_euler_curve
 
 __all__ = ["write_report"]
@@ -118,7 +118,16 @@ def _esc(value: Any) -> str:
 def _figure(fig: Any, caption: str, *, alt: str | None = None) -> str:
     if fig is None:
         return ""
-    return (f'<figure><img src="{data_uri(figure_png(fig))}" alt="{_esc(alt or caption)}">'
+    return _picture(figure_png(fig), caption, alt=alt)
+
+
+def _picture(png: bytes, caption: str, *, alt: str | None = None, scale: float = 1.0) -> str:
+    """A PNG with its caption; ``scale`` < 1 shows a denser picture at the report's size."""
+    size = ""
+    if scale != 1.0:
+        width, height = png_size(png)
+        size = f' width="{round(width * scale)}" height="{round(height * scale)}"'
+    return (f'<figure><img src="{data_uri(png)}"{size} alt="{_esc(alt or caption)}">'
             f"<figcaption>{_esc(caption)}</figcaption></figure>")
 
 
@@ -134,18 +143,20 @@ _HOW_TO_READ = (
 
 
 def _diagram_figures(diagram: Diagram | None, kept: Any, threshold: float | None,
-                     smoothing: float | None, unit: str) -> str:
+                     smoothing: float | None, unit: str, drawn: bytes | None = None) -> str:
     if diagram is None:
         return "<p>No persistence diagram was given to the report.</p>"
     if kept is not None and not isinstance(kept, Mapping):
         kept = {diagram.cavity_dim: kept}
-    at = (f"after smoothing with σ = {smoothing:g} {unit}" if smoothing
-          else "on the image without smoothing" if smoothing is not None else "")
-    fig = plot_diagram(diagram, highlight=kept, threshold=threshold)
-    fig.axes[0].set_title(f"Persistence diagram {at}".strip(), fontsize=10)
-    parts = [_figure(fig, _HOW_TO_READ,
-                     alt=f"Persistence diagram {at}: birth against death level of every "
-                         "pocket, the kept ones filled, the threshold band shaded.")]
+    at = smoothing_phrase(smoothing, unit)
+    alt = (f"Persistence diagram {at}: birth against death level of every pocket, the kept "
+           "ones filled, the threshold band shaded.")
+    if drawn is None:
+        fig = plot_diagram(diagram, highlight=kept, threshold=threshold)
+        fig.axes[0].set_title(f"Persistence diagram {at}".strip(), fontsize=10)
+        parts = [_figure(fig, _HOW_TO_READ, alt=alt)]
+    else:
+        parts = [_picture(drawn, _HOW_TO_READ, alt=alt, scale=REPORT_DPI / SAVE_DPI)]
     if diagram.cavity_dim in diagram.dims:
         bars = plot_barcode(diagram, dim=diagram.cavity_dim, top=50, highlight=kept,
                             threshold=threshold)
@@ -196,7 +207,8 @@ def write_report(path: str | os.PathLike, *, image: np.ndarray, labels: np.ndarr
                  source: str | os.PathLike | None = None, force: bool = False,
                  max_rows: int = 5000, scan_budget: int = 9_000_000,
                  notes: Sequence[str] = (), euler: EulerCurve | None = None,
-                 wall_topology: ConnectivityDensity | None = None) -> Path:
+                 wall_topology: ConnectivityDensity | None = None,
+                 diagram_png: bytes | None = None) -> Path:
     """Write a single self-contained HTML page that shows a segmentation.
 
     The page opens with what was found (counts, the size distribution, the filled
@@ -251,6 +263,12 @@ def write_report(path: str | os.PathLike, *, image: np.ndarray, labels: np.ndarr
         walls connect (see :func:`cavitas.workflow.wall_topology`).
     wall_topology : ConnectivityDensity, optional
         Betti numbers and connectivity density of the segmented walls, listed there too.
+    diagram_png : bytes, optional
+        The persistence diagram already drawn (``diagram.png`` of the same run: the
+        diagram, ``kept`` and ``threshold`` given here, written by
+        :func:`~cavitas.report.save_figure` and titled with
+        :func:`~cavitas.report.diagram_plots.smoothing_phrase`): shown at the report's
+        scale instead of drawn again.
 
     Returns
     -------
@@ -368,7 +386,8 @@ def write_report(path: str | os.PathLike, *, image: np.ndarray, labels: np.ndarr
 {browser_html(scan, image_shape=image.shape, spacing=spacing, unit=unit)}</section>
 <section id="table"><h2>Regions</h2>{table or "<p>No region to list.</p>"}</section>
 <section id="persistence"><h2>How regions were told from noise</h2><div class="plots">
-{_diagram_figures(diagram, kept, threshold, smoothing, unit)}</div></section>
+{_diagram_figures(diagram, kept, threshold, smoothing, length_unit(unit, image.ndim),
+                  diagram_png)}</div></section>
 {connect}<section id="parameters"><h2>Parameters</h2>
 {parameters_html(params, unit, element=words.element)}</section>
 <section id="plots"><h2>Closer looks</h2><div class="plots">{"".join(closer)}</div></section>

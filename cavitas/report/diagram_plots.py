@@ -22,7 +22,8 @@ from .._errors import ParameterError
 from .._shared.atomic import atomic_path
 from ..cubical._diagram import Diagram
 
-__all__ = ["DIM_STYLE", "plot_barcode", "plot_diagram", "save_figure"]
+__all__ = ["DIM_STYLE", "SAVE_DPI", "plot_barcode", "plot_diagram", "save_figure",
+           "smoothing_phrase"]
 
 #: Marker, line style and colour per homology dimension (our own choice: blue-grey,
 #: rust and moss, told apart by lightness as well as hue).
@@ -32,6 +33,22 @@ DIM_STYLE: dict[int, dict[str, str]] = {
     2: {"marker": "s", "linestyle": ":", "color": "#6f8a3a"},
 }
 _GUIDE = "#6b6b6b"
+#: Resolution of the figures :func:`save_figure` writes (dots per inch).
+SAVE_DPI = 150
+
+
+def smoothing_phrase(smoothing: float | None, unit: str) -> str:
+    """Which image a diagram is of, for its title: ``""`` when the smoothing is unknown.
+
+    Examples
+    --------
+    >>> smoothing_phrase(1.5, "pixel"), smoothing_phrase(0.0, "µm")
+    ('after smoothing with σ = 1.5 pixel', 'on the image without smoothing')
+    """
+    if smoothing is None:
+        return ""
+    return f"after smoothing with σ = {smoothing:g} {unit}" if smoothing else \
+        "on the image without smoothing"
 
 
 def _new_axes(ax: Axes | None, figsize: tuple[float, float]) -> Axes:
@@ -259,7 +276,7 @@ def plot_barcode(dgm: Diagram, *, dim: int, top: int = 50, highlight: Any = None
 
 
 def save_figure(fig: Figure, path: str | os.PathLike, *, force: bool = False,
-                dpi: int = 150) -> None:
+                dpi: int = SAVE_DPI) -> None:
     """Write ``fig`` (format from the suffix) with the research-only caution as a footer.
 
     The file is written atomically; an existing ``path`` needs ``force``.
