@@ -412,3 +412,19 @@ def test_figure_titles_do_not_overlap(ndim, spacing):
         for i, (a, box_a) in enumerate(boxes):
             for b, box_b in boxes[i + 1:]:
                 assert not box_a.overlaps(box_b), (a, b)
+
+
+@pytest.mark.parametrize(("ndim", "element"), [(2, "pixel"), (3, "voxel")])
+def test_findings_give_the_smoothing_in_pixels_or_voxels_without_a_unit(tmp_path, ndim,
+                                                                        element):
+    # The units convention of cavitas/_shared/units.py (common practice: a plane's
+    # elements are pixels): a scan with no physical size reads in its own elements.
+    image, labels = scene(ndim)
+    out = tmp_path / "report.html"
+    write_report(out, image=image, labels=labels, spacing=(1.0,) * ndim, unit="voxel",
+                 regions=regions_of(labels, spacing=(1.0,) * ndim), diagram=diagram(ndim, 4),
+                 kept=np.arange(4), threshold=0.5,
+                 params={"walls": "bright", "smooth_sigma": 1.5, "threshold": 0.5}, figures={},
+                 source="s.tif")
+    findings = out.read_text(encoding="utf-8").split('<dl class="findings">', 1)[1]
+    assert f"above its darkest inside point after smoothing with σ = 1.5 {element}." in findings

@@ -310,8 +310,8 @@ def write_report(path: str | os.PathLike, *, image: np.ndarray, labels: np.ndarr
 
     n = len(regions)
     smoothing = params.get("smooth_sigma")
-    found = gather_findings(regions, ndim=image.ndim, unit=unit, params=params,
-                            figures=figures, notes=notes)
+    found = gather_findings(regions, ndim=image.ndim, unit=length_unit(unit, image.ndim),
+                            params=params, figures=figures, notes=notes)
     summary = findings_html(found)
     if not n:
         summary = ('<p class="empty" id="no-regions">No region was kept: no enclosed region '
