@@ -311,6 +311,27 @@ def test_keep_border_labels_cells_cut_one_voxel_short_of_the_face():
     assert int(touching.sum()) == n - len(whole)
 
 
+def test_a_dim_cell_cut_by_the_border_is_not_a_chamber():
+    # Regression on invented data (cavitas.scenes.cell_sheet: a 160² crop of cells about
+    # 60 pixels across, dark walls, noise 0.1 of the contrast under a 1 -> 0.35 gain). The
+    # cell cut by the border in the dim corner stopped one pixel short of the faces: its
+    # face pixels lay above the outside basin's one wall level, set by the bright corner,
+    # but below the cell's own. No region of the default label map may have its majority
+    # in a cell that meets the border over more than 2 pixels (a cell cut by a hair is
+    # closed in the image).
+    from cavitas.scenes import cell_sheet
+
+    scene = cell_sheet((160, 160), cells=11, noise=0.1, ramp=0.35, walls="dark", seed=0,
+                       wall_thickness=2)
+    labels = segment(scene.volume, walls="dark").labels
+    face = np.ones(labels.shape, bool)
+    face[1:-1, 1:-1] = False
+    contact = np.bincount(scene.truth[face], minlength=scene.n_labels + 1)
+    for region in range(1, int(labels.max()) + 1):
+        cell = np.bincount(scene.truth[labels == region]).argmax()
+        assert cell == 0 or contact[cell] <= 2
+
+
 def test_enclosure_holds_its_chambers_and_inner_walls():
     # Two chambers behind a weak inner wall (0.4) inside a strong outer wall (1.0):
     # one enclosure of level 1.0 holding both (hand-made geometry).

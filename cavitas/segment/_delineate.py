@@ -24,9 +24,11 @@ from ._perforation import perforated_splits
 from ._pockets import shallow_pockets
 from ._regions import (
     BasinLevels,
+    FaceValues,
     Sweep,
     basin_map,
     below_levels,
+    border_voxels,
     cut_pieces,
     fill_islands,
     interior_levels,
@@ -186,6 +188,10 @@ def delineate(params: SegmentParams, sweep: Sweep, hier, image: ScanImage,
             split.at(cores, fine.shape))
     cleared, basin_levels = remove_walls(basins, fine, n_ch + 1, connectivity, cores=cores,
                                          interior=interior)
+    faces = None
+    if params.region == "basin":  # the levels are at this scale: the border judged by them
+        at_border = border_voxels(fine.shape, outside)
+        faces = FaceValues(at_border, fine.ravel()[at_border], basins.ravel()[at_border])
     del fine, basins  # memory: full-size arrays are dropped as soon as they are used up
     if params.region == "basin":
         labels = np.where(cleared <= n_ch, cleared, 0)
@@ -206,7 +212,7 @@ def delineate(params: SegmentParams, sweep: Sweep, hier, image: ScanImage,
     # the border.
     in_outside = cleared == n_ch + 1
     del cleared
-    open_cut = open_to_border(labels, in_outside, n_ch, outside)
+    open_cut = open_to_border(labels, in_outside, n_ch, outside, faces, used_level)
     own = label_counts(labels, n_ch + 1)[1:]
     min_cut = max(8, int(0.1 * np.median(own))) if n_ch else 8
     if params.min_volume is not None:

@@ -63,10 +63,10 @@ _SLAB = 16
 #: Voxels per chunk of the flat passes of :func:`_label_quantile_f32`.
 _CHUNK = 1 << 22
 
-__all__ = ["BasinLevels", "Interior", "Sweep", "basin_map", "below_levels", "cut_pieces",
-           "face_labels", "face_slices", "fill_islands", "interior_levels", "label_counts",
-           "medium_at_faces",
-           "nested_map", "remove_walls", "reopen_faces"]
+__all__ = ["BasinLevels", "FaceValues", "Interior", "Sweep", "basin_map", "below_levels",
+           "border_voxels", "cut_pieces", "face_labels", "face_slices", "fill_islands",
+           "interior_levels", "label_counts", "medium_at_faces", "nested_map", "remove_walls",
+           "reopen_faces"]
 
 
 class Sweep:
@@ -496,28 +496,74 @@ def cut_pieces(outside: np.ndarray, connectivity: int, min_voxels: int,
     return new[pieces]
 
 
+@dataclass(frozen=True)
+class FaceValues:
+    """The border voxels (:func:`border_voxels`) with their value at the delineation scale
+    and the basin each lies in."""
+
+    index: np.ndarray  # flat index of each border voxel
+    value: np.ndarray  # its value (walls high)
+    basin: np.ndarray  # its basin (``n_labels + 1``: the outside basin)
+
+
+def border_voxels(shape: tuple[int, ...], beyond_roi: np.ndarray | None = None) -> np.ndarray:
+    """Flat indices of the voxels on the array's faces and, with a ROI, next to its outside
+    (``beyond_roi``, itself excluded), in increasing order.
+
+    Examples
+    --------
+    >>> border_voxels((3, 3)).tolist()
+    [0, 1, 2, 3, 5, 6, 7, 8]
+    """
+    border = np.zeros(shape, bool)
+    for face in face_slices(len(shape)):
+        border[face] = True
+    if beyond_roi is not None and beyond_roi.any():
+        border |= ndi.binary_dilation(beyond_roi, ndi.generate_binary_structure(len(shape), 1))
+        border &= ~beyond_roi
+    return np.flatnonzero(border)
+
+
 def open_to_border(labels: np.ndarray, outside: np.ndarray, n_labels: int,
-                   beyond_roi: np.ndarray | None = None) -> np.ndarray:
+                   beyond_roi: np.ndarray | None = None, faces: FaceValues | None = None,
+                   levels: np.ndarray | None = None) -> np.ndarray:
     """Chambers cut by the scan or ROI border: no wall between them and it.
 
     A chamber that holds a border voxel itself reaches the border below its own wall level:
-    it is cut. A border voxel (on the array faces or next to the outside of the ROI) that is not a
-    wall belongs to the outside basin (``outside``). A chamber face-adjacent to at least
-    ``max(2, s ** ((d - 1) / d) / 4)`` such voxels (``s`` its voxel count, ``d`` the
+    it is cut. A border voxel (on the array faces or next to the outside of the ROI) that is
+    not a wall belongs to the outside basin (``outside``). A chamber face-adjacent to at
+    least ``max(2, s ** ((d - 1) / d) / 4)`` such voxels (``s`` its voxel count, ``d`` the
     dimension: a quarter of a typical cross-section) is open to the border: the smoothing
     found a shallow rim there, not a wall. A few voxels of contact (noise in a thin wall)
     do not count.
+
+    With ``faces`` and the chambers' cut ``levels`` (the same scale), the chamber's own
+    level decides too: the outside basin has one wall level for every piece of it, which
+    under uneven illumination lies below the inside of a dim cell cut by the border, so its
+    face voxels read as wall there. A chamber is then also open when at least as many
+    voxels as above, and at least half of the border voxels next to it that lie in its own
+    basin or the outside basin, lie below its level.
+
+    Examples
+    --------
+    Chamber 1 stops one voxel short of the bottom face, whose voxels lie at its inside
+    level (below its cut level 0.5), but above the outside basin's level (no ``outside``
+    voxel there); chamber 2 has a wall along the face:
+
+    >>> labels = np.zeros((5, 8), int); labels[1:4, 2:4] = 1; labels[1:3, 5:7] = 2
+    >>> image = np.ones((5, 8)); image[4, :5] = 0.2
+    >>> basins = np.full((5, 8), 3); basins[:, :5] = 1; basins[:4, 5:] = 2
+    >>> index = border_voxels(labels.shape)
+    >>> faces = FaceValues(index, image.ravel()[index], basins.ravel()[index])
+    >>> outside = np.zeros(labels.shape, bool)
+    >>> open_to_border(labels, outside, 2).tolist()
+    [False, False]
+    >>> open_to_border(labels, outside, 2, faces=faces, levels=np.array([0.5, 0.5])).tolist()
+    [True, False]
     """
     ndim = labels.ndim
     border = np.zeros(labels.shape, bool)
-    for ax in range(ndim):
-        for end in (0, -1):
-            index: list[slice | int] = [slice(None)] * ndim
-            index[ax] = end
-            border[tuple(index)] = True
-    if beyond_roi is not None and beyond_roi.any():
-        border |= ndi.binary_dilation(beyond_roi, ndi.generate_binary_structure(ndim, 1))
-        border &= ~beyond_roi
+    border.ravel()[border_voxels(labels.shape, beyond_roi)] = True
     opening = border & outside
     on_face = np.bincount(labels[border].ravel().astype(np.int64), minlength=n_labels + 1) > 0
     contact = np.zeros(n_labels + 1, np.int64)
@@ -526,7 +572,38 @@ def open_to_border(labels: np.ndarray, outside: np.ndarray, n_labels: int,
         contact += np.bincount(labels[y][touch], minlength=n_labels + 1)
     size = label_counts(labels, n_labels + 1)
     need = np.maximum(2.0, size ** ((ndim - 1) / ndim) / 4.0)
-    return ((contact >= need) | on_face)[1:] & (size[1:] > 0)
+    cut = (contact >= need) | on_face
+    if faces is not None and levels is not None:
+        below, beside = _below_own_level(labels, faces, n_labels, levels)
+        cut |= (below >= need) & (2 * below >= beside)
+    return cut[1:] & (size[1:] > 0)
+
+
+def _below_own_level(labels: np.ndarray, faces: FaceValues, n_labels: int,
+                     levels: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Per label ``0..n_labels``: the unlabelled border voxels face-adjacent to it in its
+    own basin or the outside basin that lie below its level, and all of those."""
+    shape = labels.shape
+    flat = labels.ravel()
+    free = flat[faces.index] == 0
+    index, value, basin = faces.index[free], faces.value[free], faces.basin[free]
+    coords = np.unravel_index(index, shape)
+    lut = np.full(n_labels + 1, -np.inf)
+    lut[1:] = np.asarray(levels, np.float64)[:n_labels]
+    below = np.zeros(n_labels + 1, np.int64)
+    beside = np.zeros(n_labels + 1, np.int64)
+    for ax in range(labels.ndim):
+        for step in (-1, 1):
+            moved = coords[ax] + step
+            ok = (moved >= 0) & (moved < shape[ax])
+            near = list(coords)
+            near[ax] = np.where(ok, moved, coords[ax])
+            owner = np.where(ok, flat[np.ravel_multi_index(tuple(near), shape)], 0)
+            ours = (owner > 0) & ((basin == owner) | (basin == n_labels + 1))
+            beside += np.bincount(owner[ours], minlength=n_labels + 1)
+            low = ours & (value < lut[owner])
+            below += np.bincount(owner[low], minlength=n_labels + 1)
+    return below, beside
 
 
 def _shift_pairs(ndim: int):
