@@ -33,7 +33,8 @@ from ._select import close_upward, persistence_threshold, select_nodes, split_ru
 from ._texture import texture_splits
 
 __all__ = ["TEXTURED_SCALE_SHARE", "THRESHOLD_RULES", "Detection", "ScanImage", "chosen_scale",
-           "close_faces", "detect", "on_faces", "polarity_check", "statistics_mask"]
+           "close_faces", "detect", "on_faces", "polarity_check", "statistics_mask",
+           "textured_reach"]
 
 
 #: Where the noise is not white: the finest scale whose count of cavities passing every
@@ -158,7 +159,8 @@ def detect(image: ScanImage, params: SegmentParams, *, noise: _noise.NoiseLevel,
     also what every scale tried found (for run.json), and the seeds of its chambers.
 
     Candidates are :data:`AUTO_SCALES` (in voxels of the finest axis, the same physical σ on
-    every axis) in automatic mode, else the one given (or none). At each, the threshold is
+    every axis) in automatic mode (where the noise is not white, those up to the first one
+    wider than :func:`textured_reach`), else the one given (or none). At each, the threshold is
     the strictest criterion given, the automatic one being ``safety · s · P(σ')``
     (:mod:`cavitas.segment._noise`): the image's noise is white noise of amplitude ``s``
     blurred by its own correlation (:class:`_noise.NoiseLevel`), so the null at smoothing
@@ -179,6 +181,10 @@ def detect(image: ScanImage, params: SegmentParams, *, noise: _noise.NoiseLevel,
         scales = [params.smooth / spacing]
     elif params.automatic:
         scales = [s * spacing.min() / spacing for s in AUTO_SCALES]
+        if not noise.white:  # texture: no scale beyond the grain's next one is ever used
+            widest = textured_reach(noise.correlation)
+            within = sum(1 for sig in scales if float(np.max(sig)) <= widest)
+            scales = scales[:within + 1]
     else:
         scales = [np.zeros(len(spacing))]
 
@@ -298,10 +304,23 @@ def chosen_scale(counts: Sequence[int], sigmas: Sequence[float], *, white: bool,
     """
     if white:
         return int(np.argmax(counts))
-    widest = max(1.0, grain)
+    widest = textured_reach(grain)
     reach = max(1, sum(1 for sig in sigmas if sig <= widest))
     top = max(counts[:reach])
     return next(i for i, c in enumerate(counts[:reach]) if c >= TEXTURED_SCALE_SHARE * top)
+
+
+def textured_reach(grain: float) -> float:
+    """The widest detection scale (voxels) chosen where the noise is not white: the noise's
+    correlation width ``grain`` or one voxel, whichever is wider. The next wider scale is
+    still detected: regions found only there may join (:mod:`cavitas.segment._scales`).
+
+    Examples
+    --------
+    >>> textured_reach(0.7), textured_reach(1.6)
+    (1.0, 1.6)
+    """
+    return max(1.0, grain)
 
 
 #: What sets the automatic threshold, in the order tried: the valley between two populations
