@@ -16,12 +16,17 @@ size. Two passes over the chunks:
    root, right after its breach, of its anchor's component (:func:`._tree_kernels.link_parents`
    takes the deaths in breach order with a union-find over the nodes). Nothing is held by
    the joins beyond their boundary trees: the records go straight to the client.
-2. **Sizes.** A node's size is the voxels whose component had it as root when they
-   arrived, plus its children's sizes. Which node that is for a voxel of a component that
-   reached a seam depends on the whole volume at that voxel's level, which no boundary
-   tree keeps (only its levels at the nodes), so each chunk is swept once more
-   (:func:`._tree_kernels.chunk_counts`) with the ancestors of its seam components' roots
-   (a small tree, sent with the task) and returns one count per root it met.
+2. **Owners and sizes.** A voxel's *owner* is the node that is its component's root right
+   after it arrives; a node's size is the voxels it owns plus its children's sizes. Which
+   node owns a voxel of a component that reached a seam depends on the whole volume at
+   that voxel's level, which no boundary tree keeps (only its levels at the nodes), so each
+   chunk is swept once more (:func:`sweep_again`, :func:`._tree_kernels.chunk_owners`)
+   with its cores and the ancestors of its seam components' roots (small tables, sent
+   with the task) and returns one count per node it met.
+
+:class:`ChunkedTree` keeps those tables with the tree, so later passes over the chunks
+(the nested region labels of :mod:`cavitas.segment._chunked_regions`) sweep each chunk
+again and get every voxel's owner, without the global sweep order.
 
 Memory: a chunk task holds what a chunk sweep of :mod:`._chunked` holds; a join, two
 boxes' boundary trees; the client, the records (40 bytes per node) and, while it builds
