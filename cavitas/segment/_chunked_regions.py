@@ -66,7 +66,8 @@ class RegionSpec:
     def checked(cls, node: Any, level: Any, ids: Any, n_nodes: int) -> RegionSpec:
         """The three arrays checked against each other and the tree's ``n_nodes``."""
         node, level, ids = np.asarray(node), np.asarray(level, np.float64), np.asarray(ids)
-        if node.ndim != 1 or node.dtype.kind not in "iu" or ids.dtype.kind not in "iu":
+        whole = all(a.size == 0 or a.dtype.kind in "iu" for a in (node, ids))
+        if node.ndim != 1 or not whole:
             raise ParameterError("node and ids must be one-dimensional integer arrays.",
                                  parameters=("node", "ids"))
         if not node.shape == level.shape == ids.shape:
