@@ -43,6 +43,7 @@ from cavitas.segment._chunked_statistics import noise_level_in_chunks, percentil
 from cavitas.segment._noise import noise_level, smooth
 from cavitas.segment._regions import Sweep, nested_map
 from cavitas.segment._tree import prune
+from cavitas.segment._tree_order import prune_by_levels
 
 NAME = "chunked"
 
@@ -172,7 +173,8 @@ def _breach_region_row(client, folder: Path, image: np.ndarray, order: np.ndarra
                        chunk: tuple[int, ...]) -> dict:
     """The chambers' breach regions (nodes of the top tenth of nonzero persistence, pruned,
     each at its close level): ``nested_map`` on the in-memory sweep against
-    ``chunked_nested_map`` written to a Zarr store chunk by chunk."""
+    ``chunked_nested_map`` (levels from the chunked tree alone, ``prune_by_levels``)
+    written to a Zarr store chunk by chunk."""
     import dask.array as da
 
     tree = chunked.tree
@@ -186,8 +188,10 @@ def _breach_region_row(client, folder: Path, image: np.ndarray, order: np.ndarra
     ref, t_ref, p_ref = _timed_here(
         lambda: nested_map(sweep, node, sweep.rank_of_level(level), ids))
     labels_at = str(folder / f"breach{image.shape[0]}.zarr")
+    pruned = prune_by_levels(tree, tree.persistence >= threshold, threshold)
     _, wall, worker, client_peak = _timed_on_cluster(client, lambda: chunked_nested_map(
-        chunked, node, level, ids).to_zarr(labels_at, overwrite=True))
+        chunked, pruned.hier.node[:pruned.hier.n_chambers],
+        pruned.close_level[:pruned.hier.n_chambers], ids).to_zarr(labels_at, overwrite=True))
     same = np.array_equal(np.asarray(da.from_zarr(labels_at)), ref)
     return {"metric": f"{image.shape[0]}^3 breach regions, chunks {chunk[0]}^3",
             "value": f"{wall:.2f} s ({wall / t_ref:.1f}x)", "target": "identical",

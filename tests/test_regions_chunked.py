@@ -16,10 +16,13 @@ Checks and their sources:
   too), levels above their breach, at infinity and between voxel values, several regions
   per node. That a chunked path must equal its one-process path exactly is common practice
   (DEVELOPERS.md: a parallel path equals its serial one).
+* Pruning without the order (``_tree_order.prune_by_levels``) against ``_tree.prune`` with
+  the in-memory ranks: the same chambers, enclosures and parents, the same levels.
 * The chambers' breach regions (close level and a fraction of it) and the enclosures of a
   pruned tree on a lattice of cells cut by chunks through every cell (invented data: an
-  identity check only), and the same on a loopback Dask LocalCluster, written to a Zarr
-  store chunk by chunk.
+  identity check only), and the same on a loopback Dask LocalCluster, the chunked side
+  from the chunked tree alone (pruned without the order), written to a Zarr store chunk
+  by chunk.
 """
 
 from __future__ import annotations
@@ -34,6 +37,7 @@ from cavitas.cubical._chunked_tree import tree_chunks_here, tree_chunks_on_dask
 from cavitas.segment._chunked_regions import chunked_nested_map, nested_map_in_chunks
 from cavitas.segment._regions import Sweep, nested_map
 from cavitas.segment._tree import prune
+from cavitas.segment._tree_order import prune_by_levels
 from tests.chunked_volumes import cell_lattice, lattice_case, random_cases, random_chunks
 
 
@@ -126,23 +130,49 @@ def _grouped_cells(rng, shape):
     return np.where(high, image + 150, image).astype(np.uint16)
 
 
-def _delineated(image, walls, conn, mask, threshold, fraction):
-    """What delineate gives nested_map: the chambers' levels (their close level, or a
-    fraction of the way from the core), the enclosures' close levels; in image units."""
+def _pruned(image, walls, conn, mask, threshold):
+    """``prune`` on the in-memory sweep, as regions_at calls it, and its levels in image
+    units (close, formed)."""
     order, tree = cavity_sweep(image, walls=walls, connectivity=conn, mask=mask)
     sweep = Sweep(_keys(image, walls), order, tree, conn, None if mask is None else ~mask)
     hier = prune(tree, tree.persistence >= threshold, sweep.rank, sweep.level_of_rank,
                  threshold)
-    close = sweep.level_of_rank(hier.close_rank)
-    core = sweep.values[tree.core[hier.node]]
-    chambers = slice(0, hier.n_chambers)
-    cut = np.minimum(core + fraction * (close - core), close)[chambers]
     sign = 1.0 if walls == "bright" else -1.0
+    return tree, hier, (sign * sweep.level_of_rank(hier.close_rank),
+                        sign * sweep.level_of_rank(hier.formed_rank))
+
+
+def _delineated(tree, hier, close, fraction):
+    """What delineate gives nested_map: the chambers' levels (their close level, or a
+    fraction of the way from the core), the enclosures' close levels; in image units."""
+    core = tree.core_level[hier.node]
+    chambers = slice(0, hier.n_chambers)
+    cut = core + fraction * (close - core)
+    cut = (np.minimum(cut, close) if tree.walls == "bright" else np.maximum(cut, close))
     ids = np.arange(1, len(hier.node) + 1)
-    return [(hier.node[chambers], sign * close[chambers], ids[chambers]),
-            (hier.node[chambers], sign * cut, ids[chambers]),
-            (hier.node[hier.n_chambers:], sign * close[hier.n_chambers:],
-             ids[hier.n_chambers:])]
+    return [(hier.node[chambers], close[chambers], ids[chambers]),
+            (hier.node[chambers], cut[chambers], ids[chambers]),
+            (hier.node[hier.n_chambers:], close[hier.n_chambers:], ids[hier.n_chambers:])]
+
+
+def test_pruning_without_the_order_equals_prune():
+    rng = np.random.default_rng(3)
+    cases = [(c.image, c.walls, c.connectivity, c.mask)
+             for ndim in (2, 3) for c in random_cases(rng, ndim, 30)]
+    image = _grouped_cells(rng, (17, 17, 18))
+    cases += [(image, "bright", 1, None), (image.max() - image, "dark", 3, None)]
+    enclosures = 0
+    for image, walls, conn, mask in cases:
+        threshold = 1.0 if image.size < 600 else 100.0  # random volumes; the cells
+        tree, ref, levels = _pruned(image, walls, conn, mask, threshold)
+        got = prune_by_levels(tree, tree.persistence >= threshold, threshold)
+        for name in ("node", "parent"):
+            np.testing.assert_array_equal(getattr(got.hier, name), getattr(ref, name))
+        assert got.hier.n_chambers == ref.n_chambers
+        np.testing.assert_array_equal(got.close_level, levels[0])
+        np.testing.assert_array_equal(got.formed_level, levels[1])
+        enclosures += ref.n_enclosures
+    assert enclosures >= 10
 
 
 def test_breach_regions_and_enclosures_of_cells_cut_by_chunks():
@@ -152,7 +182,8 @@ def test_breach_regions_and_enclosures_of_cells_cut_by_chunks():
     for conn, walls in ((1, "bright"), (3, "dark")):
         scan = image if walls == "bright" else image.max() - image
         chunked = tree_chunks_here(scan, chunks, walls=walls, connectivity=conn)
-        specs = _delineated(scan, walls, conn, None, 100, 0.5)
+        tree, hier, (close, _) = _pruned(scan, walls, conn, None, 100)
+        specs = _delineated(tree, hier, close, 0.5)
         assert len(specs[0][0]) >= 27 and len(specs[2][0]) >= 1  # cells; an enclosure
         for node, level, ids in specs:
             ref = _in_memory(scan, walls, conn, None, node, level, ids)
@@ -186,16 +217,18 @@ def test_dask_cluster_equals_in_memory(client, conn, walls, tmp_path):
     # regular chunks (a Zarr store needs them) one voxel thick, cutting through every cell
     chunked = tree_chunks_on_dask(da.from_array(case.image, chunks=(1, 5, 5)), walls=walls,
                                   connectivity=conn, mask=da.from_array(case.mask, chunks=4))
-    chambers, fraction, _ = _delineated(case.image, walls, conn, case.mask, 100, 0.5)
-    node, level, ids = chambers
+    tree, hier, (close, _) = _pruned(case.image, walls, conn, case.mask, 100)
+    expected = _delineated(tree, hier, close, 0.5)
+    # the chunked side from the chunked tree alone
+    pruned = prune_by_levels(chunked.tree, chunked.tree.persistence >= 100, 100)
+    chambers, fraction, _ = _delineated(chunked.tree, pruned.hier, pruned.close_level, 0.5)
+    node, level, ids = expected[0]
     ref = _in_memory(case.image, walls, conn, case.mask, node, level, ids)
     assert len(np.unique(ref)) >= 5  # the cells away from the ragged edge, and walls
-    np.testing.assert_array_equal(chunked_nested_map(chunked, node, level, ids).compute(), ref)
+    np.testing.assert_array_equal(chunked_nested_map(chunked, *chambers).compute(), ref)
     # the labels written to a Zarr store, one block per task
-    node, level, ids = fraction
-    labels = chunked_nested_map(chunked, node, level, ids)
+    labels = chunked_nested_map(chunked, *fraction)
     assert labels.chunks == ((1,) * 9, (5, 4), (5, 5))
     labels.to_zarr(str(tmp_path / "labels.zarr"))
     np.testing.assert_array_equal(zarr.open_array(str(tmp_path / "labels.zarr"))[...],
-                                  _in_memory(case.image, walls, conn, case.mask, node, level,
-                                             ids))
+                                  _in_memory(case.image, walls, conn, case.mask, *expected[1]))
