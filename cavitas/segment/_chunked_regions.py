@@ -44,6 +44,7 @@ import numpy as np
 
 from .._errors import ParameterError
 from ..cubical._boundary import Box, SweepPlan
+from ..cubical._chunked import chunk_window
 from ..cubical._chunked_tree import ChunkChains, ChunkedTree, sweep_again
 from ..cubical._sort import engine_array
 from ._label_kernels import continuation, resolve_arrivals
@@ -112,9 +113,8 @@ def _table(chunked: ChunkedTree, spec: RegionSpec, key: np.ndarray) -> _RegionTa
     np.add.at(start, spec.node + 1, 1)
     start = np.cumsum(start)
     reg_key, reg_label = key[by_node], spec.ids[by_node]
-    has = tree.breach >= 0
-    merge_key = np.where(has, _key(np.where(has, tree.breach_level, 0.0), chunked.plan.bright),
-                         0.0)
+    # the outside (node 0) has no breach and no continuation: any key will do there
+    merge_key = _key(np.where(tree.breach >= 0, tree.breach_level, 0.0), chunked.plan.bright)
     cont = continuation(tree.parent.astype(np.int64), merge_key, start, reg_key, reg_label)
     return _RegionTable(start, reg_key, reg_label, cont)
 
@@ -163,7 +163,7 @@ def _label_chunk(block: np.ndarray, mask: np.ndarray | None, box: Box, plan: Swe
     out = np.empty(arrivals.owner.size, dtype)
     resolve_arrivals(arrivals.owner, arrivals.values, plan.bright, table.start, table.key,
                      table.label, table.cont, out)
-    return out.reshape(box.shape if plan.ndim == 3 else box.shape[1:])
+    return out.reshape(_block_shape(box, plan))
 
 
 def _label_tasks(chunked: ChunkedTree, node: Any, level: Any,
@@ -179,9 +179,9 @@ def _label_tasks(chunked: ChunkedTree, node: Any, level: Any,
     return chunked.per_chunk(_label_chunk, tables, [dtype] * len(tables)), dtype
 
 
-def _block_shapes(chunked: ChunkedTree) -> list[tuple[int, ...]]:
-    plan = chunked.plan
-    return [box.shape if plan.ndim == 3 else box.shape[1:] for box in chunked.boxes.flat]
+def _block_shape(box: Box, plan: SweepPlan) -> tuple[int, ...]:
+    """A chunk's shape in the input (2D images: without the z axis)."""
+    return box.shape if plan.ndim == 3 else box.shape[1:]
 
 
 def nested_map_in_chunks(chunked: ChunkedTree, node: Any, level: Any, ids: Any) -> np.ndarray:
@@ -203,8 +203,7 @@ def nested_map_in_chunks(chunked: ChunkedTree, node: Any, level: Any, ids: Any) 
     plan = chunked.plan
     out = np.empty(plan.shape if plan.ndim == 3 else plan.shape[1:], dtype)
     for box, block in zip(chunked.boxes.flat, tasks, strict=True):
-        where = tuple(slice(lo, hi) for lo, hi in zip(box.start, box.stop, strict=True))
-        out[where if plan.ndim == 3 else where[1:]] = block
+        out[chunk_window(box, plan)] = block
     return out
 
 
@@ -244,8 +243,8 @@ def chunked_nested_map(chunked: ChunkedTree, node: Any, level: Any, ids: Any) ->
                              "nested_map_in_chunks.", parameters=("chunked",))
     tasks, dtype = _label_tasks(chunked, node, level, ids)
     blocks = np.empty(chunked.boxes.shape, object)
-    for idx, task, shape in zip(np.ndindex(*blocks.shape), tasks, _block_shapes(chunked),
-                                strict=True):
-        blocks[idx] = da.from_delayed(task, shape=shape, dtype=dtype)
+    for idx, task in zip(np.ndindex(*blocks.shape), tasks, strict=True):
+        blocks[idx] = da.from_delayed(task, shape=_block_shape(chunked.boxes[idx], chunked.plan),
+                                      dtype=dtype)
     return da.block((blocks if chunked.plan.ndim == 3 else blocks[0]).tolist())
 
