@@ -5,7 +5,8 @@ smoothing (``segment/_chunked_smooth.py``) and the connected components of a lev
 (``segment/_chunked_components.py``), each written to a Zarr store chunk by chunk, against
 ``scipy.ndimage.gaussian_filter`` and ``scipy.ndimage.label`` of the whole volume; and the
 cavity tree (``cubical/_chunked_tree.py``, :func:`cavity_tree_rows`) against
-``cavity_sweep``'s tree, field for field.
+``cavity_sweep``'s tree, field for field, and the breach regions of its persistent nodes
+(``segment/_chunked_regions.py``) against ``nested_map`` on the in-memory sweep.
 
 Input (invented, for this measurement only): the Gaussian-smoothed uint16 noise of
 ``bench/persistence.py`` (96^3, 128^3, 256^3; 384^3 with ``--large``), written to a Zarr
@@ -34,11 +35,15 @@ from scipy import ndimage as ndi
 from bench.persistence import _rss_kib, _rss_peak_in_fresh_process, smoothed_noise
 from cavitas.cubical import cavity_sweep, persistence
 from cavitas.cubical._chunk_memory import worker_need
-from cavitas.cubical._chunked_tree import chunked_cavity_tree
+from cavitas.cubical._chunked_tree import chunked_cavity_tree, tree_chunks_on_dask
 from cavitas.segment._chunked_components import label_in_chunks
+from cavitas.segment._chunked_regions import chunked_nested_map
 from cavitas.segment._chunked_smooth import smooth_in_chunks
 from cavitas.segment._chunked_statistics import noise_level_in_chunks, percentiles_in_chunks
 from cavitas.segment._noise import noise_level, smooth
+from cavitas.segment._regions import Sweep, nested_map
+from cavitas.segment._tree import prune
+from cavitas.segment._tree_order import prune_by_levels
 
 NAME = "chunked"
 
@@ -141,17 +146,18 @@ _TREE_FIELDS = ("core", "core_level", "breach", "breach_level", "parent", "size"
 
 def cavity_tree_rows(client, folder: Path, sides=(128, 256)) -> list[dict]:
     """The cavity tree of the smoothed noise in chunks of a quarter side, against
-    ``cavity_sweep``'s (identity field for field, time, worker and client extra peaks)."""
+    ``cavity_sweep``'s (identity field for field, time, worker and client extra peaks);
+    then the breach regions of its persistent nodes (:func:`_breach_region_row`)."""
     rows = []
     chunked_cavity_tree(_stored(smoothed_noise(16), (8, 8, 8), folder))  # workers warm up
     for side in sides:
         image = smoothed_noise(side)
-        (_, ref), t_ref, p_ref = _timed_here(lambda image=image: cavity_sweep(image))
+        (order, ref), t_ref, p_ref = _timed_here(lambda image=image: cavity_sweep(image))
         chunk = (side // 4,) * 3
         stored = _stored(image, chunk, folder)
         got, wall, worker, client_peak = _timed_on_cluster(
-            client, lambda stored=stored: chunked_cavity_tree(stored))
-        same = all(np.array_equal(getattr(ref, f), getattr(got, f), equal_nan=True)
+            client, lambda stored=stored: tree_chunks_on_dask(stored))
+        same = all(np.array_equal(getattr(ref, f), getattr(got.tree, f), equal_nan=True)
                    for f in _TREE_FIELDS)
         rows.append({"metric": f"{side}^3 cavity tree, chunks {chunk[0]}^3",
                      "value": f"{wall:.2f} s ({wall / t_ref:.1f}x)", "target": "identical",
@@ -159,7 +165,40 @@ def cavity_tree_rows(client, folder: Path, sides=(128, 256)) -> list[dict]:
                              f"in memory {t_ref:.2f} s, peak {p_ref / 2**20:.0f} MiB; worker "
                              f"peak {worker / 2**20:.0f} MiB, client "
                              f"{client_peak / 2**20:.0f} MiB"})
+        rows.append(_breach_region_row(client, folder, image, order, got, chunk))
     return rows
+
+
+def _breach_region_row(client, folder: Path, image: np.ndarray, order: np.ndarray, chunked,
+                       chunk: tuple[int, ...]) -> dict:
+    """The chambers' breach regions (nodes of the top tenth of nonzero persistence, pruned,
+    each at its close level): ``nested_map`` on the in-memory sweep against
+    ``chunked_nested_map`` (levels from the chunked tree alone, ``prune_by_levels``)
+    written to a Zarr store chunk by chunk."""
+    import dask.array as da
+
+    tree = chunked.tree
+    threshold = float(np.quantile(tree.persistence[tree.persistence > 0], 0.9))
+    sweep = Sweep(image, order, tree, 1, None)
+    hier = prune(tree, tree.persistence >= threshold, sweep.rank, sweep.level_of_rank,
+                 threshold)
+    node = hier.node[:hier.n_chambers]
+    level = sweep.level_of_rank(hier.close_rank[:hier.n_chambers])
+    ids = np.arange(1, node.size + 1)
+    ref, t_ref, p_ref = _timed_here(
+        lambda: nested_map(sweep, node, sweep.rank_of_level(level), ids))
+    labels_at = str(folder / f"breach{image.shape[0]}.zarr")
+    pruned = prune_by_levels(tree, tree.persistence >= threshold, threshold)
+    _, wall, worker, client_peak = _timed_on_cluster(client, lambda: chunked_nested_map(
+        chunked, pruned.hier.node[:pruned.hier.n_chambers],
+        pruned.close_level[:pruned.hier.n_chambers], ids).to_zarr(labels_at, overwrite=True))
+    same = np.array_equal(np.asarray(da.from_zarr(labels_at)), ref)
+    return {"metric": f"{image.shape[0]}^3 breach regions, chunks {chunk[0]}^3",
+            "value": f"{wall:.2f} s ({wall / t_ref:.1f}x)", "target": "identical",
+            "note": f"{'identical' if same else 'DIFFERENT'} ({node.size} regions); in memory "
+                    f"(nested_map, the sweep given) {t_ref:.2f} s, peak {p_ref / 2**20:.0f} "
+                    f"MiB; worker peak {worker / 2**20:.0f} MiB, client "
+                    f"{client_peak / 2**20:.0f} MiB"}
 
 
 def _timed_on_cluster(client, compute):

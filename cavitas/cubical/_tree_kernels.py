@@ -3,8 +3,8 @@
 * :func:`link_parents` (client): the parent of every node from the merge records, deaths
   taken in the order of their breaches with a union-find over the nodes.
 * :func:`ancestors` (client): the nodes a chunk's seam components may belong to.
-* :func:`chunk_counts` (worker): the chunk swept again, each voxel counted for the node
-  that is its component's root in the whole volume right after it arrives.
+* :func:`chunk_owners` (worker): the chunk swept again, each voxel given (and counted for)
+  the node that is its component's root in the whole volume right after it arrives.
 * :func:`subtree_sizes` (client): a node's size is its own voxels and its children's sizes.
 """
 
@@ -18,7 +18,7 @@ from ._neighbors import unravel3
 from ._seam_kernels import chunk_roots, is_seam_voxel, outside_first
 from ._tunnels import _find
 
-__all__ = ["ancestors", "chunk_counts", "link_parents", "subtree_sizes"]
+__all__ = ["ancestors", "chunk_owners", "link_parents", "subtree_sizes"]
 
 
 @njit(cache=True, nogil=True)
@@ -91,18 +91,32 @@ def _breached_by(bvalue, bvoxel, value, voxel, ascending):
     return bvoxel <= voxel
 
 
+@njit(cache=True, inline="always")
+def _core_entry(core_local, u):
+    """The position of local voxel ``u`` in the sorted ``core_local`` (``-1`` if absent)."""
+    at = np.searchsorted(core_local, u)
+    if at < core_local.shape[0] and core_local[at] == u:
+        return at
+    return -1
+
+
 @njit(cache=True, nogil=True)
-def chunk_counts(values, order, mask, use_mask, offsets_flat, offsets_zyx, nz, ny, nx, zmargin,
-                 faces, origin, global_shape, ascending, root_local, root_start, chain_parent,
-                 chain_breach_value, chain_breach_voxel):
-    """Count every voxel of a chunk for its component's root in the whole volume.
+def chunk_owners(values, order, mask, use_mask, offsets_flat, offsets_zyx, nz, ny, nx, zmargin,
+                 faces, origin, global_shape, ascending, core_local, root_local, root_start,
+                 chain_parent, chain_breach_value, chain_breach_voxel, owner):
+    """The owner of every voxel of a chunk: its component's root in the whole volume right
+    after the voxel arrives (``cavity_sweep``'s node of the voxel's arrival).
 
     The chunk is swept as by :func:`._seam_kernels.chunk_sweep` (cavity sweep), with the
-    same eldest roots. A voxel of a component that never reached a seam counts for the
-    component's root; of the outside's, for the outside; of one that reached a seam, for
-    the root of its component in the whole volume at that moment: the chain of ancestors
-    of its seam root (``root_local[i]`` starts at ``root_start[i]``) is followed up while
-    their breaches come at or before the voxel.
+    same eldest roots. A voxel of a component that never reached a seam belongs to the
+    component's root, a core of this chunk; of the outside's, to the outside; of one that
+    reached a seam, to the root of its component in the whole volume at that moment: the
+    chain of ancestors of its seam root (``root_local[i]`` starts at ``root_start[i]``) is
+    followed up while their breaches come at or before the voxel.
+
+    Owners are *entries* of the chunk's candidate nodes: the cores of the chunk (entry
+    ``i`` for ``core_local[i]``), then the chain entries (``len(core_local) + p``), then
+    the outside (the last entry).
 
     Parameters
     ----------
@@ -114,32 +128,36 @@ def chunk_counts(values, order, mask, use_mask, offsets_flat, offsets_zyx, nz, n
         The chunk's first voxel and the volume's shape (3D view), for global indices.
     ascending : bool
         The cavity sweep visits increasing values (bright walls).
+    core_local : (c,) int64
+        The local voxels of the cores in the chunk, increasing.
     root_local : (f,) int64
         Local voxel of each seam root.
     root_start, chain_parent, chain_breach_value, chain_breach_voxel
         Its first chain entry; per entry the next one (``-1``: the outside, never
         breached) and its breach's value and global voxel.
+    owner : (n,) or (0,) int array
+        Filled with each voxel's entry (``-1`` outside the mask), unless it is empty.
 
     Returns
     -------
-    root_voxel, root_count : int64 arrays
-        Local root voxel and count of the components that never reached a seam.
-    chain_count : (c,) int64
-        Count per chain entry.
-    outside_count : int
-        Voxels whose component is the outside's on arrival.
+    counts : (c + len(chain_parent) + 1,) int64
+        Voxels per entry.
     """
     n = nz * ny * nx
     out = n
+    n_cores = core_local.shape[0]
+    outside_entry = n_cores + chain_parent.shape[0]
+    write = owner.shape[0] == n
+    if write:
+        owner[:] = -1
     parent = np.full(n + 1, -1, order.dtype)
     flagged = np.zeros(n + 1, np.uint8)
-    own = np.zeros(n + 1, order.dtype)
+    core_of = np.full(n + 1, -1, order.dtype)  # per unflagged root: its entry
     seam_root = np.full(n + 1, -1, order.dtype)
     for i in range(root_local.shape[0]):
         seam_root[root_local[i]] = i
     at = root_start.copy()
-    chain_count = np.zeros(chain_parent.shape[0], np.int64)
-    outside_count = 0
+    counts = np.zeros(outside_entry + 1, np.int64)
     outside_first(parent, mask, use_mask)
     flagged[out] = 1
     roots = np.empty(offsets_flat.shape[0] + 1, parent.dtype)
@@ -152,6 +170,10 @@ def chunk_counts(values, order, mask, use_mask, offsets_flat, offsets_zyx, nz, n
         if nr == 0:
             parent[u] = -(j + 3)
             best = u
+            if not seam:
+                core_of[u] = _core_entry(core_local, u)
+                if core_of[u] < 0:
+                    raise RuntimeError("a component born inside a chunk has no node")
         else:
             best = eldest_root(parent, roots, nr)
             for q in range(nr):
@@ -161,9 +183,9 @@ def chunk_counts(values, order, mask, use_mask, offsets_flat, offsets_zyx, nz, n
             parent[u] = best
         flagged[best] = 1 if seam else 0
         if best == out:
-            outside_count += 1
+            entry = outside_entry
         elif not seam:
-            own[best] += 1
+            entry = core_of[best]
         else:
             i = seam_root[best]
             if i < 0:
@@ -176,9 +198,11 @@ def chunk_counts(values, order, mask, use_mask, offsets_flat, offsets_zyx, nz, n
                                                         voxel, ascending):
                 p = chain_parent[p]
             at[i] = p
-            chain_count[p] += 1
-    counted = np.flatnonzero(own)
-    return counted.astype(np.int64), own[counted].astype(np.int64), chain_count, outside_count
+            entry = n_cores + p
+        counts[entry] += 1
+        if write:
+            owner[u] = entry
+    return counts
 
 
 @njit(cache=True, nogil=True)

@@ -29,8 +29,8 @@ from ..cubical._prefetch import prefetch
 #: How many voxels ahead in the sweep order the neighbourhood is prefetched.
 _AHEAD = 8
 
-__all__ = ["basin_pass", "continuation", "keep_largest_pieces", "owner_pass", "resolve_regions",
-           "same_value_pieces"]
+__all__ = ["basin_pass", "continuation", "keep_largest_pieces", "owner_pass",
+           "resolve_arrivals", "resolve_regions", "same_value_pieces"]
 
 
 @njit(cache=True, nogil=True)
@@ -153,6 +153,24 @@ def resolve_regions(order, reg_start, reg_rank, reg_label, cont, out):
     for r in range(order.shape[0]):
         v = order[r]
         out[v] = _resolve(out[v], r, reg_start, reg_rank, reg_label, cont)
+
+
+@njit(cache=True, nogil=True)
+def resolve_arrivals(owner, values, ascending, reg_start, reg_key, reg_label, cont, out):
+    """:func:`resolve_regions` for one chunk of a chunked volume, without ranks.
+
+    ``owner[u]`` is the entry (the tables' node index) that owned voxel ``u``'s component on
+    arrival (-1: outside the mask, label 0); a region closes at a *key*, the level in the
+    sweep's direction (``-level`` when the sweep descends), and a voxel lies before it when
+    its own key is smaller: what ``r < R`` is when ``R`` is the first rank at that level.
+    """
+    for u in range(owner.shape[0]):
+        e = owner[u]
+        if e < 0:
+            out[u] = 0
+        else:
+            key = np.float64(values[u]) if ascending else -np.float64(values[u])
+            out[u] = _resolve(e, key, reg_start, reg_key, reg_label, cont)
 
 
 @njit(cache=True, nogil=True)
