@@ -1,0 +1,206 @@
+"""``cavitas segment FILE --scheduler ADDRESS`` (or ``--dask-local``): one Zarr store
+segmented chunk by chunk on Dask workers (:func:`run_chunked`).
+
+Only the mode :func:`cavitas.segment._chunked_segment.segment_in_chunks` computes is
+taken: ``--region component`` with a hand threshold. Everything else is refused in one
+sentence before any work starts (exit code 2), so nothing is written. The outputs go to a
+staging folder published at the end (:mod:`cavitas.io._staging`): labels.zarr (and
+enclosures.zarr) written chunk by chunk, regions.csv, run.json last.
+"""
+
+from __future__ import annotations
+
+import argparse
+import time
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from .._caution import RESEARCH_ONLY
+from .._errors import OutputError, ParameterError
+from ._cluster import dask_client
+
+__all__ = ["NOT_MADE", "run_chunked"]
+
+#: What the chunked route does not write (the run summary says so).
+NOT_MADE = ("the report, diagram.csv/png, regions.json, euler.csv, shells, partition and "
+            "meshes")
+#: Command-line options this route refuses, with what each needs.
+_WHOLE_VOLUME = {
+    "relative_persistence": ("--relative-persistence", "the image's robust range"),
+    "level_fraction": ("--level-fraction", "breach regions"),
+    "keep_border": ("--keep-border", "the border-cut check"),
+    "shells": ("--shells", "the whole label map"),
+    "partition": ("--partition", "the whole label map"),
+    "mesh": ("--mesh", "the whole label map"),
+    "label_format": ("--label-format", "the whole label map (labels.zarr is written)"),
+}
+
+
+def _refuse(args: argparse.Namespace, settings: Any) -> None:
+    """Refuse, in one sentence each, what the chunked route does not compute."""
+    name = args.file
+    params, options = settings.params, settings.options
+    if params.automatic:
+        raise ParameterError(
+            f"The automatic threshold needs whole-image statistics that are not computed "
+            f"chunk by chunk yet: give --min-persistence (and --no-auto if --auto is set) to "
+            f"segment '{name}' with --scheduler or --dask-local.")
+    if params.region != "component":
+        raise ParameterError(
+            f"--region {params.region} needs the whole volume (basin flooding, the border-cut "
+            f"check, islands filled): give --region component to segment '{name}' with "
+            f"--scheduler or --dask-local.", parameters=("region",))
+    given = {**params.to_dict(), **options.to_dict()}
+    for key, (option, needs) in _WHOLE_VOLUME.items():
+        value = given.get(key)
+        if value is not None and value is not False:  # --shells alone gives 0.0
+            raise ParameterError(f"{option} needs {needs}, not computed chunk by chunk yet: "
+                                 f"leave it out to segment '{name}' with --scheduler or "
+                                 f"--dask-local.", parameters=(key,))
+    reading = settings.reading.kwargs()
+    unused = [key for key in ("key", "shape", "dtype", "byte_order", "offset") if key in reading]
+    if unused:
+        raise ParameterError(f"--{unused[0].replace('_', '-')} does not apply with --scheduler "
+                             f"or --dask-local, which read a Zarr store as stored.",
+                             parameters=(unused[0],))
+
+
+def _geometry(path: str, reading: dict[str, Any], ndim: int) -> tuple[np.ndarray, str]:
+    """The voxel size and unit of a plain Zarr array: what --spacing and --unit give, else
+    one voxel (as :func:`cavitas.read` reads such a store)."""
+    spacing = reading.get("spacing")
+    if spacing is None:
+        return np.ones(ndim), reading.get("unit") or "voxel"
+    spacing = np.asarray(spacing, float)
+    if spacing.size != ndim:
+        raise ParameterError(f"--spacing gives {spacing.size} sizes; '{path}' has {ndim} axes.",
+                             parameters=("spacing",))
+    return spacing, reading.get("unit") or "µm"
+
+
+def _plain_zarr(path: str) -> None:
+    """Refuse what this route cannot read with the geometry the in-memory run gives it."""
+    from ..io._zarr import _multiscales, _open, is_zarr_store
+
+    source = Path(path)
+    if not is_zarr_store(source):
+        raise ParameterError(f"'{path}' is not a Zarr store: cavitas segment reads only Zarr "
+                             "stores chunk by chunk so far (HDF5: convert it to Zarr).")
+    zarr, node = _open(source)
+    if not isinstance(node, zarr.Array) and _multiscales(dict(node.attrs)) is not None:
+        raise ParameterError(f"'{path}' is an OME-Zarr image, whose voxel size cavitas segment "
+                             "does not read chunk by chunk yet: give it a plain Zarr array "
+                             "(with --spacing).")
+
+
+def _targets(args: argparse.Namespace, enclosures: bool) -> dict[str, Path]:
+    """The output paths, checked before any work (an existing one needs --force)."""
+    from .._shared.atomic import check_writable
+
+    names = {"labels": "labels.zarr", "regions": "regions.csv", "run": "run.json"}
+    if enclosures:
+        names["enclosures"] = "enclosures.zarr"
+    targets = {key: args.out / name for key, name in names.items()}
+    for key, path in targets.items():
+        if path.name.endswith(".zarr"):
+            if path.exists() and not args.force:
+                raise OutputError(f"Output '{path}' already exists; use --force to replace "
+                                  "it.", parameters=("force",))
+        else:
+            check_writable(path, force=args.force, inputs=(args.file,))
+    return targets
+
+
+def run_chunked(args: argparse.Namespace, settings: Any) -> int:
+    """Segment ``args.file`` chunk by chunk on Dask workers and write its outputs."""
+    from .. import __version__
+    from .._json import dumps
+    from .._shared.atomic import atomic_path
+    from ..io._checksum import input_checksum
+    from ..io._lazy import open_chunked
+    from ..io._staging import discard_staging, open_staging, publish_staged
+    from ..segment._chunked_segment import segment_in_chunks
+
+    started = time.perf_counter()
+    _refuse(args, settings)
+    options = settings.options
+    reading = settings.reading.kwargs()
+    targets = _targets(args, bool(options.enclosures))
+    _plain_zarr(args.file)
+    image = open_chunked(args.file, channel=reading.get("channel"), time=reading.get("time"),
+                         missing_chunks=reading.get("missing_chunks", "error"))
+    mask = None
+    if options.mask:
+        mask = open_chunked(options.mask, role="Mask").data != 0
+        if tuple(mask.shape) != tuple(image.data.shape):
+            raise ParameterError(f"Mask '{options.mask}' has shape {tuple(mask.shape)}; the "
+                                 f"image has shape {tuple(image.data.shape)}.")
+    spacing, unit = _geometry(args.file, reading, image.data.ndim)
+    params = settings.params
+    longest = float(np.max(np.multiply(image.data.shape, spacing)))
+    if params.smooth is not None and params.smooth > longest:
+        raise ParameterError(f"--smooth ({params.smooth:g} {unit}) exceeds the image's longest "
+                             f"side ({longest:g} {unit}) in '{args.file}'.",
+                             parameters=("smooth",))
+    if unit == "voxel" and (params.min_volume is not None or params.max_volume is not None):
+        raise ParameterError(f"--min-volume and --max-volume are in physical units and need "
+                             f"a known spacing; '{args.file}' has none (give --spacing).",
+                             parameters=("min_volume", "max_volume", "spacing"))
+    outdir = args.out
+    made = not outdir.exists()
+    staging = None
+    try:
+        with dask_client(args, image.name) as client:
+            workers = len(client.scheduler_info().get("workers", {}))
+            seg = segment_in_chunks(image.data, params=params, spacing=spacing, unit=unit,
+                                    mask=mask)
+            staging = open_staging(outdir)
+            seg.labels.to_zarr(str(staging / targets["labels"].name))
+            if "enclosures" in targets:
+                enclosures = (seg.enclosure_labels if seg.enclosure_labels is not None
+                              else seg.labels * 0)
+                enclosures.to_zarr(str(staging / targets["enclosures"].name))
+        seg.table.to_csv(staging / targets["regions"].name)
+        counts = {kind: int(np.count_nonzero(seg.table["kind"] == kind))
+                  for kind in ("chamber", "enclosure")}
+        record = {
+            "cavitas_version": __version__,
+            "input": str(args.file),
+            "input_sha256": input_checksum(args.file),
+            "shape": list(image.data.shape),
+            "chunks": list(image.chunk_shape),
+            "spacing": spacing.tolist(),
+            "unit": unit,
+            "route": f"chunk by chunk on {workers} Dask worker(s)",
+            "not_made": NOT_MADE,
+            "read_options": reading,
+            "parameters": {**params.to_dict(), "threshold": seg.threshold,
+                           "smooth_sigma": seg.smooth_sigma,
+                           "connectivity": seg.connectivity, "unit": unit},
+            "options": options.to_dict(),
+            "summary": {"regions": counts["chamber"], "enclosures": counts["enclosure"],
+                        "cavities": int(np.count_nonzero(seg.tree.persistence[1:] > 0))},
+            "outputs": {key: path.name for key, path in targets.items()},
+            "elapsed_s": round(time.perf_counter() - started, 3),
+            "caution": RESEARCH_ONLY,
+        }
+        with atomic_path(staging / targets["run"].name) as tmp:
+            tmp.write_text(dumps(record, indent=1, ensure_ascii=False, default=str),
+                           encoding="utf-8")
+        publish_staged(staging, outdir)
+        staging = None
+    finally:
+        if staging is not None:
+            discard_staging(staging, outdir, made=made)
+    if not args.quiet:
+        shape = " x ".join(map(str, image.chunk_shape))
+        print(f"{args.file}: {counts['chamber']} regions (component mode), "
+              f"{counts['enclosure']} enclosures; persistence threshold "
+              f"{seg.threshold:.4g} (intensity units), smoothing σ {seg.smooth_sigma:.3g}")
+        print(f"  computed chunk by chunk on {workers} Dask worker(s), chunks of {shape} "
+              f"voxels; not made on this route: {NOT_MADE}")
+        print(f"  outputs in {args.out}: " + ", ".join(p.name for p in targets.values()))
+        print(RESEARCH_ONLY)
+    return 0
