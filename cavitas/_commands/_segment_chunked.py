@@ -18,7 +18,7 @@ from typing import Any
 import numpy as np
 
 from .._caution import RESEARCH_ONLY
-from .._errors import OutputError, ParameterError
+from .._errors import InputFileError, OutputError, ParameterError
 from ._cluster import dask_client
 
 __all__ = ["NOT_MADE", "run_chunked"]
@@ -36,6 +36,9 @@ _WHOLE_VOLUME = {
     "mesh": ("--mesh", "the whole label map"),
     "label_format": ("--label-format", "the whole label map (labels.zarr is written)"),
 }
+
+#: Reading options for files without a header (raw, NumPy): not for this route's inputs.
+_RAW_LAYOUT = ("key", "shape", "dtype", "byte_order", "offset")
 
 
 def _refuse(args: argparse.Namespace, settings: Any) -> None:
@@ -60,57 +63,42 @@ def _refuse(args: argparse.Namespace, settings: Any) -> None:
                                  f"leave it out to segment '{name}' with --scheduler or "
                                  f"--dask-local.", parameters=(key,))
     reading = settings.reading.kwargs()
-    unused = [key for key in ("key", "shape", "dtype", "byte_order", "offset") if key in reading]
+    unused = [key for key in _RAW_LAYOUT if key in reading]
     if unused:
         raise ParameterError(f"--{unused[0].replace('_', '-')} does not apply with --scheduler "
-                             f"or --dask-local, which read a Zarr store as stored.",
-                             parameters=(unused[0],))
+                             f"or --dask-local, which read a Zarr store or an HDF5 file as "
+                             f"stored ('{name}').", parameters=(unused[0],))
 
 
-def _geometry(path: str, reading: dict[str, Any], ndim: int) -> tuple[np.ndarray, str]:
-    """The voxel size and unit of a plain Zarr array: what --spacing and --unit give, else
-    one voxel (as :func:`cavitas.read` reads such a store)."""
-    spacing = reading.get("spacing")
-    if spacing is None:
-        return np.ones(ndim), reading.get("unit") or "voxel"
-    spacing = np.asarray(spacing, float)
-    if spacing.size != ndim:
-        raise ParameterError(f"--spacing gives {spacing.size} sizes; '{path}' has {ndim} axes.",
-                             parameters=("spacing",))
-    return spacing, reading.get("unit") or "µm"
-
-
-def _plain_zarr(path: str) -> None:
-    """Refuse what this route cannot read with the geometry the in-memory run gives it."""
-    from ..io._zarr import _multiscales, _open, is_zarr_store
-
-    source = Path(path)
-    if not is_zarr_store(source):
-        raise ParameterError(f"'{path}' is not a Zarr store: cavitas segment reads only Zarr "
-                             "stores chunk by chunk so far (HDF5: convert it to Zarr).")
-    zarr, node = _open(source)
-    if not isinstance(node, zarr.Array) and _multiscales(dict(node.attrs)) is not None:
-        raise ParameterError(f"'{path}' is an OME-Zarr image, whose voxel size cavitas segment "
-                             "does not read chunk by chunk yet: give it a plain Zarr array "
-                             "(with --spacing).")
-
-
-def _targets(args: argparse.Namespace, enclosures: bool) -> dict[str, Path]:
+def _targets(args: argparse.Namespace, settings: Any) -> dict[str, Path]:
     """The output paths, checked before any work (an existing one needs --force)."""
     from .._shared.atomic import check_writable
 
     names = {"labels": "labels.zarr", "regions": "regions.csv", "run": "run.json"}
-    if enclosures:
+    if settings.options.enclosures:
         names["enclosures"] = "enclosures.zarr"
     targets = {key: args.out / name for key, name in names.items()}
-    for key, path in targets.items():
-        if path.name.endswith(".zarr"):
-            if path.exists() and not args.force:
-                raise OutputError(f"Output '{path}' already exists; use --force to replace "
-                                  "it.", parameters=("force",))
-        else:
-            check_writable(path, force=args.force, inputs=(args.file,))
+    inputs = tuple(p for p in (args.file, settings.options.mask) if p)
+    for path in targets.values():
+        if not path.name.endswith(".zarr"):
+            check_writable(path, force=args.force, inputs=inputs)
+        elif any(Path(p).resolve() == path.resolve() for p in inputs):
+            raise OutputError(f"Refusing to overwrite the input '{path}'.")
+        elif path.exists() and not args.force:
+            raise OutputError(f"Output '{path}' already exists; use --force to replace it.",
+                              parameters=("force",))
     return targets
+
+
+def _write_labels(labels: Any, path: Path, volume: Any) -> None:
+    """A label map (Dask array) into a Zarr array at ``path`` chunk by chunk, with the
+    input's voxel size, unit and the research-only caution as attributes."""
+    import zarr
+
+    labels.to_zarr(str(path))
+    zarr.open_array(str(path), mode="r+").attrs.update(
+        {"spacing": list(volume.spacing), "unit": volume.unit, "source": volume.name,
+         "caution": RESEARCH_ONLY})
 
 
 def run_chunked(args: argparse.Namespace, settings: Any) -> int:
@@ -127,27 +115,20 @@ def run_chunked(args: argparse.Namespace, settings: Any) -> int:
     _refuse(args, settings)
     options = settings.options
     reading = settings.reading.kwargs()
-    targets = _targets(args, bool(options.enclosures))
-    _plain_zarr(args.file)
-    image = open_chunked(args.file, channel=reading.get("channel"), time=reading.get("time"),
-                         missing_chunks=reading.get("missing_chunks", "error"))
+    targets = _targets(args, settings)
+    with_geometry = {key: reading[key] for key in ("spacing", "unit") if key in reading}
+    image = open_chunked(args.file, **{key: value for key, value in reading.items()
+                                       if key not in with_geometry})
+    volume = image.volume(**with_geometry)  # the voxels stay on disk
+    params = settings.params
+    params.check_image(volume)
     mask = None
     if options.mask:
         mask = open_chunked(options.mask, role="Mask").data != 0
-        if tuple(mask.shape) != tuple(image.data.shape):
-            raise ParameterError(f"Mask '{options.mask}' has shape {tuple(mask.shape)}; the "
-                                 f"image has shape {tuple(image.data.shape)}.")
-    spacing, unit = _geometry(args.file, reading, image.data.ndim)
-    params = settings.params
-    longest = float(np.max(np.multiply(image.data.shape, spacing)))
-    if params.smooth is not None and params.smooth > longest:
-        raise ParameterError(f"--smooth ({params.smooth:g} {unit}) exceeds the image's longest "
-                             f"side ({longest:g} {unit}) in '{args.file}'.",
-                             parameters=("smooth",))
-    if unit == "voxel" and (params.min_volume is not None or params.max_volume is not None):
-        raise ParameterError(f"--min-volume and --max-volume are in physical units and need "
-                             f"a known spacing; '{args.file}' has none (give --spacing).",
-                             parameters=("min_volume", "max_volume", "spacing"))
+        if tuple(mask.shape) != volume.shape:
+            raise InputFileError(f"Mask '{options.mask}' has shape {tuple(mask.shape)}; the "
+                                 f"image '{args.file}' has shape {volume.shape}.")
+    spacing, unit = np.asarray(volume.spacing, float), volume.unit
     outdir = args.out
     made = not outdir.exists()
     staging = None
@@ -157,11 +138,12 @@ def run_chunked(args: argparse.Namespace, settings: Any) -> int:
             seg = segment_in_chunks(image.data, params=params, spacing=spacing, unit=unit,
                                     mask=mask)
             staging = open_staging(outdir)
-            seg.labels.to_zarr(str(staging / targets["labels"].name))
+            maps = {"labels": seg.labels}
             if "enclosures" in targets:
-                enclosures = (seg.enclosure_labels if seg.enclosure_labels is not None
-                              else seg.labels * 0)
-                enclosures.to_zarr(str(staging / targets["enclosures"].name))
+                maps["enclosures"] = (seg.enclosure_labels if seg.enclosure_labels is not None
+                                      else seg.labels * 0)
+            for key, labels in maps.items():
+                _write_labels(labels, staging / targets[key].name, volume)
         seg.table.to_csv(staging / targets["regions"].name)
         counts = {kind: int(np.count_nonzero(seg.table["kind"] == kind))
                   for kind in ("chamber", "enclosure")}
