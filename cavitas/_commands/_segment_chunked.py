@@ -28,7 +28,6 @@ NOT_MADE = ("the report, diagram.csv/png, regions.json, euler.csv, shells, parti
             "meshes")
 #: Command-line options this route refuses, with what each needs.
 _WHOLE_VOLUME = {
-    "relative_persistence": ("--relative-persistence", "the image's robust range"),
     "level_fraction": ("--level-fraction", "breach regions"),
     "keep_border": ("--keep-border", "the border-cut check"),
     "shells": ("--shells", "the whole label map"),
@@ -48,8 +47,9 @@ def _refuse(args: argparse.Namespace, settings: Any) -> None:
     if params.automatic:
         raise ParameterError(
             f"The automatic threshold needs whole-image statistics that are not computed "
-            f"chunk by chunk yet: give --min-persistence (and --no-auto if --auto is set) to "
-            f"segment '{name}' with --scheduler or --dask-local.")
+            f"chunk by chunk yet: give --min-persistence or --relative-persistence (and "
+            f"--no-auto if --auto is set) to segment '{name}' with --scheduler or "
+            f"--dask-local.")
     if params.region != "component":
         raise ParameterError(
             f"--region {params.region} needs the whole volume (basin flooding, the border-cut "
@@ -159,6 +159,7 @@ def run_chunked(args: argparse.Namespace, settings: Any) -> int:
             "not_made": NOT_MADE,
             "read_options": reading,
             "parameters": {**params.to_dict(), "threshold": seg.threshold,
+                           "robust_range": seg.robust_range,
                            "smooth_sigma": seg.smooth_sigma,
                            "connectivity": seg.connectivity, "unit": unit},
             "options": options.to_dict(),

@@ -7,8 +7,7 @@ from pathlib import Path
 from typing import Any
 
 from .._caution import RESEARCH_ONLY
-from .._checks import WALLS
-from ..segment._params import REGIONS
+from .._checks import REGIONS, WALLS
 from ._cluster import add_cluster_options, chunked_route
 from ._reading import add_reading_options
 

@@ -1,7 +1,8 @@
 """One chunked volume segmented chunk by chunk on Dask (:func:`segment_in_chunks`).
 
-The mode wired so far needs no whole-image statistic: a persistence threshold given by
-hand (no automatic significance, no relative threshold), the smoothing given or none, and
+The mode wired so far: a persistence threshold given by hand (absolute, or relative to the
+robust range, :func:`._chunked_statistics.percentiles_in_chunks`; no automatic
+significance), the smoothing given or none, and
 ``region="component"`` (each chamber the component below its level that holds its core;
 no border-cut check and no island filling, which flood or fill over the whole volume).
 Its steps are those of :func:`cavitas.segment.segment` in that mode, each from a block
@@ -9,8 +10,8 @@ tested equal to its whole-volume step:
 
 1. smoothing with halos (:func:`._chunked_smooth.smooth_in_chunks`);
 2. the cavity tree (:func:`cavitas.cubical._chunked_tree.tree_chunks_on_dask`);
-3. selection (:func:`._select.select_nodes`, ``top``) and the split rule on the tree, on
-   the client, as :func:`._detect.detect` does without the automatic rule;
+3. the threshold, selection (:func:`._select.select_nodes`, ``top``) and the split rule on
+   the tree, on the client, as :func:`._detect.detect` does without the automatic rule;
 4. pruning from the tree alone (:func:`._tree_order.prune_by_levels`);
 5. chamber and enclosure labels per chunk (:func:`._chunked_regions.chunked_nested_map`),
    counted per chunk; the volume bounds, numbering and table from those counts
@@ -31,6 +32,7 @@ from ..cubical._tree import CavityTree
 from . import _noise
 from ._chunked_regions import chunked_nested_map
 from ._chunked_smooth import smooth_in_chunks
+from ._chunked_statistics import percentiles_in_chunks
 from ._params import SegmentParams
 from ._regions import face_slices
 from ._result import ChamberValues, EnclosureValues, RegionCounts, number_regions
@@ -48,6 +50,7 @@ class ChunkedSegmentation:
     enclosure_labels: Any        # innermost enclosure per voxel, or None (no enclosure)
     table: Table
     threshold: float
+    robust_range: float | None   # 0.5th to 99.5th percentile (relative threshold only)
     smooth_sigma: float          # physical units
     tree: CavityTree             # of the smoothed image (walls high)
     connectivity: int
@@ -62,9 +65,9 @@ def segment_in_chunks(image: Any, *, params: SegmentParams, spacing: np.ndarray,
     image : dask.array.Array
         The 2D or 3D image, in its own chunks (never read whole).
     params : SegmentParams
-        ``region="component"``, a ``min_persistence``, not automatic, no
-        ``relative_persistence``, ``level_fraction`` or ``keep_border`` (the command line
-        refuses the others before calling this).
+        ``region="component"``, not automatic (a ``min_persistence`` or
+        ``relative_persistence``), no ``level_fraction`` or ``keep_border`` (the command
+        line refuses the others before calling this).
     spacing, unit
         The voxel size per axis and its unit.
     mask : dask.array.Array of bool, optional
@@ -108,8 +111,13 @@ def segment_in_chunks(image: Any, *, params: SegmentParams, spacing: np.ndarray,
     chunked = tree_chunks_on_dask(smoothed, walls="bright", connectivity=connectivity,
                                   mask=mask)
     tree = chunked.tree
-    tau = persistence_threshold(auto=None, absolute=params.min_persistence, relative=None,
-                                robust_range=0.0)
+    robust_range = None
+    if params.relative_persistence is not None:  # as segment(): 0.5th to 99.5th percentile
+        low, high = percentiles_in_chunks(image, [0.5, 99.5])
+        robust_range = float(high - low)
+    tau = persistence_threshold(auto=None, absolute=params.min_persistence,
+                                relative=params.relative_persistence,
+                                robust_range=robust_range or 0.0)
     significant = select_nodes(tree.persistence, tree.parent, tau, params.top)
     keep = split_rule(tree, significant, params.split_fraction)
     pruned = prune_by_levels(tree, keep, tau)
@@ -152,8 +160,8 @@ def segment_in_chunks(image: Any, *, params: SegmentParams, spacing: np.ndarray,
         enclosure_lut = np.zeros(n_ch + n_enc + 1, dtype)
         enclosure_lut[n_ch + 1:] = numbered.enclosure_ids
         enclosure_labels = enclosures.map_blocks(_renumber, enclosure_lut, dtype=dtype)
-    return ChunkedSegmentation(labels, enclosure_labels, numbered.table, tau, scale, tree,
-                               connectivity)
+    return ChunkedSegmentation(labels, enclosure_labels, numbered.table, tau, robust_range,
+                               scale, tree, connectivity)
 
 
 def _counts(block: np.ndarray, length: int) -> np.ndarray:

@@ -14,19 +14,16 @@ from typing import Any
 import numpy as np
 
 from .. import _checks
-from .._checks import choice, flag, number, whole
+from .._checks import REGIONS, choice, flag, number, whole
 from .._errors import ParameterError
 from ._select import SPLIT_FRACTION
 
-__all__ = ["REGIONS", "SegmentParams"]
+__all__ = ["SegmentParams"]
 
 #: Candidate detection scales of the automatic mode, as Gaussian σ in voxels of the finest axis.
 AUTO_SCALES = (0.0, 0.5, 1.0, 1.5, 2.0, 3.0)
 #: Safety factor on the empirical noise null (see :mod:`cavitas.segment._noise`).
 SAFETY = 1.25
-#: The region definitions (:mod:`cavitas.segment._regions`; ``"component"``: the breach
-#: region alone, no border-cut check and no island filling).
-REGIONS = ("basin", "breach", "component")
 
 
 @dataclass
