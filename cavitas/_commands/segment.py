@@ -55,10 +55,13 @@ examples:
       parameters from a TOML file (options on the command line win), replacing output
   cavitas segment big.zarr -o out --dask-local 4 --region component --min-persistence 40
       a volume larger than memory: 4 local Dask workers segment it chunk by chunk (the
-      Zarr store's chunks) and labels.zarr is written chunk by chunk; the same labels and
-      regions.csv rows as without --dask-local. Only this mode is computed this way so far:
-      --region component, a hand threshold (--min-persistence), --smooth given or none;
-      every other option that needs the whole volume is refused in one sentence
+      chunks of the Zarr store, OME-Zarr image or HDF5 file) and labels.zarr is written
+      chunk by chunk, then regions.csv and run.json: the same labels and rows as without
+      --dask-local. Only this mode is computed this way so far: --region component, a
+      threshold given by hand (--min-persistence or --relative-persistence), --smooth
+      given or none; what needs the whole volume (the automatic threshold, basin and
+      breach regions, --keep-border, shells, partition, meshes) is refused in one
+      sentence, and the report and diagram files are not made
 
 parameter file (--params): the options' names with underscores, at the top level or in
 tables; types are strict (true/false, quoted texts, numbers, [lists] of numbers):
@@ -91,8 +94,8 @@ def register(subparsers: Any, *, parents: list[argparse.ArgumentParser],
                    help="skip the wall-thickness measurement (slow on thick walls)")
     p.add_argument("--force", action="store_true", help="replace outputs that already exist")
     add_memory_option(p)
-    add_cluster_options(p, what="the segmentation (only --region component with "
-                             "--min-persistence so far: see below)")
+    add_cluster_options(p, what="the segmentation (so far only --region component with a "
+                             "threshold given by hand: see the examples)")
     p.set_defaults(func=run)
     return p
 
