@@ -83,9 +83,9 @@ def _store(path, image, chunks) -> str:
 
 
 CASES = [  # (shape, pitch, chunks, walls, extra options)
-    ((9, 10, 9), 4, (4, 5, 1), "bright", ["--smooth", "0.6", "--enclosures"]),
-    ((13, 11, 12), 4, (2, 5, 7), "dark", ["--enclosures", "--mask", "MASK"]),
-    ((25, 21), 6, (1, 11), "dark", ["--smooth", "1", "--connectivity", "2", "--top", "5",
+    ((9, 9, 9), 4, (5, 5, 1), "bright", ["--smooth", "0.6", "--enclosures"]),
+    ((13, 11, 12), 4, (3, 6, 7), "dark", ["--enclosures", "--mask", "MASK"]),
+    ((25, 21), 6, (2, 11), "dark", ["--smooth", "1", "--connectivity", "2", "--top", "5",
                                     "--relative-persistence", "0.15"]),
 ]
 
