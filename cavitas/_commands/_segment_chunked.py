@@ -1,5 +1,6 @@
-"""``cavitas segment FILE --scheduler ADDRESS`` (or ``--dask-local``): one Zarr store
-segmented chunk by chunk on Dask workers (:func:`run_chunked`).
+"""``cavitas segment FILE --scheduler ADDRESS`` (or ``--dask-local``): a Zarr store, an
+OME-Zarr image or an HDF5 file segmented chunk by chunk on Dask workers
+(:func:`run_chunked`).
 
 Only the mode :func:`cavitas.segment._chunked_segment.segment_in_chunks` computes is
 taken: ``--region component`` with a hand threshold. Everything else is refused in one
@@ -24,8 +25,8 @@ from ._cluster import dask_client
 __all__ = ["NOT_MADE", "run_chunked"]
 
 #: What the chunked route does not write (the run summary says so).
-NOT_MADE = ("the report, diagram.csv/png, regions.json, euler.csv, shells, partition and "
-            "meshes")
+NOT_MADE = ("the report, diagram.csv/png, regions.json, euler.csv and the measurement columns "
+            "of regions.csv after touches_border")
 #: Command-line options this route refuses, with what each needs.
 _WHOLE_VOLUME = {
     "level_fraction": ("--level-fraction", "breach regions"),

@@ -85,8 +85,7 @@ def open_chunked(path: str | os.PathLike, *, channel: int | None = None,
         if dataset is not None:
             raise ParameterError(f"dataset= applies only to HDF5 files (.h5, .hdf5); "
                                  f"'{path}' is a Zarr store.", parameters=("dataset",))
-        lazy, geometry = _zarr_image(source, channel, time, missing_chunks)
-        return ChunkedImage(lazy, str(path), "Zarr", *geometry)
+        return _zarr_image(source, str(path), channel, time, missing_chunks)
     if source.name.lower().endswith(HDF5_SUFFIXES):
         if missing_chunks != "error":
             raise ParameterError(f"missing_chunks= applies only to Zarr stores; '{path}' is "
@@ -109,14 +108,14 @@ def open_chunked(path: str | os.PathLike, *, channel: int | None = None,
                          "workers.")
 
 
-def _zarr_image(source: Path, channel: int | None, time: int | None,
-                missing_chunks: str) -> tuple[Any, tuple[tuple[float, ...] | None, str | None]]:
-    """The 2D/3D image of a Zarr store as a Dask array (level 0 of an OME-Zarr image), and
+def _zarr_image(source: Path, name: str, channel: int | None, time: int | None,
+                missing_chunks: str) -> ChunkedImage:
+    """The 2D/3D image of a Zarr store as a Dask array (level 0 of an OME-Zarr image), with
     the voxel size and unit it states (an OME-Zarr image's; none for a plain array)."""
     import dask.array as da
 
     zarr, node = _open(source)
-    geometry: tuple[tuple[float, ...] | None, str | None] = (None, None)
+    ome = None
     if isinstance(node, zarr.Array):
         array, letters = node, None
     elif (multiscales := _multiscales(dict(node.attrs))) is not None:
@@ -127,7 +126,7 @@ def _zarr_image(source: Path, channel: int | None, time: int | None,
             raise InputFileError(f"'{source}' lists no readable array at resolution level "
                                  "0; the OME-Zarr metadata are damaged.") from exc
         ome = ome_geometry(array, multiscales[0], datasets[0], source)
-        letters, geometry = ome.letters, (ome.spacing, ome.unit)
+        letters = ome.letters
     else:
         arrays = [name for name, _ in node.arrays()]
         if len(arrays) != 1:
@@ -154,4 +153,6 @@ def _zarr_image(source: Path, channel: int | None, time: int | None,
     if lazy.ndim not in (2, 3):
         raise InputFileError(f"'{source}' holds an array of shape {lazy.shape}; expected a "
                              "2D image or a 3D volume.")
-    return lazy, geometry
+    if ome is None:
+        return ChunkedImage(lazy, name, "Zarr")
+    return ChunkedImage(lazy, name, "Zarr", ome.spacing, ome.unit)
