@@ -31,11 +31,14 @@ import numpy as np
 
 from ._errors import InputFileError, ParameterError
 
-__all__ = ["WALLS", "choice", "flag", "number", "numbers_list", "refuse_nonfinite", "shape",
-           "spacing", "text", "walls", "whole"]
+__all__ = ["REGIONS", "WALLS", "choice", "flag", "number", "numbers_list", "refuse_nonfinite",
+           "shape", "spacing", "text", "walls", "whole"]
 
 #: The accepted ``walls`` values: bright walls (a superlevel filtration) or dark ones.
 WALLS = ("bright", "dark")
+#: The region definitions (:mod:`cavitas.segment._regions`; ``"component"``: the breach
+#: region alone, no border-cut check and no island filling).
+REGIONS = ("basin", "breach", "component")
 
 
 def _shown(value: Any) -> str:

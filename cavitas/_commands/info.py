@@ -26,8 +26,10 @@ computed chunk by chunk on Dask workers (`cavitas diagram FILE -o OUT --dask-loc
 `--scheduler ADDRESS`; from Python, cavitas.persistence of the array opened with zarr or
 h5py): the chunks and the memory each worker needs, the larger of one chunk's sweep (about
 18 bytes per chunk voxel beyond the chunk) and the largest join of two blocks' seams (it
-grows with the middle planes of the volume; bench/chunked.py). A segmentation still reads
-the file whole.
+grows with the middle planes of the volume; bench/chunked.py). A segmentation reads the
+file whole, except `cavitas segment FILE -o OUT --region component --min-persistence P
+--dask-local N` (a plain Zarr array): chunk by chunk too, its label pass needing about 21
+bytes per chunk voxel beyond the chunk, in the smoothing's type, with its halo.
 
 Memory estimate = 340 MiB for the program (Python, the libraries, the compiled kernels) +
 voxels x (bytes per input voxel + the working memory of a segmentation: 66 bytes when the
@@ -154,8 +156,10 @@ def _text(facts: dict[str, Any]) -> str:
     chunked = facts.get("chunked")
     if chunked:
         lines += [
-            "  path        segment: whole, in memory; diagram with --dask-local or "
-            "--scheduler, and cavitas.persistence (Python): chunk by chunk on Dask workers",
+            "  path        segment: whole, in memory, but --region component with "
+            "--min-persistence and --dask-local or --scheduler: chunk by chunk on Dask "
+            "workers (plain Zarr arrays); diagram with --dask-local or --scheduler, and "
+            "cavitas.persistence (Python): chunk by chunk",
             f"  per worker  about {_size(chunked['worker_bytes'])} beyond the program "
             f"(chunk sweep {_size(chunked['chunk_sweep_bytes'])}, largest join "
             f"{_size(chunked['largest_join_bytes'])}; {chunked['chunks']:,} chunks of "

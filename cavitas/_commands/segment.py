@@ -7,7 +7,8 @@ from pathlib import Path
 from typing import Any
 
 from .._caution import RESEARCH_ONLY
-from .._checks import WALLS
+from .._checks import REGIONS, WALLS
+from ._cluster import add_cluster_options, chunked_route
 from ._reading import add_reading_options
 
 __all__ = ["add_memory_option", "add_segment_options", "register", "run",
@@ -52,6 +53,15 @@ examples:
       a raw volume: its layout (and --byte-order, --offset if needed) and voxel size
   cavitas segment scan.tif -o out --params settings.toml --force
       parameters from a TOML file (options on the command line win), replacing output
+  cavitas segment big.zarr -o out --dask-local 4 --region component --min-persistence 40
+      a volume larger than memory: 4 local Dask workers segment it chunk by chunk (the
+      chunks of the Zarr store, OME-Zarr image or HDF5 file) and labels.zarr is written
+      chunk by chunk, then regions.csv and run.json: the same labels and rows as without
+      --dask-local. Only this mode is computed this way so far: --region component, a
+      threshold given by hand (--min-persistence or --relative-persistence), --smooth
+      given or none; what needs the whole volume (the automatic threshold, basin and
+      breach regions, --keep-border, shells, partition, meshes) is refused in one
+      sentence, and the report and diagram files are not made
 
 parameter file (--params): the options' names with underscores, at the top level or in
 tables; types are strict (true/false, quoted texts, numbers, [lists] of numbers):
@@ -84,6 +94,8 @@ def register(subparsers: Any, *, parents: list[argparse.ArgumentParser],
                    help="skip the wall-thickness measurement (slow on thick walls)")
     p.add_argument("--force", action="store_true", help="replace outputs that already exist")
     add_memory_option(p)
+    add_cluster_options(p, what="the segmentation (so far only --region component with a "
+                             "threshold given by hand: see the examples)")
     p.set_defaults(func=run)
     return p
 
@@ -142,9 +154,12 @@ def add_segment_options(p: argparse.ArgumentParser) -> None:
                         "and so does a hole the smoothing closed if the two sides touch "
                         "through it at the fine scale (default 0.15; 0 = every significant "
                         "inner wall splits)")
-    g.add_argument("--region", choices=("basin", "breach"),
+    g.add_argument("--region", choices=REGIONS,
                    help="basin (default): flooding partition minus each basin's wall, what "
-                        "you measure; breach: the strict component below the chamber's level")
+                        "you measure; breach: the strict component below the chamber's "
+                        "level; component: that component exactly, without the border-cut "
+                        "check and without filling wall specks inside it (the mode "
+                        "--scheduler / --dask-local compute)")
     g.add_argument("--level-fraction", type=float, metavar="F",
                    help="breach regions: cut at this fraction [0-1] of the way from the core "
                         "level to the chamber's level")
@@ -187,6 +202,10 @@ def run(args: argparse.Namespace) -> int:
     from ..workflow import segment_file
 
     settings = settings_from_args(args)
+    if chunked_route(args):
+        from ._segment_chunked import run_chunked
+
+        return run_chunked(args, settings)
     params = settings.params
     summary = segment_file(args.file, args.out, params, options=settings.options,
                            force=args.force, progress=args.progress,

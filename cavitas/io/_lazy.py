@@ -15,16 +15,18 @@ from pathlib import Path
 from typing import Any
 
 from .._errors import InputFileError, ParameterError
+from ._assemble import Decoded, assemble
 from ._axes import select_planes
 from ._failures import reading
-from ._hdf5 import _choose, _h5py
+from ._hdf5 import _choose, _geometry, _h5py
+from ._volume import Volume
 from ._zarr import (
     MISSING_CHUNKS,
-    _axis_letters,
     _check_chunks,
     _multiscales,
     _open,
     is_zarr_store,
+    ome_geometry,
 )
 
 __all__ = ["ChunkedImage", "open_chunked"]
@@ -40,6 +42,14 @@ class ChunkedImage:
     data: Any                       # dask.array.Array, axes (z, y, x) or (y, x)
     name: str                       # the file, as given
     kind: str                       # "Zarr" or "HDF5"
+    spacing: tuple[float, ...] | None = None  # as the file states it (cavitas.read's)
+    unit: str | None = None
+
+    def volume(self, *, spacing: Any = None, unit: str | None = None) -> Volume:
+        """The image as a :class:`~cavitas.io.Volume` whose data stay this Dask array, its
+        geometry the file's or the one given, exactly as :func:`cavitas.read` makes it."""
+        return assemble(self.name, Decoded(self.data, self.spacing, self.unit),
+                        spacing=spacing, unit=unit)
 
     @property
     def chunk_shape(self) -> tuple[int, ...]:
@@ -75,8 +85,7 @@ def open_chunked(path: str | os.PathLike, *, channel: int | None = None,
         if dataset is not None:
             raise ParameterError(f"dataset= applies only to HDF5 files (.h5, .hdf5); "
                                  f"'{path}' is a Zarr store.", parameters=("dataset",))
-        return ChunkedImage(_zarr_image(source, channel, time, missing_chunks), str(path),
-                            "Zarr")
+        return _zarr_image(source, str(path), channel, time, missing_chunks)
     if source.name.lower().endswith(HDF5_SUFFIXES):
         if missing_chunks != "error":
             raise ParameterError(f"missing_chunks= applies only to Zarr stores; '{path}' is "
@@ -88,21 +97,25 @@ def open_chunked(path: str | os.PathLike, *, channel: int | None = None,
         h5py = _h5py(source)
         try:
             with h5py.File(source, "r") as handle:
-                lazy = as_dask_array(_choose(h5py, handle, dataset, source))
+                node = _choose(h5py, handle, dataset, source)
+                lazy = as_dask_array(node)
+                spacing, unit = _geometry(node, handle)
         except OSError as exc:
             raise InputFileError(f"'{path}' is not a readable HDF5 file: {exc}.") from exc
-        return ChunkedImage(lazy, str(path), "HDF5")
+        return ChunkedImage(lazy, str(path), "HDF5", spacing, unit)
     raise ParameterError(f"{role + ' ' if role else ''}'{path}' is neither a Zarr store nor an "
                          "HDF5 file (.h5, .hdf5): only those are read chunk by chunk on Dask "
                          "workers.")
 
 
-def _zarr_image(source: Path, channel: int | None, time: int | None,
-                missing_chunks: str) -> Any:
-    """The 2D/3D image of a Zarr store as a Dask array (level 0 of an OME-Zarr image)."""
+def _zarr_image(source: Path, name: str, channel: int | None, time: int | None,
+                missing_chunks: str) -> ChunkedImage:
+    """The 2D/3D image of a Zarr store as a Dask array (level 0 of an OME-Zarr image), with
+    the voxel size and unit it states (an OME-Zarr image's; none for a plain array)."""
     import dask.array as da
 
     zarr, node = _open(source)
+    ome = None
     if isinstance(node, zarr.Array):
         array, letters = node, None
     elif (multiscales := _multiscales(dict(node.attrs))) is not None:
@@ -112,8 +125,8 @@ def _zarr_image(source: Path, channel: int | None, time: int | None,
         except (KeyError, TypeError) as exc:
             raise InputFileError(f"'{source}' lists no readable array at resolution level "
                                  "0; the OME-Zarr metadata are damaged.") from exc
-        axes = multiscales[0].get("axes") or ["t", "c", "z", "y", "x"][-array.ndim:]
-        letters, _ = _axis_letters(axes, source)
+        ome = ome_geometry(array, multiscales[0], datasets[0], source)
+        letters = ome.letters
     else:
         arrays = [name for name, _ in node.arrays()]
         if len(arrays) != 1:
@@ -140,4 +153,6 @@ def _zarr_image(source: Path, channel: int | None, time: int | None,
     if lazy.ndim not in (2, 3):
         raise InputFileError(f"'{source}' holds an array of shape {lazy.shape}; expected a "
                              "2D image or a 3D volume.")
-    return lazy
+    if ome is None:
+        return ChunkedImage(lazy, name, "Zarr")
+    return ChunkedImage(lazy, name, "Zarr", ome.spacing, ome.unit)

@@ -30,6 +30,7 @@ import math
 import os
 import struct
 from collections.abc import Mapping
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
@@ -42,7 +43,7 @@ from ._declared import check_declared
 from ._failures import reading
 from ._units import normalise_unit
 
-__all__ = ["is_zarr_store", "read_zarr"]
+__all__ = ["OmeGeometry", "is_zarr_store", "ome_geometry", "read_zarr"]
 
 #: The metadata files of a Zarr store (v2 array, v2 group, v3).
 _MARKERS = (".zarray", ".zgroup", "zarr.json")
@@ -205,22 +206,9 @@ def _decode_ome(zarr: Any, group: Any, multiscale: Any, *, level: int,
                              f"{dataset.get('path')!r}, but that array is missing.") from exc
     if not isinstance(array, zarr.Array):
         raise InputFileError(f"'{path}' level {level} ({dataset['path']!r}) is not an array.")
-    axes = multiscale.get("axes") or ["t", "c", "z", "y", "x"][-array.ndim:]
-    letters, units = _axis_letters(axes, path)
-    if len(letters) != array.ndim:
-        raise InputFileError(f"'{path}' names {len(letters)} axes for an array of shape "
-                             f"{array.shape}.")
-    scale = _scale(dataset.get("coordinateTransformations"), array.ndim, "level", path)
-    scale = scale * _scale(multiscale.get("coordinateTransformations"), array.ndim,
-                           "multiscale", path)
+    geometry = ome_geometry(array, multiscale, dataset, path)
+    letters, kept = geometry.letters, geometry.kept
     data, info = select_planes(array, letters, channel=channel, time=time, name=str(path))
-    kept = [i for i, letter in enumerate(letters) if letter in "ZYX"]
-    kept = [i for i in kept if not (letters[i] == "Z" and array.shape[i] == 1
-                                    and len(kept) == 3)]
-    space_units = {normalise_unit(units[i]) for i in kept if units[i] is not None}
-    if len(space_units) > 1:
-        raise InputFileError(f"'{path}' gives its space axes different units "
-                             f"({sorted(map(str, space_units))}); expected one unit.")
     meta = {"format": "ome-zarr", "ngff_version": multiscale.get("version"),
             "level": level, "levels": len(datasets), **info}
     offset = _translation(dataset.get("coordinateTransformations"))
@@ -230,8 +218,39 @@ def _decode_ome(zarr: Any, group: Any, multiscale: Any, *, level: int,
     fixed = {axis: chosen.get(letter) or 0 for axis, letter in enumerate(letters)
              if letter not in "ZYX"}
     _check_chunks(array, path, missing_chunks, meta, fixed)
-    return Decoded(np.asarray(data[...]), spacing=tuple(scale[kept]),
-                   unit=space_units.pop() if space_units else None, meta=meta)
+    return Decoded(np.asarray(data[...]), spacing=geometry.spacing, unit=geometry.unit,
+                   meta=meta)
+
+
+@dataclass(frozen=True)
+class OmeGeometry:
+    """An OME-Zarr level's axes (letters), the space axes kept, their voxel size and unit."""
+
+    letters: str
+    kept: list[int]
+    spacing: tuple[float, ...]
+    unit: str | None
+
+
+def ome_geometry(array: Any, multiscale: Any, dataset: Any, path: Path) -> OmeGeometry:
+    """The geometry of one OME-Zarr level from its metadata alone (no voxel read)."""
+    axes = multiscale.get("axes") or ["t", "c", "z", "y", "x"][-array.ndim:]
+    letters, units = _axis_letters(axes, path)
+    if len(letters) != array.ndim:
+        raise InputFileError(f"'{path}' names {len(letters)} axes for an array of shape "
+                             f"{array.shape}.")
+    scale = _scale(dataset.get("coordinateTransformations"), array.ndim, "level", path)
+    scale = scale * _scale(multiscale.get("coordinateTransformations"), array.ndim,
+                           "multiscale", path)
+    kept = [i for i, letter in enumerate(letters) if letter in "ZYX"]
+    kept = [i for i in kept if not (letters[i] == "Z" and array.shape[i] == 1
+                                    and len(kept) == 3)]
+    space_units = {normalise_unit(units[i]) for i in kept if units[i] is not None}
+    if len(space_units) > 1:
+        raise InputFileError(f"'{path}' gives its space axes different units "
+                             f"({sorted(map(str, space_units))}); expected one unit.")
+    return OmeGeometry(letters, kept, tuple(scale[kept]),
+                       space_units.pop() if space_units else None)
 
 
 def read_zarr(path: str | os.PathLike, *, channel: int | None = None,

@@ -148,11 +148,12 @@ def regions_at(det: Detection, params: SegmentParams, geometry: Geometry,
     return ScaleRegions(det, sweep, significant, keep, hier, regions, perforated, fine_sigma)
 
 
-def delineate(params: SegmentParams, sweep: Sweep, hier, image: ScanImage,
+def delineate(params: SegmentParams, sweep: Sweep, hier: Hierarchy, image: ScanImage,
                fine_sigma: np.ndarray, outside: np.ndarray | None, connectivity: int,
                voxel_volume: float, textured: bool = False, *,
                enclosures: bool = True) -> Delineation:
-    """Chamber regions (basin or breach), border-cut pieces, islands and enclosures.
+    """Chamber regions (basin, breach or component), border-cut pieces, islands and
+    enclosures.
 
     ``textured`` (the noise is not white): small shallow chambers are texture pockets and
     go back to the walls (:mod:`cavitas.segment._pockets`). ``enclosures=False`` leaves the
@@ -172,6 +173,9 @@ def delineate(params: SegmentParams, sweep: Sweep, hier, image: ScanImage,
         top_level = sweep.level_of_rank(close_rank)
         cut = core_level + params.level_fraction * (top_level - core_level)
         level_rank = np.minimum(sweep.rank_of_level(cut), close_rank)
+    if params.region == "component":
+        return _components(sweep, hier, close_rank, enclosure_rank, ids, image.closed_border,
+                           enclosures=enclosures)
     cores = tree.core[hier.node[:n_ch]]
     fine = image.smoothed(fine_sigma)
     basins = basin_map(sweep, cores, n_ch + 1)
@@ -244,3 +248,25 @@ def delineate(params: SegmentParams, sweep: Sweep, hier, image: ScanImage,
         open_cut |= medium_at_faces(work, n_ch)
     return Delineation(work, n_cut, open_cut, nested, used_level, enclosure_map, outside_basin,
                        n_pockets)
+
+
+def _components(sweep: Sweep, hier: Hierarchy, close_rank: np.ndarray,
+                enclosure_rank: np.ndarray, ids: np.ndarray, closed_border: bool, *,
+                enclosures: bool) -> Delineation:
+    """``region="component"``: each chamber is its breach region as defined (the component
+    of ``{f < level}`` holding its core), no border-cut piece, no island filled; the
+    enclosures as in :func:`delineate`. The chunked route computes exactly this
+    (:mod:`cavitas.segment._chunked_segment`)."""
+    n_ch = hier.n_chambers
+    labels = nested_map(sweep, hier.node[:n_ch], close_rank, ids[:n_ch])
+    enclosure_map = None
+    if hier.n_enclosures and enclosures:
+        enclosure_map = nested_map(sweep, hier.node[n_ch:], enclosure_rank, ids[n_ch:])
+    open_cut = np.zeros(n_ch, bool)
+    if closed_border:
+        reopen_faces(labels)
+        if enclosure_map is not None:
+            reopen_faces(enclosure_map)
+        open_cut |= medium_at_faces(labels, n_ch)
+    return Delineation(labels, 0, open_cut, {}, sweep.level_of_rank(close_rank), enclosure_map,
+                       np.zeros(labels.shape, bool))

@@ -14,7 +14,7 @@ from typing import Any
 import numpy as np
 
 from .. import _checks
-from .._checks import choice, flag, number, whole
+from .._checks import REGIONS, choice, flag, number, whole
 from .._errors import ParameterError
 from ._select import SPLIT_FRACTION
 
@@ -67,8 +67,11 @@ class SegmentParams:
         level where the whole enclosure opens; below that (a wall with a wide hole) both
         sides are one region. 0 = every significant inner wall splits. Default 0.15
         (see :mod:`cavitas.segment._select` for the measurements).
-    region : {"basin", "breach"}
-        Region definition (see :mod:`cavitas.segment._regions`).
+    region : {"basin", "breach", "component"}
+        Region definition (see :mod:`cavitas.segment._regions`). ``"component"``: the
+        breach region exactly as defined, the component below the chamber's level that
+        holds its core, with no border-cut check and no wall islands given back (what a
+        volume computed chunk by chunk gets, :mod:`cavitas.segment._chunked_segment`).
     level_fraction : float or None
         Breach regions only: cut at this fraction in [0, 1] of the way from the core level to
         the chamber's level (None = 1).
@@ -110,7 +113,7 @@ class SegmentParams:
 
     def __post_init__(self) -> None:
         self.walls = _checks.walls(self.walls)
-        self.region = choice("region", self.region, ("basin", "breach"))
+        self.region = choice("region", self.region, REGIONS)
         for name in ("min_persistence", "min_volume", "max_volume", "smooth"):
             if getattr(self, name) is not None:
                 setattr(self, name, number(name, getattr(self, name), low=0))

@@ -14,7 +14,8 @@ from .._table import Table
 from ..cubical._diagram import PAIR_DTYPE, Diagram
 from ..io._volume import Volume
 
-__all__ = ["Segmentation", "build_table", "label_dtype"]
+__all__ = ["NumberedTable", "RegionCounts", "Segmentation", "build_table", "label_dtype",
+           "number_regions"]
 
 
 def label_dtype(n_labels: int) -> np.dtype:
@@ -251,6 +252,30 @@ class TableParts:
     masked: bool                        # an ROI was given
 
 
+@dataclass(frozen=True)
+class RegionCounts:
+    """The voxel counts the regions table needs, taken from the label maps whole or chunk by
+    chunk: ``work`` per label ``0..n_chambers + n_cut`` of the delineation's map,
+    ``enclosure`` per enclosure (voxels it owns in the enclosures' map), ``on_faces`` the
+    delineation's labels present on the array's faces."""
+
+    work: np.ndarray
+    enclosure: np.ndarray
+    on_faces: np.ndarray
+
+
+@dataclass(frozen=True)
+class NumberedTable:
+    """The regions table and the renumbering of the delineation's labels behind it."""
+
+    table: Table
+    lut: np.ndarray              # delineation label -> final id (0: dropped)
+    enclosure_ids: np.ndarray    # per enclosure: its final id
+    n_chambers: int              # chambers kept (final ids 1..n_chambers)
+    chamber_nodes: np.ndarray    # cavity-tree node of each chamber row
+    dtype: np.dtype              # of the final label maps
+
+
 def build_table(*, vol: Volume, sign: float, chambers: ChamberValues,
                 enclosures: EnclosureValues, hier: Any, outside: np.ndarray, regions: Any,
                 tau: float, scale: float, params: Any) -> TableParts:
@@ -267,13 +292,49 @@ def build_table(*, vol: Volume, sign: float, chambers: ChamberValues,
     """
     from ._regions import face_labels, label_counts
 
-    work, n_cut, nested = regions.labels, regions.n_cut, regions.nested
-    dropped, enclosure_map, used_level = (regions.open_to_border, regions.enclosures,
-                                          regions.level)
+    work, enclosure_map = regions.labels, regions.enclosures
     n_ch, n_enc = hier.n_chambers, hier.n_enclosures
-    voxel = vol.voxel_volume
-    counts = label_counts(work, n_ch + n_cut + 1)
-    own = counts[1:n_ch + 1]
+    enc_own = np.zeros(n_enc, np.int64)
+    if enclosure_map is not None:
+        enc_own = label_counts(enclosure_map, n_ch + n_enc + 1)[n_ch + 1:]
+    counts = RegionCounts(label_counts(work, n_ch + regions.n_cut + 1), enc_own,
+                          face_labels(work))
+    numbered = number_regions(counts, unit=vol.unit, ndim=vol.ndim,
+                              voxel_volume=vol.voxel_volume, sign=sign, chambers=chambers,
+                              enclosures=enclosures, hier=hier, n_cut=regions.n_cut,
+                              nested=regions.nested, dropped=regions.open_to_border,
+                              level=regions.level, tau=tau, scale=scale, params=params)
+    table, k, dtype = numbered.table, numbered.n_chambers, numbered.dtype
+    all_labels = numbered.lut.astype(dtype)[work]  # memory: no int64 label map on the way
+    labels = np.where(all_labels <= k, all_labels, 0).astype(dtype, copy=False)
+    enc_labels = None
+    if enclosure_map is not None:
+        enc_labels = np.zeros(work.shape, dtype)
+        inside = enclosure_map > 0
+        enc_labels[inside] = numbered.enclosure_ids[enclosure_map[inside] - n_ch - 1]
+    if params.keep_border:
+        labels = all_labels
+    # neither a region of the label map nor a wall: the outside basin, regions not shown
+    # (border-cut pieces, the medium, chambers outside the volume bounds) and beyond the ROI
+    background = regions.outside_basin | ((work > 0) & (labels == 0))
+    background |= outside.reshape(work.shape)
+    return TableParts(labels, all_labels, table, numbered.chamber_nodes, enc_labels, background,
+                      bool(outside.any()))
+
+
+def number_regions(counts: RegionCounts, *, unit: str, ndim: int, voxel_volume: float,
+                   sign: float, chambers: ChamberValues, enclosures: EnclosureValues,
+                   hier: Any, n_cut: int, nested: dict[int, int], dropped: np.ndarray,
+                   level: np.ndarray, tau: float, scale: float,
+                   params: Any) -> NumberedTable:
+    """:func:`build_table`'s volume bounds, numbering and table, from the label maps' counts
+    alone (a chunked volume's come from per-chunk counts). ``n_cut``, ``nested``,
+    ``dropped`` (chambers open to the border) and ``level`` (each chamber's) are the
+    delineation's (:class:`~cavitas.segment._delineate.Delineation`)."""
+    used_level = level
+    n_ch, n_enc = hier.n_chambers, hier.n_enclosures
+    voxel = voxel_volume
+    own = counts.work[1:n_ch + 1]
     # chambers open to the border were moved to the border-cut pieces; a chamber left with
     # no voxel of its own (its basin all wall) is no region
     ok = ~dropped & (own > 0)
@@ -281,7 +342,7 @@ def build_table(*, vol: Volume, sign: float, chambers: ChamberValues,
         ok &= own * voxel >= params.min_volume
     if params.max_volume is not None:
         ok &= own * voxel <= params.max_volume
-    cut_own = counts[n_ch + 1:]
+    cut_own = counts.work[n_ch + 1:]
     cut_ok = np.ones(n_cut, bool)
     if params.max_volume is not None:
         cut_ok &= cut_own * voxel <= params.max_volume
@@ -294,8 +355,6 @@ def build_table(*, vol: Volume, sign: float, chambers: ChamberValues,
     new_cut[cut_ok] = np.arange(k + n_enc + 1, k + n_enc + m + 1)
     lut = np.concatenate([new_ch, new_cut])
     dtype = label_dtype(k + n_enc + m)
-    all_labels = lut.astype(dtype)[work]  # memory: no int64 label map on the way
-    labels = np.where(all_labels <= k, all_labels, 0).astype(dtype, copy=False)
 
     def remap_parent(p: int) -> int:
         if p == 0:
@@ -313,14 +372,7 @@ def build_table(*, vol: Volume, sign: float, chambers: ChamberValues,
     enc_parent = np.array([remap_parent(p) for p in hier.parent[n_ch:]], np.int64)
     parent = np.concatenate([ch_parent, enc_parent, np.zeros(m, np.int64)])
 
-    enc_labels = None
-    enc_own = np.zeros(n_enc, np.int64)
-    if enclosure_map is not None:
-        enc_labels = np.zeros(work.shape, dtype)
-        inside = enclosure_map > 0
-        enc_labels[inside] = new_enc[enclosure_map[inside] - n_ch - 1]
-        enc_own = label_counts(enc_labels, k + n_enc + 1)[k + 1:]
-    own_all = np.concatenate([own[ok], enc_own, cut_own[cut_ok]]).astype(np.int64)
+    own_all = np.concatenate([own[ok], counts.enclosure, cut_own[cut_ok]]).astype(np.int64)
     n = k + n_enc + m
     depth = _depths(parent)
     enclosed = own_all.copy()
@@ -338,14 +390,13 @@ def build_table(*, vol: Volume, sign: float, chambers: ChamberValues,
     scales = np.concatenate([mine.scale, np.full(n_enc + m, scale)])
     breach_voxel = np.concatenate([mine.breach_voxel, enclosures.breach_voxel, np.full(m, -1)])
     core_voxel = np.concatenate([mine.core_voxel, enclosures.core_voxel, np.full(m, -1)])
-    level = np.concatenate([sign * ch_level, sign * enclosures.birth, nan_m])
+    row_level = np.concatenate([sign * ch_level, sign * enclosures.birth, nan_m])
     touches = np.zeros(n, bool)
     touches[k + n_enc:] = True
-    on_faces = face_labels(all_labels)
+    on_faces = lut[counts.on_faces]
     touches[on_faces[(on_faces > 0) & (on_faces <= k)] - 1] = True  # keep_border chambers
     kind = np.array(["chamber"] * k + ["enclosure"] * n_enc + ["cut"] * m, dtype=object)
-    unit = vol.unit
-    vunit = size_unit(unit, vol.ndim)
+    vunit = size_unit(unit, ndim)
     table = Table(
         {
             "label": np.arange(1, n + 1),
@@ -359,7 +410,7 @@ def build_table(*, vol: Volume, sign: float, chambers: ChamberValues,
             "detection_scale": scales,
             "core_voxel": core_voxel,
             "breach_voxel": breach_voxel,
-            "level": level,
+            "level": row_level,
             "own_voxels": own_all,
             "own_volume": own_all * voxel,
             "enclosed_voxels": enclosed,
@@ -369,11 +420,4 @@ def build_table(*, vol: Volume, sign: float, chambers: ChamberValues,
         units={"own_volume": vunit, "enclosed_volume": vunit, "detection_scale": unit},
         meta={"threshold": tau, "caution": RESEARCH_ONLY},
     )
-    if params.keep_border:
-        labels = all_labels
-    # neither a region of the label map nor a wall: the outside basin, regions not shown
-    # (border-cut pieces, the medium, chambers outside the volume bounds) and beyond the ROI
-    background = regions.outside_basin | ((work > 0) & (labels == 0))
-    background |= outside.reshape(work.shape)
-    return TableParts(labels, all_labels, table, ch_nodes, enc_labels, background,
-                      bool(outside.any()))
+    return NumberedTable(table, lut, new_enc, k, ch_nodes, dtype)

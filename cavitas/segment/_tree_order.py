@@ -28,12 +28,14 @@ class PrunedLevels:
     ``hier``'s ranks are positions among the tree's cores and breaches in sweep order;
     ``close_level`` and ``formed_level`` are the values (the input's units) they stand for:
     ``close_level`` is what :func:`cavitas.segment._chunked_regions.chunked_nested_map`
-    takes.
+    takes; ``voxel`` is the voxel at each of those positions (what the sweep order holds
+    at the rank it stands for).
     """
 
     hier: Hierarchy
     close_level: np.ndarray
     formed_level: np.ndarray
+    voxel: np.ndarray
 
 
 def prune_by_levels(tree: CavityTree, keep: np.ndarray, threshold: float) -> PrunedLevels:
@@ -67,4 +69,4 @@ def prune_by_levels(tree: CavityTree, keep: np.ndarray, threshold: float) -> Pru
     ranked = replace(tree, core=position(tree.core), breach=position(tree.breach))
     # prune's life of an enclosure is an absolute difference: the input's units will do
     hier = prune(ranked, keep, np.arange(voxel.size), lambda ranks: level[ranks], threshold)
-    return PrunedLevels(hier, level[hier.close_rank], level[hier.formed_rank])
+    return PrunedLevels(hier, level[hier.close_rank], level[hier.formed_rank], voxel[by_sweep])

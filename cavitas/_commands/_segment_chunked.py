@@ -1,0 +1,190 @@
+"""``cavitas segment FILE --scheduler ADDRESS`` (or ``--dask-local``): a Zarr store, an
+OME-Zarr image or an HDF5 file segmented chunk by chunk on Dask workers
+(:func:`run_chunked`).
+
+Only the mode :func:`cavitas.segment._chunked_segment.segment_in_chunks` computes is
+taken: ``--region component`` with a hand threshold. Everything else is refused in one
+sentence before any work starts (exit code 2), so nothing is written. The outputs go to a
+staging folder published at the end (:mod:`cavitas.io._staging`): labels.zarr (and
+enclosures.zarr) written chunk by chunk, regions.csv, run.json last.
+"""
+
+from __future__ import annotations
+
+import argparse
+import time
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from .._caution import RESEARCH_ONLY
+from .._errors import InputFileError, OutputError, ParameterError
+from ._cluster import dask_client
+
+__all__ = ["NOT_MADE", "run_chunked"]
+
+#: What the chunked route does not write (the run summary says so).
+NOT_MADE = ("the report, diagram.csv/png, regions.json, euler.csv and the measurement columns "
+            "of regions.csv after touches_border")
+#: Command-line options this route refuses, with what each needs.
+_WHOLE_VOLUME = {
+    "level_fraction": ("--level-fraction", "breach regions"),
+    "keep_border": ("--keep-border", "the border-cut check"),
+    "shells": ("--shells", "the whole label map"),
+    "partition": ("--partition", "the whole label map"),
+    "mesh": ("--mesh", "the whole label map"),
+    "label_format": ("--label-format", "the whole label map (labels.zarr is written)"),
+}
+
+#: Reading options for files without a header (raw, NumPy): not for this route's inputs.
+_RAW_LAYOUT = ("key", "shape", "dtype", "byte_order", "offset")
+
+
+def _refuse(args: argparse.Namespace, settings: Any) -> None:
+    """Refuse, in one sentence each, what the chunked route does not compute."""
+    name = args.file
+    params, options = settings.params, settings.options
+    if params.automatic:
+        raise ParameterError(
+            f"The automatic threshold needs whole-image statistics that are not computed "
+            f"chunk by chunk yet: give --min-persistence or --relative-persistence (and "
+            f"--no-auto if --auto is set) to segment '{name}' with --scheduler or "
+            f"--dask-local.")
+    if params.region != "component":
+        raise ParameterError(
+            f"--region {params.region} needs the whole volume (basin flooding, the border-cut "
+            f"check, islands filled): give --region component to segment '{name}' with "
+            f"--scheduler or --dask-local.", parameters=("region",))
+    given = {**params.to_dict(), **options.to_dict()}
+    for key, (option, needs) in _WHOLE_VOLUME.items():
+        value = given.get(key)
+        if value is not None and value is not False:  # --shells alone gives 0.0
+            raise ParameterError(f"{option} needs {needs}, not computed chunk by chunk yet: "
+                                 f"leave it out to segment '{name}' with --scheduler or "
+                                 f"--dask-local.", parameters=(key,))
+    reading = settings.reading.kwargs()
+    unused = [key for key in _RAW_LAYOUT if key in reading]
+    if unused:
+        raise ParameterError(f"--{unused[0].replace('_', '-')} does not apply with --scheduler "
+                             f"or --dask-local, which read a Zarr store or an HDF5 file as "
+                             f"stored ('{name}').", parameters=(unused[0],))
+
+
+def _targets(args: argparse.Namespace, settings: Any) -> dict[str, Path]:
+    """The output paths, checked before any work (an existing one needs --force)."""
+    from .._shared.atomic import check_writable
+
+    names = {"labels": "labels.zarr", "regions": "regions.csv", "run": "run.json"}
+    if settings.options.enclosures:
+        names["enclosures"] = "enclosures.zarr"
+    targets = {key: args.out / name for key, name in names.items()}
+    inputs = tuple(p for p in (args.file, settings.options.mask) if p)
+    for path in targets.values():
+        if not path.name.endswith(".zarr"):
+            check_writable(path, force=args.force, inputs=inputs)
+        elif any(Path(p).resolve() == path.resolve() for p in inputs):
+            raise OutputError(f"Refusing to overwrite the input '{path}'.")
+        elif path.exists() and not args.force:
+            raise OutputError(f"Output '{path}' already exists; use --force to replace it.",
+                              parameters=("force",))
+    return targets
+
+
+def _write_labels(labels: Any, path: Path, volume: Any) -> None:
+    """A label map (Dask array) into a Zarr array at ``path`` chunk by chunk, with the
+    input's voxel size, unit and the research-only caution as attributes."""
+    import zarr
+
+    labels.to_zarr(str(path))
+    zarr.open_array(str(path), mode="r+").attrs.update(
+        {"spacing": list(volume.spacing), "unit": volume.unit, "source": volume.name,
+         "caution": RESEARCH_ONLY})
+
+
+def run_chunked(args: argparse.Namespace, settings: Any) -> int:
+    """Segment ``args.file`` chunk by chunk on Dask workers and write its outputs."""
+    from .. import __version__
+    from .._json import dumps
+    from .._shared.atomic import atomic_path
+    from ..io._checksum import input_checksum
+    from ..io._lazy import open_chunked
+    from ..io._staging import discard_staging, open_staging, publish_staged
+    from ..segment._chunked_segment import segment_in_chunks
+
+    started = time.perf_counter()
+    _refuse(args, settings)
+    options = settings.options
+    reading = settings.reading.kwargs()
+    targets = _targets(args, settings)
+    with_geometry = {key: reading[key] for key in ("spacing", "unit") if key in reading}
+    image = open_chunked(args.file, **{key: value for key, value in reading.items()
+                                       if key not in with_geometry})
+    volume = image.volume(**with_geometry)  # the voxels stay on disk
+    params = settings.params
+    params.check_image(volume)
+    mask = None
+    if options.mask:
+        mask = open_chunked(options.mask, role="Mask").data != 0
+        if tuple(mask.shape) != volume.shape:
+            raise InputFileError(f"Mask '{options.mask}' has shape {tuple(mask.shape)}; the "
+                                 f"image '{args.file}' has shape {volume.shape}.")
+    spacing, unit = np.asarray(volume.spacing, float), volume.unit
+    outdir = args.out
+    made = not outdir.exists()
+    staging = None
+    try:
+        with dask_client(args, image.name) as client:
+            workers = len(client.scheduler_info().get("workers", {}))
+            seg = segment_in_chunks(image.data, params=params, spacing=spacing, unit=unit,
+                                    mask=mask)
+            staging = open_staging(outdir)
+            maps = {"labels": seg.labels}
+            if "enclosures" in targets:
+                maps["enclosures"] = (seg.enclosure_labels if seg.enclosure_labels is not None
+                                      else seg.labels * 0)
+            for key, labels in maps.items():
+                _write_labels(labels, staging / targets[key].name, volume)
+        seg.table.to_csv(staging / targets["regions"].name)
+        counts = {kind: int(np.count_nonzero(seg.table["kind"] == kind))
+                  for kind in ("chamber", "enclosure")}
+        record = {
+            "cavitas_version": __version__,
+            "input": str(args.file),
+            "input_sha256": input_checksum(args.file),
+            "shape": list(image.data.shape),
+            "chunks": list(image.chunk_shape),
+            "spacing": spacing.tolist(),
+            "unit": unit,
+            "route": f"chunk by chunk on {workers} Dask worker(s)",
+            "not_made": NOT_MADE,
+            "read_options": reading,
+            "parameters": {**params.to_dict(), "threshold": seg.threshold,
+                           "robust_range": seg.robust_range,
+                           "smooth_sigma": seg.smooth_sigma,
+                           "connectivity": seg.connectivity, "unit": unit},
+            "options": options.to_dict(),
+            "summary": {"regions": counts["chamber"], "enclosures": counts["enclosure"],
+                        "cavities": int(np.count_nonzero(seg.tree.persistence[1:] > 0))},
+            "outputs": {key: path.name for key, path in targets.items()},
+            "elapsed_s": round(time.perf_counter() - started, 3),
+            "caution": RESEARCH_ONLY,
+        }
+        with atomic_path(staging / targets["run"].name) as tmp:
+            tmp.write_text(dumps(record, indent=1, ensure_ascii=False, default=str),
+                           encoding="utf-8")
+        publish_staged(staging, outdir)
+        staging = None
+    finally:
+        if staging is not None:
+            discard_staging(staging, outdir, made=made)
+    if not args.quiet:
+        shape = " x ".join(map(str, image.chunk_shape))
+        print(f"{args.file}: {counts['chamber']} regions (component mode), "
+              f"{counts['enclosure']} enclosures; persistence threshold "
+              f"{seg.threshold:.4g} (intensity units), smoothing σ {seg.smooth_sigma:.3g}")
+        print(f"  computed chunk by chunk on {workers} Dask worker(s), chunks of {shape} "
+              f"voxels; not made on this route: {NOT_MADE}")
+        print(f"  outputs in {args.out}: " + ", ".join(p.name for p in targets.values()))
+        print(RESEARCH_ONLY)
+    return 0

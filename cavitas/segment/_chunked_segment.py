@@ -1,0 +1,174 @@
+"""One chunked volume segmented chunk by chunk on Dask (:func:`segment_in_chunks`).
+
+The mode wired so far: a persistence threshold given by hand (absolute, or relative to the
+robust range, :func:`._chunked_statistics.percentiles_in_chunks`; no automatic
+significance), the smoothing given or none, and
+``region="component"`` (each chamber the component below its level that holds its core;
+no border-cut check and no island filling, which flood or fill over the whole volume).
+Its steps are those of :func:`cavitas.segment.segment` in that mode, each from a block
+tested equal to its whole-volume step:
+
+1. smoothing with halos (:func:`._chunked_smooth.smooth_in_chunks`);
+2. the cavity tree (:func:`cavitas.cubical._chunked_tree.tree_chunks_on_dask`);
+3. the threshold, selection (:func:`._select.select_nodes`, ``top``) and the split rule on
+   the tree, on the client, as :func:`._detect.detect` does without the automatic rule;
+4. pruning from the tree alone (:func:`._tree_order.prune_by_levels`);
+5. chamber and enclosure labels per chunk (:func:`._chunked_regions.chunked_nested_map`),
+   counted per chunk; the volume bounds, numbering and table from those counts
+   (:func:`._result.number_regions`); the final labels as a Dask array through the
+   numbering's lookup table, to be written chunk by chunk.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from .._table import Table
+from ..cubical._neighbors import check_connectivity
+from ..cubical._tree import CavityTree
+from . import _noise
+from ._chunked_regions import chunked_nested_map
+from ._chunked_smooth import smooth_in_chunks
+from ._chunked_statistics import percentiles_in_chunks
+from ._params import SegmentParams
+from ._regions import face_slices
+from ._result import ChamberValues, EnclosureValues, RegionCounts, number_regions
+from ._select import persistence_threshold, select_nodes, split_rule
+from ._tree_order import prune_by_levels
+
+__all__ = ["ChunkedSegmentation", "segment_in_chunks"]
+
+
+@dataclass(frozen=True)
+class ChunkedSegmentation:
+    """The labels (Dask arrays, chunked like the input, not yet computed) and the table."""
+
+    labels: Any                  # chambers 1..K, 0 elsewhere
+    enclosure_labels: Any        # innermost enclosure per voxel, or None (no enclosure)
+    table: Table
+    threshold: float
+    robust_range: float | None   # 0.5th to 99.5th percentile (relative threshold only)
+    smooth_sigma: float          # physical units
+    tree: CavityTree             # of the smoothed image (walls high)
+    connectivity: int
+
+
+def segment_in_chunks(image: Any, *, params: SegmentParams, spacing: np.ndarray, unit: str,
+                      mask: Any = None) -> ChunkedSegmentation:
+    """:func:`cavitas.segment.segment` of a Dask array in the hand-set component mode.
+
+    Parameters
+    ----------
+    image : dask.array.Array
+        The 2D or 3D image, in its own chunks (never read whole).
+    params : SegmentParams
+        ``region="component"``, not automatic (a ``min_persistence`` or
+        ``relative_persistence``), no ``level_fraction`` or ``keep_border`` (the command
+        line refuses the others before calling this).
+    spacing, unit
+        The voxel size per axis and its unit.
+    mask : dask.array.Array of bool, optional
+        Region of interest, chunked like ``image``.
+
+    Returns
+    -------
+    ChunkedSegmentation
+        ``labels`` equal, voxel for voxel, to ``segment(...).labels`` of the image in
+        memory with the same parameters, and ``table`` row for row its ``regions``. Computing
+        the table sweeps every chunk three times (tree, sizes, counts); each label map
+        written sweeps it once more.
+
+    Examples
+    --------
+    >>> import dask.array as da
+    >>> img = np.zeros((15, 15)); img[3:12, 3] = img[3:12, 11] = 1
+    >>> img[3, 3:12] = img[11, 3:12] = img[3:12, 7] = 1
+    >>> params = SegmentParams(min_persistence=0.5, region="component")
+    >>> seg = segment_in_chunks(da.from_array(img, chunks=4), params=params,
+    ...                         spacing=np.ones(2), unit="voxel")
+    >>> int(seg.labels.max().compute()), seg.table["own_voxels"].tolist()
+    (2, [21, 21])
+    """
+    import dask
+    import dask.array as da
+
+    from ..cubical._chunked_tree import tree_chunks_on_dask
+
+    if image.dtype == np.bool_:
+        image = image.astype(np.uint8)
+    elif image.dtype == np.float16:
+        image = image.astype(np.float32)
+    ndim = image.ndim
+    connectivity = check_connectivity(ndim, params.connectivity or 1)
+    sign = 1.0 if params.walls == "bright" else -1.0
+    sigma = (np.asarray(params.smooth, float) / spacing if params.smooth is not None
+             else np.zeros(ndim))
+    smoothed = smooth_in_chunks(image, tuple(sigma), dtype=_noise.work_dtype(image.dtype),
+                                sign=sign)
+    chunked = tree_chunks_on_dask(smoothed, walls="bright", connectivity=connectivity,
+                                  mask=mask)
+    tree = chunked.tree
+    robust_range = None
+    if params.relative_persistence is not None:  # as segment(): 0.5th to 99.5th percentile
+        low, high = percentiles_in_chunks(image, [0.5, 99.5])
+        robust_range = float(high - low)
+    tau = persistence_threshold(auto=None, absolute=params.min_persistence,
+                                relative=params.relative_persistence,
+                                robust_range=robust_range or 0.0)
+    significant = select_nodes(tree.persistence, tree.parent, tau, params.top)
+    keep = split_rule(tree, significant, params.split_fraction)
+    pruned = prune_by_levels(tree, keep, tau)
+    hier = pruned.hier
+    n_ch, n_enc = hier.n_chambers, hier.n_enclosures
+    ids = np.arange(1, n_ch + n_enc + 1)
+    chambers = chunked_nested_map(chunked, hier.node[:n_ch], pruned.close_level[:n_ch],
+                                  ids[:n_ch])
+    enclosures = (chunked_nested_map(chunked, hier.node[n_ch:], pruned.close_level[n_ch:],
+                                     ids[n_ch:]) if n_enc else None)
+    maps = [chambers] if enclosures is None else [chambers, enclosures]
+    counted = [[dask.delayed(_counts)(block, n_ch + n_enc + 1)
+                for block in labels.to_delayed().ravel()] for labels in maps]
+    faces = [da.unique(chambers[face]) for face in face_slices(ndim)]
+    counts, on_faces = dask.compute(counted, faces)
+    work = np.sum(counts[0], axis=0)[:n_ch + 1]
+    enclosure = (np.sum(counts[1], axis=0)[n_ch + 1:] if enclosures is not None
+                 else np.zeros(0, np.int64))
+    scale = float((sigma * spacing).max())
+    nodes = hier.node[:n_ch]
+    close = hier.close_rank[n_ch:]
+    numbered = number_regions(
+        RegionCounts(work, enclosure, np.unique(np.concatenate(on_faces))),
+        unit=unit, ndim=ndim, voxel_volume=float(np.prod(spacing)), sign=sign,
+        chambers=ChamberValues(birth=tree.breach_level[nodes], death=tree.core_level[nodes],
+                               breach_voxel=tree.breach[nodes], core_voxel=tree.core[nodes],
+                               threshold=np.full(n_ch, tau), scale=np.full(n_ch, scale),
+                               node=nodes),
+        enclosures=EnclosureValues(birth=pruned.close_level[n_ch:],
+                                   death=pruned.formed_level[n_ch:],
+                                   breach_voxel=pruned.voxel[close],
+                                   core_voxel=tree.core[hier.node[n_ch:]]),
+        hier=hier, n_cut=0, nested={}, dropped=np.zeros(n_ch, bool),
+        level=pruned.close_level[:n_ch], tau=tau, scale=scale, params=params)
+    dtype = numbered.dtype
+    lut = numbered.lut.astype(dtype)
+    labels = chambers.map_blocks(_renumber, lut, dtype=dtype)
+    enclosure_labels = None
+    if enclosures is not None:
+        enclosure_lut = np.zeros(n_ch + n_enc + 1, dtype)
+        enclosure_lut[n_ch + 1:] = numbered.enclosure_ids
+        enclosure_labels = enclosures.map_blocks(_renumber, enclosure_lut, dtype=dtype)
+    return ChunkedSegmentation(labels, enclosure_labels, numbered.table, tau, robust_range,
+                               scale, tree, connectivity)
+
+
+def _counts(block: np.ndarray, length: int) -> np.ndarray:
+    """Voxels per label of one block of a label map."""
+    return np.bincount(block.ravel(), minlength=length)
+
+
+def _renumber(block: np.ndarray, lut: np.ndarray) -> np.ndarray:
+    """One block of a label map through the numbering's lookup table."""
+    return lut[block]

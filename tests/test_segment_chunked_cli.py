@@ -1,0 +1,201 @@
+"""``cavitas segment FILE --scheduler ADDRESS`` / ``--dask-local``: the chunked route.
+
+Checks and their sources:
+
+* The label map written chunk by chunk to labels.zarr (read back with zarr's own reader)
+  and regions.csv equal, voxel for voxel and row for row, what ``cavitas segment`` writes
+  for the same Zarr store in memory with the same options (``--region component``, a hand
+  threshold, with and without smoothing, both polarities, 2D and 3D, chunks of one voxel
+  thickness and chunks that cut through every cell). The in-memory route is the reference;
+  its labels are checked against ``scipy.ndimage.label`` of sublevel sets in
+  ``tests/test_regions_chunked.py`` and ``tests/test_segment_regions.py``. That a
+  distributed path equals its serial one is common practice (DEVELOPERS.md).
+* The voxel size and unit of an OME-Zarr image (NGFF 0.4 metadata written with the zarr
+  library, as in ``tests/test_batch_zarr.py``) and of an HDF5 dataset (h5py's writer,
+  ``element_size_um``) read from their metadata alone equal what ``cavitas.read`` reads,
+  and the regions' volumes in physical units equal the in-memory run's.
+* The in-memory ``--region component`` itself against its definition: each chamber's
+  voxels lie in the component of ``{f < level}`` (``{f > level}`` for dark walls) holding
+  its core, found by ``scipy.ndimage.label`` with the cavities' connectivity, and every
+  voxel of that component is labelled (by it or a chamber nested in it).
+* Each refusal is one sentence with the documented exit code (``cavitas/_errors.py``: 2
+  for an option the route does not compute) and leaves no output behind.
+"""
+
+from __future__ import annotations
+
+import json
+
+import numpy as np
+import pytest
+import tifffile
+
+from cavitas._table import Table
+from cavitas.cli import main
+
+pytest.importorskip("distributed", reason="Dask distributed (extra 'cluster') is not installed")
+zarr = pytest.importorskip("zarr", reason="zarr (extra 'zarr') is not installed")
+
+
+def _cells(shape, pitch, seed) -> np.ndarray:
+    """Bright walls every ``pitch`` voxels around dark cells, brighter every ``2 pitch`` (so
+    groups of cells are enclosures), with noise (invented data: the two routes are compared
+    with each other)."""
+    rng = np.random.default_rng(seed)
+    wall = np.zeros(shape, np.uint16)
+    for coord in np.indices(shape):
+        wall = np.maximum(wall, np.where(coord % pitch == 0, 180, 0))
+        wall = np.maximum(wall, np.where(coord % (2 * pitch) == 0, 260, 0))
+    return (np.maximum(wall, 40) + rng.integers(0, 60, size=shape)).astype(np.uint16)
+
+
+@pytest.fixture(scope="module")
+def address(client):
+    """The loopback scheduler of tests/conftest.py's client, for --scheduler."""
+    return client.scheduler.address
+
+
+def _compare_runs(tmp_path, source, common, address) -> Table:
+    """Run ``cavitas segment`` in memory and on the cluster; the labels and the rows must
+    be the same. Returns the chunked run's table."""
+    assert main(["segment", source, "-o", str(tmp_path / "mem"), *common]) == 0
+    assert main(["segment", source, "-o", str(tmp_path / "big"), "--scheduler", address,
+                 *common]) == 0
+    # the in-memory run writes labels.tif for a Zarr input: read back with tifffile's reader
+    mem_labels = tifffile.imread(next((tmp_path / "mem").glob("labels.*")))
+    written = zarr.open_array(str(tmp_path / "big" / "labels.zarr"), mode="r")
+    assert "research use only" in written.attrs["caution"].lower()
+    assert mem_labels.max() > 1
+    np.testing.assert_array_equal(written[...], mem_labels)
+    mem_rows = Table.from_csv(tmp_path / "mem" / "regions.csv")
+    big_rows = Table.from_csv(tmp_path / "big" / "regions.csv")
+    assert len(big_rows) == len(mem_rows) and set(big_rows.names) <= set(mem_rows.names)
+    for name in big_rows.names:  # the in-memory table adds measurements after these
+        np.testing.assert_array_equal(big_rows[name], mem_rows[name], err_msg=name)
+    return big_rows
+
+
+def _store(path, image, chunks) -> str:
+    store = zarr.open_array(str(path), mode="w", shape=image.shape, chunks=chunks,
+                            dtype=image.dtype)
+    store[...] = image
+    return str(path)
+
+
+CASES = [  # (shape, pitch, chunks, walls, extra options)
+    ((9, 9, 9), 4, (5, 5, 1), "bright", ["--smooth", "0.6", "--enclosures"]),
+    ((13, 11, 12), 4, (3, 6, 7), "dark", ["--enclosures", "--mask", "MASK"]),
+    ((25, 21), 6, (2, 11), "dark", ["--smooth", "1", "--connectivity", "2", "--top", "5",
+                                    "--relative-persistence", "0.15"]),
+]
+
+
+@pytest.mark.cluster
+@pytest.mark.parametrize("shape, pitch, chunks, walls, extra", CASES)
+def test_labels_and_table_equal_in_memory(address, tmp_path, shape, pitch, chunks, walls,
+                                          extra, capsys):
+    image = _cells(shape, pitch, seed=len(shape) + len(extra))
+    if walls == "dark":
+        image = (image.max() - image).astype(np.uint16)
+    source = _store(tmp_path / "v.zarr", image, chunks)
+    roi = np.ones(shape, np.uint8)
+    roi[..., :2] = 0  # a region of interest, stored in other chunks than the image
+    extra = [_store(tmp_path / "roi.zarr", roi, (3,) * len(shape)) if option == "MASK"
+             else option for option in extra]
+    common = ["--region", "component", "--min-persistence", "30", "--walls", walls,
+              "--no-report", *extra]
+    _compare_runs(tmp_path, source, common, address)
+    assert "not made on this route" in capsys.readouterr().out
+    if "--enclosures" in extra:
+        np.testing.assert_array_equal(
+            zarr.open_array(str(tmp_path / "big" / "enclosures.zarr"), mode="r")[...],
+            tifffile.imread(tmp_path / "mem" / "enclosures.tif"))
+    record, memory = (json.loads((tmp_path / run / "run.json").read_text(encoding="utf-8"))
+                      for run in ("big", "mem"))
+    assert record["not_made"] and record["parameters"]["threshold"] >= 30
+    for name in ("threshold", "smooth_sigma", "connectivity") + (
+            ("robust_range",) if "--relative-persistence" in extra else ()):
+        assert record["parameters"][name] == memory["parameters"][name], name
+
+
+@pytest.mark.cluster
+def test_ome_zarr_and_hdf5_geometry(address, tmp_path):
+    from cavitas.io import read
+    from cavitas.io._lazy import open_chunked
+    from tests.test_batch_zarr import _ome
+
+    h5py = pytest.importorskip("h5py", reason="h5py (extra 'hdf5') is not installed")
+    image = _cells((30, 26), 6, seed=5)
+    ome = str(_ome(tmp_path / "v.ome.zarr", image, version="0.4", axes="yx",
+                   scale=[0.5, 0.25]))
+    with h5py.File(tmp_path / "v.h5", "w") as handle:
+        handle.create_dataset("scan", data=image, chunks=(7, 26))
+        handle["scan"].attrs["element_size_um"] = [0.5, 0.25]
+    for path, options in ((ome, {}), (str(tmp_path / "v.h5"), {}),
+                          (_store(tmp_path / "v.zarr", image, (8, 8)), {"spacing": (2, 3)})):
+        lazy = open_chunked(path).volume(**options)
+        whole = read(path, **options)
+        assert (lazy.spacing, lazy.unit) == (whole.spacing, whole.unit), path
+        assert not isinstance(lazy.data, np.ndarray)  # still the Dask array
+    rows = _compare_runs(tmp_path, ome, ["--region", "component", "--min-persistence", "30",
+                                         "--min-volume", "2", "--no-report"], address)
+    np.testing.assert_allclose(rows["own_volume"], rows["own_voxels"] * 0.125)
+
+
+@pytest.mark.parametrize("ndim, walls", [(2, "bright"), (3, "dark")])
+def test_component_regions_are_their_definition(ndim, walls):
+    from scipy import ndimage as ndi
+
+    from cavitas.segment import segment
+
+    image = _cells((24, 26) if ndim == 2 else (12, 13, 11), 4, seed=ndim)
+    if walls == "dark":
+        image = (image.max() - image).astype(np.uint16)
+    seg = segment(image, region="component", min_persistence=30, walls=walls, smooth=0)
+    chambers = seg.regions.select(seg.regions["kind"] == "chamber")
+    assert len(chambers) > 2
+    # wall connectivity 1: the cavities are fully connected (the complementary rule)
+    structure = ndi.generate_binary_structure(ndim, ndim)
+    for row in chambers:
+        below = image < row["level"] if walls == "bright" else image > row["level"]
+        pieces, _ = ndi.label(below, structure)
+        component = pieces == pieces.ravel()[row["core_voxel"]]
+        own = seg.labels == row["label"]
+        assert own.any() and not (own & ~component).any()
+        assert (seg.labels[component] > 0).all()
+
+
+REFUSED = [  # (options, words of the one sentence)
+    (["--min-persistence", "30"], "--region basin needs the whole volume"),
+    (["--region", "breach", "--min-persistence", "30"], "--region breach needs"),
+    (["--region", "component"], "automatic threshold"),
+    (["--region", "component", "--min-persistence", "30", "--auto"], "automatic threshold"),
+    (["--region", "component", "--min-persistence", "30", "--keep-border"], "--keep-border"),
+    (["--region", "component", "--min-persistence", "30", "--partition"], "--partition"),
+    (["--region", "component", "--min-persistence", "30", "--shells"], "--shells"),
+]
+
+
+@pytest.mark.parametrize("options, words", REFUSED)
+def test_refusals_one_sentence_nothing_written(tmp_path, capsys, options, words):
+    source = _store(tmp_path / "v.zarr", _cells((6, 7, 8), 3, seed=1), (3, 3, 3))
+    out = tmp_path / "out"
+    assert main(["segment", source, "-o", str(out), "--dask-local", "1", *options]) == 2
+    err = capsys.readouterr().err.strip()
+    assert words in err and "v.zarr" in err and err.count(". ") == 0, err
+    assert not out.exists()
+
+
+def test_existing_output_and_input_kept(tmp_path, capsys):
+    image = _cells((6, 7, 8), 3, seed=1)
+    options = ["--dask-local", "1", "--region", "component", "--min-persistence", "30"]
+    (tmp_path / "regions.csv").write_text("earlier run\n", encoding="utf-8")
+    # exit code 4: an output that cannot be written (cavitas/_errors.py, README)
+    other = _store(tmp_path / "v.zarr", image, (3, 3, 3))
+    assert main(["segment", other, "-o", str(tmp_path), *options]) == 4
+    assert "already exists" in capsys.readouterr().err
+    source = _store(tmp_path / "labels.zarr", image, (3, 3, 3))
+    assert main(["segment", source, "-o", str(tmp_path), "--force", *options]) == 4
+    assert "overwrite the input" in capsys.readouterr().err
+    np.testing.assert_array_equal(zarr.open_array(source, mode="r")[...], image)
+    assert (tmp_path / "regions.csv").read_text(encoding="utf-8") == "earlier run\n"
