@@ -18,6 +18,12 @@ Checks and their sources:
   voxels lie in the component of ``{f < level}`` (``{f > level}`` for dark walls) holding
   its core, found by ``scipy.ndimage.label`` with the cavities' connectivity, and every
   voxel of that component is labelled (by it or a chamber nested in it).
+* NaN and infinite values of a float image: outside the mask they are replaced as the
+  in-memory ``segment`` replaces them (``_segment._fill_outside``: the same array, bit for
+  bit, from ``_chunked_finite.fill_outside_in_chunks``, both polarities, any chunks), so
+  the labels and rows with smoothing equal the in-memory command's; inside the mask the
+  chunked command gives the in-memory command's one sentence and exit code (3, an input
+  the tool cannot use: ``cavitas/_errors.py``) and writes nothing.
 * Each refusal is one sentence with the documented exit code (``cavitas/_errors.py``: 2
   for an option the route does not compute) and leaves no output behind.
 """
@@ -30,6 +36,7 @@ import numpy as np
 import pytest
 import tifffile
 
+from cavitas._errors import InputFileError
 from cavitas._table import Table
 from cavitas.cli import main
 
@@ -140,6 +147,61 @@ def test_ome_zarr_and_hdf5_geometry(address, tmp_path):
     rows = _compare_runs(tmp_path, ome, ["--region", "component", "--min-persistence", "30",
                                          "--min-volume", "2", "--no-report"], address)
     np.testing.assert_allclose(rows["own_volume"], rows["own_voxels"] * 0.125)
+
+
+@pytest.mark.parametrize("walls", ["bright", "dark"])
+def test_nonfinite_outside_the_mask_replaced_as_in_memory(walls):
+    import dask.array as da
+
+    from cavitas.segment._chunked_finite import fill_outside_in_chunks
+    from cavitas.segment._segment import _fill_outside
+
+    rng = np.random.default_rng(3)
+    image = rng.normal(100, 20, (9, 11, 7)).astype(np.float32)
+    roi = np.zeros(image.shape, bool)
+    roi[1:8, 2:10, 1:6] = True
+    image[~roi & (rng.random(image.shape) < 0.5)] = np.nan
+    image[0, 0, 0], image[-1, -1, -1] = np.inf, -np.inf
+    expected = _fill_outside(image, roi, "'v.zarr'", walls=walls)
+    got = fill_outside_in_chunks(da.from_array(image, chunks=(4, 3, 5)),
+                                 da.from_array(roi, chunks=(2, 6, 7)), "'v.zarr'",
+                                 walls=walls).compute()
+    assert got.dtype == expected.dtype and np.isfinite(got).all()
+    assert np.array_equal(got.view(np.uint32), expected.view(np.uint32))
+    messages = []  # without a mask every NaN is refused, in the same words
+    for refuse in (lambda: _fill_outside(image, None, "'v.zarr'", walls=walls),
+                   lambda: fill_outside_in_chunks(da.from_array(image, chunks=4), None,
+                                                  "'v.zarr'", walls=walls)):
+        with pytest.raises(InputFileError) as caught:
+            refuse()
+        messages.append(str(caught.value))
+    assert messages[0] == messages[1] and "mask them out" in messages[0]
+
+
+@pytest.mark.cluster
+def test_nonfinite_values_as_in_memory(address, tmp_path, capsys):
+    image = _cells((12, 13, 11), 4, seed=7).astype(np.float32)
+    roi = np.ones(image.shape, np.uint8)
+    roi[:, :, :2] = 0
+    image[:, :, 0] = np.nan  # outside the mask, beside cells that the smoothing reaches
+    image[3, :5, 1] = -np.inf
+    source = _store(tmp_path / "v.zarr", image, (5, 4, 6))
+    mask = _store(tmp_path / "roi.zarr", roi, (6, 6, 6))
+    common = ["--region", "component", "--min-persistence", "30", "--smooth", "0.8",
+              "--mask", mask, "--no-report"]
+    _compare_runs(tmp_path, source, common, address)
+    capsys.readouterr()
+    roi[2, 5, 9] = 1  # inside the mask now: refused by both routes in the same words
+    roi[2, 5, 0] = 1
+    mask = _store(tmp_path / "roi.zarr", roi, (6, 6, 6))
+    errors = []
+    for route, options in (("mem2", []), ("big2", ["--scheduler", address])):
+        assert main(["segment", source, "-o", str(tmp_path / route), *common,
+                     *options]) == 3
+        errors.append(capsys.readouterr().err.strip())
+        assert not (tmp_path / route).exists()
+    assert errors[0] == errors[1] and "1 NaN or infinite voxel(s) inside the mask" in errors[0]
+    assert "v.zarr" in errors[0] and errors[0].replace("e.g. ", "").count(". ") == 0
 
 
 @pytest.mark.parametrize("ndim, walls", [(2, "bright"), (3, "dark")])

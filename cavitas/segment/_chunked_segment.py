@@ -8,7 +8,9 @@ no border-cut check and no island filling, which flood or fill over the whole vo
 Its steps are those of :func:`cavitas.segment.segment` in that mode, each from a block
 tested equal to its whole-volume step:
 
-1. smoothing with halos (:func:`._chunked_smooth.smooth_in_chunks`);
+1. NaN and infinite values outside the mask replaced, inside it refused
+   (:func:`._chunked_finite.fill_outside_in_chunks`, ``segment``'s ``_fill_outside``);
+   smoothing with halos (:func:`._chunked_smooth.smooth_in_chunks`);
 2. the cavity tree (:func:`cavitas.cubical._chunked_tree.tree_chunks_on_dask`);
 3. the threshold, selection (:func:`._select.select_nodes`, ``top``) and the split rule on
    the tree, on the client, as :func:`._detect.detect` does without the automatic rule;
@@ -30,6 +32,7 @@ from .._table import Table
 from ..cubical._neighbors import check_connectivity
 from ..cubical._tree import CavityTree
 from . import _noise
+from ._chunked_finite import fill_outside_in_chunks
 from ._chunked_regions import chunked_nested_map
 from ._chunked_smooth import smooth_in_chunks
 from ._chunked_statistics import percentiles_in_chunks
@@ -57,7 +60,7 @@ class ChunkedSegmentation:
 
 
 def segment_in_chunks(image: Any, *, params: SegmentParams, spacing: np.ndarray, unit: str,
-                      mask: Any = None) -> ChunkedSegmentation:
+                      mask: Any = None, name: str = "image") -> ChunkedSegmentation:
     """:func:`cavitas.segment.segment` of a Dask array in the hand-set component mode.
 
     Parameters
@@ -71,7 +74,10 @@ def segment_in_chunks(image: Any, *, params: SegmentParams, spacing: np.ndarray,
     spacing, unit
         The voxel size per axis and its unit.
     mask : dask.array.Array of bool, optional
-        Region of interest, chunked like ``image``.
+        Region of interest, in any chunks. NaN and infinite values outside it are replaced
+        as ``segment`` replaces them (:func:`._chunked_finite.fill_outside_in_chunks`).
+    name : str
+        The image as messages name it (``segment`` names the file in quotes).
 
     Returns
     -------
@@ -101,6 +107,7 @@ def segment_in_chunks(image: Any, *, params: SegmentParams, spacing: np.ndarray,
         image = image.astype(np.uint8)
     elif image.dtype == np.float16:
         image = image.astype(np.float32)
+    image = fill_outside_in_chunks(image, mask, name, walls=params.walls)
     ndim = image.ndim
     connectivity = check_connectivity(ndim, params.connectivity or 1)
     sign = 1.0 if params.walls == "bright" else -1.0
