@@ -162,16 +162,16 @@ def test_nonfinite_outside_the_mask_replaced_as_in_memory(walls):
     roi[1:8, 2:10, 1:6] = True
     image[~roi & (rng.random(image.shape) < 0.5)] = np.nan
     image[0, 0, 0], image[-1, -1, -1] = np.inf, -np.inf
-    expected = _fill_outside(image, roi, "'v.zarr'", walls=walls)
+    expected = _fill_outside(image, roi, "v.zarr", walls=walls)
     got = fill_outside_in_chunks(da.from_array(image, chunks=(4, 3, 5)),
-                                 da.from_array(roi, chunks=(2, 6, 7)), "'v.zarr'",
+                                 da.from_array(roi, chunks=(2, 6, 7)), "v.zarr",
                                  walls=walls).compute()
     assert got.dtype == expected.dtype and np.isfinite(got).all()
     assert np.array_equal(got.view(np.uint32), expected.view(np.uint32))
     messages = []  # without a mask every NaN is refused, in the same words
-    for refuse in (lambda: _fill_outside(image, None, "'v.zarr'", walls=walls),
+    for refuse in (lambda: _fill_outside(image, None, "v.zarr", walls=walls),
                    lambda: fill_outside_in_chunks(da.from_array(image, chunks=4), None,
-                                                  "'v.zarr'", walls=walls)):
+                                                  "v.zarr", walls=walls)):
         with pytest.raises(InputFileError) as caught:
             refuse()
         messages.append(str(caught.value))

@@ -137,7 +137,7 @@ def run_chunked(args: argparse.Namespace, settings: Any) -> int:
         with dask_client(args, image.name) as client:
             workers = len(client.scheduler_info().get("workers", {}))
             seg = segment_in_chunks(image.data, params=params, spacing=spacing, unit=unit,
-                                    mask=mask, name=f"'{volume.name}'")
+                                    mask=mask, name=volume.name)
             staging = open_staging(outdir)
             maps = {"labels": seg.labels}
             if "enclosures" in targets:

@@ -53,7 +53,7 @@ def fill_outside_in_chunks(image: Any, mask: Any, name: str, *, walls: str) -> A
     mask : dask.array.Array of bool or None
         The region of interest, in any chunks.
     name : str
-        The file, as the message names it.
+        The file, as the message names it (in quotes, as ``segment`` does).
     walls : {"bright", "dark"}
         Which side the replacement takes: the minimum inside the mask for bright walls, the
         maximum for dark ones (the smoothing then spreads no wall from outside into it).
@@ -74,7 +74,7 @@ def fill_outside_in_chunks(image: Any, mask: Any, name: str, *, walls: str) -> A
     >>> import dask.array as da
     >>> values = np.array([[np.nan, 2.0, 5.0], [1.0, 3.0, np.inf]])
     >>> inside = da.from_array(np.array([[0, 1, 1], [1, 1, 0]], bool), chunks=2)
-    >>> fill_outside_in_chunks(da.from_array(values, chunks=2), inside, "'a.zarr'",
+    >>> fill_outside_in_chunks(da.from_array(values, chunks=2), inside, "a.zarr",
     ...                        walls="bright").compute().tolist()
     [[1.0, 2.0, 5.0], [1.0, 3.0, 1.0]]
     """
@@ -90,7 +90,7 @@ def fill_outside_in_chunks(image: Any, mask: Any, name: str, *, walls: str) -> A
         *[summarise(block, inside) for block, inside in zip(blocks, masks, strict=True)])))
     if not whole.nonfinite:
         return image
-    refuse_nonfinite(whole.nonfinite_inside, image=name, masked=mask is not None)
+    refuse_nonfinite(whole.nonfinite_inside, image=f"'{name}'", masked=mask is not None)
     extreme = whole.low if walls == "bright" else whole.high
     fill = image.dtype.type(0 if extreme is None else extreme)
     return image.map_blocks(_filled, fill, dtype=image.dtype)

@@ -77,7 +77,7 @@ def segment_in_chunks(image: Any, *, params: SegmentParams, spacing: np.ndarray,
         Region of interest, in any chunks. NaN and infinite values outside it are replaced
         as ``segment`` replaces them (:func:`._chunked_finite.fill_outside_in_chunks`).
     name : str
-        The image as messages name it (``segment`` names the file in quotes).
+        The image's file, as messages name it.
 
     Returns
     -------
