@@ -36,7 +36,7 @@ import numpy as np
 import pytest
 import tifffile
 
-from cavitas._errors import InputFileError
+from cavitas._errors import InputFileError, OutputError
 from cavitas._table import Table
 from cavitas.cli import main
 
@@ -123,6 +123,60 @@ def test_labels_and_table_equal_in_memory(address, tmp_path, shape, pitch, chunk
     for name in ("threshold", "smooth_sigma", "connectivity") + (
             ("robust_range",) if "--relative-persistence" in extra else ()):
         assert record["parameters"][name] == memory["parameters"][name], name
+    # the outputs and nothing else: the smoothed image stored for the run is gone
+    assert sorted(p.name for p in (tmp_path / "big").iterdir()) == sorted(
+        ["labels.zarr", "regions.csv", "run.json"]
+        + (["enclosures.zarr"] if "--enclosures" in extra else []))
+
+
+def test_smoothed_once_same_result(monkeypatch, tmp_path):
+    import dask
+    import dask.array as da
+
+    from cavitas.segment import SegmentParams, _chunked_smooth, segment
+    from cavitas.segment._chunked_segment import segment_in_chunks
+
+    image = _cells((10, 11, 9), 4, seed=2)
+    chunks = (5, 4, 9)
+    n_chunks = 2 * 3 * 1
+    params = SegmentParams(region="component", min_persistence=30, smooth=0.7)
+    smoothed_chunks = []
+    smooth_block = _chunked_smooth._smooth_block
+    monkeypatch.setattr(_chunked_smooth, "_smooth_block", lambda block, **kw: (
+        smoothed_chunks.append(block.shape), smooth_block(block, **kw))[1])
+    runs = {}
+    with dask.config.set(scheduler="synchronous"):
+        for store in (None, tmp_path / "smoothed.zarr"):
+            smoothed_chunks.clear()
+            seg = segment_in_chunks(da.from_array(image, chunks=chunks), params=params,
+                                    spacing=np.ones(3), unit="voxel", smoothed_store=store)
+            runs[store is None] = (seg.labels.compute(), seg.table,
+                                   len(smoothed_chunks))
+    memory = segment(image, params=params)
+    assert runs[False][2] == n_chunks < runs[True][2]  # stored: each chunk smoothed once
+    for labels, table, _ in runs.values():
+        np.testing.assert_array_equal(labels, memory.labels)
+        for name in table.names:
+            np.testing.assert_array_equal(table[name], memory.regions[name], err_msg=name)
+
+
+@pytest.mark.cluster
+def test_failed_run_leaves_nothing(address, tmp_path, monkeypatch):
+    from cavitas._commands import _segment_chunked
+
+    stored = []
+
+    def failing(labels, path, volume):  # as a full disk fails the label map's write
+        stored.append((path.parent / _segment_chunked.SMOOTHED_STORE).is_dir())
+        raise OutputError(f"Cannot write '{path}': No space left on device.")
+
+    monkeypatch.setattr(_segment_chunked, "_write_labels", failing)
+    source = _store(tmp_path / "v.zarr", _cells((6, 7, 8), 3, seed=1), (3, 4, 8))
+    out = tmp_path / "out"
+    # exit code 4: an output that cannot be written (cavitas/_errors.py, README)
+    assert main(["segment", source, "-o", str(out), "--scheduler", address, "--region",
+                 "component", "--min-persistence", "30", "--smooth", "0.7"]) == 4
+    assert stored == [True] and not out.exists()  # the smoothed image went with the rest
 
 
 @pytest.mark.cluster

@@ -6,12 +6,15 @@ Only the mode :func:`cavitas.segment._chunked_segment.segment_in_chunks` compute
 taken: ``--region component`` with a hand threshold. Everything else is refused in one
 sentence before any work starts (exit code 2), so nothing is written. The outputs go to a
 staging folder published at the end (:mod:`cavitas.io._staging`): labels.zarr (and
-enclosures.zarr) written chunk by chunk, regions.csv, run.json last.
+enclosures.zarr) written chunk by chunk, regions.csv, run.json last. The smoothed image is
+written there once too (:data:`SMOOTHED_STORE`, in the work type: 4 bytes per voxel for
+data of up to 16 bits, before compression) and removed before the outputs are published.
 """
 
 from __future__ import annotations
 
 import argparse
+import shutil
 import time
 from pathlib import Path
 from typing import Any
@@ -27,6 +30,10 @@ __all__ = ["NOT_MADE", "run_chunked"]
 #: What the chunked route does not write (the run summary says so).
 NOT_MADE = ("the report, diagram.csv/png, regions.json, euler.csv and the measurement columns "
             "of regions.csv after touches_border")
+#: The smoothed image, stored once in the staging folder (which the workers write to
+#: anyway) for every pass after the first to read; removed before the outputs are published,
+#: and with the staging folder if the run fails.
+SMOOTHED_STORE = "smoothed.zarr"
 #: Command-line options this route refuses, with what each needs.
 _WHOLE_VOLUME = {
     "level_fraction": ("--level-fraction", "breach regions"),
@@ -96,7 +103,10 @@ def _write_labels(labels: Any, path: Path, volume: Any) -> None:
     input's voxel size, unit and the research-only caution as attributes."""
     import zarr
 
-    labels.to_zarr(str(path))
+    try:
+        labels.to_zarr(str(path))
+    except OSError as exc:  # raised on a worker: a full disk, a folder it cannot reach
+        raise OutputError(f"Cannot write '{path}': {exc.strerror or exc}.") from exc
     zarr.open_array(str(path), mode="r+").attrs.update(
         {"spacing": list(volume.spacing), "unit": volume.unit, "source": volume.name,
          "caution": RESEARCH_ONLY})
@@ -136,15 +146,18 @@ def run_chunked(args: argparse.Namespace, settings: Any) -> int:
     try:
         with dask_client(args, image.name) as client:
             workers = len(client.scheduler_info().get("workers", {}))
-            seg = segment_in_chunks(image.data, params=params, spacing=spacing, unit=unit,
-                                    mask=mask, name=volume.name)
             staging = open_staging(outdir)
+            smoothed = staging / SMOOTHED_STORE
+            seg = segment_in_chunks(image.data, params=params, spacing=spacing, unit=unit,
+                                    mask=mask, name=volume.name, smoothed_store=smoothed)
             maps = {"labels": seg.labels}
             if "enclosures" in targets:
                 maps["enclosures"] = (seg.enclosure_labels if seg.enclosure_labels is not None
                                       else seg.labels * 0)
             for key, labels in maps.items():
                 _write_labels(labels, staging / targets[key].name, volume)
+            if smoothed.exists():  # read by the label maps just written; not an output
+                shutil.rmtree(smoothed)
         seg.table.to_csv(staging / targets["regions"].name)
         counts = {kind: int(np.count_nonzero(seg.table["kind"] == kind))
                   for kind in ("chamber", "enclosure")}

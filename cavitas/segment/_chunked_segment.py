@@ -10,7 +10,9 @@ tested equal to its whole-volume step:
 
 1. NaN and infinite values outside the mask replaced, inside it refused
    (:func:`._chunked_finite.fill_outside_in_chunks`, ``segment``'s ``_fill_outside``);
-   smoothing with halos (:func:`._chunked_smooth.smooth_in_chunks`);
+   smoothing with halos (:func:`._chunked_smooth.smooth_in_chunks`), stored once in a
+   Zarr store when the caller gives one (``smoothed_store``), so that the later sweeps
+   read it instead of smoothing again;
 2. the cavity tree (:func:`cavitas.cubical._chunked_tree.tree_chunks_on_dask`);
 3. the threshold, selection (:func:`._select.select_nodes`, ``top``) and the split rule on
    the tree, on the client, as :func:`._detect.detect` does without the automatic rule;
@@ -23,11 +25,13 @@ tested equal to its whole-volume step:
 
 from __future__ import annotations
 
+import os
 from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
 
+from .._errors import OutputError
 from .._table import Table
 from ..cubical._neighbors import check_connectivity
 from ..cubical._tree import CavityTree
@@ -60,7 +64,8 @@ class ChunkedSegmentation:
 
 
 def segment_in_chunks(image: Any, *, params: SegmentParams, spacing: np.ndarray, unit: str,
-                      mask: Any = None, name: str = "image") -> ChunkedSegmentation:
+                      mask: Any = None, name: str = "image",
+                      smoothed_store: str | os.PathLike | None = None) -> ChunkedSegmentation:
     """:func:`cavitas.segment.segment` of a Dask array in the hand-set component mode.
 
     Parameters
@@ -78,6 +83,12 @@ def segment_in_chunks(image: Any, *, params: SegmentParams, spacing: np.ndarray,
         as ``segment`` replaces them (:func:`._chunked_finite.fill_outside_in_chunks`).
     name : str
         The image's file, as messages name it.
+    smoothed_store : path, optional
+        Where (a Zarr store not yet there, in a folder every worker can write) the smoothed
+        image is written once, chunk by chunk, for every later pass to read instead of
+        smoothing each chunk again. It must stay until the returned label maps are
+        written; the caller removes it then. Not made when nothing is smoothed or the
+        chunks are irregular (Zarr's chunks are regular). None: every pass smooths again.
 
     Returns
     -------
@@ -85,7 +96,8 @@ def segment_in_chunks(image: Any, *, params: SegmentParams, spacing: np.ndarray,
         ``labels`` equal, voxel for voxel, to ``segment(...).labels`` of the image in
         memory with the same parameters, and ``table`` row for row its ``regions``. Computing
         the table sweeps every chunk three times (tree, sizes, counts); each label map
-        written sweeps it once more.
+        written sweeps it once more. Each sweep smooths the chunk again unless the smoothed
+        image is stored (``smoothed_store``).
 
     Examples
     --------
@@ -115,6 +127,13 @@ def segment_in_chunks(image: Any, *, params: SegmentParams, spacing: np.ndarray,
              else np.zeros(ndim))
     smoothed = smooth_in_chunks(image, tuple(sigma), dtype=_noise.work_dtype(image.dtype),
                                 sign=sign)
+    if smoothed_store is not None and sigma.any() and _regular(smoothed.chunks):
+        try:  # one sweep; every later one reads the store
+            smoothed.to_zarr(os.fspath(smoothed_store))
+        except OSError as exc:  # raised on a worker: a full disk, a folder it cannot reach
+            raise OutputError(f"Cannot write the smoothed image to '{smoothed_store}': "
+                              f"{exc.strerror or exc}.") from exc
+        smoothed = da.from_zarr(os.fspath(smoothed_store))
     chunked = tree_chunks_on_dask(smoothed, walls="bright", connectivity=connectivity,
                                   mask=mask)
     tree = chunked.tree
@@ -169,6 +188,18 @@ def segment_in_chunks(image: Any, *, params: SegmentParams, spacing: np.ndarray,
         enclosure_labels = enclosures.map_blocks(_renumber, enclosure_lut, dtype=dtype)
     return ChunkedSegmentation(labels, enclosure_labels, numbered.table, tau, robust_range,
                                scale, tree, connectivity)
+
+
+def _regular(chunks: tuple[tuple[int, ...], ...]) -> bool:
+    """Whether Dask chunks are a Zarr array's: equal along each axis but the last one,
+    which may be smaller.
+
+    Examples
+    --------
+    >>> _regular(((4, 4, 2), (5,))), _regular(((4, 2, 4),))
+    (True, False)
+    """
+    return all(len(set(sizes[:-1])) <= 1 and sizes[-1] <= sizes[0] for sizes in chunks)
 
 
 def _counts(block: np.ndarray, length: int) -> np.ndarray:
