@@ -6,7 +6,9 @@ smoothing (``segment/_chunked_smooth.py``) and the connected components of a lev
 ``scipy.ndimage.gaussian_filter`` and ``scipy.ndimage.label`` of the whole volume; and the
 cavity tree (``cubical/_chunked_tree.py``, :func:`cavity_tree_rows`) against
 ``cavity_sweep``'s tree, field for field, and the breach regions of its persistent nodes
-(``segment/_chunked_regions.py``) against ``nested_map`` on the in-memory sweep.
+(``segment/_chunked_regions.py``) against ``nested_map`` on the in-memory sweep; and the
+command line's chunked segment route (``segment_in_chunks`` with the smoothed image stored
+once, :func:`segment_route_rows`) against ``segment()`` in memory with the same options.
 
 Input (invented, for this measurement only): the Gaussian-smoothed uint16 noise of
 ``bench/persistence.py`` (96^3, 128^3, 256^3; 384^3 with ``--large``), written to a Zarr
@@ -25,6 +27,7 @@ fresh process (bench/persistence.py's measurement).
 
 from __future__ import annotations
 
+import shutil
 import tempfile
 import time
 from pathlib import Path
@@ -138,6 +141,7 @@ def run(args) -> list[dict]:
                                      "target": "identical", "note": "chunks 24^3"})
         rows += segmentation_step_rows(client, folder, sides=[s for s in sides if s >= 128])
         rows += cavity_tree_rows(client, folder, sides=[s for s in sides if s >= 128])
+        rows += segment_route_rows(client, folder, sides=[s for s in sides if s >= 128])
     return rows
 
 
@@ -296,3 +300,69 @@ def segmentation_steps_only(sides=(128, 256)) -> list[dict]:
             LocalCluster(n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1",
                          dashboard_address="127.0.0.1:0") as cluster, Client(cluster) as client:
         return segmentation_step_rows(client, Path(tmp), sides)
+
+
+#: The options of the segment route's rows: component regions, a hand threshold relative
+#: to the robust range (so the percentiles pass runs too), smoothing of 1 voxel.
+_ROUTE_OPTIONS = {"region": "component", "relative_persistence": 0.05, "smooth": 1.0}
+
+
+def segment_route_rows(client, folder: Path, sides=(128, 256)) -> list[dict]:
+    """The chunked segment route (``segment_in_chunks``, its chamber and enclosure maps
+    written to Zarr stores chunk by chunk, as ``cavitas segment --dask-local`` writes them)
+    against ``segment()`` in memory with the same options (:data:`_ROUTE_OPTIONS`): labels
+    and enclosures voxel for voxel, the table's columns row for row, time, worker and
+    client extra peaks (after a first run at 32^3 that lets the workers warm up)."""
+    _segment_route_row(client, folder, 32)
+    return [_segment_route_row(client, folder, side) for side in sides]
+
+
+def _segment_route_row(client, folder: Path, side: int) -> dict:
+    import dask.array as da
+
+    from cavitas.segment import SegmentParams, segment
+    from cavitas.segment._chunked_segment import segment_in_chunks
+
+    params = SegmentParams(**_ROUTE_OPTIONS)
+    image = smoothed_noise(side)
+    chunk = (side // 4,) * 3
+    ref, t_ref, p_ref = _timed_here(lambda: segment(image, params=params))
+    lazy = da.from_zarr(_stored(image, chunk, folder))
+    written = {name: str(folder / f"route{side}_{name}.zarr")
+               for name in ("labels", "enclosures")}
+
+    def chunked():
+        smoothed = folder / f"route{side}_smoothed.zarr"  # the command's staged store
+        seg = segment_in_chunks(lazy, params=params, spacing=np.ones(3), unit="voxel",
+                                smoothed_store=smoothed)
+        seg.labels.to_zarr(written["labels"], overwrite=True)
+        enclosures = (seg.enclosure_labels if seg.enclosure_labels is not None
+                      else seg.labels * 0)
+        enclosures.to_zarr(written["enclosures"], overwrite=True)
+        shutil.rmtree(smoothed)
+        return seg
+
+    got, wall, worker, client_peak = _timed_on_cluster(client, chunked)
+    same = (np.array_equal(np.asarray(da.from_zarr(written["labels"])), ref.labels)
+            and np.array_equal(np.asarray(da.from_zarr(written["enclosures"])),
+                               ref.enclosure_labels())
+            and len(got.table) == len(ref.regions)
+            and all(np.array_equal(got.table[name], ref.regions[name],
+                                   equal_nan=got.table[name].dtype.kind == "f")
+                    for name in got.table.names))
+    return {"metric": f"{side}^3 segment route, chunks {chunk[0]}^3",
+            "value": f"{wall:.2f} s ({wall / t_ref:.1f}x)", "target": "identical",
+            "note": f"{'identical' if same else 'DIFFERENT'} ({len(got.table)} rows); "
+                    f"segment() in memory {t_ref:.2f} s, peak {p_ref / 2**20:.0f} MiB; "
+                    f"worker peak {worker / 2**20:.0f} MiB, client "
+                    f"{client_peak / 2**20:.0f} MiB"}
+
+
+def segment_route_only(sides=(128, 256)) -> list[dict]:
+    """:func:`segment_route_rows` on a cluster of its own (2 worker processes)."""
+    from distributed import Client, LocalCluster
+
+    with tempfile.TemporaryDirectory() as tmp, \
+            LocalCluster(n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1",
+                         dashboard_address="127.0.0.1:0") as cluster, Client(cluster) as client:
+        return segment_route_rows(client, Path(tmp), sides)
