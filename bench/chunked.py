@@ -294,12 +294,18 @@ def _statistics_row(client, image: np.ndarray, lazy, side: int, chunk) -> dict:
 
 def segmentation_steps_only(sides=(128, 256)) -> list[dict]:
     """:func:`segmentation_step_rows` on a cluster of its own (2 worker processes)."""
+    return _on_own_cluster(segmentation_step_rows, sides)
+
+
+def _on_own_cluster(rows_of, sides) -> list[dict]:
+    """``rows_of(client, folder, sides)`` on a LocalCluster of 2 worker processes, with a
+    temporary folder for its stores."""
     from distributed import Client, LocalCluster
 
     with tempfile.TemporaryDirectory() as tmp, \
             LocalCluster(n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1",
                          dashboard_address="127.0.0.1:0") as cluster, Client(cluster) as client:
-        return segmentation_step_rows(client, Path(tmp), sides)
+        return rows_of(client, Path(tmp), sides)
 
 
 #: The options of the segment route's rows: component regions, a hand threshold relative
@@ -360,9 +366,4 @@ def _segment_route_row(client, folder: Path, side: int) -> dict:
 
 def segment_route_only(sides=(128, 256)) -> list[dict]:
     """:func:`segment_route_rows` on a cluster of its own (2 worker processes)."""
-    from distributed import Client, LocalCluster
-
-    with tempfile.TemporaryDirectory() as tmp, \
-            LocalCluster(n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1",
-                         dashboard_address="127.0.0.1:0") as cluster, Client(cluster) as client:
-        return segment_route_rows(client, Path(tmp), sides)
+    return _on_own_cluster(segment_route_rows, sides)
