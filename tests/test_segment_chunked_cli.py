@@ -24,6 +24,11 @@ Checks and their sources:
   the labels and rows with smoothing equal the in-memory command's; inside the mask the
   chunked command gives the in-memory command's one sentence and exit code (3, an input
   the tool cannot use: ``cavitas/_errors.py``) and writes nothing.
+* The smoothed image stored once (``smoothed_store``): each chunk is smoothed once with the
+  store and on every pass without it, with the same labels and rows as ``segment()`` in
+  memory; the output folder then holds the outputs and nothing else; a store that cannot
+  be written is an output error (exit 4 on the command line), and a run that fails after
+  the store was written leaves no output folder (``io/_staging.py``).
 * Each refusal is one sentence with the documented exit code (``cavitas/_errors.py``: 2
   for an option the route does not compute) and leaves no output behind.
 """
@@ -154,6 +159,13 @@ def test_smoothed_once_same_result(monkeypatch, tmp_path):
                                    len(smoothed_chunks))
     memory = segment(image, params=params)
     assert runs[False][2] == n_chunks < runs[True][2]  # stored: each chunk smoothed once
+    blocked = tmp_path / "a file"  # a store that cannot be made: a file where its folder is
+    blocked.write_text("", encoding="utf-8")
+    with dask.config.set(scheduler="synchronous"), pytest.raises(OutputError) as caught:
+        segment_in_chunks(da.from_array(image, chunks=chunks), params=params,
+                          spacing=np.ones(3), unit="voxel",
+                          smoothed_store=blocked / "smoothed.zarr")
+    assert str(caught.value).startswith("Cannot write the smoothed image to ")
     for labels, table, _ in runs.values():
         np.testing.assert_array_equal(labels, memory.labels)
         for name in table.names:

@@ -103,10 +103,15 @@ def _write_labels(labels: Any, path: Path, volume: Any) -> None:
     input's voxel size, unit and the research-only caution as attributes."""
     import zarr
 
+    from ..io._staging import write_failure
+
     try:
         labels.to_zarr(str(path))
-    except OSError as exc:  # raised on a worker: a full disk, a folder it cannot reach
-        raise OutputError(f"Cannot write '{path}': {exc.strerror or exc}.") from exc
+    except OSError as exc:  # raised on a worker
+        failure = write_failure(exc, path, "the label map")
+        if failure is None:
+            raise
+        raise failure from exc
     zarr.open_array(str(path), mode="r+").attrs.update(
         {"spacing": list(volume.spacing), "unit": volume.unit, "source": volume.name,
          "caution": RESEARCH_ONLY})

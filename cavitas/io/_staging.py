@@ -19,7 +19,8 @@ from pathlib import Path
 
 from .._errors import OutputError
 
-__all__ = ["COMPLETION_RECORD", "discard_staging", "open_staging", "publish_staged"]
+__all__ = ["COMPLETION_RECORD", "discard_staging", "open_staging", "publish_staged",
+           "write_failure"]
 
 PREFIX = ".cavitas-staging-"
 #: Moved last: its presence means the set of outputs is complete.
@@ -96,3 +97,22 @@ def discard_staging(staging: Path, outdir: Path, *, made: bool) -> None:
     if made:
         with contextlib.suppress(OSError):
             outdir.rmdir()
+
+
+def write_failure(exc: OSError, path: Path, what: str) -> OutputError | None:
+    """The :class:`OutputError` for ``exc`` raised while writing ``what`` to ``path`` (a
+    Zarr store written by Dask workers: a full disk, a folder they cannot reach), or None
+    when ``exc`` names a file elsewhere (reading the input failed: not an output's fault).
+
+    Examples
+    --------
+    >>> err = OSError(28, "No space left on device", "/out/labels.zarr/c/0/0")
+    >>> print(write_failure(err, Path("/out/labels.zarr"), "the label map"))
+    Cannot write the label map to '/out/labels.zarr': No space left on device.
+    >>> write_failure(OSError(5, "I/O error", "/in/v.zarr/c/0"), Path("/out/labels.zarr"),
+    ...               "the label map") is None
+    True
+    """
+    if exc.filename is not None and not Path(os.fsdecode(exc.filename)).is_relative_to(path):
+        return None
+    return OutputError(f"Cannot write {what} to '{path}': {exc.strerror or exc}.")

@@ -27,14 +27,15 @@ from __future__ import annotations
 
 import os
 from dataclasses import dataclass
+from pathlib import Path
 from typing import Any
 
 import numpy as np
 
-from .._errors import OutputError
 from .._table import Table
 from ..cubical._neighbors import check_connectivity
 from ..cubical._tree import CavityTree
+from ..io._staging import write_failure
 from . import _noise
 from ._chunked_finite import fill_outside_in_chunks
 from ._chunked_regions import chunked_nested_map
@@ -130,9 +131,11 @@ def segment_in_chunks(image: Any, *, params: SegmentParams, spacing: np.ndarray,
     if smoothed_store is not None and sigma.any() and _regular(smoothed.chunks):
         try:  # one sweep; every later one reads the store
             smoothed.to_zarr(os.fspath(smoothed_store))
-        except OSError as exc:  # raised on a worker: a full disk, a folder it cannot reach
-            raise OutputError(f"Cannot write the smoothed image to '{smoothed_store}': "
-                              f"{exc.strerror or exc}.") from exc
+        except OSError as exc:  # raised on a worker
+            failure = write_failure(exc, Path(smoothed_store), "the smoothed image")
+            if failure is None:
+                raise
+            raise failure from exc
         smoothed = da.from_zarr(os.fspath(smoothed_store))
     chunked = tree_chunks_on_dask(smoothed, walls="bright", connectivity=connectivity,
                                   mask=mask)
