@@ -63,7 +63,7 @@ examples:
       breach regions, --keep-border, shells, partition, meshes) is refused in one
       sentence, and the report and diagram files are not made. With --smooth, the
       output folder also holds the smoothed image while the run lasts (4 bytes per
-      voxel for data of up to 16 bits, 8 beyond, before compression)
+      voxel for data of up to 16 bits and float32, 8 otherwise, before compression)
 
 parameter file (--params): the options' names with underscores, at the top level or in
 tables; types are strict (true/false, quoted texts, numbers, [lists] of numbers):
