@@ -8,7 +8,8 @@ sentence before any work starts (exit code 2), so nothing is written. The output
 staging folder published at the end (:mod:`cavitas.io._staging`): labels.zarr (and
 enclosures.zarr) written chunk by chunk, regions.csv, run.json last. The smoothed image is
 written there once too (:data:`SMOOTHED_STORE`, in the work type: 4 bytes per voxel for
-data of up to 16 bits and float32, 8 otherwise, before compression) and removed before the outputs are published.
+data of up to 16 bits and float32, 8 otherwise, before compression) and removed before
+the outputs are published.
 """
 
 from __future__ import annotations
