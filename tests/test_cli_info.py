@@ -157,3 +157,19 @@ def test_chunked_files_name_their_path_and_worker_memory(tmp_path, capsys):
     assert main(["info", str(tmp_path / "v.zarr")]) == 0
     text = capsys.readouterr().out
     assert "chunk by chunk on Dask workers" in text and "per worker  about" in text
+
+
+def test_info_of_a_tiff_loads_no_kernels_and_no_plotting(tmp_path):
+    # The start-up target (cavitas info under 0.5 s) rests on this: a file that is
+    # not chunked needs neither numba, scipy nor Matplotlib (common practice: lazy imports;
+    # checked in a fresh interpreter, which is what a user starts).
+    import subprocess
+    import sys
+
+    path = tmp_path / "image.tif"
+    write(path, np.arange(256, dtype=np.uint16).reshape(16, 16))
+    code = ("import sys; from cavitas.cli import main; main(['info', sys.argv[1], '-q']); "
+            "print(sorted(m for m in ('numba', 'scipy', 'matplotlib') if m in sys.modules))")
+    done = subprocess.run([sys.executable, "-c", code, str(path)], capture_output=True,
+                          text=True, check=True)
+    assert done.stdout.splitlines()[-1] == "[]"
