@@ -173,3 +173,20 @@ def test_info_of_a_tiff_loads_no_kernels_and_no_plotting(tmp_path):
     done = subprocess.run([sys.executable, "-c", code, str(path)], capture_output=True,
                           text=True, check=True)
     assert done.stdout.splitlines()[-1] == "[]"
+
+
+def test_console_command_exits_with_the_documented_codes(tmp_path):
+    # Source: the exit codes documented in cavitas/_errors.py and the README (0 ok, 3 bad
+    # or missing input file), through ``python -m cavitas`` as a user runs the command.
+    import subprocess
+    import sys
+
+    path = tmp_path / "image.tif"
+    write(path, np.arange(256, dtype=np.uint16).reshape(16, 16))
+    ok = subprocess.run([sys.executable, "-m", "cavitas", "info", str(path), "--json"],
+                        capture_output=True, text=True)
+    assert ok.returncode == 0 and json.loads(ok.stdout)["shape"] == [16, 16]
+    missing = subprocess.run([sys.executable, "-m", "cavitas", "info",
+                              str(tmp_path / "none.tif")], capture_output=True, text=True)
+    assert missing.returncode == 3
+    assert "none.tif" in _one_sentence(missing.stderr)
