@@ -157,3 +157,36 @@ def test_chunked_files_name_their_path_and_worker_memory(tmp_path, capsys):
     assert main(["info", str(tmp_path / "v.zarr")]) == 0
     text = capsys.readouterr().out
     assert "chunk by chunk on Dask workers" in text and "per worker  about" in text
+
+
+def test_info_of_a_tiff_loads_no_kernels_and_no_plotting(tmp_path):
+    # The start-up target (cavitas info under 0.5 s) rests on this: a file that is
+    # not chunked needs neither numba, scipy nor Matplotlib (common practice: lazy imports;
+    # checked in a fresh interpreter, which is what a user starts).
+    import subprocess
+    import sys
+
+    path = tmp_path / "image.tif"
+    write(path, np.arange(256, dtype=np.uint16).reshape(16, 16))
+    code = ("import sys; from cavitas.cli import main; main(['info', sys.argv[1], '-q']); "
+            "print(sorted(m for m in ('numba', 'scipy', 'matplotlib') if m in sys.modules))")
+    done = subprocess.run([sys.executable, "-c", code, str(path)], capture_output=True,
+                          text=True, check=True)
+    assert done.stdout.splitlines()[-1] == "[]"
+
+
+def test_console_command_exits_with_the_documented_codes(tmp_path):
+    # Source: the exit codes documented in cavitas/_errors.py and the README (0 ok, 3 bad
+    # or missing input file), through ``python -m cavitas`` as a user runs the command.
+    import subprocess
+    import sys
+
+    path = tmp_path / "image.tif"
+    write(path, np.arange(256, dtype=np.uint16).reshape(16, 16))
+    ok = subprocess.run([sys.executable, "-m", "cavitas", "info", str(path), "--json"],
+                        capture_output=True, text=True)
+    assert ok.returncode == 0 and json.loads(ok.stdout)["shape"] == [16, 16]
+    missing = subprocess.run([sys.executable, "-m", "cavitas", "info",
+                              str(tmp_path / "none.tif")], capture_output=True, text=True)
+    assert missing.returncode == 3
+    assert "none.tif" in _one_sentence(missing.stderr)

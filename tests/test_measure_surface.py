@@ -7,7 +7,14 @@ from skimage.measure import perimeter_crofton
 from cavitas import ParameterError
 from cavitas.measure import measure_regions, surface_area
 from cavitas.measure._checks import half_offsets
-from cavitas.measure._surface import crofton_weights
+from cavitas.measure._surface import (
+    _ISOTROPIC_COUNTS,
+    _SPHERE_SAMPLES,
+    _direction_units,
+    _nearest_counts,
+    _sample_points,
+    crofton_weights,
+)
 
 
 def digitised_ball(radius, spacing, offset):
@@ -56,6 +63,36 @@ def test_cube_volume_exact_and_sphericity_within_bias(side):
     dirs = half_offsets(3).astype(float)
     face_factor = 2 * np.sum(w * np.abs(dirs[:, 0]) / np.linalg.norm(dirs, axis=1))
     assert face_factor == pytest.approx(0.927, abs=0.002)
+
+
+@pytest.mark.parametrize("ndim", [2, 3])
+def test_isotropic_weights_are_the_computed_ones_bit_for_bit(ndim):
+    # Source: the computation the shipped counts replace (_nearest_counts: the sample
+    # points nearest each direction). They must be its result exactly, at spacing 1 and
+    # at other isotropic spacings; and no sample point may lie within rounding reach
+    # (~1e-15) of a tie between two directions, which is why every isotropic spacing
+    # gives the same counts (the unit directions differ from spacing 1's by rounding).
+    spacings = [1.0, 0.65, 1 / 3, 7.5] if ndim == 2 else [1.0, 0.65]
+    for step in spacings:
+        spacing = (step,) * ndim
+        computed = _nearest_counts(ndim, spacing)
+        assert computed.tolist() == list(_ISOTROPIC_COUNTS[ndim])
+        crofton_weights.cache_clear()
+        shipped = crofton_weights(ndim, spacing)
+        assert shipped.dtype == np.float64
+        assert np.array_equal(shipped, computed / _SPHERE_SAMPLES)
+    closeness = np.sort(np.abs(_sample_points(ndim) @ _direction_units(ndim, (1.0,) * ndim).T),
+                        axis=1)
+    assert (closeness[:, -1] - closeness[:, -2]).min() > 1e-9
+
+
+def test_anisotropic_weights_are_computed():
+    # Source: Legland, Kiêu & Devaux (2007): the weights follow the spacing; at 2:1 the
+    # directions are no longer equally spaced, so the weights are not the isotropic ones.
+    crofton_weights.cache_clear()
+    weights = crofton_weights(2, (2.0, 1.0))
+    assert np.array_equal(weights, _nearest_counts(2, (2.0, 1.0)) / _SPHERE_SAMPLES)
+    assert weights.sum() == pytest.approx(1.0) and not np.allclose(weights, 0.25)
 
 
 @pytest.mark.parametrize("spacing", [(1.0, 1.0), (2.0, 1.0)])

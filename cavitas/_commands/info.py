@@ -239,11 +239,11 @@ def chunked_facts(name: str, volume: Volume) -> dict[str, Any] | None:
     >>> chunked_facts(store, read(store))["chunk_shape"]
     [4, 8, 8]
     """
-    from ..cubical._chunk_memory import worker_need
-
     chunk = _stored_chunks(name, volume)
     if chunk is None:
         return None
+    from ..cubical._chunk_memory import worker_need  # loads numba: only for chunked files
+
     chunk = tuple(min(c, s) for c, s in zip(chunk, volume.shape, strict=True))
     per_axis = [(c,) * (s // c) + ((s % c,) if s % c else ())
                 for s, c in zip(volume.shape, chunk, strict=True)]
