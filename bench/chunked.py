@@ -163,12 +163,9 @@ def cavity_tree_rows(client, folder: Path, sides=(128, 256)) -> list[dict]:
             client, lambda stored=stored: tree_chunks_on_dask(stored))
         same = all(np.array_equal(getattr(ref, f), getattr(got.tree, f), equal_nan=True)
                    for f in _TREE_FIELDS)
-        rows.append({"metric": f"{side}^3 cavity tree, chunks {chunk[0]}^3",
-                     "value": f"{wall:.2f} s ({wall / t_ref:.1f}x)", "target": "identical",
-                     "note": f"{'identical' if same else 'DIFFERENT'} ({ref.n_nodes} nodes); "
-                             f"in memory {t_ref:.2f} s, peak {p_ref / 2**20:.0f} MiB; worker "
-                             f"peak {worker / 2**20:.0f} MiB, client "
-                             f"{client_peak / 2**20:.0f} MiB"})
+        rows.append(_identity_row(f"{side}^3 cavity tree, chunks {chunk[0]}^3", same,
+                                  f" ({ref.n_nodes} nodes)", "in memory", t_ref, p_ref, wall,
+                                  worker, client_peak))
         rows.append(_breach_region_row(client, folder, image, order, got, chunk))
     return rows
 
@@ -197,12 +194,20 @@ def _breach_region_row(client, folder: Path, image: np.ndarray, order: np.ndarra
         chunked, pruned.hier.node[:pruned.hier.n_chambers],
         pruned.close_level[:pruned.hier.n_chambers], ids).to_zarr(labels_at, overwrite=True))
     same = np.array_equal(np.asarray(da.from_zarr(labels_at)), ref)
-    return {"metric": f"{image.shape[0]}^3 breach regions, chunks {chunk[0]}^3",
-            "value": f"{wall:.2f} s ({wall / t_ref:.1f}x)", "target": "identical",
-            "note": f"{'identical' if same else 'DIFFERENT'} ({node.size} regions); in memory "
-                    f"(nested_map, the sweep given) {t_ref:.2f} s, peak {p_ref / 2**20:.0f} "
-                    f"MiB; worker peak {worker / 2**20:.0f} MiB, client "
-                    f"{client_peak / 2**20:.0f} MiB"}
+    return _identity_row(f"{image.shape[0]}^3 breach regions, chunks {chunk[0]}^3", same,
+                         f" ({node.size} regions)", "in memory (nested_map, the sweep given)",
+                         t_ref, p_ref, wall, worker, client_peak)
+
+
+def _identity_row(metric: str, same: bool, what: str, reference: str, t_ref: float,
+                  p_ref: float, wall: float, worker: float, client_peak: float) -> dict:
+    """A row of a chunked step against its in-memory ``reference``: the chunked time and its
+    ratio, whether the results are identical (``what`` qualifies it), both peaks."""
+    return {"metric": metric, "value": f"{wall:.2f} s ({wall / t_ref:.1f}x)",
+            "target": "identical",
+            "note": f"{'identical' if same else 'DIFFERENT'}{what}; {reference} {t_ref:.2f} s, "
+                    f"peak {p_ref / 2**20:.0f} MiB; worker peak {worker / 2**20:.0f} MiB, "
+                    f"client {client_peak / 2**20:.0f} MiB"}
 
 
 def _timed_on_cluster(client, compute):
@@ -247,11 +252,8 @@ def _step_rows_at(client, folder: Path, side: int) -> list[dict]:
         lazy, sigma, dtype=np.float32).to_zarr(smoothed_at, overwrite=True))
     same = np.array_equal(np.asarray(da.from_zarr(smoothed_at)).view(np.uint32),
                           ref.view(np.uint32))
-    rows = [{"metric": f"{side}^3 smoothing, chunks {chunk[0]}^3",
-             "value": f"{wall:.2f} s ({wall / t_ref:.1f}x)", "target": "identical",
-             "note": f"{'identical' if same else 'DIFFERENT'} bit for bit; in memory "
-                     f"{t_ref:.2f} s, peak {p_ref / 2**20:.0f} MiB; worker peak "
-                     f"{worker / 2**20:.0f} MiB, client {client_peak / 2**20:.0f} MiB"}]
+    rows = [_identity_row(f"{side}^3 smoothing, chunks {chunk[0]}^3", same, " bit for bit",
+                          "in memory", t_ref, p_ref, wall, worker, client_peak)]
     level = float(np.median(ref))
     (expected, count), t_ref, p_ref = _timed_here(lambda: ndi.label(ref < level))
     smoothed = da.from_zarr(smoothed_at)
@@ -265,11 +267,9 @@ def _step_rows_at(client, folder: Path, side: int) -> list[dict]:
     found, wall, worker, client_peak = _timed_on_cluster(client, components)
     same = found == count and np.array_equal(np.asarray(da.from_zarr(labels_at)), expected)
     rows.append(_statistics_row(client, image, lazy, side, chunk))
-    rows.append({"metric": f"{side}^3 components below the median, chunks {chunk[0]}^3",
-                 "value": f"{wall:.2f} s ({wall / t_ref:.1f}x)", "target": "identical",
-                 "note": f"{'identical' if same else 'DIFFERENT'} ({count} components); in "
-                         f"memory {t_ref:.2f} s, peak {p_ref / 2**20:.0f} MiB; worker peak "
-                         f"{worker / 2**20:.0f} MiB, client {client_peak / 2**20:.0f} MiB"})
+    rows.append(_identity_row(f"{side}^3 components below the median, chunks {chunk[0]}^3",
+                              same, f" ({count} components)", "in memory", t_ref, p_ref, wall,
+                              worker, client_peak))
     return rows
 
 
@@ -285,11 +285,8 @@ def _statistics_row(client, image: np.ndarray, lazy, side: int, chunk) -> dict:
         client, lambda: (percentiles_in_chunks(lazy, [0.5, 99.5]),
                          noise_level_in_chunks(lazy, 0.29)))
     same = np.array_equal(got_range, ref_range) and got_noise == ref_noise
-    return {"metric": f"{side}^3 robust range and noise level, chunks {chunk[0]}^3",
-            "value": f"{wall:.2f} s ({wall / t_ref:.1f}x)", "target": "identical",
-            "note": f"{'identical' if same else 'DIFFERENT'}; in memory {t_ref:.2f} s, peak "
-                    f"{p_ref / 2**20:.0f} MiB; worker peak {worker / 2**20:.0f} MiB, client "
-                    f"{client_peak / 2**20:.0f} MiB"}
+    return _identity_row(f"{side}^3 robust range and noise level, chunks {chunk[0]}^3", same,
+                         "", "in memory", t_ref, p_ref, wall, worker, client_peak)
 
 
 def segmentation_steps_only(sides=(128, 256)) -> list[dict]:
@@ -356,12 +353,9 @@ def _segment_route_row(client, folder: Path, side: int) -> dict:
             and all(np.array_equal(got.table[name], ref.regions[name],
                                    equal_nan=got.table[name].dtype.kind == "f")
                     for name in got.table.names))
-    return {"metric": f"{side}^3 segment route, chunks {chunk[0]}^3",
-            "value": f"{wall:.2f} s ({wall / t_ref:.1f}x)", "target": "identical",
-            "note": f"{'identical' if same else 'DIFFERENT'} ({len(got.table)} rows); "
-                    f"segment() in memory {t_ref:.2f} s, peak {p_ref / 2**20:.0f} MiB; "
-                    f"worker peak {worker / 2**20:.0f} MiB, client "
-                    f"{client_peak / 2**20:.0f} MiB"}
+    return _identity_row(f"{side}^3 segment route, chunks {chunk[0]}^3", same,
+                         f" ({len(got.table)} rows)", "segment() in memory", t_ref, p_ref, wall,
+                         worker, client_peak)
 
 
 def segment_route_only(sides=(128, 256)) -> list[dict]:
