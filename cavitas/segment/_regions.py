@@ -537,12 +537,12 @@ def open_to_border(labels: np.ndarray, outside: np.ndarray, n_labels: int,
     found a shallow rim there, not a wall. A few voxels of contact (noise in a thin wall)
     do not count.
 
-    With ``faces`` and the chambers' cut ``levels`` (the same scale), the chamber's own
-    level decides too: the outside basin has one wall level for every piece of it, which
-    under uneven illumination lies below the inside of a dim cell cut by the border, so its
-    face voxels read as wall there. A chamber is then also open when at least as many
-    voxels as above, and at least half of the border voxels next to it that lie in its own
-    basin or the outside basin, lie below its level.
+    With ``faces`` (taken with the same ``beyond_roi``) and the chambers' cut ``levels``
+    (the same scale), the chamber's own level decides too: the outside basin has one wall
+    level for every piece of it, which under uneven illumination lies below the inside of a
+    dim cell cut by the border, so its face voxels read as wall there. A chamber is then
+    also open when at least as many voxels as above, and at least half of the border voxels
+    next to it that lie in its own basin or the outside basin, lie below its level.
 
     Examples
     --------
@@ -563,7 +563,8 @@ def open_to_border(labels: np.ndarray, outside: np.ndarray, n_labels: int,
     """
     ndim = labels.ndim
     border = np.zeros(labels.shape, bool)
-    border.ravel()[border_voxels(labels.shape, beyond_roi)] = True
+    border.ravel()[faces.index if faces is not None
+                   else border_voxels(labels.shape, beyond_roi)] = True
     opening = border & outside
     on_face = np.bincount(labels[border].ravel().astype(np.int64), minlength=n_labels + 1) > 0
     contact = np.zeros(n_labels + 1, np.int64)
