@@ -23,7 +23,7 @@ from ..cubical._tree import OUTSIDE, CavityTree
 from . import _noise
 from ._cell_sized import cell_sized_splits
 from ._discovery import false_discovery_threshold, share_passing
-from ._evidence import WHITE_NOISE_DIP, eligible_nodes, small_region_threshold
+from ._evidence import WHITE_NOISE_DIP, eligible_nodes, enough_for_size
 from ._gap import find_empty_stretch, find_gap
 from ._params import AUTO_SCALES, SegmentParams
 from ._polarity import census, polarity_hint
@@ -228,7 +228,8 @@ def detect(image: ScanImage, params: SegmentParams, *, noise: _noise.NoiseLevel,
             if passing.any():
                 area = node_sizes(tree).astype(np.float64)
                 area[OUTSIDE] = np.inf
-                eligible &= pers >= small_region_threshold(area, pers, passing)
+                # white noise: a small chamber, shallow by blur, may count by its wall
+                eligible &= enough_for_size(tree, area, passing, walls_count=noise.white)
                 passing &= eligible
                 if not noise.white:  # texture: a split must stand out from its region's
                     texture = texture_splits(tree.parent, pers, passing)
