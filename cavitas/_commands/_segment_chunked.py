@@ -29,8 +29,10 @@ from ._cluster import dask_client
 __all__ = ["NOT_MADE", "run_chunked"]
 
 #: What the chunked route does not write (the run summary says so).
-NOT_MADE = ("the report, diagram.csv/png, regions.json, euler.csv and the measurement columns "
-            "of regions.csv after touches_border")
+NOT_MADE = ("the report, euler.csv and the wall-thickness columns of regions.csv (the local "
+            "thickness of a wall voxel depends on the largest ball inside the walls, which "
+            "no fixed chunk overlap bounds; the in-memory route leaves them out with "
+            "--no-thickness)")
 #: The smoothed image, stored once in the staging folder (which the workers write to
 #: anyway) for every pass after the first to read; removed before the outputs are published,
 #: and with the staging folder if the run fails.
@@ -83,7 +85,8 @@ def _targets(args: argparse.Namespace, settings: Any) -> dict[str, Path]:
     """The output paths, checked before any work (an existing one needs --force)."""
     from .._shared.atomic import check_writable
 
-    names = {"labels": "labels.zarr", "regions": "regions.csv", "run": "run.json"}
+    names = {"labels": "labels.zarr", "regions": "regions.csv", "regions_json": "regions.json",
+             "diagram": "diagram.csv", "diagram_plot": "diagram.png", "run": "run.json"}
     if settings.options.enclosures:
         names["enclosures"] = "enclosures.zarr"
     targets = {key: args.out / name for key, name in names.items()}
@@ -116,6 +119,49 @@ def _write_labels(labels: Any, path: Path, volume: Any) -> None:
     zarr.open_array(str(path), mode="r+").attrs.update(
         {"spacing": list(volume.spacing), "unit": volume.unit, "source": volume.name,
          "caution": RESEARCH_ONLY})
+
+
+def _write_tables(seg: Any, staging: Path, targets: dict[str, Path], *, image: Any,
+                  mask: Any, volume: Any, walls: str) -> dict[str, Any]:
+    """regions.csv and regions.json (the regions with their measurements, which read the
+    label map just written and the image chunk by chunk), diagram.csv and diagram.png (from
+    the merged tree), as the in-memory route writes them; returns the global figures."""
+    import dask.array as da
+
+    from ..measure._chunked import measure_in_chunks
+    from ..measure._global import figures_from_counts
+    from ..segment._result import cavity_diagram
+    from ..workflow import (
+        diagram_table,
+        draw_diagram,
+        measured_columns,
+        whole_chamber_rows,
+        with_measurements,
+    )
+
+    regions = seg.table
+    labels = da.from_zarr(str(staging / targets["labels"].name))
+    measured = measure_in_chunks(labels, spacing=volume.spacing, unit=volume.unit,
+                                 image=image, roi=mask)
+    whole = whole_chamber_rows(regions, measured.table)
+    figures = figures_from_counts(measured.table.select(whole),
+                                  measured.roi_counts(whole, mask), spacing=volume.spacing,
+                                  unit=volume.unit)
+    table = with_measurements(regions, measured_columns(regions, measured.table),
+                              measured.table.units, figures, noise=seg.noise,
+                              threshold=seg.threshold)
+    table.to_csv(staging / targets["regions"].name)
+    table.to_json(staging / targets["regions_json"].name)
+    cavities = cavity_diagram(seg.tree, seg.chamber_nodes, shape=volume.shape, walls=walls,
+                              connectivity=seg.connectivity,
+                              masked=measured.roi_voxels < int(np.prod(volume.shape)),
+                              threshold=seg.threshold)
+    diagram_table(cavities.diagram, cavities.kept, cavities.margin).to_csv(
+        staging / targets["diagram"].name)
+    draw_diagram(staging / targets["diagram_plot"].name, cavities.diagram, cavities.kept,
+                 threshold=seg.threshold, smooth_sigma=seg.smooth_sigma, unit=volume.unit,
+                 force=False)
+    return figures
 
 
 def run_chunked(args: argparse.Namespace, settings: Any) -> int:
@@ -164,7 +210,8 @@ def run_chunked(args: argparse.Namespace, settings: Any) -> int:
                 _write_labels(labels, staging / targets[key].name, volume)
             if smoothed.exists():  # read by the label maps just written; not an output
                 shutil.rmtree(smoothed)
-        seg.table.to_csv(staging / targets["regions"].name)
+            figures = _write_tables(seg, staging, targets, image=image.data, mask=mask,
+                                    volume=volume, walls=params.walls)
         counts = {kind: int(np.count_nonzero(seg.table["kind"] == kind))
                   for kind in ("chamber", "enclosure")}
         record = {
@@ -185,6 +232,7 @@ def run_chunked(args: argparse.Namespace, settings: Any) -> int:
             "options": options.to_dict(),
             "summary": {"regions": counts["chamber"], "enclosures": counts["enclosure"],
                         "cavities": int(np.count_nonzero(seg.tree.persistence[1:] > 0))},
+            "global_figures": figures,
             "outputs": {key: path.name for key, path in targets.items()},
             "elapsed_s": round(time.perf_counter() - started, 3),
             "caution": RESEARCH_ONLY,
