@@ -48,9 +48,15 @@ from ._regions import _columns, box_on_edge, kernel_image, measured_table
 from ._shells import shell_means, shell_totals, shell_voxels
 from ._surface import core_crossings, surface_from_crossings
 
-__all__ = ["ChunkedMeasurement", "PartialSums", "measure_in_chunks"]
+__all__ = ["BLOCK_VOXELS", "ChunkedMeasurement", "PartialSums", "measure_in_chunks",
+           "measuring_blocks"]
 
 _BIG = np.iinfo(np.int64).max
+#: Voxels of a measuring block (the bound of the noise level's crop): a task then holds
+#: about 15 bytes per voxel of it (labels, renumbered labels, image, ROI and masks).
+BLOCK_VOXELS = 1 << 22
+#: Partial results merged by one task.
+_FAN_IN = 8
 
 
 @dataclass(frozen=True)
@@ -89,7 +95,7 @@ class ChunkedMeasurement:
 
 def measure_in_chunks(labels: Any, *, spacing: Sequence[float] | None = None,
                       unit: str = "µm", image: Any = None, roi: Any = None,
-                      fan_in: int = 2) -> ChunkedMeasurement:
+                      block_voxels: int = BLOCK_VOXELS) -> ChunkedMeasurement:
     """:func:`~cavitas.measure.measure_regions` (``thickness=False``) of a Dask label map.
 
     Parameters
@@ -102,8 +108,11 @@ def measure_in_chunks(labels: Any, *, spacing: Sequence[float] | None = None,
         Intensities of the same shape (rechunked like ``labels``).
     roi : dask.array.Array of bool, optional
         Region of interest, as ``measure_regions``' ``roi``.
-    fan_in : int
-        Partial results merged by one task.
+    block_voxels : int
+        Neighbouring chunks are measured together, in blocks of whole chunks of at most
+        this many voxels (:func:`measuring_blocks`; a chunk larger than that alone): the
+        result does not depend on the blocks, and fewer tasks cost less. 0: each chunk
+        alone.
 
     Returns
     -------
@@ -128,14 +137,17 @@ def measure_in_chunks(labels: Any, *, spacing: Sequence[float] | None = None,
     ndim = labels.ndim
     sp = check_spacing(spacing, ndim)
     shape = tuple(int(s) for s in labels.shape)
+    blocks = measuring_blocks(labels.chunks, block_voxels)
+
     def framed(array: Any, beyond: Any) -> Any:
-        """The blocks of ``array`` in ``labels``' chunks, each framed one voxel deep by
-        its neighbours' voxels (``beyond`` past the array's edge); None for no array."""
+        """The measuring blocks of ``array``, each framed one voxel deep by its
+        neighbours' voxels (``beyond`` past the array's edge); None for no array."""
         if array is None:
             return None
-        array = array.rechunk(labels.chunks)
-        return da.overlap.overlap(array, depth=1, boundary=beyond).to_delayed()
+        return da.overlap.overlap(array.rechunk(blocks), depth=1,
+                                  boundary=beyond).to_delayed()
 
+    labels = labels.rechunk(blocks)
     label_blocks = framed(labels, 0)
     image_blocks = framed(image, 0)
     roi_blocks = framed(None if roi is None else roi.astype(bool), True)
@@ -146,11 +158,41 @@ def measure_in_chunks(labels: Any, *, spacing: Sequence[float] | None = None,
         [int(starts[axis][i]) for axis, i in enumerate(index)])
         for index in np.ndindex(*labels.numblocks)]
     while len(parts) > 1:
-        parts = [dask.delayed(_merge_all, pure=True)(parts[i:i + fan_in])
-                 for i in range(0, len(parts), fan_in)]
+        parts = [dask.delayed(_merge_all, pure=True)(parts[i:i + _FAN_IN])
+                 for i in range(0, len(parts), _FAN_IN)]
     total = parts[0].compute()
     return _measurement(total, shape, sp, unit, image=image is not None,
                         roi=roi is not None)
+
+
+def measuring_blocks(chunks: tuple[tuple[int, ...], ...],
+                     most: int) -> tuple[tuple[int, ...], ...]:
+    """Blocks of whole chunks (Dask chunks of regular arrays: all but the last equal per
+    axis) of at most ``most`` voxels, grown by doubling along the last axes first; the
+    chunks themselves when they are irregular or already larger.
+
+    Examples
+    --------
+    >>> measuring_blocks(((2, 2, 1), (3, 3, 3)), 12)
+    ((2, 2, 1), (6, 3))
+    >>> measuring_blocks(((2, 2, 1), (3, 3, 3)), 0)
+    ((2, 2, 1), (3, 3, 3))
+    """
+    if any(len(set(sizes[:-1])) > 1 or sizes[-1] > sizes[0] for sizes in chunks):
+        return chunks
+    size = [sizes[0] for sizes in chunks]
+    total = [sum(sizes) for sizes in chunks]
+    grown = True
+    while grown:
+        grown = False
+        for axis in reversed(range(len(size))):
+            wider = min(2 * size[axis], total[axis])
+            if wider > size[axis] and np.prod(size) // size[axis] * wider <= most:
+                size[axis], grown = wider, True
+    if size == [sizes[0] for sizes in chunks]:
+        return chunks
+    return tuple(tuple([s] * (t // s) + ([t % s] if t % s else []))
+                 for s, t in zip(size, total, strict=True))
 
 
 def _chunk_sums(labels: np.ndarray, image: np.ndarray | None, roi: np.ndarray | None,
