@@ -27,8 +27,9 @@ Sums of integers (counts, coordinates, integer intensities) are exact in float64
 thickness of a voxel depends on the largest ball inside the walls, which no fixed frame
 bounds.
 
-Memory per task: the framed chunk of the labels (and of the image and ROI), its
-renumbered labels (4 bytes per voxel), the shell and dilation masks (1 byte each); the
+Memory per task: the framed block of the labels (and of the image and ROI) assembled from
+its chunks, its renumbered labels, the core copies, the shell and dilation masks: about 35
+bytes per block voxel, measured (blocks of whole chunks up to :data:`BLOCK_VOXELS`). The
 partial results hold one row per region met, so the client holds a few rows per region.
 """
 
@@ -53,7 +54,8 @@ __all__ = ["BLOCK_VOXELS", "ChunkedMeasurement", "PartialSums", "measure_in_chun
 
 _BIG = np.iinfo(np.int64).max
 #: Voxels of a measuring block (the bound of the noise level's crop): a task then holds
-#: about 15 bytes per voxel of it (labels, renumbered labels, image, ROI and masks).
+#: about 35 bytes per voxel of it (measured: the framed blocks assembled from their chunks,
+#: the renumbering, the core copies and masks), about 150 MiB.
 BLOCK_VOXELS = 1 << 22
 #: Partial results merged by one task.
 _FAN_IN = 8
