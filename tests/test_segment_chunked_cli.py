@@ -8,7 +8,8 @@ Checks and their sources:
   what ``cavitas segment --no-thickness`` writes for the same Zarr store in memory with
   the same options (``--region component``, a hand threshold, with and without
   smoothing, both polarities, 2D and 3D, chunks of one voxel thickness and chunks that
-  cut through every cell, a mask). The in-memory route is the reference;
+  cut through every cell, a mask); the report's sections but how the walls connect equal
+  the in-memory report's (2D). The in-memory route is the reference;
   its labels are checked against ``scipy.ndimage.label`` of sublevel sets in
   ``tests/test_regions_chunked.py`` and ``tests/test_segment_regions.py``. That a
   distributed path equals its serial one is common practice (DEVELOPERS.md).
@@ -38,6 +39,7 @@ Checks and their sources:
 from __future__ import annotations
 
 import json
+import re
 
 import numpy as np
 import pytest
@@ -100,7 +102,18 @@ def _compare_runs(tmp_path, source, common, address) -> Table:
     assert big_json["meta"]["global"] == pytest.approx(mem_json["meta"]["global"], rel=1e-12)
     assert (tmp_path / "big" / "diagram.png").read_bytes() == (
         tmp_path / "mem" / "diagram.png").read_bytes()  # the same figure, drawn alike
+    if "--no-report" not in common:  # the report's sections, but how the walls connect
+        mem_page, big_page = (_sections((tmp_path / run / "report.html").read_text(
+            encoding="utf-8")) for run in ("mem", "big"))
+        assert set(mem_page) - set(big_page) == {"connectivity"}
+        for name in ("summary", "browser", "table", "persistence", "plots"):
+            assert big_page[name] == mem_page[name], name
     return Table.from_csv(tmp_path / "big" / "regions.csv")
+
+
+def _sections(page: str) -> dict[str, str]:
+    """The report's sections by id (a page cavitas writes: no nested sections)."""
+    return dict(re.findall(r'<section id="([a-z]+)">(.*?)</section>', page, re.S))
 
 
 def _store(path, image, chunks) -> str:
@@ -114,7 +127,7 @@ CASES = [  # (shape, pitch, chunks, walls, extra options)
     ((9, 9, 9), 4, (5, 5, 1), "bright", ["--smooth", "0.6", "--enclosures"]),
     ((13, 11, 12), 4, (3, 6, 7), "dark", ["--enclosures", "--mask", "MASK"]),
     ((25, 21), 6, (2, 11), "dark", ["--smooth", "1", "--connectivity", "2", "--top", "5",
-                                    "--relative-persistence", "0.15"]),
+                                    "--relative-persistence", "0.15", "REPORT"]),
 ]
 
 
@@ -130,8 +143,10 @@ def test_labels_and_table_equal_in_memory(address, tmp_path, shape, pitch, chunk
     roi[..., :2] = 0  # a region of interest, stored in other chunks than the image
     extra = [_store(tmp_path / "roi.zarr", roi, (3,) * len(shape)) if option == "MASK"
              else option for option in extra]
+    report = "REPORT" in extra  # with the report (else --no-report)
+    extra = [option for option in extra if option != "REPORT"]
     common = ["--region", "component", "--min-persistence", "30", "--walls", walls,
-              "--no-report", *extra]
+              *([] if report else ["--no-report"]), *extra]
     _compare_runs(tmp_path, source, common, address)
     assert "not made on this route" in capsys.readouterr().out
     if "--enclosures" in extra:
@@ -148,7 +163,8 @@ def test_labels_and_table_equal_in_memory(address, tmp_path, shape, pitch, chunk
     assert sorted(p.name for p in (tmp_path / "big").iterdir()) == sorted(
         ["labels.zarr", "regions.csv", "regions.json", "diagram.csv", "diagram.png",
          "run.json"]
-        + (["enclosures.zarr"] if "--enclosures" in extra else []))
+        + (["enclosures.zarr"] if "--enclosures" in extra else [])
+        + (["report.html"] if report else []))
 
 
 def test_smoothed_once_same_result(monkeypatch, tmp_path):
@@ -249,9 +265,10 @@ def test_measurements_of_chunks_alone(client):
     image = rng.integers(0, 4000, shape).astype(np.uint16)
     roi = np.ones(shape, bool)
     roi[3:5, 4:9, :] = False
-    got = measure_in_chunks(da.from_array(lab, chunks=(4, 5, 9)), spacing=(1.0, 2.0, 2.0),
-                            image=da.from_array(image, chunks=(11, 3, 3)),
-                            roi=da.from_array(roi, chunks=5), block_voxels=0)
+    chunks = (6, 7, 9)  # other chunkings of the image and ROI: tests/test_measure_chunked.py
+    got = measure_in_chunks(da.from_array(lab, chunks=chunks), spacing=(1.0, 2.0, 2.0),
+                            image=da.from_array(image, chunks=chunks),
+                            roi=da.from_array(roi, chunks=chunks), block_voxels=0)
     _assert_same(got.table, measure_regions(lab, spacing=(1.0, 2.0, 2.0), image=image,
                                             roi=roi, thickness=False))
 

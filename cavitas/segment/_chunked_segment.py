@@ -63,7 +63,7 @@ class ChunkedSegmentation:
     tree: CavityTree             # of the smoothed image (walls high)
     connectivity: int
     chamber_nodes: np.ndarray    # cavity-tree node of each chamber row
-    noise: float                 # segment()'s noise_sigma (noise_level's amplitude)
+    noise: _noise.NoiseLevel     # as segment() estimates it (noise_sigma: its amplitude)
 
 
 def segment_in_chunks(image: Any, *, params: SegmentParams, spacing: np.ndarray, unit: str,
@@ -192,7 +192,7 @@ def segment_in_chunks(image: Any, *, params: SegmentParams, spacing: np.ndarray,
         enclosure_lut = np.zeros(n_ch + n_enc + 1, dtype)
         enclosure_lut[n_ch + 1:] = numbered.enclosure_ids
         enclosure_labels = enclosures.map_blocks(_renumber, enclosure_lut, dtype=dtype)
-    noise = noise_level_in_chunks(image, floor=floor).amplitude  # as segment() reports it
+    noise = noise_level_in_chunks(image, floor=floor)  # as segment() estimates it
     return ChunkedSegmentation(labels, enclosure_labels, numbered.table, tau, robust_range,
                                scale, tree, connectivity, numbered.chamber_nodes, noise)
 
