@@ -250,16 +250,17 @@ def _moved(raw: RawSums, origin: list[int]) -> RawSums:
 
 def _rows(part: PartialSums, rows: np.ndarray) -> PartialSums:
     """The rows picked of every per-region field."""
-    def pick(value: Any) -> Any:
-        return value[rows] if isinstance(value, np.ndarray) else value
-
-    raw = RawSums(**{f.name: pick(getattr(part.raw, f.name)) for f in fields(RawSums)})
-    return PartialSums(**{f.name: raw if f.name == "raw" else pick(getattr(part, f.name))
-                          for f in fields(PartialSums)})
+    raw = replace(part.raw, **{f.name: getattr(part.raw, f.name)[rows]
+                               for f in fields(RawSums)})
+    return replace(part, raw=raw, labels=part.labels[rows],
+                   **{name: getattr(part, name)[rows] for name in _PART_MERGE})
 
 
 #: How each field of the sums merges: added, or its minimum, maximum, either.
-_ADD, _MIN, _MAX, _ANY = np.add, np.minimum, np.maximum, np.logical_or
+_ADD: Any = np.add
+_MIN: Any = np.minimum
+_MAX: Any = np.maximum
+_ANY: Any = np.logical_or
 _RAW_MERGE = {"count": _ADD, "first": _ADD, "second": _ADD, "lo": _MIN, "hi": _MAX,
               "imin": _MIN, "imax": _MAX, "isum": _ADD}
 _PART_MERGE = {"crossings": _ADD, "shell_count": _ADD, "shell_isum": _ADD,
