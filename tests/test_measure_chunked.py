@@ -54,8 +54,7 @@ def _assert_same(got, expected) -> None:
 CASES = [  # (shape, label chunks, image chunks, roi chunks, spacing, image dtype)
     ((9, 11, 10), (1, 11, 10), (4, 4, 4), (9, 2, 3), (0.5, 1.0, 2.0), np.float32),
     ((10, 9, 8), (3, 2, 5), (10, 9, 8), (5, 5, 5), (1.0, 1.0, 1.0), np.uint16),
-    ((21, 17), (1, 4), (5, 17), (7, 7), (2.0, 0.5), np.float64),
-    ((16, 19), (5, 1), (16, 19), (3, 19), (1.0, 1.0), np.uint8),
+    ((21, 17), (2, 5), (5, 17), (7, 7), (2.0, 0.5), np.float64),
 ]
 
 
@@ -71,7 +70,7 @@ def test_equals_whole_array(shape, chunks, image_chunks, roi_chunks, spacing, dt
     roi[..., :2] = False
     roi[(rng.random(shape) < 0.05)] = False
     # neither, or one of the image and the ROI (by case), then both
-    alone = [(None, None), (None, image), (roi, None), (None, None)][CASES.index(
+    alone = [(None, None), (None, image), (roi, None)][CASES.index(
         (shape, chunks, image_chunks, roi_chunks, spacing, dtype))]
     with dask.config.set(scheduler="synchronous"):
         for given_roi, given_image in (alone, (roi, image)):

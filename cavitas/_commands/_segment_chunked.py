@@ -8,10 +8,10 @@ sentence before any work starts (exit code 2), so nothing is written. The output
 staging folder published at the end (:mod:`cavitas.io._staging`): labels.zarr (and
 enclosures.zarr) written chunk by chunk, regions.csv and regions.json (measured chunk by
 chunk from labels.zarr and the image), diagram.csv and diagram.png (from the merged tree),
-report.html (the label map and image read a slice or a slab at a time), run.json last. The
-smoothed image is written there once too (:data:`SMOOTHED_STORE`, in the work type: 4
-bytes per voxel for data of up to 16 bits and float32, 8 otherwise, before compression)
-and removed before the outputs are published.
+euler.csv (chunk by chunk), report.html (the label map and image read a slice or a slab
+at a time), run.json last. The smoothed image is written there once too
+(:data:`SMOOTHED_STORE`, in the work type: 4 bytes per voxel for data of up to 16 bits and
+float32, 8 otherwise, before compression) and removed before the outputs are published.
 """
 
 from __future__ import annotations
@@ -33,11 +33,10 @@ from ._cluster import dask_client
 __all__ = ["NOT_MADE", "run_chunked"]
 
 #: What the chunked route does not write (the run summary says so).
-NOT_MADE = ("euler.csv and the report's section on how the walls connect (the Euler "
-            "characteristic curve and the walls' Betti numbers), and the wall-thickness "
-            "columns of regions.csv (the local thickness of a wall voxel depends on the "
-            "largest ball inside the walls, which no fixed chunk overlap bounds; the "
-            "in-memory route leaves them out with --no-thickness)")
+NOT_MADE = ("the segmented walls' Betti numbers and connectivity density (run summary and "
+            "report), and the wall-thickness columns of regions.csv (the local thickness of "
+            "a wall voxel depends on the largest ball inside the walls, which no fixed "
+            "chunk overlap bounds; the in-memory route leaves them out with --no-thickness)")
 #: The smoothed image, stored once in the staging folder (which the workers write to
 #: anyway) for every pass after the first to read; removed before the outputs are published,
 #: and with the staging folder if the run fails.
@@ -91,7 +90,8 @@ def _targets(args: argparse.Namespace, settings: Any) -> dict[str, Path]:
     from .._shared.atomic import check_writable
 
     names = {"labels": "labels.zarr", "regions": "regions.csv", "regions_json": "regions.json",
-             "diagram": "diagram.csv", "diagram_plot": "diagram.png", "run": "run.json"}
+             "diagram": "diagram.csv", "diagram_plot": "diagram.png", "euler": "euler.csv",
+             "run": "run.json"}
     if settings.options.enclosures:
         names["enclosures"] = "enclosures.zarr"
     if not args.no_report:
@@ -135,15 +135,18 @@ class Tables:
     regions: Table           # with the measurements and the global figures in its meta
     figures: dict[str, Any]  # the global figures
     cavities: Any            # segment._result.CavityDiagram
+    euler: Any               # cubical.EulerCurve, the levels where χ changes
 
 
 def _write_tables(seg: Any, staging: Path, targets: dict[str, Path], *, image: Any,
                   mask: Any, volume: Any, walls: str) -> Tables:
     """regions.csv and regions.json (the regions with their measurements, which read the
     label map just written and the image chunk by chunk), diagram.csv and diagram.png (from
-    the merged tree), as the in-memory route writes them."""
+    the merged tree) and euler.csv (the image's Euler characteristic curve chunk by chunk),
+    as the in-memory route writes them."""
     import dask.array as da
 
+    from ..cubical._chunked_euler import euler_curve_in_chunks
     from ..measure._chunked import measure_in_chunks
     from ..measure._global import figures_from_counts
     from ..segment._result import cavity_diagram
@@ -177,14 +180,19 @@ def _write_tables(seg: Any, staging: Path, targets: dict[str, Path], *, image: A
     draw_diagram(staging / targets["diagram_plot"].name, cavities.diagram, cavities.kept,
                  threshold=seg.threshold, smooth_sigma=seg.smooth_sigma, unit=volume.unit,
                  force=False)
-    return Tables(table, figures, cavities)
+    curve = euler_curve_in_chunks(image, walls=walls, connectivity=seg.connectivity,
+                                  mask=mask)
+    Table({"level": curve.levels, "euler_characteristic": curve.chi},
+          meta={"caution": RESEARCH_ONLY}).to_csv(staging / targets["euler"].name)
+    return Tables(table, figures, cavities, curve)
 
 
 def _write_report(path: Path, tables: Tables, *, labels: Any, image: Any, volume: Any,
                   parameters: dict[str, Any], source: str, diagram_png: bytes) -> None:
-    """report.html from the tables, the merged tree's diagram and the label map and image
-    read a slice or a slab at a time (the slice browser's slabs reduced on the workers):
-    the in-memory route's page but for the section on how the walls connect."""
+    """report.html from the tables, the merged tree's diagram, the Euler characteristic
+    curve and the label map and image read a slice or a slab at a time (the slice browser's
+    slabs reduced on the workers): the in-memory route's page without the segmented
+    walls' Betti numbers."""
     from .._errors import safe_text
     from ..report import write_report
     from ..workflow import border_note, threshold_basis
@@ -195,7 +203,7 @@ def _write_report(path: Path, tables: Tables, *, labels: Any, image: Any, volume
                  regions=tables.regions, diagram=tables.cavities.diagram,
                  kept=tables.cavities.kept, threshold=parameters["threshold"],
                  params=parameters, figures=tables.figures, title=safe_text(Path(source).name),
-                 source=safe_text(source), notes=notes,
+                 source=safe_text(source), notes=notes, euler=tables.euler,
                  diagram_png=diagram_png)
 
 

@@ -29,7 +29,8 @@ bounds.
 
 Memory per task: the framed block of the labels (and of the image and ROI) assembled from
 its chunks, its renumbered labels, the core copies, the shell and dilation masks: about 35
-bytes per block voxel, measured (blocks of whole chunks up to :data:`BLOCK_VOXELS`). The
+bytes per block voxel, measured (blocks of whole chunks up to
+:data:`cavitas._shared.blocks.BLOCK_VOXELS`). The
 partial results hold one row per region met, so the client holds a few rows per region.
 """
 
@@ -41,6 +42,7 @@ from typing import Any
 
 import numpy as np
 
+from .._shared.blocks import BLOCK_VOXELS, chunk_blocks
 from .._table import Table
 from ._basic import RawSums, raw_sums, stats_from_sums
 from ._checks import as_3d, check_spacing, dense_labels, face_offsets
@@ -49,14 +51,9 @@ from ._regions import _columns, box_on_edge, kernel_image, measured_table
 from ._shells import shell_means, shell_totals, shell_voxels
 from ._surface import core_crossings, surface_from_crossings
 
-__all__ = ["BLOCK_VOXELS", "ChunkedMeasurement", "PartialSums", "measure_in_chunks",
-           "measuring_blocks"]
+__all__ = ["ChunkedMeasurement", "PartialSums", "measure_in_chunks"]
 
 _BIG = np.iinfo(np.int64).max
-#: Voxels of a measuring block (the bound of the noise level's crop): a task then holds
-#: about 35 bytes per voxel of it (measured: the framed blocks assembled from their chunks,
-#: the renumbering, the core copies and masks), about 150 MiB.
-BLOCK_VOXELS = 1 << 22
 #: Partial results merged by one task.
 _FAN_IN = 8
 
@@ -112,9 +109,11 @@ def measure_in_chunks(labels: Any, *, spacing: Sequence[float] | None = None,
         Region of interest, as ``measure_regions``' ``roi``.
     block_voxels : int
         Neighbouring chunks are measured together, in blocks of whole chunks of at most
-        this many voxels (:func:`measuring_blocks`; a chunk larger than that alone): the
-        result does not depend on the blocks, and fewer tasks cost less. 0: each chunk
-        alone.
+        this many voxels (:func:`cavitas._shared.blocks.chunk_blocks`; a chunk larger than
+        that alone): the result does not depend on the blocks, and fewer tasks cost less.
+        0: each chunk alone. A task holds about 35 bytes per block voxel (measured: the
+        framed blocks assembled from their chunks, the renumbering, the core copies and
+        masks), about 150 MiB at the default.
 
     Returns
     -------
@@ -139,7 +138,7 @@ def measure_in_chunks(labels: Any, *, spacing: Sequence[float] | None = None,
     ndim = labels.ndim
     sp = check_spacing(spacing, ndim)
     shape = tuple(int(s) for s in labels.shape)
-    blocks = measuring_blocks(labels.chunks, block_voxels)
+    blocks = chunk_blocks(labels.chunks, block_voxels)
 
     def framed(array: Any, beyond: Any) -> Any:
         """The measuring blocks of ``array``, each framed one voxel deep by its
@@ -165,36 +164,6 @@ def measure_in_chunks(labels: Any, *, spacing: Sequence[float] | None = None,
     total = parts[0].compute()
     return _measurement(total, shape, sp, unit, image=image is not None,
                         roi=roi is not None)
-
-
-def measuring_blocks(chunks: tuple[tuple[int, ...], ...],
-                     most: int) -> tuple[tuple[int, ...], ...]:
-    """Blocks of whole chunks (Dask chunks of regular arrays: all but the last equal per
-    axis) of at most ``most`` voxels, grown by doubling along the last axes first; the
-    chunks themselves when they are irregular or already larger.
-
-    Examples
-    --------
-    >>> measuring_blocks(((2, 2, 1), (3, 3, 3)), 12)
-    ((2, 2, 1), (6, 3))
-    >>> measuring_blocks(((2, 2, 1), (3, 3, 3)), 0)
-    ((2, 2, 1), (3, 3, 3))
-    """
-    if any(len(set(sizes[:-1])) > 1 or sizes[-1] > sizes[0] for sizes in chunks):
-        return chunks
-    size = [sizes[0] for sizes in chunks]
-    total = [sum(sizes) for sizes in chunks]
-    grown = True
-    while grown:
-        grown = False
-        for axis in reversed(range(len(size))):
-            wider = min(2 * size[axis], total[axis])
-            if wider > size[axis] and np.prod(size) // size[axis] * wider <= most:
-                size[axis], grown = wider, True
-    if size == [sizes[0] for sizes in chunks]:
-        return chunks
-    return tuple(tuple([s] * (t // s) + ([t % s] if t % s else []))
-                 for s, t in zip(size, total, strict=True))
 
 
 def _chunk_sums(labels: np.ndarray, image: np.ndarray | None, roi: np.ndarray | None,
