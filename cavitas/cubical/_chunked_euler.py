@@ -19,7 +19,9 @@ chunk adds up the cells it owns:
 * a chunk returns the keys at which its cells change χ with the change; the parts are
   merged eight at a time on the workers, the changes of one level added up.
 
-The steps that add up to zero are dropped, so only the levels where χ changes are found,
+A task holds the framed block's keys (8 bytes per voxel) and one cell type's keys with
+their sort: about 44 bytes per block voxel, measured. The steps that add up to zero are
+dropped, so only the levels where χ changes are found,
 and the first level of the filtration (an extreme over the chunks): what ``changes()``
 keeps. Data of up to 32-bit integers and floats are keyed exactly in float64.
 """
