@@ -53,7 +53,7 @@ def _assert_same(got, expected) -> None:
 
 CASES = [  # (shape, label chunks, image chunks, roi chunks, spacing, image dtype)
     ((9, 11, 10), (1, 11, 10), (4, 4, 4), (9, 2, 3), (0.5, 1.0, 2.0), np.float32),
-    ((10, 9, 8), (3, 2, 5), (10, 9, 8), (5, 5, 5), (1.0, 1.0, 1.0), np.uint16),
+    ((10, 9, 8), (5, 3, 4), (10, 9, 8), (5, 5, 5), (1.0, 1.0, 1.0), np.uint16),
     ((21, 17), (2, 5), (5, 17), (7, 7), (2.0, 0.5), np.float64),
 ]
 

@@ -33,10 +33,9 @@ from ._cluster import dask_client
 __all__ = ["NOT_MADE", "run_chunked"]
 
 #: What the chunked route does not write (the run summary says so).
-NOT_MADE = ("the segmented walls' Betti numbers and connectivity density (run summary and "
-            "report), and the wall-thickness columns of regions.csv (the local thickness of "
-            "a wall voxel depends on the largest ball inside the walls, which no fixed "
-            "chunk overlap bounds; the in-memory route leaves them out with --no-thickness)")
+NOT_MADE = ("the wall-thickness columns of regions.csv (the local thickness of a wall voxel "
+            "depends on the largest ball inside the walls, which no fixed chunk overlap "
+            "bounds; the in-memory route leaves them out with --no-thickness)")
 #: The smoothed image, stored once in the staging folder (which the workers write to
 #: anyway) for every pass after the first to read; removed before the outputs are published,
 #: and with the staging folder if the run fails.
@@ -136,6 +135,7 @@ class Tables:
     figures: dict[str, Any]  # the global figures
     cavities: Any            # segment._result.CavityDiagram
     euler: Any               # cubical.EulerCurve, the levels where χ changes
+    walls: Any               # cubical.ConnectivityDensity of the segmented walls
 
 
 def _write_tables(seg: Any, staging: Path, targets: dict[str, Path], *, image: Any,
@@ -143,12 +143,13 @@ def _write_tables(seg: Any, staging: Path, targets: dict[str, Path], *, image: A
     """regions.csv and regions.json (the regions with their measurements, which read the
     label map just written and the image chunk by chunk), diagram.csv and diagram.png (from
     the merged tree) and euler.csv (the image's Euler characteristic curve chunk by chunk),
-    as the in-memory route writes them."""
+    as the in-memory route writes them; the segmented walls' topology."""
     import dask.array as da
 
     from ..cubical._chunked_euler import euler_curve_in_chunks
     from ..measure._chunked import measure_in_chunks
     from ..measure._global import figures_from_counts
+    from ..segment._chunked_topology import walls_in_chunks
     from ..segment._result import cavity_diagram
     from ..workflow import (
         diagram_table,
@@ -184,15 +185,16 @@ def _write_tables(seg: Any, staging: Path, targets: dict[str, Path], *, image: A
                                   mask=mask)
     Table({"level": curve.levels, "euler_characteristic": curve.chi},
           meta={"caution": RESEARCH_ONLY}).to_csv(staging / targets["euler"].name)
-    return Tables(table, figures, cavities, curve)
+    walls_topology = walls_in_chunks(labels, connectivity=seg.connectivity,
+                                     spacing=volume.spacing, unit=volume.unit, mask=mask)
+    return Tables(table, figures, cavities, curve, walls_topology)
 
 
 def _write_report(path: Path, tables: Tables, *, labels: Any, image: Any, volume: Any,
                   parameters: dict[str, Any], source: str, diagram_png: bytes) -> None:
     """report.html from the tables, the merged tree's diagram, the Euler characteristic
-    curve and the label map and image read a slice or a slab at a time (the slice browser's
-    slabs reduced on the workers): the in-memory route's page without the segmented
-    walls' Betti numbers."""
+    curve, the walls' topology and the label map and image read a slice or a slab at a time
+    (the slice browser's slabs reduced on the workers): the in-memory route's page."""
     from .._errors import safe_text
     from ..report import write_report
     from ..workflow import border_note, threshold_basis
@@ -204,6 +206,7 @@ def _write_report(path: Path, tables: Tables, *, labels: Any, image: Any, volume
                  kept=tables.cavities.kept, threshold=parameters["threshold"],
                  params=parameters, figures=tables.figures, title=safe_text(Path(source).name),
                  source=safe_text(source), notes=notes, euler=tables.euler,
+                 wall_topology=tables.walls,
                  diagram_png=diagram_png)
 
 
@@ -292,7 +295,9 @@ def run_chunked(args: argparse.Namespace, settings: Any) -> int:
             "parameters": parameters,
             "options": options.to_dict(),
             "summary": {"regions": counts["chamber"], "enclosures": counts["enclosure"],
-                        "cavities": int(np.count_nonzero(seg.tree.persistence[1:] > 0))},
+                        "cavities": int(np.count_nonzero(seg.tree.persistence[1:] > 0)),
+                        "walls_euler": tables.walls.chi, "walls_loops": tables.walls.betti1,
+                        "connectivity_density": tables.walls.density},
             "global_figures": tables.figures,
             "outputs": {key: path.name for key, path in targets.items()},
             "elapsed_s": round(time.perf_counter() - started, 3),

@@ -62,9 +62,9 @@ examples:
       (--min-persistence or --relative-persistence), --smooth given or none; what needs
       the whole volume (the automatic threshold, basin and breach regions,
       --keep-border, shells, partition, meshes) is refused in one sentence, and the
-      walls' Betti numbers and the wall thickness are not made. With --smooth, the
-      output folder also holds the smoothed image while the run lasts (4 bytes per voxel
-      for data of up to 16 bits and float32, 8 otherwise, before compression)
+      wall thickness is not made. With --smooth, the output folder also holds the
+      smoothed image while the run lasts (4 bytes per voxel for data of up to 16 bits
+      and float32, 8 otherwise, before compression)
 
 parameter file (--params): the options' names with underscores, at the top level or in
 tables; types are strict (true/false, quoted texts, numbers, [lists] of numbers):
