@@ -8,7 +8,11 @@ cavity tree (``cubical/_chunked_tree.py``, :func:`cavity_tree_rows`) against
 ``cavity_sweep``'s tree, field for field, and the breach regions of its persistent nodes
 (``segment/_chunked_regions.py``) against ``nested_map`` on the in-memory sweep; and the
 command line's chunked segment route (``segment_in_chunks`` with the smoothed image stored
-once, :func:`segment_route_rows`) against ``segment()`` in memory with the same options.
+once, :func:`segment_route_rows`) against ``segment()`` in memory with the same options;
+and the per-region measurements of a label map chunk by chunk (``measure/_chunked.py``,
+:func:`measurement_rows`) against ``measure_regions`` of the whole arrays, and the Euler
+characteristic curve (``cubical/_chunked_euler.py``, :func:`euler_rows`) against
+``euler_curve(...).changes()``.
 
 Input (invented, for this measurement only): the Gaussian-smoothed uint16 noise of
 ``bench/persistence.py`` (96^3, 128^3, 256^3; 384^3 with ``--large``), written to a Zarr
@@ -142,6 +146,8 @@ def run(args) -> list[dict]:
         rows += segmentation_step_rows(client, folder, sides=[s for s in sides if s >= 128])
         rows += cavity_tree_rows(client, folder, sides=[s for s in sides if s >= 128])
         rows += segment_route_rows(client, folder, sides=[s for s in sides if s >= 128])
+        rows += measurement_rows(client, folder, sides=[s for s in sides if s >= 128])
+        rows += euler_rows(client, folder, sides=[s for s in sides if s >= 128])
     return rows
 
 
@@ -361,3 +367,82 @@ def _segment_route_row(client, folder: Path, side: int) -> dict:
 def segment_route_only(sides=(128, 256)) -> list[dict]:
     """:func:`segment_route_rows` on a cluster of its own (2 worker processes)."""
     return _on_own_cluster(segment_route_rows, sides)
+
+
+def measurement_rows(client, folder: Path, sides=(128, 256)) -> list[dict]:
+    """``measure_in_chunks`` (as the command line runs it: the label map and the image read
+    from Zarr stores, measuring blocks of whole chunks, ``measure/_chunked.py``) against
+    ``measure_regions(..., thickness=False)`` of the whole arrays: every column (integers
+    exactly, floats to 1e-12 relative), time, worker and client extra peaks. The label map:
+    the components of the voxels below the median of the smoothed noise (faces
+    connectivity, ``scipy.ndimage.label``), so regions cross every seam. After a first run
+    at 32^3 that lets the workers warm up."""
+    _measurement_row(client, folder, 32)
+    return [_measurement_row(client, folder, side) for side in sides]
+
+
+def _measurement_row(client, folder: Path, side: int) -> dict:
+    import dask.array as da
+
+    from cavitas.measure import measure_regions
+    from cavitas.measure._chunked import measure_in_chunks
+
+    image = smoothed_noise(side)
+    labels, count = ndi.label(image < np.median(image))
+    chunk = (side // 4,) * 3
+    ref, t_ref, p_ref = _timed_here(lambda: measure_regions(labels, image=image,
+                                                            thickness=False))
+    stores = {name: folder / f"measure_{name}" for name in ("labels", "image")}
+    for path in stores.values():
+        path.mkdir(exist_ok=True)
+    lazy_labels = da.from_zarr(_stored(labels.astype(np.int32), chunk, stores["labels"]))
+    lazy_image = da.from_zarr(_stored(image, chunk, stores["image"]))
+    got, wall, worker, client_peak = _timed_on_cluster(client, lambda: measure_in_chunks(
+        lazy_labels, image=lazy_image))
+    table = got.table
+    same = table.names == ref.names and len(table) == len(ref) and all(
+        np.allclose(table[name], ref[name], rtol=1e-12, atol=0, equal_nan=True)
+        if ref[name].dtype.kind == "f" else np.array_equal(table[name], ref[name])
+        for name in ref.names)
+    return _identity_row(f"{side}^3 measurements, chunks {chunk[0]}^3", same,
+                         f" to rounding ({count} regions)", "measure_regions", t_ref, p_ref,
+                         wall, worker, client_peak)
+
+
+def measurement_only(sides=(128, 256)) -> list[dict]:
+    """:func:`measurement_rows` on a cluster of its own (2 worker processes)."""
+    return _on_own_cluster(measurement_rows, sides)
+
+
+def euler_rows(client, folder: Path, sides=(128, 256)) -> list[dict]:
+    """``euler_curve_in_chunks`` of the smoothed uint16 noise from a Zarr store (bright walls,
+    face connectivity, blocks of whole chunks as the command line runs it) against
+    ``euler_curve(image).changes()``: levels and χ row for row, time, worker and client
+    extra peaks (after a first run at 32^3)."""
+    _euler_row(client, folder, 32)
+    return [_euler_row(client, folder, side) for side in sides]
+
+
+def _euler_row(client, folder: Path, side: int) -> dict:
+    import dask.array as da
+
+    from cavitas.cubical import euler_curve
+    from cavitas.cubical._chunked_euler import euler_curve_in_chunks
+
+    image = smoothed_noise(side)
+    chunk = (side // 4,) * 3
+    ref, t_ref, p_ref = _timed_here(lambda: euler_curve(image).changes())
+    store = folder / "euler_image"
+    store.mkdir(exist_ok=True)
+    lazy = da.from_zarr(_stored(image, chunk, store))
+    got, wall, worker, client_peak = _timed_on_cluster(client, lambda: euler_curve_in_chunks(
+        lazy))
+    same = np.array_equal(got.levels, ref.levels) and np.array_equal(got.chi, ref.chi)
+    return _identity_row(f"{side}^3 Euler characteristic curve, chunks {chunk[0]}^3", same,
+                         f" ({len(ref.levels)} levels)", "euler_curve", t_ref, p_ref, wall,
+                         worker, client_peak)
+
+
+def euler_only(sides=(128, 256)) -> list[dict]:
+    """:func:`euler_rows` on a cluster of its own (2 worker processes)."""
+    return _on_own_cluster(euler_rows, sides)

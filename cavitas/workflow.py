@@ -75,29 +75,30 @@ def _label_suffix(source: Path, wanted: str | None) -> str:
     return ".tif"  # PNG, raw and slice folders: labels need more than 8/16 bits
 
 
-def _diagram_table(seg: Any) -> Table:
-    dim = seg.diagram.cavity_dim
-    rows = seg.diagram.pairs(dim)
+def diagram_table(diagram: Any, kept: np.ndarray, margin: np.ndarray) -> Table:
+    """diagram.csv: the cavity pairs with ``kept`` (a chamber of the result) and ``margin``
+    (persistence minus the threshold)."""
+    dim = diagram.cavity_dim
+    rows = diagram.pairs(dim)
     return Table({
         "dim": np.full(len(rows), dim),
         "birth": rows["birth"], "death": rows["death"],
-        "persistence": seg.diagram.persistence(dim),
+        "persistence": diagram.persistence(dim),
         "birth_voxel": rows["birth_voxel"], "death_voxel": rows["death_voxel"],
-        "kept": seg.kept, "margin": seg.margin,
+        "kept": kept, "margin": margin,
     }, meta={"caution": RESEARCH_ONLY})
 
 
-def _diagram_plot(seg: Any, path: Path, *, force: bool) -> None:
-    """The cavity diagram, kept features filled, the threshold band shaded (the report
-    shows this picture too)."""
+def draw_diagram(path: Path, diagram: Any, kept: np.ndarray, *, threshold: float,
+                 smooth_sigma: float | None, unit: str, force: bool) -> None:
+    """diagram.png: the cavity diagram, kept features filled, the threshold band shaded (the
+    report shows this picture too); ``smooth_sigma`` in ``unit``, named in the title."""
     from ._shared.units import length_unit
     from .report.diagram_plots import plot_diagram, save_figure, smoothing_phrase
 
-    dim = seg.diagram.cavity_dim
-    fig = plot_diagram(seg.diagram, dims=dim, highlight={dim: seg.kept},
-                       threshold=seg.threshold)
-    at = smoothing_phrase(seg.params.get("smooth_sigma"),
-                          length_unit(seg.volume.unit, seg.volume.ndim))
+    dim = diagram.cavity_dim
+    fig = plot_diagram(diagram, dims=dim, highlight={dim: kept}, threshold=threshold)
+    at = smoothing_phrase(smooth_sigma, length_unit(unit, len(diagram.shape)))
     fig.axes[0].set_title(f"Persistence diagram {at}".strip(), fontsize=10)
     save_figure(fig, path, force=force)
 
@@ -160,6 +161,28 @@ def measured_regions(seg: Any, *, mask: np.ndarray | None = None, thickness: boo
     measured = measure_regions(full, spacing=volume.spacing, unit=volume.unit,
                                image=np.asarray(volume.data), roi=mask, thickness=thickness)
     regions = seg.regions
+    added = measured_columns(regions, measured)
+    if partition:
+        from .segment._regions import label_counts
+
+        counts = label_counts(seg.partition, len(regions) + 1)[regions["label"]]
+        shown = np.isin(regions["label"], np.unique(seg.labels))
+        added["volume_with_wall"] = np.where(shown, counts * volume.voxel_volume, np.nan)
+        measured.units["volume_with_wall"] = measured.units.get("volume", "voxel")
+    whole = whole_chamber_rows(regions, measured)
+    touching = regions["label"][regions["touches_border"] & (regions["kind"] == "chamber")]
+    whole_labels = (np.where(np.isin(seg.labels, touching), 0, seg.labels) if len(touching)
+                    else seg.labels)
+    figures = global_figures(measured.select(whole), labels=whole_labels,
+                             spacing=volume.spacing, unit=volume.unit, roi=mask)
+    return with_measurements(regions, added, measured.units, figures, noise=seg.noise,
+                             threshold=seg.threshold), figures
+
+
+def measured_columns(regions: Table, measured: Table) -> dict[str, np.ndarray]:
+    """The columns of ``measured`` that ``regions`` lacks, one value per row of
+    ``regions`` (matched by label): blank (NaN, or None for integers and flags) for a row
+    that was not measured (enclosures)."""
     row_of = {int(lab): i for i, lab in enumerate(measured["label"])}
     rows = np.array([row_of.get(int(lab), -1) for lab in regions["label"]], np.int64)
     present = rows >= 0
@@ -177,30 +200,30 @@ def measured_regions(seg: Any, *, mask: np.ndarray | None = None, thickness: boo
         else:  # ints and flags stay exact; a blank where nothing was measured
             added[name] = np.array([values[r].item() if r >= 0 else None for r in rows],
                                    dtype=object)
-    if partition:
-        from .segment._regions import label_counts
+    return added
 
-        counts = label_counts(seg.partition, len(regions) + 1)[regions["label"]]
-        shown = np.isin(regions["label"], np.unique(seg.labels))
-        added["volume_with_wall"] = np.where(shown, counts * volume.voxel_volume, np.nan)
-        measured.units["volume_with_wall"] = measured.units.get("volume", "voxel")
-    # Global figures describe whole regions: those touching the border (kept with
-    # keep_border) are listed and labelled but left out (border_note says so).
+
+def whole_chamber_rows(regions: Table, measured: Table) -> np.ndarray:
+    """The rows of ``measured`` that the global figures count: chambers not touching the
+    border (kept with keep_border, listed and labelled but left out; border_note says
+    so)."""
     chambers = regions["kind"] == "chamber"
-    on_border = chambers & regions["touches_border"]
-    touching = regions["label"][on_border]
-    chamber_rows = np.isin(measured["label"], regions["label"][chambers & ~on_border])
-    whole_labels = (np.where(np.isin(seg.labels, touching), 0, seg.labels) if len(touching)
-                    else seg.labels)
-    figures = global_figures(measured.select(chamber_rows), labels=whole_labels,
-                             spacing=volume.spacing, unit=volume.unit, roi=mask)
-    figures["noise_sigma"] = seg.noise
-    figures["persistence_threshold"] = seg.threshold
-    table = regions.with_columns(added, measured.units)
+    whole = regions["label"][chambers & ~regions["touches_border"]]
+    return np.isin(measured["label"], whole)
+
+
+def with_measurements(regions: Table, added: dict[str, np.ndarray], units: dict[str, str],
+                      figures: dict[str, Any], *, noise: float, threshold: float) -> Table:
+    """regions.csv / regions.json: the regions with their measured columns; ``figures``
+    (the global figures) gain the noise estimate and the threshold and go into the
+    table's meta with the caution."""
+    figures["noise_sigma"] = noise
+    figures["persistence_threshold"] = threshold
+    table = regions.with_columns(added, units)
     table.meta.update(regions.meta)
     table.meta.update({"global": {k: v for k, v in figures.items() if k != "units"},
                        "global_units": figures.get("units", {}), "caution": RESEARCH_ONLY})
-    return table, figures
+    return table
 
 
 def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any = None, *,
@@ -328,8 +351,11 @@ def segment_file(path: str | os.PathLike, outdir: str | os.PathLike, params: Any
         written = _write_maps(seg, staged, options, force=force)
         regions.to_csv(staged["regions"], force=force)
         regions.to_json(staged["regions_json"], force=force)
-        _diagram_table(seg).to_csv(staged["diagram"], force=force)
-        _diagram_plot(seg, staged["diagram_plot"], force=force)
+        diagram_table(seg.diagram, seg.kept, seg.margin).to_csv(staged["diagram"],
+                                                                 force=force)
+        draw_diagram(staged["diagram_plot"], seg.diagram, seg.kept, threshold=seg.threshold,
+                     smooth_sigma=seg.params.get("smooth_sigma"), unit=volume.unit,
+                     force=force)
         Table({"level": topology.curve.levels, "euler_characteristic": topology.curve.chi},
               meta={"caution": RESEARCH_ONLY}).to_csv(staged["euler"], force=force)
         for key in ("regions", "regions_json", "diagram", "diagram_plot", "euler"):

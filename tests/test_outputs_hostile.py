@@ -135,7 +135,7 @@ def test_interrupted_run_leaves_nothing_that_looks_complete(tmp_path, square_rin
     def interrupted(*args, **kwargs):
         raise KeyboardInterrupt
 
-    monkeypatch.setattr(workflow, "_diagram_plot", interrupted)
+    monkeypatch.setattr(workflow, "draw_diagram", interrupted)
     with pytest.raises(KeyboardInterrupt):
         segment_file(tmp_path / "ring.tif", out, progress=False, report=False)
     assert list(out.iterdir()) == []  # the abandoned staging folder went too

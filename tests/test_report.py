@@ -428,3 +428,49 @@ def test_findings_give_the_smoothing_in_pixels_or_voxels_without_a_unit(tmp_path
                  source="s.tif")
     findings = out.read_text(encoding="utf-8").split('<dl class="findings">', 1)[1]
     assert f"above its darkest inside point after smoothing with σ = 1.5 {element}." in findings
+
+
+def test_dask_arrays_give_the_same_page_a_slab_at_a_time(monkeypatch, tmp_path):
+    # The chunk-by-chunk route hands the report Dask arrays: the page must be the one the
+    # same arrays in memory give (the timestamp aside), and no task may compute more than a
+    # slab of planes (the display window's strided sample bounded to a few voxels here).
+    # Task results are watched with Dask's own scheduler callbacks.
+    import re
+
+    import dask
+    import dask.array as da
+    from dask.callbacks import Callback
+
+    from cavitas.measure import measure_regions
+    from cavitas.report import _browser, _html, _render
+
+    rng = np.random.default_rng(0)
+    shape = (24, 20, 18)
+    image = rng.normal(100, 10, shape).astype(np.float32)
+    labels = np.zeros(shape, np.int32)
+    for label in range(1, 10):
+        z, y, x = rng.integers(2, 14, 3)
+        labels[z:z + 4, y:y + 5, x:x + 3] = label
+    regions = measure_regions(labels, image=image, thickness=False)
+    for module in (_html, _browser):  # a sample of about 500 voxels, not the whole image
+        monkeypatch.setattr(module, "intensity_window", lambda img, **kw: (
+            _render.intensity_window(img, max_samples=500, **kw)))
+    results = []
+
+    class Watch(Callback):
+        def _posttask(self, key, result, dsk, state, worker_id):
+            results.append(getattr(result, "size", 0))
+
+    pages = []
+    for arrays in ((image, labels), (da.from_array(image, chunks=(5, 7, 18)),
+                                     da.from_array(labels, chunks=(24, 4, 5)))):
+        with dask.config.set(scheduler="synchronous"), Watch():
+            out = write_report(tmp_path / f"report{len(pages)}.html", image=arrays[0],
+                               labels=arrays[1], spacing=(1.0, 1.0, 2.0), unit="µm",
+                               regions=regions, params={"walls": "bright"},
+                               figures={"regions": len(regions)},
+                               scan_budget=2_000)  # the browser's slabs: several planes
+        pages.append(re.sub(r"\d{4}-\d\d-\d\d \d\d:\d\d UTC", "",
+                            out.read_text(encoding="utf-8")))
+    assert pages[0] == pages[1]
+    assert results and max(results) < image.size // 4  # a slab or a chunk, never the volume

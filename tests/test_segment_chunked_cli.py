@@ -2,11 +2,14 @@
 
 Checks and their sources:
 
-* The label map written chunk by chunk to labels.zarr (read back with zarr's own reader)
-  and regions.csv equal, voxel for voxel and row for row, what ``cavitas segment`` writes
-  for the same Zarr store in memory with the same options (``--region component``, a hand
-  threshold, with and without smoothing, both polarities, 2D and 3D, chunks of one voxel
-  thickness and chunks that cut through every cell). The in-memory route is the reference;
+* The label map written chunk by chunk to labels.zarr (read back with zarr's own reader),
+  regions.csv with its measurement columns, regions.json's global figures, diagram.csv and
+  diagram.png equal, voxel for voxel, row for row (floats to rounding) and byte for byte,
+  what ``cavitas segment --no-thickness`` writes for the same Zarr store in memory with
+  the same options (``--region component``, a hand threshold, with and without
+  smoothing, both polarities, 2D and 3D, chunks of one voxel thickness and chunks that
+  cut through every cell, a mask); the report's sections but how the walls connect equal
+  the in-memory report's (2D). The in-memory route is the reference;
   its labels are checked against ``scipy.ndimage.label`` of sublevel sets in
   ``tests/test_regions_chunked.py`` and ``tests/test_segment_regions.py``. That a
   distributed path equals its serial one is common practice (DEVELOPERS.md).
@@ -36,6 +39,7 @@ Checks and their sources:
 from __future__ import annotations
 
 import json
+import re
 
 import numpy as np
 import pytest
@@ -68,8 +72,11 @@ def address(client):
 
 
 def _compare_runs(tmp_path, source, common, address) -> Table:
-    """Run ``cavitas segment`` in memory and on the cluster; the labels and the rows must
-    be the same. Returns the chunked run's table."""
+    """Run ``cavitas segment`` in memory and on the cluster; the labels, the rows with their
+    measurements (the in-memory run without the wall thickness, which the chunked route
+    does not make), the global figures and the diagram files must be the same. Returns the
+    chunked run's table."""
+    common = [*common, "--no-thickness"]
     assert main(["segment", source, "-o", str(tmp_path / "mem"), *common]) == 0
     assert main(["segment", source, "-o", str(tmp_path / "big"), "--scheduler", address,
                  *common]) == 0
@@ -79,12 +86,34 @@ def _compare_runs(tmp_path, source, common, address) -> Table:
     assert "research use only" in written.attrs["caution"].lower()
     assert mem_labels.max() > 1
     np.testing.assert_array_equal(written[...], mem_labels)
-    mem_rows = Table.from_csv(tmp_path / "mem" / "regions.csv")
-    big_rows = Table.from_csv(tmp_path / "big" / "regions.csv")
-    assert len(big_rows) == len(mem_rows) and set(big_rows.names) <= set(mem_rows.names)
-    for name in big_rows.names:  # the in-memory table adds measurements after these
-        np.testing.assert_array_equal(big_rows[name], mem_rows[name], err_msg=name)
-    return big_rows
+    for table in ("regions.csv", "diagram.csv", "euler.csv"):
+        mem_rows, big_rows = (Table.from_csv(tmp_path / run / table) for run in ("mem", "big"))
+        assert len(big_rows) == len(mem_rows) and big_rows.names == mem_rows.names
+        assert big_rows.units == mem_rows.units
+        for name in big_rows.names:  # float sums over chunks in another order: to rounding
+            if big_rows[name].dtype.kind == "f":
+                np.testing.assert_allclose(big_rows[name], mem_rows[name], rtol=1e-10,
+                                           atol=1e-12, err_msg=name)
+            else:
+                np.testing.assert_array_equal(big_rows[name], mem_rows[name], err_msg=name)
+    mem_json, big_json = (json.loads((tmp_path / run / "regions.json").read_text(
+        encoding="utf-8")) for run in ("mem", "big"))
+    assert big_json["units"] == mem_json["units"]
+    assert big_json["meta"]["global"] == pytest.approx(mem_json["meta"]["global"], rel=1e-12)
+    assert (tmp_path / "big" / "diagram.png").read_bytes() == (
+        tmp_path / "mem" / "diagram.png").read_bytes()  # the same figure, drawn alike
+    if "--no-report" not in common:  # the report's sections, but how the walls connect
+        mem_page, big_page = (_sections((tmp_path / run / "report.html").read_text(
+            encoding="utf-8")) for run in ("mem", "big"))
+        assert set(mem_page) == set(big_page)
+        for name in ("summary", "browser", "table", "persistence", "connectivity", "plots"):
+            assert big_page[name] == mem_page[name], name
+    return Table.from_csv(tmp_path / "big" / "regions.csv")
+
+
+def _sections(page: str) -> dict[str, str]:
+    """The report's sections by id (a page cavitas writes: no nested sections)."""
+    return dict(re.findall(r'<section id="([a-z]+)">(.*?)</section>', page, re.S))
 
 
 def _store(path, image, chunks) -> str:
@@ -98,7 +127,7 @@ CASES = [  # (shape, pitch, chunks, walls, extra options)
     ((9, 9, 9), 4, (5, 5, 1), "bright", ["--smooth", "0.6", "--enclosures"]),
     ((13, 11, 12), 4, (3, 6, 7), "dark", ["--enclosures", "--mask", "MASK"]),
     ((25, 21), 6, (2, 11), "dark", ["--smooth", "1", "--connectivity", "2", "--top", "5",
-                                    "--relative-persistence", "0.15"]),
+                                    "--relative-persistence", "0.15", "REPORT"]),
 ]
 
 
@@ -114,8 +143,10 @@ def test_labels_and_table_equal_in_memory(address, tmp_path, shape, pitch, chunk
     roi[..., :2] = 0  # a region of interest, stored in other chunks than the image
     extra = [_store(tmp_path / "roi.zarr", roi, (3,) * len(shape)) if option == "MASK"
              else option for option in extra]
+    report = "REPORT" in extra  # with the report (else --no-report)
+    extra = [option for option in extra if option != "REPORT"]
     common = ["--region", "component", "--min-persistence", "30", "--walls", walls,
-              "--no-report", *extra]
+              *([] if report else ["--no-report"]), *extra]
     _compare_runs(tmp_path, source, common, address)
     assert "not made on this route" in capsys.readouterr().out
     if "--enclosures" in extra:
@@ -125,13 +156,17 @@ def test_labels_and_table_equal_in_memory(address, tmp_path, shape, pitch, chunk
     record, memory = (json.loads((tmp_path / run / "run.json").read_text(encoding="utf-8"))
                       for run in ("big", "mem"))
     assert record["not_made"] and record["parameters"]["threshold"] >= 30
-    for name in ("threshold", "smooth_sigma", "connectivity") + (
+    for name in ("threshold", "smooth_sigma", "connectivity", "noise_sigma") + (
             ("robust_range",) if "--relative-persistence" in extra else ()):
         assert record["parameters"][name] == memory["parameters"][name], name
+    for name in ("walls_euler", "walls_loops", "connectivity_density"):
+        assert record["summary"][name] == memory["summary"][name], name
     # the outputs and nothing else: the smoothed image stored for the run is gone
     assert sorted(p.name for p in (tmp_path / "big").iterdir()) == sorted(
-        ["labels.zarr", "regions.csv", "run.json"]
-        + (["enclosures.zarr"] if "--enclosures" in extra else []))
+        ["labels.zarr", "regions.csv", "regions.json", "diagram.csv", "diagram.png",
+         "euler.csv", "run.json"]
+        + (["enclosures.zarr"] if "--enclosures" in extra else [])
+        + (["report.html"] if report else []))
 
 
 def test_smoothed_once_same_result(monkeypatch, tmp_path):
@@ -213,6 +248,31 @@ def test_ome_zarr_and_hdf5_geometry(address, tmp_path):
     rows = _compare_runs(tmp_path, ome, ["--region", "component", "--min-persistence", "30",
                                          "--min-volume", "2", "--no-report"], address)
     np.testing.assert_allclose(rows["own_volume"], rows["own_voxels"] * 0.125)
+
+
+@pytest.mark.cluster
+def test_measurements_of_chunks_alone(client):
+    """measure_in_chunks with each chunk measured alone on the cluster against the
+    whole-array measure_regions (itself checked against scikit-image's regionprops_table,
+    tests/test_measure_regions.py): every column equal (floats to rounding)."""
+    import dask.array as da
+
+    from cavitas.measure import measure_regions
+    from cavitas.measure._chunked import measure_in_chunks
+    from tests.test_measure_chunked import _assert_same, _labels
+
+    rng = np.random.default_rng(11)
+    shape = (11, 13, 9)
+    lab = _labels(rng, shape)
+    image = rng.integers(0, 4000, shape).astype(np.uint16)
+    roi = np.ones(shape, bool)
+    roi[3:5, 4:9, :] = False
+    chunks = (6, 7, 9)  # other chunkings of the image and ROI: tests/test_measure_chunked.py
+    got = measure_in_chunks(da.from_array(lab, chunks=chunks), spacing=(1.0, 2.0, 2.0),
+                            image=da.from_array(image, chunks=chunks),
+                            roi=da.from_array(roi, chunks=chunks), block_voxels=0)
+    _assert_same(got.table, measure_regions(lab, spacing=(1.0, 2.0, 2.0), image=image,
+                                            roi=roi, thickness=False))
 
 
 @pytest.mark.parametrize("walls", ["bright", "dark"])

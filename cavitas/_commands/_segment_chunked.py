@@ -6,10 +6,12 @@ Only the mode :func:`cavitas.segment._chunked_segment.segment_in_chunks` compute
 taken: ``--region component`` with a hand threshold. Everything else is refused in one
 sentence before any work starts (exit code 2), so nothing is written. The outputs go to a
 staging folder published at the end (:mod:`cavitas.io._staging`): labels.zarr (and
-enclosures.zarr) written chunk by chunk, regions.csv, run.json last. The smoothed image is
-written there once too (:data:`SMOOTHED_STORE`, in the work type: 4 bytes per voxel for
-data of up to 16 bits and float32, 8 otherwise, before compression) and removed before
-the outputs are published.
+enclosures.zarr) written chunk by chunk, regions.csv and regions.json (measured chunk by
+chunk from labels.zarr and the image), diagram.csv and diagram.png (from the merged tree),
+euler.csv (chunk by chunk), report.html (the label map and image read a slice or a slab
+at a time), run.json last. The smoothed image is written there once too
+(:data:`SMOOTHED_STORE`, in the work type: 4 bytes per voxel for data of up to 16 bits and
+float32, 8 otherwise, before compression) and removed before the outputs are published.
 """
 
 from __future__ import annotations
@@ -17,6 +19,7 @@ from __future__ import annotations
 import argparse
 import shutil
 import time
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
@@ -24,13 +27,15 @@ import numpy as np
 
 from .._caution import RESEARCH_ONLY
 from .._errors import InputFileError, OutputError, ParameterError
+from .._table import Table
 from ._cluster import dask_client
 
 __all__ = ["NOT_MADE", "run_chunked"]
 
 #: What the chunked route does not write (the run summary says so).
-NOT_MADE = ("the report, diagram.csv/png, regions.json, euler.csv and the measurement columns "
-            "of regions.csv after touches_border")
+NOT_MADE = ("the wall-thickness columns of regions.csv (the local thickness of a wall voxel "
+            "depends on the largest ball inside the walls, which no fixed chunk overlap "
+            "bounds; the in-memory route leaves them out with --no-thickness)")
 #: The smoothed image, stored once in the staging folder (which the workers write to
 #: anyway) for every pass after the first to read; removed before the outputs are published,
 #: and with the staging folder if the run fails.
@@ -83,9 +88,13 @@ def _targets(args: argparse.Namespace, settings: Any) -> dict[str, Path]:
     """The output paths, checked before any work (an existing one needs --force)."""
     from .._shared.atomic import check_writable
 
-    names = {"labels": "labels.zarr", "regions": "regions.csv", "run": "run.json"}
+    names = {"labels": "labels.zarr", "regions": "regions.csv", "regions_json": "regions.json",
+             "diagram": "diagram.csv", "diagram_plot": "diagram.png", "euler": "euler.csv",
+             "run": "run.json"}
     if settings.options.enclosures:
         names["enclosures"] = "enclosures.zarr"
+    if not args.no_report:
+        names["report"] = "report.html"
     targets = {key: args.out / name for key, name in names.items()}
     inputs = tuple(p for p in (args.file, settings.options.mask) if p)
     for path in targets.values():
@@ -116,6 +125,96 @@ def _write_labels(labels: Any, path: Path, volume: Any) -> None:
     zarr.open_array(str(path), mode="r+").attrs.update(
         {"spacing": list(volume.spacing), "unit": volume.unit, "source": volume.name,
          "caution": RESEARCH_ONLY})
+
+
+@dataclass(frozen=True)
+class Tables:
+    """What the tables hand on to the report."""
+
+    regions: Table           # with the measurements and the global figures in its meta
+    figures: dict[str, Any]  # the global figures
+    cavities: Any            # segment._result.CavityDiagram
+    euler: Any               # cubical.EulerCurve, the levels where χ changes
+    walls: Any               # cubical.ConnectivityDensity of the segmented walls
+
+
+def _write_tables(seg: Any, staging: Path, targets: dict[str, Path], *, image: Any,
+                  mask: Any, volume: Any, walls: str) -> Tables:
+    """regions.csv and regions.json (the regions with their measurements, which read the
+    label map just written and the image chunk by chunk), diagram.csv and diagram.png (from
+    the merged tree) and euler.csv (the image's Euler characteristic curve chunk by chunk),
+    as the in-memory route writes them; the segmented walls' topology."""
+    import dask.array as da
+
+    from ..cubical._chunked_euler import euler_curve_in_chunks
+    from ..measure._chunked import measure_in_chunks
+    from ..measure._global import figures_from_counts
+    from ..segment._chunked_topology import walls_in_chunks
+    from ..segment._result import cavity_diagram
+    from ..workflow import (
+        diagram_table,
+        draw_diagram,
+        measured_columns,
+        whole_chamber_rows,
+        with_measurements,
+    )
+
+    regions = seg.table
+    labels = da.from_zarr(str(staging / targets["labels"].name))
+    measured = measure_in_chunks(labels, spacing=volume.spacing, unit=volume.unit,
+                                 image=image, roi=mask)
+    whole = whole_chamber_rows(regions, measured.table)
+    figures = figures_from_counts(measured.table.select(whole),
+                                  measured.roi_counts(whole, mask), spacing=volume.spacing,
+                                  unit=volume.unit)
+    table = with_measurements(regions, measured_columns(regions, measured.table),
+                              measured.table.units, figures, noise=seg.noise.amplitude,
+                              threshold=seg.threshold)
+    table.to_csv(staging / targets["regions"].name)
+    table.to_json(staging / targets["regions_json"].name)
+    cavities = cavity_diagram(seg.tree, seg.chamber_nodes, shape=volume.shape, walls=walls,
+                              connectivity=seg.connectivity,
+                              masked=measured.roi_voxels < int(np.prod(volume.shape)),
+                              threshold=seg.threshold)
+    diagram_table(cavities.diagram, cavities.kept, cavities.margin).to_csv(
+        staging / targets["diagram"].name)
+    draw_diagram(staging / targets["diagram_plot"].name, cavities.diagram, cavities.kept,
+                 threshold=seg.threshold, smooth_sigma=seg.smooth_sigma, unit=volume.unit,
+                 force=False)
+    curve = euler_curve_in_chunks(image, walls=walls, connectivity=seg.connectivity,
+                                  mask=mask)
+    Table({"level": curve.levels, "euler_characteristic": curve.chi},
+          meta={"caution": RESEARCH_ONLY}).to_csv(staging / targets["euler"].name)
+    walls_topology = walls_in_chunks(labels, connectivity=seg.connectivity,
+                                     spacing=volume.spacing, unit=volume.unit, mask=mask)
+    return Tables(table, figures, cavities, curve, walls_topology)
+
+
+def _write_report(path: Path, tables: Tables, *, labels: Any, image: Any, volume: Any,
+                  parameters: dict[str, Any], source: str, diagram_png: bytes) -> None:
+    """report.html from the tables, the merged tree's diagram, the Euler characteristic
+    curve, the walls' topology and the label map and image read a slice or a slab at a time
+    (the slice browser's slabs reduced on the workers): the in-memory route's page."""
+    from .._errors import safe_text
+    from ..report import write_report
+    from ..workflow import border_note, threshold_basis
+
+    notes = [note for note in (threshold_basis(parameters), border_note(tables.regions))
+             if note]
+    write_report(path, image=image, labels=labels, spacing=volume.spacing, unit=volume.unit,
+                 regions=tables.regions, diagram=tables.cavities.diagram,
+                 kept=tables.cavities.kept, threshold=parameters["threshold"],
+                 params=parameters, figures=tables.figures, title=safe_text(Path(source).name),
+                 source=safe_text(source), notes=notes, euler=tables.euler,
+                 wall_topology=tables.walls,
+                 diagram_png=diagram_png)
+
+
+def _noise_record(noise: Any) -> dict[str, float]:
+    """The noise figures as ``segment()`` records them (``_segment.segment``'s chosen
+    values)."""
+    return {"noise_sigma": noise.amplitude, "noise_pixel_sigma": noise.pixel,
+            "noise_level_ratio": noise.ratio, "noise_correlation": noise.correlation}
 
 
 def run_chunked(args: argparse.Namespace, settings: Any) -> int:
@@ -164,7 +263,22 @@ def run_chunked(args: argparse.Namespace, settings: Any) -> int:
                 _write_labels(labels, staging / targets[key].name, volume)
             if smoothed.exists():  # read by the label maps just written; not an output
                 shutil.rmtree(smoothed)
-        seg.table.to_csv(staging / targets["regions"].name)
+            tables = _write_tables(seg, staging, targets, image=image.data, mask=mask,
+                                   volume=volume, walls=params.walls)
+            parameters = {**params.to_dict(), "threshold": seg.threshold,
+                          "robust_range": seg.robust_range, **_noise_record(seg.noise),
+                          "smooth_sigma": seg.smooth_sigma, "automatic": False,
+                          "scale_basis": "given" if params.smooth is not None else "none",
+                          "connectivity": seg.connectivity, "unit": unit}
+            if "report" in targets:
+                import dask.array as da
+
+                _write_report(staging / targets["report"].name, tables,
+                              labels=da.from_zarr(str(staging / targets["labels"].name)),
+                              image=image.data, volume=volume,
+                              parameters={**parameters, "caution": RESEARCH_ONLY},
+                              source=str(args.file), diagram_png=(
+                                  staging / targets["diagram_plot"].name).read_bytes())
         counts = {kind: int(np.count_nonzero(seg.table["kind"] == kind))
                   for kind in ("chamber", "enclosure")}
         record = {
@@ -178,13 +292,13 @@ def run_chunked(args: argparse.Namespace, settings: Any) -> int:
             "route": f"chunk by chunk on {workers} Dask worker(s)",
             "not_made": NOT_MADE,
             "read_options": reading,
-            "parameters": {**params.to_dict(), "threshold": seg.threshold,
-                           "robust_range": seg.robust_range,
-                           "smooth_sigma": seg.smooth_sigma,
-                           "connectivity": seg.connectivity, "unit": unit},
+            "parameters": parameters,
             "options": options.to_dict(),
             "summary": {"regions": counts["chamber"], "enclosures": counts["enclosure"],
-                        "cavities": int(np.count_nonzero(seg.tree.persistence[1:] > 0))},
+                        "cavities": int(np.count_nonzero(seg.tree.persistence[1:] > 0)),
+                        "walls_euler": tables.walls.chi, "walls_loops": tables.walls.betti1,
+                        "connectivity_density": tables.walls.density},
+            "global_figures": tables.figures,
             "outputs": {key: path.name for key, path in targets.items()},
             "elapsed_s": round(time.perf_counter() - started, 3),
             "caution": RESEARCH_ONLY,

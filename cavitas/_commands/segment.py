@@ -56,14 +56,15 @@ examples:
   cavitas segment big.zarr -o out --dask-local 4 --region component --min-persistence 40
       a volume larger than memory: 4 local Dask workers segment it chunk by chunk (the
       chunks of the Zarr store, OME-Zarr image or HDF5 file) and labels.zarr is written
-      chunk by chunk, then regions.csv and run.json: the same labels and rows as without
-      --dask-local. Only this mode is computed this way so far: --region component, a
-      threshold given by hand (--min-persistence or --relative-persistence), --smooth
-      given or none; what needs the whole volume (the automatic threshold, basin and
-      breach regions, --keep-border, shells, partition, meshes) is refused in one
-      sentence, and the report and diagram files are not made. With --smooth, the
-      output folder also holds the smoothed image while the run lasts (4 bytes per
-      voxel for data of up to 16 bits and float32, 8 otherwise, before compression)
+      chunk by chunk, then the tables, diagram files, report and run.json: the same
+      labels, rows and diagram as without --dask-local with --no-thickness. Only this
+      mode is computed this way so far: --region component, a threshold given by hand
+      (--min-persistence or --relative-persistence), --smooth given or none; what needs
+      the whole volume (the automatic threshold, basin and breach regions,
+      --keep-border, shells, partition, meshes) is refused in one sentence, and the
+      wall thickness is not made. With --smooth, the output folder also holds the
+      smoothed image while the run lasts (4 bytes per voxel for data of up to 16 bits
+      and float32, 8 otherwise, before compression)
 
 parameter file (--params): the options' names with underscores, at the top level or in
 tables; types are strict (true/false, quoted texts, numbers, [lists] of numbers):

@@ -2,10 +2,12 @@
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numba
 import numpy as np
 
-__all__ = ["region_sums"]
+__all__ = ["RawSums", "raw_sums", "region_sums", "stats_from_sums"]
 
 
 @numba.njit(cache=True, nogil=True)
@@ -78,17 +80,45 @@ def region_sums(dense: np.ndarray, n: int, image: np.ndarray | None) -> dict[str
     >>> s["count"].tolist(), s["mean"].tolist(), s["hi"].tolist()
     ([2], [[0.0, 1.0, 1.5]], [[0, 1, 2]])
     """
+    return stats_from_sums(raw_sums(dense, n, image), image=image is not None)
+
+
+@dataclass(frozen=True)
+class RawSums:
+    """Per-region sums before division, one row per region: what adds up across pieces of
+    an array (:mod:`cavitas.measure._chunked`). Coordinates are 3D voxel indices
+    ``(z, y, x)``; ``second`` holds the sums of zz, yy, xx, zy, zx, yx."""
+
+    count: np.ndarray    # (n,) int64
+    first: np.ndarray    # (n, 3) float64
+    second: np.ndarray   # (n, 6) float64
+    lo: np.ndarray       # (n, 3) int64, inclusive
+    hi: np.ndarray       # (n, 3) int64, inclusive
+    imin: np.ndarray     # (n,) float64 (inf without image)
+    imax: np.ndarray     # (n,) float64
+    isum: np.ndarray     # (n,) float64
+
+
+def raw_sums(dense: np.ndarray, n: int, image: np.ndarray | None) -> RawSums:
+    """:class:`RawSums` of regions 1..n of a 3D renumbered label array, in one pass."""
     has_image = image is not None
     img = image if has_image else np.zeros((1, 1, 1), np.float64)
     count, first, second, lo, hi, imin, imax, isum = _sums_kernel(dense, n, img, has_image)
-    count, first, second = count[1:], first[1:], second[1:]
+    return RawSums(count[1:], first[1:], second[1:], lo[1:], hi[1:], imin[1:], imax[1:],
+                   isum[1:])
+
+
+def stats_from_sums(sums: RawSums, *, image: bool) -> dict[str, np.ndarray]:
+    """:func:`region_sums`' figures from the sums: centroid, covariance, box, intensities."""
+    count = sums.count
+    n = len(count)
     safe = np.maximum(count, 1).astype(np.float64)
-    mean = first / safe[:, None]
-    e2 = second / safe[:, None]
+    mean = sums.first / safe[:, None]
+    e2 = sums.second / safe[:, None]
     cov = np.empty((n, 3, 3))
     for k, (i, j) in enumerate(((0, 0), (1, 1), (2, 2), (0, 1), (0, 2), (1, 2))):
         cov[:, i, j] = cov[:, j, i] = e2[:, k] - mean[:, i] * mean[:, j]
-    out = {"count": count, "mean": mean, "cov": cov, "lo": lo[1:], "hi": hi[1:]}
-    if has_image:
-        out.update(imin=imin[1:], imax=imax[1:], imean=isum[1:] / safe)
+    out = {"count": count, "mean": mean, "cov": cov, "lo": sums.lo, "hi": sums.hi}
+    if image:
+        out.update(imin=sums.imin, imax=sums.imax, imean=sums.isum / safe)
     return out

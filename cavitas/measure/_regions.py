@@ -20,7 +20,7 @@ from ._shells import shell_sums, shell_voxels
 from ._surface import region_surface
 from ._thickness import thickness_3d
 
-__all__ = ["measure_regions"]
+__all__ = ["box_on_edge", "kernel_image", "measure_regions", "measured_table"]
 
 _AXES = ("z", "y", "x")
 #: Image types the compiled sweeps read directly (native byte order); sums are in float64.
@@ -129,9 +129,7 @@ def measure_regions(labels: Any, *, spacing: Sequence[float] | None = None, unit
         if img.dtype != bool and (not np.issubdtype(img.dtype, np.number)
                                   or np.issubdtype(img.dtype, np.complexfloating)):
             raise ParameterError(f"image must hold real numbers; got dtype {img.dtype}.")
-        if img.dtype not in _KERNEL_TYPES:  # others are read as they are: no float copy
-            img = img.astype(np.float64)
-        img = as_3d(img)
+        img = as_3d(kernel_image(img))
     roi_mask = check_mask(roi, shape, "roi")
     walls = check_mask(walls_mask, shape, "walls_mask")
 
@@ -170,7 +168,20 @@ def measure_regions(labels: Any, *, spacing: Sequence[float] | None = None, unit
         bar.close()
     cols = _columns(values, stats, volume, area, sums, border, sp, n,
                     image=img is not None, thickness=thickness)
-    meta = {"caution": RESEARCH_ONLY, "ndim": ndim, "spacing": list(sp), "unit": unit,
+    return measured_table(cols, sp, unit)
+
+
+def kernel_image(image: np.ndarray) -> np.ndarray:
+    """The image as the compiled sweeps read it: in its own type when they read that type,
+    else in float64."""
+    return image if image.dtype in _KERNEL_TYPES else image.astype(np.float64)
+
+
+def measured_table(cols: dict[str, np.ndarray], spacing: tuple[float, ...],
+                   unit: str) -> Table:
+    """The measurement table of :func:`measure_regions`' columns: units and meta."""
+    ndim = len(spacing)
+    meta = {"caution": RESEARCH_ONLY, "ndim": ndim, "spacing": list(spacing), "unit": unit,
             "surface_method": "Crofton formula, 13 directions (4 in 2D)",
             "thickness_method": "local thickness (Hildebrand & Rüegsegger 1997)"}
     units = _units(unit, ndim)
@@ -230,9 +241,7 @@ def _units(unit: str, ndim: int) -> dict[str, str]:
 
 def _touches_border(dense: np.ndarray, stats: dict[str, np.ndarray], shape: tuple[int, ...],
                     roi: np.ndarray | None) -> np.ndarray:
-    ndim = len(shape)
-    lo, hi = stats["lo"][:, 3 - ndim:], stats["hi"][:, 3 - ndim:]
-    touches = np.any(lo == 0, axis=1) | np.any(hi == np.asarray(shape) - 1, axis=1)
+    touches = box_on_edge(stats, shape)
     if roi is not None and not roi.all():
         from scipy.ndimage import binary_dilation
 
@@ -240,3 +249,16 @@ def _touches_border(dense: np.ndarray, stats: dict[str, np.ndarray], shape: tupl
         hit = np.unique(dense[near & (dense > 0)])
         touches[hit - 1] = True
     return touches
+
+
+def box_on_edge(stats: dict[str, np.ndarray], shape: tuple[int, ...]) -> np.ndarray:
+    """Per region: whether its bounding box reaches the array's edge (3D box rows).
+
+    Examples
+    --------
+    >>> box_on_edge({"lo": np.array([[0, 1, 1]]), "hi": np.array([[0, 2, 3]])}, (5, 5))
+    array([False])
+    """
+    ndim = len(shape)
+    lo, hi = stats["lo"][:, 3 - ndim:], stats["hi"][:, 3 - ndim:]
+    return np.any(lo == 0, axis=1) | np.any(hi == np.asarray(shape) - 1, axis=1)

@@ -5,7 +5,7 @@ from __future__ import annotations
 import numba
 import numpy as np
 
-__all__ = ["shell_sums", "shell_voxels"]
+__all__ = ["shell_means", "shell_sums", "shell_totals", "shell_voxels"]
 
 
 @numba.njit(cache=True, nogil=True)
@@ -91,11 +91,35 @@ def shell_sums(dense: np.ndarray, shell: np.ndarray, n: int, offsets: np.ndarray
     count, isum, tsum, tmax = _shell_kernel(
         dense, shell, n, offsets, dummy if image is None else image, image is not None,
         dummy if thick is None else thick, thick is not None)
-    count, safe = count[1:], np.where(count[1:] > 0, count[1:], np.nan)
-    out = {"count": count}
-    if image is not None:
-        out["imean"] = isum[1:] / safe
+    out = shell_means(count[1:], isum[1:] if image is not None else None)
     if thick is not None:
+        safe = np.where(count[1:] > 0, count[1:], np.nan)
         out["tmean"] = tsum[1:] / safe
-        out["tmax"] = np.where(count > 0, tmax[1:], np.nan)
+        out["tmax"] = np.where(count[1:] > 0, tmax[1:], np.nan)
+    return out
+
+
+def shell_totals(dense: np.ndarray, shell: np.ndarray, n: int, offsets: np.ndarray,
+                 image: np.ndarray | None) -> tuple[np.ndarray, np.ndarray]:
+    """Per region 1..n: shell voxels and the sum of the image over them (zeros without an
+    image), before division: what adds up across pieces of an array."""
+    dummy = np.zeros((1, 1, 1), np.float64)
+    count, isum, _, _ = _shell_kernel(dense, shell, n, offsets,
+                                      dummy if image is None else image, image is not None,
+                                      dummy, False)
+    return count[1:], isum[1:]
+
+
+def shell_means(count: np.ndarray, isum: np.ndarray | None) -> dict[str, np.ndarray]:
+    """:func:`shell_sums`' ``count`` and ``imean`` (with an image's sums; NaN where a
+    region has no shell voxel) from the totals.
+
+    Examples
+    --------
+    >>> shell_means(np.array([2, 0]), np.array([5.0, 0.0]))["imean"].tolist()
+    [2.5, nan]
+    """
+    out = {"count": count}
+    if isum is not None:
+        out["imean"] = isum / np.where(count > 0, count, np.nan)
     return out

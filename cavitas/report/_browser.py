@@ -51,29 +51,44 @@ class EmbeddedScan:
 
 def _reduce(image: np.ndarray, labels: np.ndarray | None, factor: int,
             window: tuple[float, float]) -> tuple[np.ndarray, np.ndarray]:
-    """Grey levels (block means) and labels (block centres) on the reduced grid."""
+    """Grey levels (block means) and labels (block centres) on the reduced grid.
+
+    A 3D scan is reduced a slab of ``factor`` planes at a time. A chunked scan (a Dask
+    array, as the chunk-by-chunk route gives) is reduced slab by slab on the Dask workers
+    in one pass, so each chunk is read once and only the reduced slabs reach this
+    process."""
+    if image.ndim == 2:
+        slabs = [(image[None], None if labels is None else labels[None])]
+    else:
+        slabs = [(image[start:start + factor],
+                  None if labels is None else labels[min(start + factor // 2,
+                                                         image.shape[0] - 1)][None])
+                 for start in range(0, image.shape[0], factor)]
+    if hasattr(image, "to_delayed"):  # a Dask array: the slabs on the workers, together
+        import dask
+
+        reduced = dask.compute(*[dask.delayed(_reduce_slab)(block, labs, factor, window)
+                                 for block, labs in slabs])
+    else:
+        reduced = tuple(_reduce_slab(block, labs, factor, window) for block, labs in slabs)
+    return np.stack([grey for grey, _ in reduced]), np.stack([lab for _, lab in reduced])
+
+
+def _reduce_slab(block: np.ndarray, labs: np.ndarray | None, factor: int,
+                 window: tuple[float, float]) -> tuple[np.ndarray, np.ndarray]:
+    """One reduced plane: the grey levels of the block means of a slab of planes and the
+    labels at the block centres of its middle plane (``labs``, one plane, or None)."""
     lo, hi = window
-    planes = range(0, image.shape[0], factor) if image.ndim == 3 else [None]
-    grey, lab = [], []
-    for start in planes:
-        if start is None:
-            block = np.asarray(image, dtype=np.float32)[None]
-            labs = None if labels is None else np.asarray(labels)[None]
-        else:
-            block = np.asarray(image[start:start + factor], dtype=np.float32)
-            labs = None if labels is None else np.asarray(labels[start + min(factor // 2,
-                                                                             len(block) - 1)])
-            labs = None if labs is None else labs[None]
-        mean = block_reduce(block.mean(axis=0), factor)
-        scaled = np.nan_to_num((mean - lo) / (hi - lo), nan=0.0)
-        grey.append(np.clip(np.floor(scaled * _LEVELS), 0, _LEVELS - 1).astype(np.uint8))
-        if labs is None:
-            lab.append(np.zeros(grey[-1].shape, np.uint32))
-        else:
-            half = factor // 2
-            lab.append(np.ascontiguousarray(labs[0][half::factor, half::factor]
-                                            [:grey[-1].shape[0], :grey[-1].shape[1]]))
-    return np.stack(grey), np.stack(lab)
+    block = np.asarray(block, dtype=np.float32)
+    mean = block_reduce(block.mean(axis=0), factor)
+    scaled = np.nan_to_num((mean - lo) / (hi - lo), nan=0.0)
+    grey = np.clip(np.floor(scaled * _LEVELS), 0, _LEVELS - 1).astype(np.uint8)
+    if labs is None:
+        return grey, np.zeros(grey.shape, np.uint32)
+    half = factor // 2
+    plane = np.asarray(labs)[0]
+    return grey, np.ascontiguousarray(plane[half::factor, half::factor]
+                                      [:grey.shape[0], :grey.shape[1]])
 
 
 def embed_scan(image: np.ndarray, labels: np.ndarray | None, *,
@@ -102,7 +117,7 @@ def embed_scan(image: np.ndarray, labels: np.ndarray | None, *,
     ((10, 8, 6), 1, 1)
     """
     window = window or intensity_window(image)
-    top = 0 if labels is None else int(np.asarray(labels).max(initial=0))
+    top = 0 if labels is None or not labels.size else int(labels.max())  # Dask: by chunks
     label_bytes = 1 if top < 2**8 else 2 if top < 2**16 else 4
     kind = {1: np.uint8, 2: np.uint16, 4: np.uint32}[label_bytes]
     # start at a grid of about 1.25 voxels per byte of budget (a noisy scan's 64 grey

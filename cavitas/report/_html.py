@@ -231,7 +231,10 @@ def write_report(path: str | os.PathLike, *, image: np.ndarray, labels: np.ndarr
     image, labels : array
         The scan and its label image (0 = no region), same 2D or 3D shape. Regions cut by
         the scan border may be in it too: they are drawn dashed (``kind`` = ``"cut"`` or
-        ``touches_border`` in ``regions``).
+        ``touches_border`` in ``regions``). Dask arrays are read a slice or a slab at a
+        time, the slice browser's slabs reduced on the Dask workers; place regions with
+        the table's ``centroid_voxel_*`` columns then (else each label's centre is
+        computed over the whole label image).
     spacing, unit : sequence of float, str
         Voxel size in ``(z, y, x)`` order and its unit.
     regions : Table
@@ -288,8 +291,9 @@ def write_report(path: str | os.PathLike, *, image: np.ndarray, labels: np.ndarr
     True
     """
     check_writable(path, force=force)  # fail before the slow part
+    # arrays (memory maps, Dask arrays) are read only where a picture needs them
     image = image if hasattr(image, "ndim") else np.asarray(image)
-    labels = np.asarray(labels)
+    labels = labels if hasattr(labels, "ndim") else np.asarray(labels)
     if image.ndim not in (2, 3):
         raise ParameterError(f"image must be 2D or 3D; got {image.ndim} dimensions.")
     if labels.shape != tuple(image.shape):

@@ -40,7 +40,7 @@ from . import _noise
 from ._chunked_finite import fill_outside_in_chunks
 from ._chunked_regions import chunked_nested_map
 from ._chunked_smooth import smooth_in_chunks
-from ._chunked_statistics import percentiles_in_chunks
+from ._chunked_statistics import noise_level_in_chunks, percentiles_in_chunks
 from ._params import SegmentParams
 from ._regions import face_slices
 from ._result import ChamberValues, EnclosureValues, RegionCounts, number_regions
@@ -62,6 +62,8 @@ class ChunkedSegmentation:
     smooth_sigma: float          # physical units
     tree: CavityTree             # of the smoothed image (walls high)
     connectivity: int
+    chamber_nodes: np.ndarray    # cavity-tree node of each chamber row
+    noise: _noise.NoiseLevel     # as segment() estimates it (noise_sigma: its amplitude)
 
 
 def segment_in_chunks(image: Any, *, params: SegmentParams, spacing: np.ndarray, unit: str,
@@ -116,6 +118,7 @@ def segment_in_chunks(image: Any, *, params: SegmentParams, spacing: np.ndarray,
 
     from ..cubical._chunked_tree import tree_chunks_on_dask
 
+    floor = _noise.QUANTISATION_SIGMA if np.issubdtype(image.dtype, np.integer) else 0.0
     if image.dtype == np.bool_:
         image = image.astype(np.uint8)
     elif image.dtype == np.float16:
@@ -189,8 +192,9 @@ def segment_in_chunks(image: Any, *, params: SegmentParams, spacing: np.ndarray,
         enclosure_lut = np.zeros(n_ch + n_enc + 1, dtype)
         enclosure_lut[n_ch + 1:] = numbered.enclosure_ids
         enclosure_labels = enclosures.map_blocks(_renumber, enclosure_lut, dtype=dtype)
+    noise = noise_level_in_chunks(image, floor=floor)  # as segment() estimates it
     return ChunkedSegmentation(labels, enclosure_labels, numbered.table, tau, robust_range,
-                               scale, tree, connectivity)
+                               scale, tree, connectivity, numbered.chamber_nodes, noise)
 
 
 def _regular(chunks: tuple[tuple[int, ...], ...]) -> bool:

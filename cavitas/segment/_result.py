@@ -14,13 +14,42 @@ from .._table import Table
 from ..cubical._diagram import PAIR_DTYPE, Diagram
 from ..io._volume import Volume
 
-__all__ = ["NumberedTable", "RegionCounts", "Segmentation", "build_table", "label_dtype",
-           "number_regions"]
+__all__ = ["CavityDiagram", "NumberedTable", "RegionCounts", "Segmentation", "build_table",
+           "cavity_diagram", "label_dtype", "number_regions"]
 
 
 def label_dtype(n_labels: int) -> np.dtype:
     """int32 labels, int64 when more than 2**31 - 1 regions are needed (scipy's policy)."""
     return np.dtype(np.int32) if n_labels < np.iinfo(np.int32).max else np.dtype(np.int64)
+
+
+@dataclass(frozen=True)
+class CavityDiagram:
+    """The cavity diagram of a run and, per row, whether it is a chamber and its margin."""
+
+    diagram: Diagram
+    kept: np.ndarray     # bool: the feature is a chamber of the result
+    margin: np.ndarray   # persistence minus the threshold
+
+
+def cavity_diagram(tree: Any, chamber_nodes: np.ndarray, *, shape: tuple[int, ...],
+                   walls: str, connectivity: int, masked: bool,
+                   threshold: float) -> CavityDiagram:
+    """The diagram of the cavity tree (walls high, as :func:`segment` sweeps it): one pair
+    per node of nonzero persistence but the outside, in node order, in the input's units
+    (levels times -1 for dark walls)."""
+    sign = 1.0 if walls == "bright" else -1.0
+    pers = tree.persistence
+    rows = np.flatnonzero(pers > 0)
+    rows = rows[rows != 0]
+    pairs = np.zeros(len(rows), PAIR_DTYPE)
+    pairs["birth"] = sign * tree.breach_level[rows]
+    pairs["death"] = sign * tree.core_level[rows]
+    pairs["birth_voxel"] = tree.breach[rows]
+    pairs["death_voxel"] = tree.core[rows]
+    diagram = Diagram({len(shape) - 1: pairs}, shape=shape, walls=walls,
+                      connectivity=connectivity, masked=masked)
+    return CavityDiagram(diagram, np.isin(rows, chamber_nodes), pers[rows] - threshold)
 
 
 @dataclass(eq=False)
@@ -81,21 +110,13 @@ class Segmentation:
     def assemble(cls, parts: TableParts, *, volume: Volume, params: Any,
                  chosen: dict[str, Any], tree: Any) -> Segmentation:
         """Build the result from the pieces :func:`segment` computed."""
-        sign = 1.0 if params.walls == "bright" else -1.0
-        pers = tree.persistence
-        rows = np.flatnonzero(pers > 0)
-        rows = rows[rows != 0]
-        pairs = np.zeros(len(rows), PAIR_DTYPE)
-        pairs["birth"] = sign * tree.breach_level[rows]
-        pairs["death"] = sign * tree.core_level[rows]
-        pairs["birth_voxel"] = tree.breach[rows]
-        pairs["death_voxel"] = tree.core[rows]
-        diagram = Diagram({volume.ndim - 1: pairs}, shape=volume.shape, walls=params.walls,
-                          connectivity=chosen["connectivity"], masked=parts.masked)
+        cavities = cavity_diagram(tree, parts.chamber_nodes, shape=volume.shape,
+                                  walls=params.walls, connectivity=chosen["connectivity"],
+                                  masked=parts.masked, threshold=chosen["threshold"])
         record = {**params.to_dict(), **chosen, "caution": RESEARCH_ONLY}
         return cls(
-            labels=parts.labels, regions=parts.table, diagram=diagram,
-            kept=np.isin(rows, parts.chamber_nodes), margin=pers[rows] - chosen["threshold"],
+            labels=parts.labels, regions=parts.table, diagram=cavities.diagram,
+            kept=cavities.kept, margin=cavities.margin,
             threshold=chosen["threshold"], noise=chosen["noise_sigma"], params=record,
             volume=volume, all_labels=parts.all_labels,
             enclosure_map=parts.enclosure_labels, background=parts.background,
