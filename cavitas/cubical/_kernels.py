@@ -23,8 +23,8 @@ unpredictable branches. On an image whose work array outgrows the core's own cac
 ``_AHEAD`` steps further in ``order``; for a voxel away from the border it first reads all
 neighbours without branching into a bit set of the visited ones (:func:`_visited_bits`),
 dropping those that touch the previous visited neighbour of the chain
-(:func:`neighbor_chain`), and then
-visits only the remaining bits. Border voxels take the plain, bounds-checked loop.
+(:func:`neighbor_chain`), and then visits only the remaining bits. Border voxels take the
+plain, bounds-checked loop.
 """
 
 from __future__ import annotations
