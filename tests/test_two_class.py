@@ -57,3 +57,33 @@ def test_class_split_blocks_match_the_general_computation():
     own = _skimage_and_numpy(image[:block[0], :block[1]].ravel())
     assert own[2] - own[1] >= 0.25 * (split.high - split.low)  # the block has its own
     assert split.grid[0, 0] == own[0]
+
+
+def test_threshold_from_a_histogram_equals_skimage():
+    # counts up to ~2**18 (class weights whose product float32 rounds), empty ends (trimmed),
+    # flat stretches (ties between variances: the first wins)
+    from cavitas.segment._two_class import _otsu_threshold
+
+    rng = np.random.default_rng(5)
+    for trial in range(200):
+        n = int(rng.integers(2, 1025))
+        counts = rng.integers(0, (4, 300, 2**18)[trial % 3], n).astype(np.int64)
+        if trial % 4 == 0:
+            counts[: n // 3] = 0
+            counts[-2:] = 0
+        if trial % 5 == 0:
+            counts[:] = 7
+        if np.count_nonzero(counts) < 2:
+            counts[0] = counts[-1] = 1
+        centers = np.sort(rng.normal(size=n)) if trial % 2 else np.linspace(-1, 3, n)
+        assert _otsu_threshold(counts, centers) == threshold_otsu(hist=(counts, centers))
+    # mirror-image histograms: two thresholds of equal variance but for rounding, where
+    # only the float32 product of the class weights picks scikit-image's (found by search:
+    # several of these differ in float64)
+    rng = np.random.default_rng(0)
+    for trial in range(17000):
+        n = int(rng.integers(3, 40))
+        half = rng.integers(1, (300, 2**18, 2**20)[trial % 3], (n + 1) // 2)
+        counts = np.r_[half, half[::-1][n % 2:]] if trial % 2 else rng.integers(1, 2**18, n)
+        centers = np.linspace(-1, 1, n) if trial % 3 else np.arange(n, dtype=float)
+        assert _otsu_threshold(counts, centers) == threshold_otsu(hist=(counts, centers))
