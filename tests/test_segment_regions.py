@@ -361,17 +361,21 @@ def test_level_fraction_shrinks_breach_regions(rng):
 
 def test_detection_in_two_threads_equals_one_after_the_other(monkeypatch):
     # Common practice: a parallel path gives exactly what the serial one gives. On one
-    # core the detection scales are tried one at a time; on more, two at a time.
+    # core the detection scales are tried one at a time; on more, two at a time, all
+    # queued at once (a small image) or each once the one before it is taken.
     import cavitas.segment._detect as segment_module
     from cavitas.scenes import foam
 
     scene = foam((64, 64, 64), cells=120, noise=0.2, ramp=2.0, walls="bright", seed=5)
     monkeypatch.setattr(segment_module, "usable_cores", lambda: 2)
+    queued = segment(scene.volume)
+    monkeypatch.setattr(segment_module, "QUEUED_VOXELS", 0)
     threaded = segment(scene.volume)
     monkeypatch.setattr(segment_module, "usable_cores", lambda: 1)
     serial = segment(scene.volume)
-    np.testing.assert_array_equal(threaded.labels, serial.labels)
-    assert threaded.params["scales_tried"] == serial.params["scales_tried"]
+    for run in (queued, threaded):
+        np.testing.assert_array_equal(run.labels, serial.labels)
+        assert run.params["scales_tried"] == serial.params["scales_tried"]
     assert threaded.labels.max() > 5
 
 

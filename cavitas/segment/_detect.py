@@ -32,9 +32,9 @@ from ._scales import ScaleSeeds
 from ._select import close_upward, persistence_threshold, select_nodes, split_rule
 from ._texture import texture_splits
 
-__all__ = ["TEXTURED_SCALE_SHARE", "THRESHOLD_RULES", "Detection", "ScanImage", "chosen_scale",
-           "close_faces", "detect", "on_faces", "polarity_check", "statistics_mask",
-           "textured_reach"]
+__all__ = ["QUEUED_VOXELS", "TEXTURED_SCALE_SHARE", "THRESHOLD_RULES", "Detection", "ScanImage",
+           "chosen_scale", "close_faces", "detect", "on_faces", "polarity_check",
+           "statistics_mask", "textured_reach"]
 
 
 #: Where the noise is not white: the finest scale whose count of cavities passing every
@@ -53,6 +53,12 @@ __all__ = ["TEXTURED_SCALE_SHARE", "THRESHOLD_RULES", "Detection", "ScanImage", 
 #: invented hard sheets at noise 0.3 the same rule finds 78-94 % instead of 86-97 %, so
 #: it does not apply there.
 TEXTURED_SCALE_SHARE = 0.9
+#: Images of at most this many voxels (a 512² image) queue every candidate scale at once:
+#: a thread that finishes its scale takes the next one while the other is still at work
+#: (on a busy machine one of the two often is), holding the finished ones' images, sweeps
+#: and trees (about 16 bytes per voxel each, at most 24 MiB for six scales) until their
+#: turn. Larger images start a scale only when the one before it is taken.
+QUEUED_VOXELS = 2**18
 
 
 @dataclass
@@ -171,7 +177,9 @@ def detect(image: ScanImage, params: SegmentParams, *, noise: _noise.NoiseLevel,
     whose count reaches :data:`TEXTURED_SCALE_SHARE` of the largest is chosen (detected a
     second time when it was not kept). With two or more cores, two scales are tried
     at a time in two threads. Memory: the best candidate's smoothed image and order stay,
-    plus the one or two being tried (in the work type, :func:`_noise.work_dtype`).
+    plus the one or two being tried (in the work type, :func:`_noise.work_dtype`); on an
+    image of at most :data:`QUEUED_VOXELS`, every scale is queued at once and those
+    finished early wait for their turn.
     ``smoothed_at`` (``(sigma, image)``): the image already smoothed at one scale, taken by
     a candidate at exactly that scale instead of smoothing again.
     """
@@ -260,8 +268,9 @@ def detect(image: ScanImage, params: SegmentParams, *, noise: _noise.NoiseLevel,
     counts: list[int] = []
     todo = iter(scales)
     tell(f"smoothing scale 1 of {len(scales)}")
+    queued = len(scales) if image.data.size <= QUEUED_VOXELS else workers
     with ThreadPoolExecutor(max_workers=workers, thread_name_prefix="cavitas-scale") as pool:
-        running = deque(pool.submit(candidate, sig) for sig in itertools.islice(todo, workers))
+        running = deque(pool.submit(candidate, sig) for sig in itertools.islice(todo, queued))
         while running:
             result = running.popleft().result()
             tried.append({"sigma": float((result.sigma * spacing).max()),
