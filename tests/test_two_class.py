@@ -87,3 +87,27 @@ def test_threshold_from_a_histogram_equals_skimage():
         counts = np.r_[half, half[::-1][n % 2:]] if trial % 2 else rng.integers(1, 2**18, n)
         centers = np.linspace(-1, 1, n) if trial % 3 else np.arange(n, dtype=float)
         assert _otsu_threshold(counts, centers) == threshold_otsu(hist=(counts, centers))
+
+
+@pytest.mark.parametrize("dtype", [np.float32, np.float64])
+def test_histogram_of_values_at_and_beside_the_bin_edges(dtype):
+    # On values at, just below and just above every edge, and on data whose range is small
+    # against their magnitude, the histogram pass counts what NumPy counts (np.histogram,
+    # 1024 equal bins, of the float64 values: what scikit-image's threshold_otsu bins).
+    from cavitas.segment._two_class import NBINS, _bin_pass
+
+    rng = np.random.default_rng(9)
+    for first, last in ((0.0, 1.0), (-3.7, 12.1), (1e6, 1e6 + 5.0), (1e4, 1e4 + 1e-6),
+                        (1e9, 1e9 + 1e-2), (-2.5e-7, 1e-9)):
+        edges64 = np.linspace(first, last, NBINS + 1)
+        near = np.concatenate([edges64, np.nextafter(edges64, -np.inf),
+                               np.nextafter(edges64, np.inf), rng.uniform(first, last, 5000)])
+        sample = np.clip(near, first, last).astype(dtype)
+        lo, hi = float(sample.min()), float(sample.max())
+        if lo == hi:
+            continue
+        edges = np.linspace(lo, hi, NBINS + 1)
+        bins = np.empty(sample.size, np.int16)
+        counts, _ = _bin_pass(sample, edges, lo, hi - lo, bins)
+        np.testing.assert_array_equal(counts, np.histogram(sample.astype(np.float64), NBINS)[0])
+        np.testing.assert_array_equal(np.bincount(bins, minlength=NBINS), counts)
