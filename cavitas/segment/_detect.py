@@ -55,8 +55,8 @@ __all__ = ["QUEUED_VOXELS", "TEXTURED_SCALE_SHARE", "THRESHOLD_RULES", "Detectio
 TEXTURED_SCALE_SHARE = 0.9
 #: Images of at most this many voxels (a 512² image) queue every candidate scale at once:
 #: a thread that finishes its scale takes the next one while the other is still at work
-#: (on a busy machine one of the two often is), holding the finished ones' images, sweeps
-#: and trees (about 16 bytes per voxel each, at most 24 MiB for six scales) until their
+#: (on a busy machine one of the two often is), holding the finished ones' smoothed images
+#: and sweep orders (8 bytes per voxel each: at most 12 MiB for six scales) until their
 #: turn. Larger images start a scale only when the one before it is taken.
 QUEUED_VOXELS = 2**18
 

@@ -136,6 +136,7 @@ def _own_features(mask, feat, start, stop):
 
 @njit(cache=True, nogil=True)
 def _line(line, d, c0, c1, c2, f, g, first):
+    """One line: :func:`_nearest_on_line` on the ``first`` axis, else :func:`_voronoi_line`."""
     if first:
         _nearest_on_line(line, d, c0, c1, c2, g)
     else:
