@@ -379,6 +379,32 @@ def test_detection_in_two_threads_equals_one_after_the_other(monkeypatch):
     assert threaded.labels.max() > 5
 
 
+def test_kept_detection_of_a_finer_scale_equals_detecting_it_again(monkeypatch):
+    # Common practice: a shortcut gives exactly what the long way gives. Where the noise is
+    # not white, the texture rule can pick a finer scale than the one with most cavities; a
+    # small image keeps every scale's detection and takes that one, a large one detects it
+    # again. Input (invented): a cell sheet with noise blurred by σ = 1 pixel.
+    from scipy import ndimage as ndi
+
+    import cavitas.segment._detect as segment_module
+    from cavitas.scenes import cell_sheet
+
+    sheet = cell_sheet((128, 128), cells=30, noise=0.0, seed=2).image
+    grain = ndi.gaussian_filter(np.random.default_rng(2).normal(0, 1, sheet.shape), 1.0)
+    image = sheet + 0.08 * grain / grain.std()
+    kept = segment(image)
+    monkeypatch.setattr(segment_module, "QUEUED_VOXELS", 0)
+    again = segment(image)
+    counts = [t["count"] for t in kept.params["scales_tried"]]
+    sigmas = [t["sigma"] for t in kept.params["scales_tried"]]
+    assert sigmas.index(kept.params["smooth_sigma"]) < int(np.argmax(counts))  # the rule
+    np.testing.assert_array_equal(kept.labels, again.labels)
+    for name in kept.regions.names:
+        np.testing.assert_array_equal(kept.regions[name], again.regions[name])
+    assert kept.params["scales_tried"] == again.params["scales_tried"]
+    assert kept.labels.max() > 5
+
+
 def test_stages_are_reported_in_order():
     # Common practice for progress displays: every stage is announced once, in order.
     img = _nested_rings()
