@@ -236,7 +236,7 @@ def test_int64_index_path_agrees(rng):
     prep = _Prepared(image, "bright", 1, None)
     order64 = prep.order.astype(np.int64)
     parent64 = np.empty(image.size + 1, np.int64)
-    grid = (9, 10, 11, 1)
+    grid = (9, 10, 11, 1, False)  # the grid, no prefetching
     ours = h0_sweep(prep.flat, order64, parent64, *neighbor_chain(image.shape, 1), *grid)
     ref = h0_sweep(prep.flat, prep.order, prep.new_parent(), *neighbor_chain(image.shape, 1),
                    *grid)

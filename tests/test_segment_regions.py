@@ -361,18 +361,48 @@ def test_level_fraction_shrinks_breach_regions(rng):
 
 def test_detection_in_two_threads_equals_one_after_the_other(monkeypatch):
     # Common practice: a parallel path gives exactly what the serial one gives. On one
-    # core the detection scales are tried one at a time; on more, two at a time.
+    # core the detection scales are tried one at a time; on more, two at a time, all
+    # queued at once (a small image) or each once the one before it is taken.
     import cavitas.segment._detect as segment_module
     from cavitas.scenes import foam
 
     scene = foam((64, 64, 64), cells=120, noise=0.2, ramp=2.0, walls="bright", seed=5)
     monkeypatch.setattr(segment_module, "usable_cores", lambda: 2)
+    queued = segment(scene.volume)
+    monkeypatch.setattr(segment_module, "QUEUED_VOXELS", 0)
     threaded = segment(scene.volume)
     monkeypatch.setattr(segment_module, "usable_cores", lambda: 1)
     serial = segment(scene.volume)
-    np.testing.assert_array_equal(threaded.labels, serial.labels)
-    assert threaded.params["scales_tried"] == serial.params["scales_tried"]
+    for run in (queued, threaded):
+        np.testing.assert_array_equal(run.labels, serial.labels)
+        assert run.params["scales_tried"] == serial.params["scales_tried"]
     assert threaded.labels.max() > 5
+
+
+def test_kept_detection_of_a_finer_scale_equals_detecting_it_again(monkeypatch):
+    # Common practice: a shortcut gives exactly what the long way gives. Where the noise is
+    # not white, the texture rule can pick a finer scale than the one with most cavities; a
+    # small image keeps every scale's detection and takes that one, a large one detects it
+    # again. Input (invented): a cell sheet with noise blurred by σ = 1 pixel.
+    from scipy import ndimage as ndi
+
+    import cavitas.segment._detect as segment_module
+    from cavitas.scenes import cell_sheet
+
+    sheet = cell_sheet((128, 128), cells=30, noise=0.0, seed=2).image
+    grain = ndi.gaussian_filter(np.random.default_rng(2).normal(0, 1, sheet.shape), 1.0)
+    image = sheet + 0.08 * grain / grain.std()
+    kept = segment(image)
+    monkeypatch.setattr(segment_module, "QUEUED_VOXELS", 0)
+    again = segment(image)
+    counts = [t["count"] for t in kept.params["scales_tried"]]
+    sigmas = [t["sigma"] for t in kept.params["scales_tried"]]
+    assert sigmas.index(kept.params["smooth_sigma"]) < int(np.argmax(counts))  # the rule
+    np.testing.assert_array_equal(kept.labels, again.labels)
+    for name in kept.regions.names:
+        np.testing.assert_array_equal(kept.regions[name], again.regions[name])
+    assert kept.params["scales_tried"] == again.params["scales_tried"]
+    assert kept.labels.max() > 5
 
 
 def test_stages_are_reported_in_order():

@@ -57,3 +57,57 @@ def test_class_split_blocks_match_the_general_computation():
     own = _skimage_and_numpy(image[:block[0], :block[1]].ravel())
     assert own[2] - own[1] >= 0.25 * (split.high - split.low)  # the block has its own
     assert split.grid[0, 0] == own[0]
+
+
+def test_threshold_from_a_histogram_equals_skimage():
+    # counts up to ~2**18 (class weights whose product float32 rounds), empty ends (trimmed),
+    # flat stretches (ties between variances: the first wins)
+    from cavitas.segment._two_class import _otsu_threshold
+
+    rng = np.random.default_rng(5)
+    for trial in range(200):
+        n = int(rng.integers(2, 1025))
+        counts = rng.integers(0, (4, 300, 2**18)[trial % 3], n).astype(np.int64)
+        if trial % 4 == 0:
+            counts[: n // 3] = 0
+            counts[-2:] = 0
+        if trial % 5 == 0:
+            counts[:] = 7
+        if np.count_nonzero(counts) < 2:
+            counts[0] = counts[-1] = 1
+        centers = np.sort(rng.normal(size=n)) if trial % 2 else np.linspace(-1, 3, n)
+        assert _otsu_threshold(counts, centers) == threshold_otsu(hist=(counts, centers))
+    # mirror-image histograms: two thresholds of equal variance but for rounding, where
+    # only the float32 product of the class weights picks scikit-image's (found by search:
+    # several of these differ in float64)
+    rng = np.random.default_rng(0)
+    for trial in range(17000):
+        n = int(rng.integers(3, 40))
+        half = rng.integers(1, (300, 2**18, 2**20)[trial % 3], (n + 1) // 2)
+        counts = np.r_[half, half[::-1][n % 2:]] if trial % 2 else rng.integers(1, 2**18, n)
+        centers = np.linspace(-1, 1, n) if trial % 3 else np.arange(n, dtype=float)
+        assert _otsu_threshold(counts, centers) == threshold_otsu(hist=(counts, centers))
+
+
+@pytest.mark.parametrize("dtype", [np.float32, np.float64])
+def test_histogram_of_values_at_and_beside_the_bin_edges(dtype):
+    # On values at, just below and just above every edge, and on data whose range is small
+    # against their magnitude, the histogram pass counts what NumPy counts (np.histogram,
+    # 1024 equal bins, of the float64 values: what scikit-image's threshold_otsu bins).
+    from cavitas.segment._two_class import NBINS, _bin_pass
+
+    rng = np.random.default_rng(9)
+    for first, last in ((0.0, 1.0), (-3.7, 12.1), (1e6, 1e6 + 5.0), (1e4, 1e4 + 1e-6),
+                        (1e9, 1e9 + 1e-2), (-2.5e-7, 1e-9)):
+        edges64 = np.linspace(first, last, NBINS + 1)
+        near = np.concatenate([edges64, np.nextafter(edges64, -np.inf),
+                               np.nextafter(edges64, np.inf), rng.uniform(first, last, 5000)])
+        sample = np.clip(near, first, last).astype(dtype)
+        lo, hi = float(sample.min()), float(sample.max())
+        if lo == hi:
+            continue
+        edges = np.linspace(lo, hi, NBINS + 1)
+        bins = np.empty(sample.size, np.int16)
+        counts, _ = _bin_pass(sample, edges, lo, hi - lo, bins)
+        np.testing.assert_array_equal(counts, np.histogram(sample.astype(np.float64), NBINS)[0])
+        np.testing.assert_array_equal(np.bincount(bins, minlength=NBINS), counts)

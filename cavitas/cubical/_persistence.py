@@ -15,7 +15,7 @@ from .._errors import ParameterError
 from ..io._volume import Volume
 from ._chunked import chunked_persistence, is_chunked
 from ._diagram import PAIR_DTYPE, Diagram
-from ._kernels import cavity_sweep_kernel, h0_sweep, neighbor_chain
+from ._kernels import cavity_sweep_kernel, h0_sweep, neighbor_chain, worth_prefetching
 from ._neighbors import check_connectivity, dual_connectivity, grid_shape3
 from ._plane import plane_cavity_merges, plane_critical, plane_h0_merges, plane_links
 from ._ring import ring_tables
@@ -146,6 +146,7 @@ class _Prepared:
             births, deaths, essential = h0_sweep(
                 self.flat, self.order, self.new_parent() if parent is None else parent,
                 *neighbor_chain(self.shape, self.connectivity), *self.grid, self.zmargin,
+                worth_prefetching(self.shape),
             )
         rows = np.empty(len(births) + len(essential), PAIR_DTYPE)
         rows["birth_voxel"] = np.concatenate((essential, births))
@@ -170,7 +171,7 @@ class _Prepared:
             mask_u8 = self.mask.view(np.uint8) if self.mask is not None else np.zeros(1, np.uint8)
             core, breach, tparent, size = (a.astype(np.int64) for a in cavity_sweep_kernel(
                 self.order, self.new_parent() if parent is None else parent, mask_u8, use_mask,
-                *neighbors, *self.grid, self.zmargin,
+                *neighbors, *self.grid, self.zmargin, worth_prefetching(self.shape),
             ))  # the kernel grows 4-byte arrays while its work array is alive
         core_level = np.empty(len(core))
         core_level[1:] = self.flat[core[1:]]

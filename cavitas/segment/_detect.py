@@ -32,9 +32,9 @@ from ._scales import ScaleSeeds
 from ._select import close_upward, persistence_threshold, select_nodes, split_rule
 from ._texture import texture_splits
 
-__all__ = ["TEXTURED_SCALE_SHARE", "THRESHOLD_RULES", "Detection", "ScanImage", "chosen_scale",
-           "close_faces", "detect", "on_faces", "polarity_check", "statistics_mask",
-           "textured_reach"]
+__all__ = ["QUEUED_VOXELS", "TEXTURED_SCALE_SHARE", "THRESHOLD_RULES", "Detection", "ScanImage",
+           "chosen_scale", "close_faces", "detect", "on_faces", "polarity_check",
+           "statistics_mask", "textured_reach"]
 
 
 #: Where the noise is not white: the finest scale whose count of cavities passing every
@@ -53,6 +53,13 @@ __all__ = ["TEXTURED_SCALE_SHARE", "THRESHOLD_RULES", "Detection", "ScanImage", 
 #: invented hard sheets at noise 0.3 the same rule finds 78-94 % instead of 86-97 %, so
 #: it does not apply there.
 TEXTURED_SCALE_SHARE = 0.9
+#: Images of at most this many voxels (a 512² image) queue every candidate scale at once:
+#: a thread that finishes its scale takes the next one while the other is still at work
+#: (on a busy machine one of the two often is). They keep every candidate's detection
+#: (smoothed image and sweep order: 8 bytes per voxel each, at most 12 MiB for six scales),
+#: so the finer scale the texture rule picks is not detected a second time. Larger images
+#: start a scale only when the one before it is taken and keep the best one only.
+QUEUED_VOXELS = 2**18
 
 
 @dataclass
@@ -171,7 +178,9 @@ def detect(image: ScanImage, params: SegmentParams, *, noise: _noise.NoiseLevel,
     whose count reaches :data:`TEXTURED_SCALE_SHARE` of the largest is chosen (detected a
     second time when it was not kept). With two or more cores, two scales are tried
     at a time in two threads. Memory: the best candidate's smoothed image and order stay,
-    plus the one or two being tried (in the work type, :func:`_noise.work_dtype`).
+    plus the one or two being tried (in the work type, :func:`_noise.work_dtype`); on an
+    image of at most :data:`QUEUED_VOXELS`, every scale is queued at once and all of them
+    are kept.
     ``smoothed_at`` (``(sigma, image)``): the image already smoothed at one scale, taken by
     a candidate at exactly that scale instead of smoothing again.
     """
@@ -261,8 +270,11 @@ def detect(image: ScanImage, params: SegmentParams, *, noise: _noise.NoiseLevel,
     counts: list[int] = []
     todo = iter(scales)
     tell(f"smoothing scale 1 of {len(scales)}")
+    small = image.data.size <= QUEUED_VOXELS
+    kept: list[Detection] = []  # a small image's every candidate, for the texture rule
+    queued = len(scales) if small else workers
     with ThreadPoolExecutor(max_workers=workers, thread_name_prefix="cavitas-scale") as pool:
-        running = deque(pool.submit(candidate, sig) for sig in itertools.islice(todo, workers))
+        running = deque(pool.submit(candidate, sig) for sig in itertools.islice(todo, queued))
         while running:
             result = running.popleft().result()
             tried.append({"sigma": float((result.sigma * spacing).max()),
@@ -272,6 +284,8 @@ def detect(image: ScanImage, params: SegmentParams, *, noise: _noise.NoiseLevel,
             counts.append(result.count)
             if best is None or result.count > best.count:
                 best = result
+            if small:
+                kept.append(result)
             del result  # a losing candidate is freed before the next scale starts
             if len(tried) < len(scales):
                 tell(f"smoothing scale {len(tried) + 1} of {len(scales)}")
@@ -283,7 +297,7 @@ def detect(image: ScanImage, params: SegmentParams, *, noise: _noise.NoiseLevel,
                           grain=noise.correlation)
     if not np.array_equal(scales[chosen], best.sigma):  # texture: a finer scale than the best
         del best  # memory: one detection at a time
-        best = candidate(scales[chosen])
+        best = kept[chosen] if kept else candidate(scales[chosen])
     return best, tried, seeds
 
 

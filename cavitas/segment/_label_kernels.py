@@ -175,12 +175,13 @@ def resolve_arrivals(owner, values, ascending, reg_start, reg_key, reg_label, co
 
 @njit(cache=True, nogil=True)
 def basin_pass(order, rank, label_of_core, outside_seed, nz, ny, nx, zmargin, off, offz,
-               outside_label, out):
+               outside_label, out, fetch):
     """Flood from the kept cores into ``out`` (flat); return the number of voxels labelled.
 
     ``label_of_core[v]`` is the basin label (>= 1) of a kept core, else 0; ``rank[v]`` is
     the position of ``v`` in ``order`` (-1 beyond the ROI: ``outside_seed``, which starts
-    in the outside basin).
+    in the outside basin). ``fetch``: prefetch ahead
+    (:func:`cavitas.cubical._kernels.worth_prefetching`).
     """
     pending = -1
     n = order.shape[0]
@@ -194,9 +195,10 @@ def basin_pass(order, rank, label_of_core, outside_seed, nz, ny, nx, zmargin, of
     waiting = np.empty(off.shape[0], np.int64)
     full = off.shape[0] > 2 * (2 + zmargin)
     for r in range(n):
-        prefetch_around(out, order, r + _AHEAD, nz, ny, nx, zmargin, full)
-        if r + _AHEAD < n:
-            prefetch(label_of_core, order[r + _AHEAD])
+        if fetch:
+            prefetch_around(out, order, r + _AHEAD, nz, ny, nx, zmargin, full)
+            if r + _AHEAD < n:
+                prefetch(label_of_core, order[r + _AHEAD])
         v = order[r]
         if label_of_core[v] > 0:
             out[v] = label_of_core[v]
@@ -208,7 +210,21 @@ def basin_pass(order, rank, label_of_core, outside_seed, nz, ny, nx, zmargin, of
         best = 0
         mixed = False
         m = 0
-        for k in range(off.shape[0]):
+        seen = False
+        if inner:  # without branches: the largest and smallest label around, if none waits
+            hi = 0
+            lo = outside_label + 1
+            waits = False
+            for k in range(off.shape[0]):
+                lab = out[v + off[k]]
+                waits |= lab == pending
+                hi = max(hi, lab)
+                lo = min(lo, lab if lab > 0 else outside_label + 1)
+            seen = not waits
+            if seen and hi > 0:
+                best = hi
+                mixed = lo != hi
+        for k in range(off.shape[0] if seen else 0, off.shape[0]):  # else one by one
             if inner:
                 u = v + off[k]
             else:

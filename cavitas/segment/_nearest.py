@@ -4,8 +4,10 @@
 return_distances=False, return_indices=True)`` returns, index for index, ties included:
 it runs the same separable Voronoi construction (Maurer, Qi and Raghavan 2003) with the
 same comparisons, one axis after the other (axis 0 first), every line of an axis on its
-own, so the lines are shared out among the cores. scipy runs it on one core. Memory: the
-same 12 bytes per voxel as scipy's indices.
+own, so the lines are shared out among the cores. On the first axis every feature is a
+voxel of the line itself, where the construction amounts to the nearest feature voxel of
+the line, the lower of two equidistant: two scans find it (:func:`_nearest_on_line`).
+scipy runs it on one core. Memory: the same 12 bytes per voxel as scipy's indices.
 
 Maurer, C. R., Qi, R., Raghavan, V. (2003). A linear time algorithm for computing exact
 Euclidean distance transforms of binary images in arbitrary dimensions. IEEE Trans.
@@ -91,6 +93,33 @@ def _voronoi_line(line, d, c0, c1, c2, f, g):
 
 
 @njit(cache=True, nogil=True)
+def _nearest_on_line(line, d, c0, c1, c2, g):
+    """:func:`_voronoi_line` for the first axis, where each feature is a voxel's own: every
+    feature lies on the line, so the construction keeps all of them and each voxel takes
+    the nearest one, the lower of two equidistant; two scans find it (``g``: scratch)."""
+    length = line.shape[1]
+    before = -1
+    for ii in range(length):
+        if line[0, ii] >= 0:
+            before = ii
+        g[ii] = before
+    if before < 0:
+        return  # no feature on the line: left as it is
+    after = -1
+    for ii in range(length - 1, -1, -1):
+        if line[0, ii] >= 0:
+            after = ii
+            continue  # a feature is its own nearest
+        q = g[ii]
+        if q < 0 or (after >= 0 and after - ii < ii - q):
+            q = after
+        line[0, ii] = c0
+        line[1, ii] = c1
+        line[2, ii] = c2
+        line[d, ii] = q
+
+
+@njit(cache=True, nogil=True)
 def _own_features(mask, feat, start, stop):
     """Each voxel of planes ``[start, stop)`` of axis 1 its own coordinates, or none (-1)."""
     n0, n1, n2 = mask.shape
@@ -106,9 +135,18 @@ def _own_features(mask, feat, start, stop):
 
 
 @njit(cache=True, nogil=True)
-def _axis_pass(feat, d, outer_axis, start, stop):
+def _line(line, d, c0, c1, c2, f, g, first):
+    """One line: :func:`_nearest_on_line` on the ``first`` axis, else :func:`_voronoi_line`."""
+    if first:
+        _nearest_on_line(line, d, c0, c1, c2, g)
+    else:
+        _voronoi_line(line, d, c0, c1, c2, f, g)
+
+
+@njit(cache=True, nogil=True)
+def _axis_pass(feat, d, outer_axis, first, start, stop):
     """The lines along axis ``d`` whose coordinate on ``outer_axis`` lies in
-    ``[start, stop)``."""
+    ``[start, stop)`` (``first``: the first axis, every feature a voxel's own)."""
     n0, n1, n2 = feat.shape[1:]
     length = feat.shape[1 + d]
     f = np.empty((length, 3), np.int64)
@@ -117,15 +155,15 @@ def _axis_pass(feat, d, outer_axis, start, stop):
         if d == 0:
             for inner in range(n2 if outer_axis == 1 else n1):
                 i1, i2 = (outer, inner) if outer_axis == 1 else (inner, outer)
-                _voronoi_line(feat[:, :, i1, i2], 0, 0, i1, i2, f, g)
+                _line(feat[:, :, i1, i2], 0, 0, i1, i2, f, g, first)
         elif d == 1:
             for inner in range(n2 if outer_axis == 0 else n0):
                 i0, i2 = (outer, inner) if outer_axis == 0 else (inner, outer)
-                _voronoi_line(feat[:, i0, :, i2], 1, i0, 0, i2, f, g)
+                _line(feat[:, i0, :, i2], 1, i0, 0, i2, f, g, first)
         else:
             for inner in range(n1 if outer_axis == 0 else n0):
                 i0, i1 = (outer, inner) if outer_axis == 0 else (inner, outer)
-                _voronoi_line(feat[:, i0, i1, :], 2, i0, i1, 0, f, g)
+                _line(feat[:, i0, i1, :], 2, i0, i1, 0, f, g, first)
 
 
 def _share(pool: ThreadPoolExecutor, workers: int, count: int, kernel: Callable[..., None],
@@ -161,9 +199,11 @@ def nearest_feature(mask: np.ndarray) -> np.ndarray:
     workers = min(usable_cores(), 8)
     with ThreadPoolExecutor(max_workers=workers, thread_name_prefix="cavitas-nearest") as pool:
         _share(pool, workers, sides[1], _own_features, cube, feat)
+        first = True
         for d in range(3):  # one axis after the other; its lines in parallel
             if sides[d] == 1:
                 continue  # a line of one voxel keeps its own feature
             outer = max((a for a in range(3) if a != d), key=lambda a: sides[a])
-            _share(pool, workers, sides[outer], _axis_pass, feat, d, outer)
+            _share(pool, workers, sides[outer], _axis_pass, feat, d, outer, first)
+            first = False
     return feat[3 - mask.ndim:].reshape((mask.ndim, *shape))

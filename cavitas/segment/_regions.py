@@ -38,6 +38,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import ndimage as ndi
 
+from ..cubical._kernels import worth_prefetching
 from ..cubical._neighbors import dual_connectivity, grid_shape3, neighbor_offsets
 from ._label_kernels import (
     basin_pass,
@@ -133,7 +134,7 @@ def basin_map(sweep: Sweep, cores: np.ndarray, outside_label: int) -> np.ndarray
     label_of_core[cores] = np.arange(1, len(cores) + 1)
     out = np.zeros(sweep.values.size, dtype)
     basin_pass(sweep.order, sweep.rank, label_of_core, sweep.outside, *sweep.grid,
-               sweep.offsets, sweep.offsets_zyx, outside_label, out)
+               sweep.offsets, sweep.offsets_zyx, outside_label, out, worth_prefetching(sweep.shape))
     return out.reshape(sweep.shape)
 
 
