@@ -169,9 +169,16 @@ def _csv_column(column: np.ndarray) -> list[str]:
     --------
     >>> _csv_column(np.array([1.5, np.nan])), _csv_column(np.array([0.1], np.float32))
     (['1.5', ''], ['0.1'])
+    >>> _csv_column(np.array([2.5e9, np.nan, -np.inf, 1e-5], np.float32))
+    ['2500000000.0', '', '-inf', '1e-05']
     """
-    if column.dtype == np.float32 or column.ndim != 1:  # float32: its own shortest decimal
+    if column.ndim != 1:
         return [_csv_cell(v) for v in column]
+    if column.dtype == np.float32:  # its own shortest decimal, written as Python writes it
+        # NumPy's shortest float32 text equals Python's repr except where NumPy turns to
+        # exponent notation sooner (from 1e8): those few go through Python's float
+        return ["" if text == "nan" else repr(float(text)) if "e" in text else text
+                for text in column.astype(str).tolist()]
     if column.dtype == np.float64:
         return ["" if math.isnan(v) else repr(float(f"{v:.{CSV_DIGITS}g}"))
                 for v in column.tolist()]

@@ -82,6 +82,10 @@ def test_cells_taken_column_by_column_equal_cell_by_cell():
     columns = [rng.normal(size=50) * 10.0 ** rng.integers(-9, 9, 50),
                np.r_[np.nan, np.inf, -np.inf, 0.0, -0.0, 1 / 3],
                rng.random(20).astype(np.float32), rng.random(20).astype(np.float16),
+               # float32 over its whole range: where NumPy's text turns to exponents sooner
+               (10.0 ** rng.uniform(-45, 38, 2000) * rng.choice([-1, 1], 2000)).astype(
+                   np.float32),
+               np.array([np.nan, np.inf, -np.inf, 0.0, -0.0, 1e-45, 1e8, 1e16], np.float32),
                rng.integers(-10**12, 10**12, 30), rng.random(10) < 0.5,
                np.array(["a", "µm³", ""]), np.array([1, "x", None, 2.5], dtype=object)]
     for column in columns:
