@@ -257,7 +257,6 @@ def small_region_threshold(area: np.ndarray, persistence: np.ndarray,
     return need
 
 
-
 def enough_for_size(tree, area: np.ndarray, candidates: np.ndarray, *,
                     walls_count: bool) -> np.ndarray:
     """Nodes with evidence enough for their size: ordinary ones, and small ones that stand
