@@ -3,7 +3,9 @@ OME-Zarr image or an HDF5 file segmented chunk by chunk on Dask workers
 (:func:`run_chunked`).
 
 Only the mode :func:`cavitas.segment._chunked_segment.segment_in_chunks` computes is
-taken: ``--region component`` with a hand threshold. Everything else is refused in one
+taken: ``--region component`` with a hand threshold, or with the automatic one at the scale
+``--smooth`` gives (no ``--mask``; no polarity check, which run.json and the summary say).
+Everything else is refused in one
 sentence before any work starts (exit code 2), so nothing is written. The outputs go to a
 staging folder published at the end (:mod:`cavitas.io._staging`): labels.zarr (and
 enclosures.zarr) written chunk by chunk, regions.csv and regions.json (measured chunk by

@@ -89,7 +89,7 @@ class ChunkedSegmentation:
 def segment_in_chunks(image: Any, *, params: SegmentParams, spacing: np.ndarray, unit: str,
                       mask: Any = None, name: str = "image",
                       smoothed_store: str | os.PathLike | None = None) -> ChunkedSegmentation:
-    """:func:`cavitas.segment.segment` of a Dask array in the hand-set component mode.
+    """:func:`cavitas.segment.segment` of a Dask array in component mode, one scale.
 
     Parameters
     ----------
