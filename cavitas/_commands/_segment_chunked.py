@@ -3,7 +3,9 @@ OME-Zarr image or an HDF5 file segmented chunk by chunk on Dask workers
 (:func:`run_chunked`).
 
 Only the mode :func:`cavitas.segment._chunked_segment.segment_in_chunks` computes is
-taken: ``--region component`` with a hand threshold. Everything else is refused in one
+taken: ``--region component`` with a hand threshold, or with the automatic one at the scale
+``--smooth`` gives (no ``--mask``; no polarity check, which run.json and the summary say).
+Everything else is refused in one
 sentence before any work starts (exit code 2), so nothing is written. The outputs go to a
 staging folder published at the end (:mod:`cavitas.io._staging`): labels.zarr (and
 enclosures.zarr) written chunk by chunk, regions.csv and regions.json (measured chunk by
@@ -36,6 +38,9 @@ __all__ = ["NOT_MADE", "run_chunked"]
 NOT_MADE = ("the wall-thickness columns of regions.csv (the local thickness of a wall voxel "
             "depends on the largest ball inside the walls, which no fixed chunk overlap "
             "bounds; the in-memory route leaves them out with --no-thickness)")
+#: ... and, with the automatic threshold, does not check.
+NOT_CHECKED = ("the polarity check (whether --walls looks inverted: a second detection of the "
+               "other polarity; polarity_hint stays null)")
 #: The smoothed image, stored once in the staging folder (which the workers write to
 #: anyway) for every pass after the first to read; removed before the outputs are published,
 #: and with the staging folder if the run fails.
@@ -58,12 +63,17 @@ def _refuse(args: argparse.Namespace, settings: Any) -> None:
     """Refuse, in one sentence each, what the chunked route does not compute."""
     name = args.file
     params, options = settings.params, settings.options
-    if params.automatic:
+    if params.automatic and params.smooth is None:
         raise ParameterError(
-            f"The automatic threshold needs whole-image statistics that are not computed "
-            f"chunk by chunk yet: give --min-persistence or --relative-persistence (and "
-            f"--no-auto if --auto is set) to segment '{name}' with --scheduler or "
-            f"--dask-local.")
+            f"The automatic threshold chunk by chunk is computed at one smoothing scale: "
+            f"give --smooth (or --min-persistence or --relative-persistence) to segment "
+            f"'{name}' with --scheduler or --dask-local.", parameters=("smooth",))
+    if params.automatic and settings.options.mask:
+        raise ParameterError(
+            f"The automatic threshold chunk by chunk does not take a region of interest "
+            f"yet (its two-class split subsamples the whole image): leave out --mask or "
+            f"give --min-persistence to segment '{name}' with --scheduler or --dask-local.",
+            parameters=("mask",))
     if params.region != "component":
         raise ParameterError(
             f"--region {params.region} needs the whole volume (basin flooding, the border-cut "
@@ -229,6 +239,7 @@ def run_chunked(args: argparse.Namespace, settings: Any) -> int:
 
     started = time.perf_counter()
     _refuse(args, settings)
+    not_made = f"{NOT_MADE}; {NOT_CHECKED}" if settings.params.automatic else NOT_MADE
     options = settings.options
     reading = settings.reading.kwargs()
     targets = _targets(args, settings)
@@ -267,8 +278,13 @@ def run_chunked(args: argparse.Namespace, settings: Any) -> int:
                                    volume=volume, walls=params.walls)
             parameters = {**params.to_dict(), "threshold": seg.threshold,
                           "robust_range": seg.robust_range, **_noise_record(seg.noise),
-                          "smooth_sigma": seg.smooth_sigma, "automatic": False,
+                          "smooth_sigma": seg.smooth_sigma, "automatic": params.automatic,
                           "scale_basis": "given" if params.smooth is not None else "none",
+                          "scales_tried": seg.choice.scales_tried, "gap": seg.choice.gap,
+                          "threshold_rule": seg.choice.rule, "polarity_hint": None,
+                          "splits_joined": seg.choice.splits_joined,
+                          "texture_pieces_joined": seg.choice.texture_joined,
+                          "cell_sized_splits": seg.choice.cell_sized,
                           "connectivity": seg.connectivity, "unit": unit}
             if "report" in targets:
                 import dask.array as da
@@ -290,7 +306,7 @@ def run_chunked(args: argparse.Namespace, settings: Any) -> int:
             "spacing": spacing.tolist(),
             "unit": unit,
             "route": f"chunk by chunk on {workers} Dask worker(s)",
-            "not_made": NOT_MADE,
+            "not_made": not_made,
             "read_options": reading,
             "parameters": parameters,
             "options": options.to_dict(),
@@ -313,11 +329,13 @@ def run_chunked(args: argparse.Namespace, settings: Any) -> int:
             discard_staging(staging, outdir, made=made)
     if not args.quiet:
         shape = " x ".join(map(str, image.chunk_shape))
+        rule = f", set by the {seg.choice.rule}" if seg.choice.rule else ""
         print(f"{args.file}: {counts['chamber']} regions (component mode), "
               f"{counts['enclosure']} enclosures; persistence threshold "
-              f"{seg.threshold:.4g} (intensity units), smoothing σ {seg.smooth_sigma:.3g}")
+              f"{seg.threshold:.4g} (intensity units{rule}), smoothing σ "
+              f"{seg.smooth_sigma:.3g}")
         print(f"  computed chunk by chunk on {workers} Dask worker(s), chunks of {shape} "
-              f"voxels; not made on this route: {NOT_MADE}")
+              f"voxels; not made on this route: {not_made}")
         print(f"  outputs in {args.out}: " + ", ".join(p.name for p in targets.values()))
         print(RESEARCH_ONLY)
     return 0

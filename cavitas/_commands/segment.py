@@ -59,10 +59,14 @@ examples:
       chunk by chunk, then the tables, diagram files, report and run.json: the same
       labels, rows and diagram as without --dask-local with --no-thickness. Only this
       mode is computed this way so far: --region component, a threshold given by hand
-      (--min-persistence or --relative-persistence), --smooth given or none; what needs
-      the whole volume (the automatic threshold, basin and breach regions,
-      --keep-border, shells, partition, meshes) is refused in one sentence, and the
-      wall thickness is not made. With --smooth, the output folder also holds the
+      (--min-persistence or --relative-persistence) with --smooth given or none
+  cavitas segment big.zarr -o out --dask-local 4 --region component --smooth 1.5
+      the same with the automatic threshold, at the one scale --smooth gives: the
+      threshold, its rule and the regions of the run without --dask-local (which also
+      checks the polarity; this route does not). What needs the whole volume (the
+      automatic choice of the scale, the automatic threshold with --mask, basin and
+      breach regions, --keep-border, shells, partition, meshes) is refused in one
+      sentence, and the wall thickness is not made. With --smooth, the output folder also holds the
       smoothed image while the run lasts (4 bytes per voxel for data of up to 16 bits
       and float32, 8 otherwise, before compression)
 
@@ -98,7 +102,8 @@ def register(subparsers: Any, *, parents: list[argparse.ArgumentParser],
     p.add_argument("--force", action="store_true", help="replace outputs that already exist")
     add_memory_option(p)
     add_cluster_options(p, what="the segmentation (so far only --region component with a "
-                             "threshold given by hand: see the examples)")
+                             "threshold given by hand or --smooth given: see the "
+                             "examples)")
     p.set_defaults(func=run)
     return p
 

@@ -1,10 +1,11 @@
 """One chunked volume segmented chunk by chunk on Dask (:func:`segment_in_chunks`).
 
-The mode wired so far: a persistence threshold given by hand (absolute, or relative to the
-robust range, :func:`._chunked_statistics.percentiles_in_chunks`; no automatic
-significance), the smoothing given or none, and
-``region="component"`` (each chamber the component below its level that holds its core;
-no border-cut check and no island filling, which flood or fill over the whole volume).
+The modes wired so far: a persistence threshold given by hand (absolute, or relative to the
+robust range, :func:`._chunked_statistics.percentiles_in_chunks`), the smoothing given or
+none; or the automatic threshold at one given smoothing scale, without a region of
+interest; and ``region="component"`` (each chamber the component below its level that
+holds its core; no border-cut check and no island filling, which flood or fill over the
+whole volume).
 Its steps are those of :func:`cavitas.segment.segment` in that mode, each from a block
 tested equal to its whole-volume step:
 
@@ -15,7 +16,11 @@ tested equal to its whole-volume step:
    read it instead of smoothing again;
 2. the cavity tree (:func:`cavitas.cubical._chunked_tree.tree_chunks_on_dask`);
 3. the threshold, selection (:func:`._select.select_nodes`, ``top``) and the split rule on
-   the tree, on the client, as :func:`._detect.detect` does without the automatic rule;
+   the tree, on the client: :func:`._detect.detect` itself at the one scale, given the
+   merged tree, the noise level (:func:`._chunked_statistics.noise_level_in_chunks`) and,
+   in automatic mode, the two-class split (:func:`._chunked_split.class_split_in_chunks`)
+   in place of the in-memory sweep and statistics (no polarity check: that is a second
+   detection, of the other polarity);
 4. pruning from the tree alone (:func:`._tree_order.prune_by_levels`);
 5. chamber and enclosure labels per chunk (:func:`._chunked_regions.chunked_nested_map`),
    counted per chunk; the volume bounds, numbering and table from those counts
@@ -32,6 +37,7 @@ from typing import Any
 
 import numpy as np
 
+from .._errors import ParameterError
 from .._table import Table
 from ..cubical._neighbors import check_connectivity
 from ..cubical._tree import CavityTree
@@ -40,14 +46,27 @@ from . import _noise
 from ._chunked_finite import fill_outside_in_chunks
 from ._chunked_regions import chunked_nested_map
 from ._chunked_smooth import smooth_in_chunks
+from ._chunked_split import class_split_in_chunks
 from ._chunked_statistics import noise_level_in_chunks, percentiles_in_chunks
+from ._detect import ScanImage, Swept, detect
 from ._params import SegmentParams
 from ._regions import face_slices
 from ._result import ChamberValues, EnclosureValues, RegionCounts, number_regions
-from ._select import persistence_threshold, select_nodes, split_rule
 from ._tree_order import prune_by_levels
 
-__all__ = ["ChunkedSegmentation", "segment_in_chunks"]
+__all__ = ["ChunkedSegmentation", "ThresholdChoice", "segment_in_chunks"]
+
+
+@dataclass(frozen=True)
+class ThresholdChoice:
+    """What set the persistence threshold, as ``segment()`` records it in run.json."""
+
+    rule: str | None                    # of _detect.THRESHOLD_RULES; None: set by hand
+    gap: float | None                   # persistence at the diagram's gap, if that rule
+    scales_tried: list[dict[str, Any]]  # the one scale tried: its sigma, threshold, count...
+    splits_joined: int                  # significant splits the split rule joined
+    texture_joined: int                 # significant pieces kept with their region
+    cell_sized: int                     # nodes promoted as cell-sized splits
 
 
 @dataclass(frozen=True)
@@ -64,21 +83,23 @@ class ChunkedSegmentation:
     connectivity: int
     chamber_nodes: np.ndarray    # cavity-tree node of each chamber row
     noise: _noise.NoiseLevel     # as segment() estimates it (noise_sigma: its amplitude)
+    choice: ThresholdChoice
 
 
 def segment_in_chunks(image: Any, *, params: SegmentParams, spacing: np.ndarray, unit: str,
                       mask: Any = None, name: str = "image",
                       smoothed_store: str | os.PathLike | None = None) -> ChunkedSegmentation:
-    """:func:`cavitas.segment.segment` of a Dask array in the hand-set component mode.
+    """:func:`cavitas.segment.segment` of a Dask array in component mode, one scale.
 
     Parameters
     ----------
     image : dask.array.Array
         The 2D or 3D image, in its own chunks (never read whole).
     params : SegmentParams
-        ``region="component"``, not automatic (a ``min_persistence`` or
-        ``relative_persistence``), no ``level_fraction`` or ``keep_border`` (the command
-        line refuses the others before calling this).
+        ``region="component"``, no ``level_fraction`` or ``keep_border`` (the command
+        line refuses the others before calling this). In automatic mode (no
+        ``min_persistence`` or ``relative_persistence``) with one ``smooth`` given and no
+        ``mask`` only.
     spacing, unit
         The voxel size per axis and its unit.
     mask : dask.array.Array of bool, optional
@@ -116,8 +137,11 @@ def segment_in_chunks(image: Any, *, params: SegmentParams, spacing: np.ndarray,
     import dask
     import dask.array as da
 
-    from ..cubical._chunked_tree import tree_chunks_on_dask
-
+    if params.automatic and (params.smooth is None or mask is not None):
+        raise ParameterError(
+            f"The automatic threshold of '{name}' chunk by chunk needs one smoothing scale "
+            f"given (smooth) and no region of interest (mask).",
+            parameters=("smooth" if params.smooth is None else "mask",))
     floor = _noise.QUANTISATION_SIGMA if np.issubdtype(image.dtype, np.integer) else 0.0
     if image.dtype == np.bool_:
         image = image.astype(np.uint8)
@@ -140,18 +164,24 @@ def segment_in_chunks(image: Any, *, params: SegmentParams, spacing: np.ndarray,
                 raise
             raise failure from exc
         smoothed = da.from_zarr(os.fspath(smoothed_store))
-    chunked = tree_chunks_on_dask(smoothed, walls="bright", connectivity=connectivity,
-                                  mask=mask)
-    tree = chunked.tree
+    noise = noise_level_in_chunks(image, floor=floor)  # as segment() estimates it
     robust_range = None
     if params.relative_persistence is not None:  # as segment(): 0.5th to 99.5th percentile
         low, high = percentiles_in_chunks(image, [0.5, 99.5])
         robust_range = float(high - low)
-    tau = persistence_threshold(auto=None, absolute=params.min_persistence,
-                                relative=params.relative_persistence,
-                                robust_range=robust_range or 0.0)
-    significant = select_nodes(tree.persistence, tree.parent, tau, params.top)
-    keep = split_rule(tree, significant, params.split_fraction)
+    sweep = _ChunkedSweep(smoothed, sigma, mask, connectivity)
+    # segment()'s own detection at the one scale, on the merged tree
+    det, tried, _ = detect(ScanImage(image, sign, _noise.work_dtype(image.dtype)), params,
+                           noise=noise, robust_range=robust_range or 0.0, spacing=spacing,
+                           connectivity=connectivity, roi=None, tell=lambda text: None,
+                           sweep=sweep)
+    tau, keep = det.threshold, det.keep
+    choice = ThresholdChoice(det.rule, det.gap, tried,
+                             int(np.count_nonzero(det.significant & ~keep)),
+                             det.texture_joined, det.cell_sized)
+    del det
+    chunked = sweep.merged()
+    tree = chunked.tree
     pruned = prune_by_levels(tree, keep, tau)
     hier = pruned.hier
     n_ch, n_enc = hier.n_chambers, hier.n_enclosures
@@ -192,9 +222,34 @@ def segment_in_chunks(image: Any, *, params: SegmentParams, spacing: np.ndarray,
         enclosure_lut = np.zeros(n_ch + n_enc + 1, dtype)
         enclosure_lut[n_ch + 1:] = numbered.enclosure_ids
         enclosure_labels = enclosures.map_blocks(_renumber, enclosure_lut, dtype=dtype)
-    noise = noise_level_in_chunks(image, floor=floor)  # as segment() estimates it
     return ChunkedSegmentation(labels, enclosure_labels, numbered.table, tau, robust_range,
-                               scale, tree, connectivity, numbered.chamber_nodes, noise)
+                               scale, tree, connectivity, numbered.chamber_nodes, noise, choice)
+
+
+@dataclass
+class _ChunkedSweep:
+    """The one smoothing scale's sweep on Dask, as :func:`._detect.detect` asks for it
+    (:class:`._detect.Swept`); the merged tree is kept for the label passes."""
+
+    smoothed: Any        # the Dask array, smoothed at ``sigma``
+    sigma: np.ndarray
+    mask: Any
+    connectivity: int
+    chunked: Any = None  # cubical._chunked_tree.ChunkedTree, once swept
+
+    def __call__(self, sigma: np.ndarray, automatic: bool) -> Swept:
+        from ..cubical._chunked_tree import tree_chunks_on_dask
+
+        assert np.array_equal(sigma, self.sigma)  # one scale: the one smoothed
+        self.chunked = tree_chunks_on_dask(self.smoothed, walls="bright",
+                                           connectivity=self.connectivity, mask=self.mask)
+        split = class_split_in_chunks(self.smoothed) if automatic else None
+        return Swept(self.smoothed, None, self.chunked.tree, split)
+
+    def merged(self) -> Any:
+        """The chunked tree (:class:`cavitas.cubical._chunked_tree.ChunkedTree`)."""
+        assert self.chunked is not None  # swept first
+        return self.chunked
 
 
 def _regular(chunks: tuple[tuple[int, ...], ...]) -> bool:

@@ -23,7 +23,7 @@ from ..cubical._tree import OUTSIDE, CavityTree
 from . import _noise
 from ._cell_sized import cell_sized_splits
 from ._discovery import false_discovery_threshold, share_passing
-from ._evidence import WHITE_NOISE_DIP, eligible_nodes, enough_for_size
+from ._evidence import WHITE_NOISE_DIP, ClassSplit, class_split, eligible_by_split, enough_for_size
 from ._gap import find_empty_stretch, find_gap
 from ._params import AUTO_SCALES, SegmentParams
 from ._polarity import census, polarity_hint
@@ -33,7 +33,7 @@ from ._select import close_upward, persistence_threshold, select_nodes, split_ru
 from ._texture import texture_splits
 
 __all__ = ["QUEUED_VOXELS", "TEXTURED_SCALE_SHARE", "THRESHOLD_RULES", "Detection", "ScanImage",
-           "chosen_scale", "close_faces", "detect", "on_faces", "polarity_check",
+           "Swept", "chosen_scale", "close_faces", "detect", "on_faces", "polarity_check",
            "statistics_mask", "textured_reach"]
 
 
@@ -87,6 +87,20 @@ class Detection:
     def count(self) -> int:
         """Nodes passing every criterion."""
         return int(np.count_nonzero(self.passing))
+
+
+class Swept(NamedTuple):
+    """One candidate scale swept: what :func:`detect` judges its cavities on.
+
+    In memory the image, its order and tree; on the chunked route
+    (:mod:`cavitas.segment._chunked_segment`) the smoothed image is a Dask array, the
+    order None (never formed) and the tree merged from the chunks'.
+    """
+
+    smoothed: Any        # the image at that scale, walls high
+    order: Any           # its cavity-sweep order (None on the chunked route)
+    tree: CavityTree
+    split: ClassSplit | None  # its two classes (automatic mode only)
 
 
 def node_sizes(tree: CavityTree) -> np.ndarray:
@@ -160,7 +174,8 @@ def on_faces(flat_index: np.ndarray, shape: tuple[int, ...]) -> np.ndarray:
 def detect(image: ScanImage, params: SegmentParams, *, noise: _noise.NoiseLevel,
            robust_range: float, spacing: np.ndarray, connectivity: int,
            roi: np.ndarray | None, tell: Callable[[str], None],
-           smoothed_at: tuple[np.ndarray, np.ndarray] | None = None
+           smoothed_at: tuple[np.ndarray, np.ndarray] | None = None,
+           sweep: Callable[[np.ndarray, bool], Swept] | None = None
            ) -> tuple[Detection, list[dict[str, Any]], list[ScaleSeeds]]:
     """Detection scale, its sweep and threshold: the candidate with most significant cavities;
     also what every scale tried found (for run.json), and the seeds of its chambers.
@@ -182,7 +197,9 @@ def detect(image: ScanImage, params: SegmentParams, *, noise: _noise.NoiseLevel,
     image of at most :data:`QUEUED_VOXELS`, every scale is queued at once and all of them
     are kept.
     ``smoothed_at`` (``(sigma, image)``): the image already smoothed at one scale, taken by
-    a candidate at exactly that scale instead of smoothing again.
+    a candidate at exactly that scale instead of smoothing again. ``sweep(sigma, automatic)``:
+    smooths and sweeps a candidate scale (with its class split in automatic mode) in place
+    of the in-memory steps (the chunked route's, on Dask workers).
     """
     from .. import cubical
 
@@ -199,17 +216,22 @@ def detect(image: ScanImage, params: SegmentParams, *, noise: _noise.NoiseLevel,
 
     analysed = int(np.count_nonzero(roi)) if roi is not None else image.data.size
 
-    def candidate(sig: np.ndarray) -> Detection:
-        # the null first: its simulation (first use per shape and scale) then peaks alone
-        blurred = noise.null_sigma(tuple(sig))
-        null = (_noise.null_distribution(image.data.shape, blurred, connectivity)
-                if params.automatic else None)
+    def in_memory(sig: np.ndarray, automatic: bool) -> Swept:
         if smoothed_at is not None and np.array_equal(smoothed_at[0], sig):
             smoothed = smoothed_at[1]
         else:
             smoothed = image.smoothed(sig)
         order, tree = cubical.cavity_sweep(smoothed, walls="bright", connectivity=connectivity,
                                            mask=roi)
+        split = class_split(smoothed, image.statistics_mask) if automatic else None
+        return Swept(smoothed, order, tree, split)
+
+    def candidate(sig: np.ndarray) -> Detection:
+        # the null first: its simulation (first use per shape and scale) then peaks alone
+        blurred = noise.null_sigma(tuple(sig))
+        null = (_noise.null_distribution(image.data.shape, blurred, connectivity)
+                if params.automatic else None)
+        smoothed, order, tree, split = (sweep or in_memory)(sig, null is not None)
         pers = tree.persistence
         # a breach on the closed faces: the specimen as a whole, not a cavity
         face_breach = on_faces(tree.breach, smoothed.shape) if image.closed_border else None
@@ -219,8 +241,9 @@ def detect(image: ScanImage, params: SegmentParams, *, noise: _noise.NoiseLevel,
         promoted = None
         if null is not None:  # automatic mode
             smoothed_noise = _noise.smoothed_noise_sigma(noise.amplitude, blurred)
-            eligible = eligible_nodes(
-                tree, smoothed, image.statistics_mask, smoothed_noise,
+            assert split is not None  # a sweep in automatic mode gives it
+            eligible = eligible_by_split(
+                tree, split, smoothed.shape, smoothed_noise,
                 breach_dip=WHITE_NOISE_DIP * smoothed_noise if noise.white else 0.0)
             if face_breach is not None:
                 eligible &= ~face_breach

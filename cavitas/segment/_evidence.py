@@ -39,6 +39,7 @@ Syst. Man Cybern. 9(1), 62-66. doi:10.1109/TSMC.1979.4310076
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
@@ -47,8 +48,9 @@ from scipy import ndimage as ndi
 from ._two_class import otsu_split
 
 __all__ = ["MIN_CLASS_SEPARATION", "WALL_REACH", "WHITE_NOISE_DIP", "ClassSplit", "class_split",
-           "eligible_nodes", "small_region_threshold", "straddles", "typical_size",
-           "enough_for_size", "walls_like_neighbours"]
+           "eligible_by_split", "eligible_nodes", "sample_step", "small_region_threshold",
+           "split_blocks", "split_of_samples", "straddles", "typical_size", "enough_for_size",
+           "walls_like_neighbours"]
 
 #: Largest number of voxels a two-class threshold is computed from.
 _SAMPLE = 1 << 18
@@ -142,29 +144,63 @@ def class_split(values: np.ndarray, roi: np.ndarray | None = None) -> ClassSplit
     >>> 0 < split.whole < 1
     True
     """
-    whole, low, high = _otsu(values, roi)
-    shape = values.shape
+    return split_of_samples(values.shape, lambda part: _subsample(
+        values[part], None if roi is None else roi[part]))
+
+
+def split_blocks(shape: tuple[int, ...]) -> tuple[tuple[int, ...], tuple[int, ...]]:
+    """The blocks' side per axis and their count per axis, for an image of ``shape``.
+
+    Examples
+    --------
+    >>> split_blocks((64, 200))
+    ((24, 50), (3, 4))
+    """
     block = tuple(max(_BLOCK_MIN, -(-n // _BLOCKS)) for n in shape)
-    counts = tuple(-(-n // b) for n, b in zip(shape, block, strict=True))
+    return block, tuple(-(-n // b) for n, b in zip(shape, block, strict=True))
+
+
+def sample_step(count: int) -> int:
+    """Every how many voxels (of ``count``, in C order) the regular subsample takes one.
+
+    Examples
+    --------
+    >>> sample_step(1000), sample_step(3 * 2**18 + 5)
+    (1, 3)
+    """
+    return max(1, count // _SAMPLE)
+
+
+def split_of_samples(shape: tuple[int, ...],
+                     sample_of: Callable[[tuple[slice, ...]], np.ndarray]) -> ClassSplit:
+    """:func:`class_split` of an image of ``shape`` from the regular subsamples of its parts
+    (``sample_of``: of the whole image, and of a block given as its slices), in any
+    order (the thresholds and medians do not depend on it). The chunked route gathers the
+    subsamples chunk by chunk (:mod:`cavitas.segment._chunked_split`)."""
+    whole, low, high = _otsu(sample_of(tuple(slice(None) for _ in shape)))
+    block, counts = split_blocks(shape)
     grid = np.full(counts, whole)
     if math.prod(counts) > 1 and high > low:
         for idx in np.ndindex(*counts):
             part = tuple(slice(i * b, (i + 1) * b) for i, b in zip(idx, block, strict=True))
-            t, lo, hi = _otsu(values[part], None if roi is None else roi[part])
+            t, lo, hi = _otsu(sample_of(part))
             if hi - lo >= _MIN_SEPARATION * (high - low):
                 grid[idx] = t
     return ClassSplit(grid, block, whole, low, high)
 
 
-def _otsu(values: np.ndarray, roi: np.ndarray | None) -> tuple[float, float, float]:
-    """Otsu's threshold and the two class medians, from a regular subsample (skimage's
-    ``threshold_otsu`` with 1024 bins and ``np.median`` of each class, computed in a few
-    passes by :func:`cavitas.segment._two_class.otsu_split`)."""
+def _subsample(values: np.ndarray, roi: np.ndarray | None) -> np.ndarray:
+    """A regular subsample of at most about :data:`_SAMPLE` voxels inside the ROI."""
     flat = values.ravel()
     if roi is not None:
         flat = flat[roi.ravel()]
-    step = max(1, flat.size // _SAMPLE)
-    sample = flat[::step]
+    return flat[::sample_step(flat.size)]
+
+
+def _otsu(sample: np.ndarray) -> tuple[float, float, float]:
+    """Otsu's threshold and the two class medians of a subsample (skimage's
+    ``threshold_otsu`` with 1024 bins and ``np.median`` of each class, computed in a few
+    passes by :func:`cavitas.segment._two_class.otsu_split`)."""
     if sample.size == 0:
         return 0.0, 0.0, 0.0
     if sample.min() == sample.max():
@@ -186,15 +222,22 @@ def eligible_nodes(tree, smoothed: np.ndarray, roi: np.ndarray | None,
     surround, which has no local threshold of its own, is judged by the whole image.
     ``breach_dip`` lowers the wall's bar (with white noise, :data:`WHITE_NOISE_DIP`).
     """
-    split = class_split(smoothed, roi)
+    return eligible_by_split(tree, class_split(smoothed, roi), smoothed.shape, noise,
+                             breach_dip)
+
+
+def eligible_by_split(tree, split: ClassSplit, shape: tuple[int, ...], noise: float,
+                      breach_dip: float = 0.0) -> np.ndarray:
+    """:func:`eligible_nodes` with the image's :class:`ClassSplit` already computed (the
+    image has ``shape``)."""
     nodes = np.arange(1, tree.n_nodes)
     eligible = np.zeros(tree.n_nodes, bool)
     if split.separation < MIN_CLASS_SEPARATION * noise:
         return eligible
-    wall_threshold = np.minimum(split.whole, split.at(tree.breach[nodes], smoothed.shape))
+    wall_threshold = np.minimum(split.whole, split.at(tree.breach[nodes], shape))
     wall_threshold = split.low + WALL_REACH * (wall_threshold - split.low) - breach_dip
     eligible[nodes] = straddles(tree.core_level[nodes], tree.breach_level[nodes],
-                                split.at(tree.core[nodes], smoothed.shape), wall_threshold)
+                                split.at(tree.core[nodes], shape), wall_threshold)
     return eligible
 
 
