@@ -163,10 +163,10 @@ def test_a_wall_that_fades_below_the_class_threshold_still_counts(monkeypatch):
                            breach=np.array([-1, 11, 21, 31]),
                            core_level=np.array([-np.inf, 0.05, 0.05, 0.6]),
                            breach_level=np.array([np.nan, 0.45, 0.3, 1.0]))
-    eligible = evidence.eligible_nodes(tree, image, None, noise=0.01)
+    eligible = evidence.eligible_nodes(tree, split, image.shape, noise=0.01)
     assert eligible.tolist() == [False, True, False, False]
     monkeypatch.setattr(evidence, "WALL_REACH", 1.0)  # the bare threshold
-    assert evidence.eligible_nodes(tree, image, None, noise=0.01).tolist() == [False] * 4
+    assert evidence.eligible_nodes(tree, split, image.shape, noise=0.01).tolist() == [False] * 4
 
 
 def test_no_structure_means_no_candidate():
@@ -182,8 +182,9 @@ def test_no_structure_means_no_candidate():
     tree = SimpleNamespace(n_nodes=2, core=np.array([-1, 10]), breach=np.array([-1, 11]),
                            core_level=np.array([-np.inf, -2.0]),
                            breach_level=np.array([np.nan, 2.0]))
-    assert not evidence.eligible_nodes(tree, image, None, noise=1.0).any()
-    assert evidence.eligible_nodes(tree, image, None, noise=0.1)[1]
+    split = class_split(image)
+    assert not evidence.eligible_nodes(tree, split, image.shape, noise=1.0).any()
+    assert evidence.eligible_nodes(tree, split, image.shape, noise=0.1)[1]
 
 
 def test_tree_size_is_the_breach_region_size():

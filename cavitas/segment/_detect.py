@@ -23,7 +23,7 @@ from ..cubical._tree import OUTSIDE, CavityTree
 from . import _noise
 from ._cell_sized import cell_sized_splits
 from ._discovery import false_discovery_threshold, share_passing
-from ._evidence import WHITE_NOISE_DIP, ClassSplit, class_split, eligible_by_split, enough_for_size
+from ._evidence import WHITE_NOISE_DIP, ClassSplit, class_split, eligible_nodes, enough_for_size
 from ._gap import find_empty_stretch, find_gap
 from ._params import AUTO_SCALES, SegmentParams
 from ._polarity import census, polarity_hint
@@ -242,7 +242,7 @@ def detect(image: ScanImage, params: SegmentParams, *, noise: _noise.NoiseLevel,
         if null is not None:  # automatic mode
             smoothed_noise = _noise.smoothed_noise_sigma(noise.amplitude, blurred)
             assert split is not None  # a sweep in automatic mode gives it
-            eligible = eligible_by_split(
+            eligible = eligible_nodes(
                 tree, split, smoothed.shape, smoothed_noise,
                 breach_dip=WHITE_NOISE_DIP * smoothed_noise if noise.white else 0.0)
             if face_breach is not None:

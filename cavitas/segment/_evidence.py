@@ -48,7 +48,7 @@ from scipy import ndimage as ndi
 from ._two_class import otsu_split
 
 __all__ = ["MIN_CLASS_SEPARATION", "WALL_REACH", "WHITE_NOISE_DIP", "ClassSplit", "class_split",
-           "eligible_by_split", "eligible_nodes", "sample_step", "small_region_threshold",
+           "eligible_nodes", "sample_step", "small_region_threshold",
            "split_blocks", "split_of_samples", "straddles", "typical_size", "enough_for_size",
            "walls_like_neighbours"]
 
@@ -209,9 +209,10 @@ def _otsu(sample: np.ndarray) -> tuple[float, float, float]:
     return otsu_split(sample)
 
 
-def eligible_nodes(tree, smoothed: np.ndarray, roi: np.ndarray | None,
-                   noise: float, breach_dip: float = 0.0) -> np.ndarray:
-    """Per node of ``tree``: its inside in the interior class and its wall in the wall class.
+def eligible_nodes(tree, split: ClassSplit, shape: tuple[int, ...], noise: float,
+                   breach_dip: float = 0.0) -> np.ndarray:
+    """Per node of ``tree``: its inside in the interior class and its wall in the wall class,
+    by the :class:`ClassSplit` of the smoothed image (of ``shape``, :func:`class_split`).
 
     False for the outside (node 0), and for every node when the two classes lie less than
     :data:`MIN_CLASS_SEPARATION` times ``noise`` (the smoothed image's noise level) apart:
@@ -222,14 +223,6 @@ def eligible_nodes(tree, smoothed: np.ndarray, roi: np.ndarray | None,
     surround, which has no local threshold of its own, is judged by the whole image.
     ``breach_dip`` lowers the wall's bar (with white noise, :data:`WHITE_NOISE_DIP`).
     """
-    return eligible_by_split(tree, class_split(smoothed, roi), smoothed.shape, noise,
-                             breach_dip)
-
-
-def eligible_by_split(tree, split: ClassSplit, shape: tuple[int, ...], noise: float,
-                      breach_dip: float = 0.0) -> np.ndarray:
-    """:func:`eligible_nodes` with the image's :class:`ClassSplit` already computed (the
-    image has ``shape``)."""
     nodes = np.arange(1, tree.n_nodes)
     eligible = np.zeros(tree.n_nodes, bool)
     if split.separation < MIN_CLASS_SEPARATION * noise:
