@@ -4,7 +4,7 @@ OME-Zarr image or an HDF5 file segmented chunk by chunk on Dask workers
 
 Only the mode :func:`cavitas.segment._chunked_segment.segment_in_chunks` computes is
 taken: ``--region component`` with a hand threshold, or with the automatic one at the scale
-``--smooth`` gives (no ``--mask``; no polarity check, which run.json and the summary say).
+``--smooth`` gives (no ``--mask``), with the polarity check.
 Everything else is refused in one
 sentence before any work starts (exit code 2), so nothing is written. The outputs go to a
 staging folder published at the end (:mod:`cavitas.io._staging`): labels.zarr (and
@@ -39,8 +39,6 @@ NOT_MADE = ("the wall-thickness columns of regions.csv (the local thickness of a
             "depends on the largest ball inside the walls, which no fixed chunk overlap "
             "bounds; the in-memory route leaves them out with --no-thickness)")
 #: ... and, with the automatic threshold, does not check.
-NOT_CHECKED = ("the polarity check (whether --walls looks inverted: a second detection of the "
-               "other polarity; polarity_hint stays null)")
 #: The smoothed image, stored once in the staging folder (which the workers write to
 #: anyway) for every pass after the first to read; removed before the outputs are published,
 #: and with the staging folder if the run fails.
@@ -209,8 +207,8 @@ def _write_report(path: Path, tables: Tables, *, labels: Any, image: Any, volume
     from ..report import write_report
     from ..workflow import border_note, threshold_basis
 
-    notes = [note for note in (threshold_basis(parameters), border_note(tables.regions))
-             if note]
+    notes = [note for note in (parameters.get("polarity_hint"), threshold_basis(parameters),
+                               border_note(tables.regions)) if note]
     write_report(path, image=image, labels=labels, spacing=volume.spacing, unit=volume.unit,
                  regions=tables.regions, diagram=tables.cavities.diagram,
                  kept=tables.cavities.kept, threshold=parameters["threshold"],
@@ -239,7 +237,6 @@ def run_chunked(args: argparse.Namespace, settings: Any) -> int:
 
     started = time.perf_counter()
     _refuse(args, settings)
-    not_made = f"{NOT_MADE}; {NOT_CHECKED}" if settings.params.automatic else NOT_MADE
     options = settings.options
     reading = settings.reading.kwargs()
     targets = _targets(args, settings)
@@ -281,7 +278,8 @@ def run_chunked(args: argparse.Namespace, settings: Any) -> int:
                           "smooth_sigma": seg.smooth_sigma, "automatic": params.automatic,
                           "scale_basis": "given" if params.smooth is not None else "none",
                           "scales_tried": seg.choice.scales_tried, "gap": seg.choice.gap,
-                          "threshold_rule": seg.choice.rule, "polarity_hint": None,
+                          "threshold_rule": seg.choice.rule,
+                          "polarity_hint": seg.choice.polarity_hint,
                           "splits_joined": seg.choice.splits_joined,
                           "texture_pieces_joined": seg.choice.texture_joined,
                           "cell_sized_splits": seg.choice.cell_sized,
@@ -306,7 +304,7 @@ def run_chunked(args: argparse.Namespace, settings: Any) -> int:
             "spacing": spacing.tolist(),
             "unit": unit,
             "route": f"chunk by chunk on {workers} Dask worker(s)",
-            "not_made": not_made,
+            "not_made": NOT_MADE,
             "read_options": reading,
             "parameters": parameters,
             "options": options.to_dict(),
@@ -334,8 +332,10 @@ def run_chunked(args: argparse.Namespace, settings: Any) -> int:
               f"{counts['enclosure']} enclosures; persistence threshold "
               f"{seg.threshold:.4g} (intensity units{rule}), smoothing σ "
               f"{seg.smooth_sigma:.3g}")
+        if seg.choice.polarity_hint:
+            print(f"  {seg.choice.polarity_hint}")
         print(f"  computed chunk by chunk on {workers} Dask worker(s), chunks of {shape} "
-              f"voxels; not made on this route: {not_made}")
+              f"voxels; not made on this route: {NOT_MADE}")
         print(f"  outputs in {args.out}: " + ", ".join(p.name for p in targets.values()))
         print(RESEARCH_ONLY)
     return 0

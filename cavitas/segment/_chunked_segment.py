@@ -19,8 +19,9 @@ tested equal to its whole-volume step:
    the tree, on the client: :func:`._detect.detect` itself at the one scale, given the
    merged tree, the noise level (:func:`._chunked_statistics.noise_level_in_chunks`) and,
    in automatic mode, the two-class split (:func:`._chunked_split.class_split_in_chunks`)
-   in place of the in-memory sweep and statistics (no polarity check: that is a second
-   detection, of the other polarity);
+   in place of the in-memory sweep and statistics; in automatic mode also
+   :func:`._detect.polarity_check`, the same detection of the other polarity (a second
+   chunked tree, of the negated smoothed image);
 4. pruning from the tree alone (:func:`._tree_order.prune_by_levels`);
 5. chamber and enclosure labels per chunk (:func:`._chunked_regions.chunked_nested_map`),
    counted per chunk; the volume bounds, numbering and table from those counts
@@ -48,7 +49,7 @@ from ._chunked_regions import chunked_nested_map
 from ._chunked_smooth import smooth_in_chunks
 from ._chunked_split import class_split_in_chunks
 from ._chunked_statistics import noise_level_in_chunks, percentiles_in_chunks
-from ._detect import ScanImage, Swept, detect
+from ._detect import ScanImage, Swept, detect, polarity_check
 from ._params import SegmentParams
 from ._regions import face_slices
 from ._result import ChamberValues, EnclosureValues, RegionCounts, number_regions
@@ -67,6 +68,7 @@ class ThresholdChoice:
     splits_joined: int                  # significant splits the split rule joined
     texture_joined: int                 # significant pieces kept with their region
     cell_sized: int                     # nodes promoted as cell-sized splits
+    polarity_hint: str | None           # the other polarity looks clearer (automatic mode)
 
 
 @dataclass(frozen=True)
@@ -170,15 +172,21 @@ def segment_in_chunks(image: Any, *, params: SegmentParams, spacing: np.ndarray,
         low, high = percentiles_in_chunks(image, [0.5, 99.5])
         robust_range = float(high - low)
     sweep = _ChunkedSweep(smoothed, sigma, mask, connectivity)
+    scan = ScanImage(image, sign, _noise.work_dtype(image.dtype))
+    options = dict(noise=noise, robust_range=robust_range or 0.0, connectivity=connectivity,
+                   roi=None)
     # segment()'s own detection at the one scale, on the merged tree
-    det, tried, _ = detect(ScanImage(image, sign, _noise.work_dtype(image.dtype)), params,
-                           noise=noise, robust_range=robust_range or 0.0, spacing=spacing,
-                           connectivity=connectivity, roi=None, tell=lambda text: None,
-                           sweep=sweep)
+    det, tried, _ = detect(scan, params, spacing=spacing, tell=lambda text: None, sweep=sweep,
+                           **options)
+    hint = None
+    if params.automatic:  # as segment(): the other polarity at this scale, its own tree
+        hint = polarity_check(det, scan, params, spacing=spacing,
+                              sweep=_ChunkedSweep(-smoothed, sigma, mask, connectivity),
+                              **options)
     tau, keep = det.threshold, det.keep
     choice = ThresholdChoice(det.rule, det.gap, tried,
                              int(np.count_nonzero(det.significant & ~keep)),
-                             det.texture_joined, det.cell_sized)
+                             det.texture_joined, det.cell_sized, hint)
     del det
     chunked = sweep.merged()
     tree = chunked.tree
@@ -240,7 +248,9 @@ class _ChunkedSweep:
     def __call__(self, sigma: np.ndarray, automatic: bool) -> Swept:
         from ..cubical._chunked_tree import tree_chunks_on_dask
 
-        assert np.array_equal(sigma, self.sigma)  # one scale: the one smoothed
+        # one scale: the one smoothed (the polarity check gives it back through its
+        # physical value, which may differ in the last bit)
+        assert np.allclose(sigma, self.sigma, rtol=1e-12, atol=0.0)
         self.chunked = tree_chunks_on_dask(self.smoothed, walls="bright",
                                            connectivity=self.connectivity, mask=self.mask)
         split = class_split_in_chunks(self.smoothed) if automatic else None
