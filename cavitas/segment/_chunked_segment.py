@@ -173,16 +173,16 @@ def segment_in_chunks(image: Any, *, params: SegmentParams, spacing: np.ndarray,
         robust_range = float(high - low)
     sweep = _ChunkedSweep(smoothed, sigma, mask, connectivity)
     scan = ScanImage(image, sign, _noise.work_dtype(image.dtype))
-    options = dict(noise=noise, robust_range=robust_range or 0.0, connectivity=connectivity,
-                   roi=None)
     # segment()'s own detection at the one scale, on the merged tree
-    det, tried, _ = detect(scan, params, spacing=spacing, tell=lambda text: None, sweep=sweep,
-                           **options)
+    det, tried, _ = detect(scan, params, noise=noise, robust_range=robust_range or 0.0,
+                           spacing=spacing, connectivity=connectivity, roi=None,
+                           tell=lambda text: None, sweep=sweep)
     hint = None
     if params.automatic:  # as segment(): the other polarity at this scale, its own tree
-        hint = polarity_check(det, scan, params, spacing=spacing,
-                              sweep=_ChunkedSweep(-smoothed, sigma, mask, connectivity),
-                              **options)
+        hint = polarity_check(det, scan, params, noise=noise,
+                              robust_range=robust_range or 0.0, spacing=spacing,
+                              connectivity=connectivity, roi=None,
+                              sweep=_ChunkedSweep(-smoothed, sigma, mask, connectivity))
     tau, keep = det.threshold, det.keep
     choice = ThresholdChoice(det.rule, det.gap, tried,
                              int(np.count_nonzero(det.significant & ~keep)),
