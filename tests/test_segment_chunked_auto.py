@@ -1,4 +1,5 @@
-"""The automatic threshold chunk by chunk at one given smoothing scale equals the in-memory one.
+"""The automatic threshold chunk by chunk, at the smoothing scale given or chosen, equals the
+in-memory one.
 
 Checks and their sources:
 
@@ -8,14 +9,15 @@ Checks and their sources:
   (Otsu 1979): the whole image's threshold and class medians and every block's threshold
   equal, for chunks one voxel thick, chunks smaller than a block and a subsample of every
   second voxel.
-* ``segment_in_chunks`` in automatic mode (``--region component --smooth S``) against
-  ``cavitas.segment(image, smooth=S, region="component")`` in memory: the threshold, the
-  rule that set it (the diagram's gap, the false discovery rate, the noise null), the gap,
-  the scale tried, the splits joined, the labels voxel for voxel and the table row for
-  row, in 2D and 3D, both polarities, white and correlated noise, chunks one voxel thick
-  and chunks cutting through every cell, on a loopback Dask LocalCluster.
-* The command line: ``cavitas segment --dask-local/--scheduler`` without a threshold but
-  with ``--smooth`` writes the outputs the in-memory command writes (labels, tables,
+* ``segment_in_chunks`` in automatic mode (``--region component``, ``--smooth S`` or the
+  scale chosen automatically) against ``cavitas.segment(image, smooth=S,
+  region="component")`` in memory: the threshold, the rule that set it (the diagram's gap,
+  the false discovery rate, the noise null), the gap, every scale tried, the splits
+  joined, the labels voxel for voxel and the table row for row, in 2D and 3D, both
+  polarities, white and correlated noise, chunks one voxel thick and chunks cutting
+  through every cell, on a loopback Dask LocalCluster.
+* The command line: ``cavitas segment --dask-local/--scheduler`` without a threshold,
+  with ``--smooth`` or without it, writes the outputs the in-memory command writes (labels, tables,
   diagram; ``tests/test_segment_chunked_cli.py``'s comparison) and run.json's threshold,
   threshold rule and gap.
 * The polarity check: the hint (the other polarity's census against this one's) equals
@@ -82,6 +84,10 @@ CASES = [  # (shape, pitch, noise, correlated, walls, smooth, chunks, rule in me
     ((50, 46), 6, 5.0, 0.7, "dark", 1.0, ((50,), (1, 22, 23)), "gap"),  # not white noise
     ((18, 19, 20), 6, 10.0, 0.0, "bright", 0.5, (7, 7, 20), "noise null"),
     ((20, 21, 22), 5, 10.0, 0.0, "dark", 0.5, ((1, 19), (4, 4, 13), (2, 20)), "noise null"),
+    # no --smooth: the scale chosen among the automatic ones (here 1 voxel), and with
+    # correlated noise the textured choice among the scales within its grain
+    ((48, 50), 8, 60.0, 0.0, "dark", None, (13, (20, 30)), "false discovery rate"),
+    ((60, 64), 8, 20.0, 1.0, "bright", None, ((1, 59), 16), "noise null"),
 ]
 
 
@@ -101,6 +107,7 @@ def test_automatic_threshold_equals_in_memory(client, shape, pitch, noise, corre
     chosen = memory.params
     assert chosen["threshold_rule"] == rule  # the rule this case is here for
     assert seg.threshold == chosen["threshold"]
+    assert seg.smooth_sigma == chosen["smooth_sigma"]
     assert seg.choice.rule == chosen["threshold_rule"] and seg.choice.gap == chosen["gap"]
     assert seg.choice.scales_tried == chosen["scales_tried"]
     assert seg.choice.splits_joined == chosen["splits_joined"]
@@ -134,16 +141,19 @@ def test_polarity_check_equals_in_memory(client, walls):
 
 
 @pytest.mark.cluster
-def test_command_line_automatic_threshold(client, tmp_path):
+@pytest.mark.parametrize("image, scale, rule", [
+    (_cells((48, 50), 6, seed=2, noise=8.0), ["--smooth", "1"], "gap"),
+    (_cells((48, 50), 8, seed=2, noise=60.0), [], "false discovery rate"),  # scale chosen
+])
+def test_command_line_automatic_threshold(client, tmp_path, image, scale, rule):
     from tests.test_segment_chunked_cli import _compare_runs, _store
 
-    image = _cells((48, 50), 6, seed=2, noise=8.0)
     source = _store(tmp_path / "v.zarr", image, (7, 25))
-    common = ["--region", "component", "--smooth", "1", "--no-report"]
+    common = ["--region", "component", *scale, "--no-report"]
     _compare_runs(tmp_path, source, common, client.scheduler.address)
     record, memory = (json.loads((tmp_path / run / "run.json").read_text(encoding="utf-8"))
                       for run in ("big", "mem"))
-    assert memory["parameters"]["threshold_rule"] == "gap"
+    assert memory["parameters"]["threshold_rule"] == rule
     for name in ("threshold", "threshold_rule", "gap", "automatic", "scales_tried",
-                 "smooth_sigma", "noise_sigma", "polarity_hint"):
+                 "smooth_sigma", "scale_basis", "noise_sigma", "polarity_hint"):
         assert record["parameters"][name] == memory["parameters"][name], name

@@ -355,8 +355,7 @@ def test_component_regions_are_their_definition(ndim, walls):
 REFUSED = [  # (options, words of the one sentence)
     (["--min-persistence", "30"], "--region basin needs the whole volume"),
     (["--region", "breach", "--min-persistence", "30"], "--region breach needs"),
-    (["--region", "component"], "give --smooth"),
-    (["--region", "component", "--min-persistence", "30", "--auto"], "give --smooth"),
+    (["--region", "component", "--mask", "roi.zarr"], "leave out --mask"),
     (["--region", "component", "--smooth", "1", "--mask", "roi.zarr"], "leave out --mask"),
     (["--region", "component", "--min-persistence", "30", "--keep-border"], "--keep-border"),
     (["--region", "component", "--min-persistence", "30", "--partition"], "--partition"),

@@ -4,7 +4,7 @@ OME-Zarr image or an HDF5 file segmented chunk by chunk on Dask workers
 
 Only the mode :func:`cavitas.segment._chunked_segment.segment_in_chunks` computes is
 taken: ``--region component`` with a hand threshold, or with the automatic one at the scale
-``--smooth`` gives (no ``--mask``), with the polarity check.
+``--smooth`` gives or chosen as in memory (no ``--mask``), with the polarity check.
 Everything else is refused in one
 sentence before any work starts (exit code 2), so nothing is written. The outputs go to a
 staging folder published at the end (:mod:`cavitas.io._staging`): labels.zarr (and
@@ -61,11 +61,6 @@ def _refuse(args: argparse.Namespace, settings: Any) -> None:
     """Refuse, in one sentence each, what the chunked route does not compute."""
     name = args.file
     params, options = settings.params, settings.options
-    if params.automatic and params.smooth is None:
-        raise ParameterError(
-            f"The automatic threshold chunk by chunk is computed at one smoothing scale: "
-            f"give --smooth (or --min-persistence or --relative-persistence) to segment "
-            f"'{name}' with --scheduler or --dask-local.", parameters=("smooth",))
     if params.automatic and settings.options.mask:
         raise ParameterError(
             f"The automatic threshold chunk by chunk does not take a region of interest "
@@ -276,7 +271,8 @@ def run_chunked(args: argparse.Namespace, settings: Any) -> int:
             parameters = {**params.to_dict(), "threshold": seg.threshold,
                           "robust_range": seg.robust_range, **_noise_record(seg.noise),
                           "smooth_sigma": seg.smooth_sigma, "automatic": params.automatic,
-                          "scale_basis": "given" if params.smooth is not None else "none",
+                          "scale_basis": ("given" if params.smooth is not None else
+                                          "data" if params.automatic else "none"),
                           "scales_tried": seg.choice.scales_tried, "gap": seg.choice.gap,
                           "threshold_rule": seg.choice.rule,
                           "polarity_hint": seg.choice.polarity_hint,

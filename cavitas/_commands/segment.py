@@ -60,15 +60,15 @@ examples:
       labels, rows and diagram as without --dask-local with --no-thickness. Only this
       mode is computed this way so far: --region component, a threshold given by hand
       (--min-persistence or --relative-persistence) with --smooth given or none
-  cavitas segment big.zarr -o out --dask-local 4 --region component --smooth 1.5
-      the same with the automatic threshold, at the one scale --smooth gives: the
-      threshold, its rule, the polarity check and the regions of the run without
-      --dask-local. What needs the whole volume (the automatic choice of the scale, the
-      automatic threshold with --mask, basin and breach regions, --keep-border, shells,
-      partition, meshes) is refused in one sentence, and the wall thickness is not made.
-      With --smooth, the output folder also holds the smoothed image while the run
-      lasts (4 bytes per voxel for data of up to 16 bits and float32, 8 otherwise,
-      before compression)
+  cavitas segment big.zarr -o out --dask-local 4 --region component
+      the same with the automatic threshold (at the scale --smooth gives, or the one the
+      run without --dask-local chooses): the scale, threshold, its rule, the polarity
+      check and the regions of the run without --dask-local. What needs the whole
+      volume (the automatic threshold with --mask, basin and breach regions,
+      --keep-border, shells, partition, meshes) is refused in one sentence, and the wall
+      thickness is not made. With smoothing, the output folder also holds the smoothed
+      image while the run lasts (4 bytes per voxel for data of up to 16 bits and
+      float32, 8 otherwise, before compression)
 
 parameter file (--params): the options' names with underscores, at the top level or in
 tables; types are strict (true/false, quoted texts, numbers, [lists] of numbers):

@@ -2,10 +2,10 @@
 
 The modes wired so far: a persistence threshold given by hand (absolute, or relative to the
 robust range, :func:`._chunked_statistics.percentiles_in_chunks`), the smoothing given or
-none; or the automatic threshold at one given smoothing scale, without a region of
-interest; and ``region="component"`` (each chamber the component below its level that
-holds its core; no border-cut check and no island filling, which flood or fill over the
-whole volume).
+none; or the automatic threshold, at the smoothing scale given or chosen as ``segment``
+chooses it, without a region of interest; and ``region="component"`` (each chamber the
+component below its level that holds its core; no border-cut check and no island filling,
+which flood or fill over the whole volume).
 Its steps are those of :func:`cavitas.segment.segment` in that mode, each from a block
 tested equal to its whole-volume step:
 
@@ -14,14 +14,16 @@ tested equal to its whole-volume step:
    smoothing with halos (:func:`._chunked_smooth.smooth_in_chunks`), stored once in a
    Zarr store when the caller gives one (``smoothed_store``), so that the later sweeps
    read it instead of smoothing again;
-2. the cavity tree (:func:`cavitas.cubical._chunked_tree.tree_chunks_on_dask`);
+2. the cavity tree (:func:`cavitas.cubical._chunked_tree.tree_chunks_on_dask`), of every
+   scale the detection tries;
 3. the threshold, selection (:func:`._select.select_nodes`, ``top``) and the split rule on
-   the tree, on the client: :func:`._detect.detect` itself at the one scale, given the
-   merged tree, the noise level (:func:`._chunked_statistics.noise_level_in_chunks`) and,
-   in automatic mode, the two-class split (:func:`._chunked_split.class_split_in_chunks`)
-   in place of the in-memory sweep and statistics; in automatic mode also
-   :func:`._detect.polarity_check`, the same detection of the other polarity (a second
-   chunked tree, of the negated smoothed image);
+   the tree, on the client: :func:`._detect.detect` itself (the scale given, or its
+   automatic choice among several), given each scale's merged tree, the noise level
+   (:func:`._chunked_statistics.noise_level_in_chunks`) and, in automatic mode, the
+   two-class split (:func:`._chunked_split.class_split_in_chunks`) in place of the
+   in-memory sweep and statistics; in automatic mode also :func:`._detect.polarity_check`,
+   the same detection of the other polarity (one more chunked tree, of the image smoothed
+   with the other sign);
 4. pruning from the tree alone (:func:`._tree_order.prune_by_levels`);
 5. chamber and enclosure labels per chunk (:func:`._chunked_regions.chunked_nested_map`),
    counted per chunk; the volume bounds, numbering and table from those counts
@@ -64,7 +66,7 @@ class ThresholdChoice:
 
     rule: str | None                    # of _detect.THRESHOLD_RULES; None: set by hand
     gap: float | None                   # persistence at the diagram's gap, if that rule
-    scales_tried: list[dict[str, Any]]  # the one scale tried: its sigma, threshold, count...
+    scales_tried: list[dict[str, Any]]  # every scale tried: its sigma, threshold, count...
     splits_joined: int                  # significant splits the split rule joined
     texture_joined: int                 # significant pieces kept with their region
     cell_sized: int                     # nodes promoted as cell-sized splits
@@ -91,7 +93,7 @@ class ChunkedSegmentation:
 def segment_in_chunks(image: Any, *, params: SegmentParams, spacing: np.ndarray, unit: str,
                       mask: Any = None, name: str = "image",
                       smoothed_store: str | os.PathLike | None = None) -> ChunkedSegmentation:
-    """:func:`cavitas.segment.segment` of a Dask array in component mode, one scale.
+    """:func:`cavitas.segment.segment` of a Dask array in component mode.
 
     Parameters
     ----------
@@ -100,8 +102,9 @@ def segment_in_chunks(image: Any, *, params: SegmentParams, spacing: np.ndarray,
     params : SegmentParams
         ``region="component"``, no ``level_fraction`` or ``keep_border`` (the command
         line refuses the others before calling this). In automatic mode (no
-        ``min_persistence`` or ``relative_persistence``) with one ``smooth`` given and no
-        ``mask`` only.
+        ``min_persistence`` or ``relative_persistence``) without a ``mask`` only; with no
+        ``smooth``, the scale is chosen among the automatic ones as ``segment`` chooses it
+        (every candidate scale's tree merged from the chunks).
     spacing, unit
         The voxel size per axis and its unit.
     mask : dask.array.Array of bool, optional
@@ -112,9 +115,11 @@ def segment_in_chunks(image: Any, *, params: SegmentParams, spacing: np.ndarray,
     smoothed_store : path, optional
         Where (a Zarr store not yet there, in a folder every worker can write) the smoothed
         image is written once, chunk by chunk, for every later pass to read instead of
-        smoothing each chunk again. It must stay until the returned label maps are
-        written; the caller removes it then. Not made when nothing is smoothed or the
-        chunks are irregular (Zarr's chunks are regular). None: every pass smooths again.
+        smoothing each chunk again (the given scale's before the tree; with the scale
+        chosen automatically, the chosen one's after the choice). It must stay until the
+        returned label maps are written; the caller removes it then. Not made when nothing
+        is smoothed or the chunks are irregular (Zarr's chunks are regular). None: every
+        pass smooths again.
 
     Returns
     -------
@@ -139,11 +144,10 @@ def segment_in_chunks(image: Any, *, params: SegmentParams, spacing: np.ndarray,
     import dask
     import dask.array as da
 
-    if params.automatic and (params.smooth is None or mask is not None):
+    if params.automatic and mask is not None:
         raise ParameterError(
-            f"The automatic threshold of '{name}' chunk by chunk needs one smoothing scale "
-            f"given (smooth) and no region of interest (mask).",
-            parameters=("smooth" if params.smooth is None else "mask",))
+            f"The automatic threshold of '{name}' chunk by chunk needs no region of interest "
+            f"(mask).", parameters=("mask",))
     floor = _noise.QUANTISATION_SIGMA if np.issubdtype(image.dtype, np.integer) else 0.0
     if image.dtype == np.bool_:
         image = image.astype(np.uint8)
@@ -153,42 +157,36 @@ def segment_in_chunks(image: Any, *, params: SegmentParams, spacing: np.ndarray,
     ndim = image.ndim
     connectivity = check_connectivity(ndim, params.connectivity or 1)
     sign = 1.0 if params.walls == "bright" else -1.0
-    sigma = (np.asarray(params.smooth, float) / spacing if params.smooth is not None
-             else np.zeros(ndim))
-    smoothed = smooth_in_chunks(image, tuple(sigma), dtype=_noise.work_dtype(image.dtype),
-                                sign=sign)
-    if smoothed_store is not None and sigma.any() and _regular(smoothed.chunks):
-        try:  # one sweep; every later one reads the store
-            smoothed.to_zarr(os.fspath(smoothed_store))
-        except OSError as exc:  # raised on a worker
-            failure = write_failure(exc, Path(smoothed_store), "the smoothed image")
-            if failure is None:
-                raise
-            raise failure from exc
-        smoothed = da.from_zarr(os.fspath(smoothed_store))
+    work = _noise.work_dtype(image.dtype)
+    sweeps = _ChunkedSweeps(image, work, sign, mask, connectivity)
+    if params.smooth is not None:  # one scale: smoothed once, into the store if given
+        sweeps.store(np.asarray(params.smooth, float) / spacing, smoothed_store)
     noise = noise_level_in_chunks(image, floor=floor)  # as segment() estimates it
     robust_range = None
     if params.relative_persistence is not None:  # as segment(): 0.5th to 99.5th percentile
         low, high = percentiles_in_chunks(image, [0.5, 99.5])
         robust_range = float(high - low)
-    sweep = _ChunkedSweep(smoothed, sigma, mask, connectivity)
-    scan = ScanImage(image, sign, _noise.work_dtype(image.dtype))
-    # segment()'s own detection at the one scale, on the merged tree
+    scan = ScanImage(image, sign, work)
+    # segment()'s own detection (one scale given, or its automatic choice among several),
+    # each scale's tree merged from the chunks
     det, tried, _ = detect(scan, params, noise=noise, robust_range=robust_range or 0.0,
                            spacing=spacing, connectivity=connectivity, roi=None,
-                           tell=lambda text: None, sweep=sweep)
+                           tell=lambda text: None, sweep=sweeps)
+    sigma = det.sigma
     hint = None
     if params.automatic:  # as segment(): the other polarity at this scale, its own tree
         hint = polarity_check(det, scan, params, noise=noise,
                               robust_range=robust_range or 0.0, spacing=spacing,
                               connectivity=connectivity, roi=None,
-                              sweep=_ChunkedSweep(-smoothed, sigma, mask, connectivity))
+                              sweep=_ChunkedSweeps(image, work, -sign, mask, connectivity))
+    if params.smooth is None:  # the chosen scale, stored for the label passes
+        sweeps.store(sigma, smoothed_store)
     tau, keep = det.threshold, det.keep
     choice = ThresholdChoice(det.rule, det.gap, tried,
                              int(np.count_nonzero(det.significant & ~keep)),
                              det.texture_joined, det.cell_sized, hint)
     del det
-    chunked = sweep.merged()
+    chunked = sweeps.merged(sigma)
     tree = chunked.tree
     pruned = prune_by_levels(tree, keep, tau)
     hier = pruned.hier
@@ -234,32 +232,68 @@ def segment_in_chunks(image: Any, *, params: SegmentParams, spacing: np.ndarray,
                                scale, tree, connectivity, numbered.chamber_nodes, noise, choice)
 
 
-@dataclass
-class _ChunkedSweep:
-    """The one smoothing scale's sweep on Dask, as :func:`._detect.detect` asks for it
-    (:class:`._detect.Swept`); the merged tree is kept for the label passes."""
+class _ChunkedSweeps:
+    """Each smoothing scale's sweep on Dask, as :func:`._detect.detect` asks for it
+    (:class:`._detect.Swept`): the image smoothed lazily at that scale (or read from the
+    store made for it), its merged tree kept for the label passes."""
 
-    smoothed: Any        # the Dask array, smoothed at ``sigma``
-    sigma: np.ndarray
-    mask: Any
-    connectivity: int
-    chunked: Any = None  # cubical._chunked_tree.ChunkedTree, once swept
+    def __init__(self, image: Any, dtype: np.dtype, sign: float, mask: Any,
+                 connectivity: int) -> None:
+        self.image, self.dtype, self.sign = image, dtype, sign
+        self.mask, self.connectivity = mask, connectivity
+        self.stored: dict[bytes, Any] = {}   # scale -> the smoothed image in a Zarr store
+        self.trees: dict[bytes, Any] = {}    # scale -> its ChunkedTree
+
+    def smoothed(self, sigma: np.ndarray) -> Any:
+        """The image smoothed at ``sigma`` (voxels per axis), a Dask array."""
+        key = _key(sigma)
+        if key in self.stored:
+            return self.stored[key]
+        return smooth_in_chunks(self.image, tuple(sigma), dtype=self.dtype, sign=self.sign)
+
+    def store(self, sigma: np.ndarray, path: str | os.PathLike | None) -> None:
+        """Write the image smoothed at ``sigma`` to the Zarr store ``path`` once, for every
+        later pass to read (nothing without a path, smoothing or regular chunks). A tree
+        already swept at that scale reads the store from then on."""
+        import dataclasses
+
+        import dask.array as da
+
+        smoothed = self.smoothed(sigma)
+        if path is None or not np.any(sigma) or not _regular(smoothed.chunks):
+            return
+        try:
+            smoothed.to_zarr(os.fspath(path))
+        except OSError as exc:  # raised on a worker
+            failure = write_failure(exc, Path(path), "the smoothed image")
+            if failure is None:
+                raise
+            raise failure from exc
+        stored = da.from_zarr(os.fspath(path))
+        self.stored[_key(sigma)] = stored
+        tree = self.trees.get(_key(sigma))
+        if tree is not None:
+            self.trees[_key(sigma)] = dataclasses.replace(
+                tree, blocks=tuple(stored.to_delayed().reshape(-1)))
 
     def __call__(self, sigma: np.ndarray, automatic: bool) -> Swept:
         from ..cubical._chunked_tree import tree_chunks_on_dask
 
-        # one scale: the one smoothed (the polarity check gives it back through its
-        # physical value, which may differ in the last bit)
-        assert np.allclose(sigma, self.sigma, rtol=1e-12, atol=0.0)
-        self.chunked = tree_chunks_on_dask(self.smoothed, walls="bright",
-                                           connectivity=self.connectivity, mask=self.mask)
-        split = class_split_in_chunks(self.smoothed) if automatic else None
-        return Swept(self.smoothed, None, self.chunked.tree, split)
+        smoothed = self.smoothed(sigma)
+        chunked = tree_chunks_on_dask(smoothed, walls="bright", connectivity=self.connectivity,
+                                      mask=self.mask)
+        self.trees[_key(sigma)] = chunked
+        split = class_split_in_chunks(smoothed) if automatic else None
+        return Swept(smoothed, None, chunked.tree, split)
 
-    def merged(self) -> Any:
-        """The chunked tree (:class:`cavitas.cubical._chunked_tree.ChunkedTree`)."""
-        assert self.chunked is not None  # swept first
-        return self.chunked
+    def merged(self, sigma: np.ndarray) -> Any:
+        """The chunked tree at ``sigma`` (:class:`cavitas.cubical._chunked_tree.ChunkedTree`)."""
+        return self.trees[_key(sigma)]
+
+
+def _key(sigma: np.ndarray) -> bytes:
+    """A scale as a dictionary key (its float64 bytes)."""
+    return np.asarray(sigma, np.float64).tobytes()
 
 
 def _regular(chunks: tuple[tuple[int, ...], ...]) -> bool:
