@@ -283,14 +283,20 @@ def small_region_threshold(area: np.ndarray, persistence: np.ndarray,
     [0.0, 0.0, 0.0, 3.5, 3.5]
     """
     need = np.zeros(area.shape)
-    finite = candidates & np.isfinite(area)
-    if not finite.any():
-        return need
-    small = area < SMALL_FRACTION * typical_size(area[finite])
-    ordinary = finite & ~small
+    small, ordinary = _size_classes(area, candidates)
     if ordinary.any():
         need[small] = SMALL_CONTRAST * float(np.median(persistence[ordinary]))
     return need
+
+
+def _size_classes(area: np.ndarray, candidates: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Every node smaller than :data:`SMALL_FRACTION` of the typical candidate region, and
+    the candidates of ordinary size (both empty without a candidate of finite size)."""
+    finite = candidates & np.isfinite(area)
+    if not finite.any():
+        return np.zeros(area.shape, bool), finite
+    small = area < SMALL_FRACTION * typical_size(area[finite])
+    return small, finite & ~small
 
 
 def enough_for_size(tree, area: np.ndarray, candidates: np.ndarray, *,
@@ -348,11 +354,8 @@ def walls_like_neighbours(tree, area: np.ndarray, candidates: np.ndarray) -> np.
     from scipy.spatial import cKDTree
 
     stands = np.zeros(area.shape, bool)
-    finite = candidates & np.isfinite(area)
-    if not finite.any():
-        return stands
-    small = finite & (area < SMALL_FRACTION * typical_size(area[finite]))
-    ordinary, small_ids = np.flatnonzero(finite & ~small), np.flatnonzero(small)
+    small, ordinary_nodes = _size_classes(area, candidates)
+    ordinary, small_ids = np.flatnonzero(ordinary_nodes), np.flatnonzero(small & candidates)
     if ordinary.size == 0 or small_ids.size == 0:
         return stands
     count = min(NEIGHBOURS, ordinary.size)
